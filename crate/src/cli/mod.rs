@@ -1,0 +1,295 @@
+//! The native command line: parses arguments, reads files, calls the library, prints.
+//! No analysis lives here.
+//!
+//! Exit codes: 0 success; 2 a problem with the user's input or arguments (the message on
+//! stderr names the place); 1 anything else (for example a failed write to stdout).
+
+use crate::geometry::{TrackChoice, TrackSettings};
+use crate::import::{
+    FileKind, ImportError, ImportLimits, ImportProblem, LengthUnit, ReadOptions, TimeUnit,
+};
+use crate::place::Place;
+use clap::{Args, Parser, Subcommand, ValueEnum};
+use std::ffi::OsString;
+use std::io::Write;
+
+/// Exit code for problems with the user's input.
+pub const EXIT_BAD_INPUT: i32 = 2;
+
+#[derive(Parser, Debug)]
+#[command(
+    name = "ringline",
+    version,
+    about = "Fronts of network bursts in patterned neuronal cultures: import, track geometry, analysis."
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Read a recording and its layout; report sites, spikes, rates and the detected track.
+    Inspect(InspectArgs),
+}
+
+#[derive(Args, Debug)]
+struct InspectArgs {
+    /// Spike list (site, time_s|time_ms|time_us) or ROI traces (time_s, one column per ROI), CSV or TSV.
+    recording: String,
+    /// Layout file: site, x_um, y_um (or x_mm, y_mm).
+    #[arg(long)]
+    layout: String,
+    /// Print one JSON document on stdout instead of text.
+    #[arg(long)]
+    json: bool,
+    #[command(flatten)]
+    read: ReadArgs,
+    #[command(flatten)]
+    track: TrackArgs,
+}
+
+#[derive(Args, Debug)]
+struct ReadArgs {
+    /// What the recording file holds (detected from its header by default).
+    #[arg(long, value_enum)]
+    kind: Option<KindArg>,
+    /// Unit of a time column named plainly `time`.
+    #[arg(long, value_enum)]
+    time_unit: Option<TimeUnitArg>,
+    /// Unit of position columns named plainly `x`, `y`.
+    #[arg(long, value_enum)]
+    length_unit: Option<LengthUnitArg>,
+    /// Frames per second, for ROI traces without a time column.
+    #[arg(long, value_name = "HZ")]
+    frame_rate: Option<f64>,
+    /// Largest accepted number of data rows per file.
+    #[arg(long, value_name = "N")]
+    max_rows: Option<usize>,
+    /// Largest accepted file size, in MiB.
+    #[arg(long, value_name = "MIB")]
+    max_mib: Option<usize>,
+}
+
+#[derive(Args, Debug)]
+struct TrackArgs {
+    /// Track kind; `auto` detects it from the site positions.
+    #[arg(long, value_enum, default_value_t = TrackArg::Auto)]
+    track: TrackArg,
+    /// Ring centre in micrometres, as X,Y (fitted when absent).
+    #[arg(long, value_name = "X,Y", allow_hyphen_values = true)]
+    ring_centre: Option<String>,
+    /// Ring radius in micrometres (needs --ring-centre).
+    #[arg(long, value_name = "UM")]
+    ring_radius: Option<f64>,
+    /// Polyline waypoints in micrometres, as X,Y;X,Y;...
+    #[arg(long, value_name = "X,Y;X,Y;...", allow_hyphen_values = true)]
+    waypoints: Option<String>,
+    /// Site at the start of the track (line: picks the end; ring: where the coordinate is 0).
+    #[arg(long, value_name = "SITE")]
+    start_site: Option<String>,
+    /// Flip the direction of increasing track coordinate (clockwise on a ring).
+    #[arg(long)]
+    reverse: bool,
+}
+
+#[derive(ValueEnum, Clone, Copy, Debug)]
+enum KindArg {
+    Spikes,
+    Traces,
+}
+
+#[derive(ValueEnum, Clone, Copy, Debug)]
+enum TimeUnitArg {
+    S,
+    Ms,
+    Us,
+}
+
+#[derive(ValueEnum, Clone, Copy, Debug)]
+enum LengthUnitArg {
+    Um,
+    Mm,
+}
+
+#[derive(ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+enum TrackArg {
+    Auto,
+    Line,
+    Polyline,
+    Ring,
+    Plane,
+}
+
+/// Runs the command line with `args` (program name first) and returns the exit code.
+pub fn run(args: impl IntoIterator<Item = OsString>) -> i32 {
+    let cli = match Cli::try_parse_from(args) {
+        Ok(cli) => cli,
+        Err(e) => {
+            let _ = e.print();
+            return if e.use_stderr() { EXIT_BAD_INPUT } else { 0 };
+        }
+    };
+    let result = match cli.command {
+        Command::Inspect(args) => inspect(&args),
+    };
+    match result {
+        Ok(()) => 0,
+        Err(Failure::Input(message)) => {
+            eprintln!("ringline: {message}");
+            EXIT_BAD_INPUT
+        }
+        Err(Failure::Output(e)) => {
+            eprintln!("ringline: could not write the output: {e}");
+            1
+        }
+    }
+}
+
+enum Failure {
+    /// The user's files or arguments; the message names the place.
+    Input(String),
+    Output(std::io::Error),
+}
+
+impl From<crate::Error> for Failure {
+    fn from(e: crate::Error) -> Self {
+        Failure::Input(e.to_string())
+    }
+}
+
+impl From<ImportError> for Failure {
+    fn from(e: ImportError) -> Self {
+        Failure::Input(e.to_string())
+    }
+}
+
+fn inspect(args: &InspectArgs) -> Result<(), Failure> {
+    let read = read_options(&args.read);
+    let track = track_settings(&args.track)?;
+    let activity = read_file(&args.recording, &read.limits)?;
+    let layout = read_file(&args.layout, &read.limits)?;
+    let report = crate::inspect_files(
+        (&args.recording, &activity),
+        (&args.layout, &layout),
+        &read,
+        &track,
+    )?;
+    let text = if args.json {
+        serde_json::to_string_pretty(&report).map_err(|e| Failure::Output(e.into()))? + "\n"
+    } else {
+        report.to_text()
+    };
+    std::io::stdout()
+        .lock()
+        .write_all(text.as_bytes())
+        .map_err(Failure::Output)
+}
+
+fn read_options(args: &ReadArgs) -> ReadOptions {
+    let mut limits = ImportLimits::default();
+    if let Some(rows) = args.max_rows {
+        limits.max_rows = rows;
+    }
+    if let Some(mib) = args.max_mib {
+        limits.max_bytes = mib.saturating_mul(1 << 20);
+    }
+    ReadOptions {
+        kind: args.kind.map(|k| match k {
+            KindArg::Spikes => FileKind::SpikeList,
+            KindArg::Traces => FileKind::RoiTraces,
+        }),
+        time_unit: args.time_unit.map(|u| match u {
+            TimeUnitArg::S => TimeUnit::Seconds,
+            TimeUnitArg::Ms => TimeUnit::Milliseconds,
+            TimeUnitArg::Us => TimeUnit::Microseconds,
+        }),
+        length_unit: args.length_unit.map(|u| match u {
+            LengthUnitArg::Um => LengthUnit::Micrometres,
+            LengthUnitArg::Mm => LengthUnit::Millimetres,
+        }),
+        frame_rate_hz: args.frame_rate,
+        limits,
+    }
+}
+
+fn track_settings(args: &TrackArgs) -> Result<TrackSettings, Failure> {
+    let kind = match args.track {
+        TrackArg::Auto => TrackChoice::Auto,
+        TrackArg::Line => TrackChoice::Line,
+        TrackArg::Polyline => TrackChoice::Polyline,
+        TrackArg::Ring => TrackChoice::Ring,
+        TrackArg::Plane => TrackChoice::Plane,
+    };
+    let ring_centre_um = match &args.ring_centre {
+        Some(text) => Some(parse_point(text, "--ring-centre")?),
+        None => None,
+    };
+    let waypoints_um = match &args.waypoints {
+        Some(text) => text
+            .split(';')
+            .filter(|p| !p.trim().is_empty())
+            .map(|p| parse_point(p, "--waypoints"))
+            .collect::<Result<Vec<_>, _>>()?,
+        None => Vec::new(),
+    };
+    if !waypoints_um.is_empty() && kind != TrackChoice::Polyline {
+        return Err(Failure::Input(
+            "--waypoints describe a polyline track; add --track polyline".into(),
+        ));
+    }
+    Ok(TrackSettings {
+        kind,
+        ring_centre_um,
+        ring_radius_um: args.ring_radius,
+        waypoints_um,
+        start_site: args.start_site.clone(),
+        reverse: args.reverse,
+        ..TrackSettings::default()
+    })
+}
+
+fn parse_point(text: &str, option: &str) -> Result<[f64; 2], Failure> {
+    let parts: Vec<&str> = text.split(',').map(str::trim).collect();
+    match parts.as_slice() {
+        [x, y] => match (x.parse::<f64>(), y.parse::<f64>()) {
+            (Ok(x), Ok(y)) if x.is_finite() && y.is_finite() => Ok([x, y]),
+            _ => Err(Failure::Input(format!(
+                "{option}: expected two numbers in micrometres as X,Y, found '{text}'"
+            ))),
+        },
+        _ => Err(Failure::Input(format!(
+            "{option}: expected a point as X,Y in micrometres, found '{text}'"
+        ))),
+    }
+}
+
+/// Reads a whole file, refusing one larger than the limit before reading it.
+fn read_file(path: &str, limits: &ImportLimits) -> Result<Vec<u8>, Failure> {
+    let place = Place::file(path);
+    let meta = std::fs::metadata(path)
+        .map_err(|e| ImportError::new(place.clone(), ImportProblem::BadOption, io_words(&e)))?;
+    if meta.len() > limits.max_bytes as u64 {
+        return Err(ImportError::new(
+            place,
+            ImportProblem::TooLarge,
+            format!(
+                "the file is {} bytes, more than the limit of {} bytes; raise it with --max-mib if this file is expected",
+                meta.len(),
+                limits.max_bytes
+            ),
+        )
+        .into());
+    }
+    std::fs::read(path)
+        .map_err(|e| ImportError::new(place, ImportProblem::BadOption, io_words(&e)).into())
+}
+
+fn io_words(e: &std::io::Error) -> String {
+    match e.kind() {
+        std::io::ErrorKind::NotFound => "no such file".into(),
+        std::io::ErrorKind::PermissionDenied => "permission denied when opening the file".into(),
+        _ if e.raw_os_error() == Some(21) => "this is a folder, not a file".into(),
+        _ => format!("the file cannot be read: {e}"),
+    }
+}

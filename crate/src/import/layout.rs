@@ -1,0 +1,165 @@
+//! Layouts: one row per site with its position.
+
+use super::error::{ImportError, ImportProblem};
+use super::spikes::{find_site_column, quoted_list};
+use super::table::{match_header, HeaderMatch, ImportLimits, LengthUnit, Table};
+use crate::place::{Notice, Place};
+use crate::recording::Site;
+use serde::{Deserialize, Serialize};
+use std::collections::HashMap;
+
+/// Settings for reading a layout.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct LayoutOptions {
+    /// Unit of the position columns when their names carry none (`x`, `y`).
+    pub length_unit: Option<LengthUnit>,
+    /// Size caps.
+    pub limits: ImportLimits,
+}
+
+/// A layout as read from a file: sites with positions in micrometres.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Layout {
+    /// File name as given.
+    pub file: String,
+    /// Sites in file order.
+    pub sites: Vec<Site>,
+    /// Unit the positions were written in.
+    pub length_unit: LengthUnit,
+    /// Columns that were not used, by header name.
+    pub ignored_columns: Vec<String>,
+    /// What the user should know.
+    pub notices: Vec<Notice>,
+}
+
+/// Reads a layout from the bytes of a CSV or TSV file with columns `site, x_um, y_um`
+/// (or `x_mm`, `y_mm`; or `x`, `y` with [`LayoutOptions::length_unit`]).
+///
+/// A site listed twice is an error that names both lines. Positions must be finite.
+pub fn read_layout(
+    bytes: &[u8],
+    file: &str,
+    options: &LayoutOptions,
+) -> Result<Layout, ImportError> {
+    let mut table = Table::open(bytes, file, options.limits)?;
+    let site_col = find_site_column(&table)?;
+    let (x_col, x_unit) = find_axis(&table, "x", options.length_unit)?;
+    let (y_col, y_unit) = find_axis(&table, "y", options.length_unit)?;
+    if x_unit != y_unit {
+        return Err(ImportError::new(
+            table.place_column(None, y_col),
+            ImportProblem::BadHeader,
+            "expected x and y in the same unit, found different units",
+        ));
+    }
+    let scale = x_unit.micrometres();
+    let unit_name = match x_unit {
+        LengthUnit::Micrometres => "micrometres",
+        LengthUnit::Millimetres => "millimetres",
+    };
+    let ignored_columns: Vec<String> = table
+        .headers()
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| ![site_col, x_col, y_col].contains(i))
+        .map(|(_, h)| h.clone())
+        .collect();
+
+    let mut seen: HashMap<String, u64> = HashMap::new();
+    let mut sites = Vec::new();
+    while let Some(row) = table.next_row() {
+        let row = row?;
+        let id = row.fields.get(site_col).unwrap_or("");
+        if id.is_empty() {
+            return Err(ImportError::new(
+                table.place_column(Some(row.line), site_col),
+                ImportProblem::BadValue,
+                "expected a site identifier, found an empty field",
+            ));
+        }
+        if let Some(first) = seen.get(id) {
+            return Err(ImportError::new(
+                table.place_column(Some(row.line), site_col).at_site(id),
+                ImportProblem::DuplicateSite,
+                format!(
+                    "the site is listed twice, first on line {first}; each site needs one position"
+                ),
+            ));
+        }
+        seen.insert(id.to_string(), row.line);
+        let x = table.number(&row, x_col, &format!("an x position in {unit_name}"))?;
+        let y = table.number(&row, y_col, &format!("a y position in {unit_name}"))?;
+        sites.push(Site {
+            id: id.to_string(),
+            x_um: x * scale,
+            y_um: y * scale,
+        });
+    }
+    if sites.is_empty() {
+        return Err(ImportError::new(
+            Place::file(file),
+            ImportProblem::NoRows,
+            "the layout has a header but no site rows",
+        ));
+    }
+    let notices = ignored_columns
+        .iter()
+        .map(|name| {
+            let index = table.headers().iter().position(|h| h == name).unwrap_or(0);
+            Notice::new(
+                table.place_column(None, index),
+                "column not used by the layout reader; its values were left out",
+            )
+        })
+        .collect();
+    Ok(Layout {
+        file: file.to_string(),
+        sites,
+        length_unit: x_unit,
+        ignored_columns,
+        notices,
+    })
+}
+
+fn find_axis(
+    table: &Table<'_>,
+    axis: &str,
+    fallback: Option<LengthUnit>,
+) -> Result<(usize, LengthUnit), ImportError> {
+    for (i, header) in table.headers().iter().enumerate() {
+        match match_header(header, &[axis]) {
+            HeaderMatch::No => continue,
+            HeaderMatch::Unit(text) => {
+                let unit = LengthUnit::parse(&text).ok_or_else(|| {
+                    ImportError::new(
+                        table.place_column(None, i),
+                        ImportProblem::BadHeader,
+                        format!(
+                            "expected a length unit um or mm in the column name, found '{text}'"
+                        ),
+                    )
+                })?;
+                return Ok((i, unit));
+            }
+            HeaderMatch::NoUnit => {
+                let unit = fallback.ok_or_else(|| {
+                    ImportError::new(
+                        table.place_column(None, i),
+                        ImportProblem::BadHeader,
+                        format!("the {axis} column has no unit; name it {axis}_um or {axis}_mm, or give the length unit as an option"),
+                    )
+                })?;
+                return Ok((i, unit));
+            }
+        }
+    }
+    Err(ImportError::new(
+        Place::file(table.file()).at_line(1),
+        ImportProblem::MissingColumn,
+        format!(
+            "expected a position column named {axis}_um or {axis}_mm, found the columns {}",
+            quoted_list(table.headers())
+        ),
+    ))
+}

@@ -1,0 +1,450 @@
+//! Delimited text tables shared by all importers: BOM, delimiter, comments, header, units,
+//! numbers, size limits. Everything here reports errors at file, line and column.
+
+use super::error::{ImportError, ImportProblem};
+use crate::place::Place;
+use serde::{Deserialize, Serialize};
+
+/// Caps on how much one file may hold, so a huge or runaway file gives a clear error
+/// instead of exhausting memory (in the browser a tab has a few GiB at most).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ImportLimits {
+    /// Largest accepted file, in bytes.
+    pub max_bytes: usize,
+    /// Largest accepted number of data rows.
+    pub max_rows: usize,
+}
+
+impl Default for ImportLimits {
+    fn default() -> Self {
+        ImportLimits {
+            max_bytes: 1 << 30,
+            max_rows: 50_000_000,
+        }
+    }
+}
+
+/// Unit of a time column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum TimeUnit {
+    Seconds,
+    Milliseconds,
+    Microseconds,
+}
+
+impl TimeUnit {
+    /// Seconds per unit.
+    pub fn seconds(self) -> f64 {
+        match self {
+            TimeUnit::Seconds => 1.0,
+            TimeUnit::Milliseconds => 1e-3,
+            TimeUnit::Microseconds => 1e-6,
+        }
+    }
+
+    /// Short symbol, as used in column names (`s`, `ms`, `us`).
+    pub fn symbol(self) -> &'static str {
+        match self {
+            TimeUnit::Seconds => "s",
+            TimeUnit::Milliseconds => "ms",
+            TimeUnit::Microseconds => "us",
+        }
+    }
+
+    /// Reads a unit symbol (`s`, `sec`, `ms`, `us`, `µs`); `None` when it is not a time unit.
+    pub fn parse(text: &str) -> Option<TimeUnit> {
+        match text.trim().to_lowercase().as_str() {
+            "s" | "sec" | "secs" | "second" | "seconds" => Some(TimeUnit::Seconds),
+            "ms" | "msec" | "millisecond" | "milliseconds" => Some(TimeUnit::Milliseconds),
+            "us" | "µs" | "μs" | "usec" | "microsecond" | "microseconds" => {
+                Some(TimeUnit::Microseconds)
+            }
+            _ => None,
+        }
+    }
+}
+
+/// Unit of a position column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LengthUnit {
+    Micrometres,
+    Millimetres,
+}
+
+impl LengthUnit {
+    /// Micrometres per unit.
+    pub fn micrometres(self) -> f64 {
+        match self {
+            LengthUnit::Micrometres => 1.0,
+            LengthUnit::Millimetres => 1e3,
+        }
+    }
+
+    /// Reads a unit symbol (`um`, `µm`, `mm`); `None` when it is not a length unit.
+    pub fn parse(text: &str) -> Option<LengthUnit> {
+        match text.trim().to_lowercase().as_str() {
+            "um" | "µm" | "μm" | "micron" | "microns" | "micrometre" | "micrometer" => {
+                Some(LengthUnit::Micrometres)
+            }
+            "mm" | "millimetre" | "millimeter" => Some(LengthUnit::Millimetres),
+            _ => None,
+        }
+    }
+}
+
+/// How a header names a quantity: `base` alone, or `base` with a unit written as
+/// `base_unit`, `base (unit)` or `base [unit]`.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) enum HeaderMatch {
+    /// The header is not this quantity.
+    No,
+    /// The header is the quantity with no unit.
+    NoUnit,
+    /// The header is the quantity with this unit text (not yet validated).
+    Unit(String),
+}
+
+/// Matches a header against a quantity's base names (lower case).
+pub(crate) fn match_header(header: &str, bases: &[&str]) -> HeaderMatch {
+    let name = header.trim().to_lowercase();
+    for base in bases {
+        let Some(rest) = name.strip_prefix(base) else {
+            continue;
+        };
+        if rest.is_empty() {
+            return HeaderMatch::NoUnit;
+        }
+        let rest = rest.trim_start();
+        let unit = if let Some(inner) = rest.strip_prefix('(').and_then(|r| r.strip_suffix(')')) {
+            inner
+        } else if let Some(inner) = rest.strip_prefix('[').and_then(|r| r.strip_suffix(']')) {
+            inner
+        } else if let Some(inner) = rest.strip_prefix('_') {
+            inner
+        } else {
+            continue;
+        };
+        return HeaderMatch::Unit(unit.trim().to_string());
+    }
+    HeaderMatch::No
+}
+
+/// One data row of a table.
+pub(crate) struct Row {
+    /// Line number in the file (counted from 1).
+    pub line: u64,
+    pub fields: csv::StringRecord,
+}
+
+/// An open delimited table: header read, rows still to come.
+pub(crate) struct Table<'a> {
+    file: String,
+    headers: Vec<String>,
+    reader: csv::Reader<&'a [u8]>,
+    decimal_comma: bool,
+    limits: ImportLimits,
+    rows_read: usize,
+}
+
+impl<'a> Table<'a> {
+    /// Opens `bytes` (the whole file) as a table with a header line.
+    ///
+    /// Accepts a UTF-8 byte-order mark, CRLF or LF line ends, `#` comment lines and blank
+    /// lines. The delimiter is detected from the header line: tab, comma or semicolon.
+    /// With a semicolon delimiter, a decimal comma in numbers is accepted.
+    pub fn open(bytes: &'a [u8], file: &str, limits: ImportLimits) -> Result<Self, ImportError> {
+        let place = Place::file(file);
+        if bytes.len() > limits.max_bytes {
+            return Err(ImportError::new(
+                place,
+                ImportProblem::TooLarge,
+                format!(
+                    "the file is {} bytes, more than the limit of {} bytes; raise the limit if this file is expected",
+                    bytes.len(),
+                    limits.max_bytes
+                ),
+            ));
+        }
+        if let Err(e) = std::str::from_utf8(bytes) {
+            let at = e.valid_up_to();
+            let line = bytes[..at].iter().filter(|&&b| b == b'\n').count() as u64 + 1;
+            return Err(ImportError::new(
+                place.at_line(line),
+                ImportProblem::NotText,
+                "expected UTF-8 text, found a byte sequence that is not (is this a binary file or another text encoding?)",
+            ));
+        }
+        let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
+        let Some(header_line) = first_content_line(bytes) else {
+            return Err(ImportError::new(
+                place,
+                ImportProblem::Empty,
+                "the file is empty (no header line and no data)",
+            ));
+        };
+        let delimiter = detect_delimiter(header_line);
+        let mut reader = csv::ReaderBuilder::new()
+            .delimiter(delimiter)
+            .comment(Some(b'#'))
+            .trim(csv::Trim::All)
+            .flexible(true)
+            .has_headers(true)
+            .from_reader(bytes);
+        let headers: Vec<String> = match reader.headers() {
+            Ok(h) => h.iter().map(str::to_string).collect(),
+            Err(e) => return Err(csv_error(file, e)),
+        };
+        let table = Table {
+            file: file.to_string(),
+            headers,
+            reader,
+            decimal_comma: delimiter == b';',
+            limits,
+            rows_read: 0,
+        };
+        table.check_header()?;
+        Ok(table)
+    }
+
+    fn check_header(&self) -> Result<(), ImportError> {
+        for (i, name) in self.headers.iter().enumerate() {
+            if name.is_empty() {
+                return Err(ImportError::new(
+                    self.place_column(None, i),
+                    ImportProblem::BadHeader,
+                    "expected a column name in the header, found an empty one",
+                ));
+            }
+            if let Some(j) = self.headers[..i]
+                .iter()
+                .position(|other| other.eq_ignore_ascii_case(name))
+            {
+                return Err(ImportError::new(
+                    self.place_column(None, i),
+                    ImportProblem::BadHeader,
+                    format!(
+                        "the column name '{}' appears twice (also column {})",
+                        name,
+                        j + 1
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// File name as given.
+    pub fn file(&self) -> &str {
+        &self.file
+    }
+
+    /// Header names as written (trimmed).
+    pub fn headers(&self) -> &[String] {
+        &self.headers
+    }
+
+    /// Place of a column (index counted from 0), optionally at a line.
+    pub fn place_column(&self, line: Option<u64>, index: usize) -> Place {
+        let mut place = Place::file(&self.file);
+        place.line = line;
+        place.at_column(index + 1, self.headers.get(index).map(String::as_str))
+    }
+
+    /// Place of a line.
+    pub fn place_line(&self, line: u64) -> Place {
+        Place::file(&self.file).at_line(line)
+    }
+
+    /// Reads the next data row; `None` at the end of the file.
+    pub fn next_row(&mut self) -> Option<Result<Row, ImportError>> {
+        let mut record = csv::StringRecord::new();
+        match self.reader.read_record(&mut record) {
+            Ok(false) => None,
+            Err(e) => Some(Err(csv_error(&self.file, e))),
+            Ok(true) => {
+                let line = record.position().map_or(0, |p| p.line());
+                self.rows_read += 1;
+                if self.rows_read > self.limits.max_rows {
+                    return Some(Err(ImportError::new(
+                        self.place_line(line),
+                        ImportProblem::TooLarge,
+                        format!(
+                            "the file has more than {} data rows, the configured limit; raise the limit if this file is expected",
+                            self.limits.max_rows
+                        ),
+                    )));
+                }
+                if record.len() != self.headers.len() {
+                    return Some(Err(ImportError::new(
+                        self.place_line(line),
+                        ImportProblem::RaggedRow,
+                        format!(
+                            "expected {} fields as in the header, found {}",
+                            self.headers.len(),
+                            record.len()
+                        ),
+                    )));
+                }
+                Some(Ok(Row {
+                    line,
+                    fields: record,
+                }))
+            }
+        }
+    }
+
+    /// Reads field `index` of `row` as a finite number; `what` names the quantity
+    /// in the error ("a time in milliseconds").
+    pub fn number(&self, row: &Row, index: usize, what: &str) -> Result<f64, ImportError> {
+        let text = row.fields.get(index).unwrap_or("");
+        parse_number(text, self.decimal_comma)
+            .filter(|v| v.is_finite())
+            .ok_or_else(|| {
+                let found = if text.is_empty() {
+                    "an empty field".to_string()
+                } else {
+                    format!("'{}'", shorten(text))
+                };
+                ImportError::new(
+                    self.place_column(Some(row.line), index),
+                    ImportProblem::BadValue,
+                    format!("expected {what}, found {found}"),
+                )
+            })
+    }
+
+    /// Reads field `index` as a number that may be missing: an empty field, `NaN` or `NA`
+    /// give `Ok(None)`; text that is not a number is an error.
+    pub fn optional_number(
+        &self,
+        row: &Row,
+        index: usize,
+        what: &str,
+    ) -> Result<Option<f64>, ImportError> {
+        let text = row.fields.get(index).unwrap_or("");
+        if text.is_empty() || text.eq_ignore_ascii_case("nan") || text.eq_ignore_ascii_case("na") {
+            return Ok(None);
+        }
+        self.number(row, index, what).map(Some)
+    }
+}
+
+/// Parses a decimal number, accepting a decimal comma when `decimal_comma` is set.
+pub(crate) fn parse_number(text: &str, decimal_comma: bool) -> Option<f64> {
+    if decimal_comma && text.contains(',') && !text.contains('.') {
+        return text.replacen(',', ".", 1).parse().ok();
+    }
+    text.parse().ok()
+}
+
+/// Number of digits after the decimal separator in plain decimal notation; `None` for
+/// exponent notation, where the written precision is not the time quantum.
+pub(crate) fn decimal_places(text: &str) -> Option<u32> {
+    if text.contains(['e', 'E']) {
+        return None;
+    }
+    match text.find(['.', ',']) {
+        Some(i) => Some(text[i + 1..].chars().filter(char::is_ascii_digit).count() as u32),
+        None => Some(0),
+    }
+}
+
+fn shorten(text: &str) -> String {
+    const MAX: usize = 40;
+    if text.chars().count() <= MAX {
+        text.to_string()
+    } else {
+        let head: String = text.chars().take(MAX).collect();
+        format!("{head}...")
+    }
+}
+
+/// First line that is neither blank nor a `#` comment.
+fn first_content_line(bytes: &[u8]) -> Option<&[u8]> {
+    bytes
+        .split(|&b| b == b'\n')
+        .map(|line| line.strip_suffix(b"\r").unwrap_or(line))
+        .find(|line| {
+            let trimmed = line.trim_ascii();
+            !trimmed.is_empty() && !trimmed.starts_with(b"#")
+        })
+}
+
+/// Tab if the header has one, else comma, else semicolon, else comma (a single column).
+fn detect_delimiter(header: &[u8]) -> u8 {
+    let count = |d: u8| header.iter().filter(|&&b| b == d).count();
+    if count(b'\t') > 0 {
+        b'\t'
+    } else if count(b',') > 0 {
+        b','
+    } else if count(b';') > 0 {
+        b';'
+    } else {
+        b','
+    }
+}
+
+fn csv_error(file: &str, error: csv::Error) -> ImportError {
+    let mut place = Place::file(file);
+    if let Some(pos) = error.position() {
+        place.line = Some(pos.line());
+    }
+    let message = match error.kind() {
+        csv::ErrorKind::Utf8 { .. } => "expected UTF-8 text, found bytes that are not".to_string(),
+        _ => format!("the file cannot be read as a table: {error}"),
+    };
+    ImportError::new(place, ImportProblem::BadValue, message)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn header_units_in_three_spellings() {
+        let bases = ["time"];
+        assert_eq!(
+            match_header("time_ms", &bases),
+            HeaderMatch::Unit("ms".into())
+        );
+        assert_eq!(
+            match_header("Time (s)", &bases),
+            HeaderMatch::Unit("s".into())
+        );
+        assert_eq!(
+            match_header("time [us]", &bases),
+            HeaderMatch::Unit("us".into())
+        );
+        assert_eq!(match_header("time", &bases), HeaderMatch::NoUnit);
+        assert_eq!(match_header("timestamp", &bases), HeaderMatch::No);
+    }
+
+    #[test]
+    fn decimal_places_follow_the_text() {
+        assert_eq!(decimal_places("12.345"), Some(3));
+        assert_eq!(decimal_places("12"), Some(0));
+        assert_eq!(decimal_places("1.2e-3"), None);
+    }
+
+    #[test]
+    fn decimal_comma_only_when_asked() {
+        assert_eq!(parse_number("1,5", true), Some(1.5));
+        assert_eq!(parse_number("1,5", false), None);
+    }
+
+    #[test]
+    fn line_numbers_count_comments_and_blank_lines() {
+        let text = b"# a comment\nsite,time_s\n\n# another\nA,1.0\nB,oops\n";
+        let mut table = Table::open(text, "f.csv", ImportLimits::default()).unwrap();
+        let first = table.next_row().unwrap().unwrap();
+        assert_eq!(first.line, 5);
+        let second = table.next_row().unwrap().unwrap();
+        assert_eq!(second.line, 6);
+        let err = table.number(&second, 1, "a time").unwrap_err();
+        assert_eq!(err.place.line, Some(6));
+        assert_eq!(err.place.column.as_ref().map(|c| c.number), Some(2));
+    }
+}

@@ -1,0 +1,1 @@
+//! Simulation of recordings with known ground truth.
