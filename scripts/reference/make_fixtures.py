@@ -1,0 +1,179 @@
+#!/usr/bin/env python3
+"""Reference fixtures for ringline's tests, computed with numpy and scipy.
+
+Writes tests/fixtures/geometry_reference.json. With --check, computes the same fixtures
+afresh and compares them with the committed file (numbers to a relative 1e-9), exiting 1
+on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
+
+References used:
+- total-least-squares line: numpy.linalg.svd of the centred points (first right singular
+  vector is the direction; the second singular value over sqrt(n) is the RMS perpendicular
+  distance);
+- geometric circle fit: scipy.optimize.least_squares (method 'lm', i.e. MINPACK) on the
+  radial residuals |p - c| - R;
+- Kasa's algebraic fit: numpy.linalg.lstsq on x^2 + y^2 + D x + E y + F = 0.
+"""
+import json
+import math
+import platform
+import sys
+from pathlib import Path
+
+import numpy as np
+import scipy
+from scipy.optimize import least_squares
+
+ROOT = Path(__file__).resolve().parents[2]
+OUT = ROOT / "tests" / "fixtures" / "geometry_reference.json"
+SEED = 20261201
+
+
+def tls_line(points):
+    centroid = points.mean(axis=0)
+    _, s, vt = np.linalg.svd(points - centroid)
+    d = vt[0]
+    # Same sign rule as the library: the larger component positive.
+    if d[np.argmax(np.abs(d))] < 0:
+        d = -d
+    return {
+        "centroid_um": centroid.tolist(),
+        "direction": d.tolist(),
+        "singular_values_um": s.tolist(),
+        "rms_um": float(s[1] / math.sqrt(len(points))),
+    }
+
+
+def kasa(points):
+    c = points.mean(axis=0)
+    x, y = points[:, 0] - c[0], points[:, 1] - c[1]
+    a = np.column_stack([x, y, np.ones_like(x)])
+    b = -(x * x + y * y)
+    (d, e, f), *_ = np.linalg.lstsq(a, b, rcond=None)
+    return {"centre_um": [float(c[0] - d / 2), float(c[1] - e / 2)],
+            "radius_um": float(math.sqrt(d * d / 4 + e * e / 4 - f))}
+
+
+def geometric(points, start):
+    def residuals(p):
+        return np.hypot(points[:, 0] - p[0], points[:, 1] - p[1]) - p[2]
+
+    def jacobian(p):
+        dist = np.hypot(points[:, 0] - p[0], points[:, 1] - p[1])
+        return np.column_stack([-(points[:, 0] - p[0]) / dist,
+                                -(points[:, 1] - p[1]) / dist,
+                                -np.ones(len(points))])
+
+    fit = least_squares(residuals, start, jac=jacobian, method="lm",
+                        xtol=1e-15, ftol=1e-15, gtol=1e-15)
+    r = residuals(fit.x)
+    return {"centre_um": fit.x[:2].tolist(), "radius_um": float(fit.x[2]),
+            "rms_um": float(math.sqrt(np.mean(r * r)))}
+
+
+def line_cases(rng):
+    cases = []
+    # A 16-electrode row, 375 um pitch, tilted by 20 degrees, 3 um position noise.
+    t = np.arange(16) * 375.0
+    angle = math.radians(20)
+    pts = np.column_stack([100 + t * math.cos(angle), -50 + t * math.sin(angle)])
+    pts += rng.normal(0, 3.0, pts.shape)
+    cases.append({"name": "tilted row of 16", "points_um": pts.tolist(), "numpy": tls_line(pts)})
+    # A near-vertical row of 10 at 200 um pitch.
+    t = np.arange(10) * 200.0
+    pts = np.column_stack([5 + 0.02 * t, t]) + rng.normal(0, 2.0, (10, 2))
+    cases.append({"name": "near-vertical row of 10", "points_um": pts.tolist(), "numpy": tls_line(pts)})
+    # Two rows of 12, 150 um apart: a strip.
+    t = np.arange(12) * 200.0
+    pts = np.vstack([np.column_stack([t, np.zeros(12)]), np.column_stack([t, np.full(12, 150.0)])])
+    pts += rng.normal(0, 1.0, pts.shape)
+    cases.append({"name": "strip of two rows", "points_um": pts.tolist(), "numpy": tls_line(pts)})
+    return cases
+
+
+def circle_cases(rng):
+    cases = []
+    specs = [
+        ("full ring, 24 sites", 360.0, 24, 1500.0, 10.0),
+        ("half ring, 16 sites", 180.0, 16, 1500.0, 10.0),
+        ("60-degree arc, 20 sites", 60.0, 20, 1500.0, 25.0),
+    ]
+    for name, arc_deg, n, radius, noise in specs:
+        centre = np.array([2000.0, 1800.0])
+        if arc_deg >= 360:
+            theta = np.linspace(0, 2 * math.pi, n, endpoint=False)
+        else:
+            theta = np.linspace(0, math.radians(arc_deg), n)
+        theta = theta + math.radians(30)
+        pts = centre + radius * np.column_stack([np.cos(theta), np.sin(theta)])
+        pts += rng.normal(0, noise, pts.shape)
+        k = kasa(pts)
+        g = geometric(pts, np.array(k["centre_um"] + [k["radius_um"]]))
+        cases.append({
+            "name": name,
+            "arc_deg": arc_deg,
+            "noise_sd_um": noise,
+            "true": {"centre_um": centre.tolist(), "radius_um": radius},
+            "true_angles_rad": theta.tolist(),
+            "points_um": pts.tolist(),
+            "scipy_least_squares": g,
+            "numpy_kasa": k,
+        })
+    return cases
+
+
+def build():
+    rng = np.random.default_rng(SEED)
+    return {
+        "made_by": "scripts/reference/make_fixtures.py",
+        "versions": {"python": platform.python_version(), "numpy": np.__version__,
+                     "scipy": scipy.__version__},
+        "seed": SEED,
+        "lines": line_cases(rng),
+        "circles": circle_cases(rng),
+    }
+
+
+def compare(a, b, path="$"):
+    """Yields differences between two fixture trees; numbers compare to a relative 1e-9."""
+    if isinstance(a, dict) and isinstance(b, dict):
+        for key in sorted(set(a) | set(b)):
+            if key == "versions":
+                continue
+            if key not in a or key not in b:
+                yield f"{path}.{key}: present on one side only"
+            else:
+                yield from compare(a[key], b[key], f"{path}.{key}")
+    elif isinstance(a, list) and isinstance(b, list):
+        if len(a) != len(b):
+            yield f"{path}: {len(a)} items against {len(b)}"
+        for i, (x, y) in enumerate(zip(a, b)):
+            yield from compare(x, y, f"{path}[{i}]")
+    elif isinstance(a, (int, float)) and isinstance(b, (int, float)):
+        if not math.isclose(a, b, rel_tol=1e-9, abs_tol=1e-9):
+            yield f"{path}: {a} against {b}"
+    elif a != b:
+        yield f"{path}: {a!r} against {b!r}"
+
+
+def main():
+    fresh = build()
+    if "--check" in sys.argv:
+        committed = json.loads(OUT.read_text())
+        diffs = list(compare(committed, fresh))
+        if diffs:
+            print("reference fixtures differ from a fresh computation:")
+            for d in diffs[:20]:
+                print("  " + d)
+            return 1
+        print(f"reference fixtures match a fresh computation "
+              f"(numpy {np.__version__}, scipy {scipy.__version__}; made with "
+              f"numpy {committed['versions']['numpy']}, scipy {committed['versions']['scipy']})")
+        return 0
+    OUT.parent.mkdir(parents=True, exist_ok=True)
+    OUT.write_text(json.dumps(fresh, indent=1) + "\n")
+    print(f"wrote {OUT.relative_to(ROOT)}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
