@@ -50,7 +50,10 @@ struct CircleRef {
 }
 
 fn fixture() -> Fixture {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/../tests/fixtures/geometry_reference.json");
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../tests/fixtures/geometry_reference.json"
+    );
     let text = std::fs::read_to_string(path).expect("fixture file is committed");
     serde_json::from_str(&text).expect("fixture parses")
 }
@@ -79,7 +82,11 @@ fn line_fit_matches_numpy_svd() {
         }
         for k in 0..2 {
             assert_relative_eq!(d[k], case.numpy.direction[k], epsilon = 1e-12);
-            assert_relative_eq!(fit.centroid_um[k], case.numpy.centroid_um[k], max_relative = 1e-12);
+            assert_relative_eq!(
+                fit.centroid_um[k],
+                case.numpy.centroid_um[k],
+                max_relative = 1e-12
+            );
             assert_relative_eq!(
                 fit.singular_values_um[k],
                 case.numpy.singular_values_um[k],
@@ -87,7 +94,11 @@ fn line_fit_matches_numpy_svd() {
             );
         }
         assert_relative_eq!(fit.rms_um, case.numpy.rms_um, max_relative = 1e-10);
-        eprintln!("{}: direction error {:.2e}", case.name, (d[0] - case.numpy.direction[0]).abs());
+        eprintln!(
+            "{}: direction error {:.2e}",
+            case.name,
+            (d[0] - case.numpy.direction[0]).abs()
+        );
     }
 }
 
@@ -112,8 +123,16 @@ fn geometric_circle_fit_matches_scipy_least_squares() {
         // 1e-5 um: on a short arc the minimum is a long flat valley (centre and radius trade
         // off), and two solvers that both meet a 1e-12 relative cost criterion stop about
         // 1e-6 um apart there; on full and half rings they agree to 1e-9 um.
-        assert!(centre_error < 1e-5, "{}: centre off scipy by {centre_error} um", case.name);
-        assert!(radius_error < 1e-5, "{}: radius off scipy by {radius_error} um", case.name);
+        assert!(
+            centre_error < 1e-5,
+            "{}: centre off scipy by {centre_error} um",
+            case.name
+        );
+        assert!(
+            radius_error < 1e-5,
+            "{}: radius off scipy by {radius_error} um",
+            case.name
+        );
     }
 }
 
@@ -122,19 +141,33 @@ fn geometric_circle_fit_matches_scipy_least_squares() {
 fn kasa_fit_matches_numpy_lstsq_and_is_biased_on_a_short_arc() {
     for case in fixture().circles {
         let kasa = fit_circle_kasa(&case.points_um).expect("kasa fits");
-        assert_relative_eq!(kasa.radius_um, case.numpy_kasa.radius_um, max_relative = 1e-9);
+        assert_relative_eq!(
+            kasa.radius_um,
+            case.numpy_kasa.radius_um,
+            max_relative = 1e-9
+        );
         for k in 0..2 {
-            assert_relative_eq!(kasa.centre_um[k], case.numpy_kasa.centre_um[k], max_relative = 1e-9);
+            assert_relative_eq!(
+                kasa.centre_um[k],
+                case.numpy_kasa.centre_um[k],
+                max_relative = 1e-9
+            );
         }
         if case.arc_deg <= 60.0 {
             // Kasa's fit shrinks the radius on short noisy arcs (Chernov 2010, Circular and
             // Linear Regression, sec. 5.3); the geometric fit must be much closer to the truth.
             let geometric = &case.scipy_least_squares;
             let kasa_error = (kasa.radius_um - case.truth.radius_um).abs();
-            let ours = fit_circle_geometric(&case.points_um, fit_circle_taubin(&case.points_um).unwrap()).unwrap();
+            let ours =
+                fit_circle_geometric(&case.points_um, fit_circle_taubin(&case.points_um).unwrap())
+                    .unwrap();
             let geometric_error = (ours.circle.radius_um - case.truth.radius_um).abs();
             assert!(kasa.radius_um < geometric.radius_um);
-            assert!(kasa_error > 1.5 * geometric_error, "{}: kasa {kasa_error} um, geometric {geometric_error} um", case.name);
+            assert!(
+                kasa_error > 1.5 * geometric_error,
+                "{}: kasa {kasa_error} um, geometric {geometric_error} um",
+                case.name
+            );
         }
     }
 }
@@ -170,7 +203,13 @@ fn detection_and_arc_coordinates_on_reference_layouts() {
     let fx = fixture();
     for case in &fx.lines {
         let fit = fit_track(&sites(&case.points_um), &TrackSettings::default()).unwrap();
-        assert_eq!(fit.track.kind_name(), "line", "{}: {}", case.name, fit.reason);
+        assert_eq!(
+            fit.track.kind_name(),
+            "line",
+            "{}: {}",
+            case.name,
+            fit.reason
+        );
     }
     for case in &fx.circles {
         let settings = if case.arc_deg >= 180.0 {
@@ -183,7 +222,12 @@ fn detection_and_arc_coordinates_on_reference_layouts() {
         };
         let fit = fit_track(&sites(&case.points_um), &settings).unwrap();
         let Track::Ring { .. } = fit.track else {
-            panic!("{}: expected a ring, found {} ({})", case.name, fit.track.kind_name(), fit.reason);
+            panic!(
+                "{}: expected a ring, found {} ({})",
+                case.name,
+                fit.track.kind_name(),
+                fit.reason
+            );
         };
         let along: Vec<f64> = fit.placements.iter().map(|p| p.along_um).collect();
         // Differences from the first site, so the choice of the coordinate's zero drops out.
@@ -205,16 +249,25 @@ fn detection_and_arc_coordinates_on_reference_layouts() {
             worst_scipy = worst_scipy.max((relative(i, c_ref) - expected).abs());
             let truth = case.truth.radius_um
                 * wrap_angle(case.true_angles_rad[i] - case.true_angles_rad[0]);
-            worst_truth = worst_truth.max((relative(i, circumference(case.truth.radius_um)) - truth).abs());
+            worst_truth =
+                worst_truth.max((relative(i, circumference(case.truth.radius_um)) - truth).abs());
         }
         eprintln!(
             "{}: arc coordinate worst error {worst_scipy:.2e} um from scipy's circle, {worst_truth:.1} um from the truth (noise sd {} um)",
             case.name, case.noise_sd_um
         );
-        assert!(worst_scipy < 1e-4, "{}: {worst_scipy} um from scipy's circle", case.name);
+        assert!(
+            worst_scipy < 1e-4,
+            "{}: {worst_scipy} um from scipy's circle",
+            case.name
+        );
         if case.arc_deg >= 180.0 {
             let tolerance = 4.0 * std::f64::consts::SQRT_2 * case.noise_sd_um;
-            assert!(worst_truth < tolerance, "{}: {worst_truth} um from the truth", case.name);
+            assert!(
+                worst_truth < tolerance,
+                "{}: {worst_truth} um from the truth",
+                case.name
+            );
         }
     }
 }

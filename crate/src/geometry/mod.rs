@@ -616,8 +616,9 @@ fn place_sites(
         .zip(&projections)
         .map(|(s, p)| Placement {
             site: s.id.clone(),
-            along_um: p.along_um,
-            lateral_um: p.lateral_um,
+            // + 0.0 turns -0.0 into 0.0, so no "-0.0" is ever shown.
+            along_um: p.along_um + 0.0,
+            lateral_um: p.lateral_um + 0.0,
             off_track: limit > 0.0 && p.lateral_um.abs() > limit,
         })
         .collect()

@@ -65,7 +65,7 @@ pub fn sniff_file_kind(bytes: &[u8]) -> Option<FileKind> {
     match (has_site, has_time, has("x") && has("y")) {
         (true, _, true) => Some(FileKind::Layout),
         (true, true, false) => Some(FileKind::SpikeList),
-        (false, _, _) if headers.len() >= 2 || has_time => Some(FileKind::RoiTraces),
+        (false, _, _) if headers.len() >= 2 => Some(FileKind::RoiTraces),
         _ => None,
     }
 }

@@ -1,0 +1,266 @@
+//! Inputs shared by the import tests and the command-line tests.
+#![allow(dead_code)]
+
+/// A bad input and where its error must point.
+pub struct BadCase {
+    pub name: &'static str,
+    /// Spike list (or ROI traces) file content.
+    pub activity: &'static [u8],
+    /// Layout file content.
+    pub layout: &'static [u8],
+    /// The file the error must name: "activity" or "layout".
+    pub file: &'static str,
+    /// Expected line and column numbers (counted from 1), when the error has them.
+    pub line: Option<u64>,
+    pub column: Option<usize>,
+    /// Words the message must contain.
+    pub words: &'static str,
+    /// Extra command-line arguments.
+    pub args: &'static [&'static str],
+}
+
+pub const GOOD_LAYOUT: &[u8] = b"site,x_um,y_um\nA,0,0\nB,200,0\nC,400,0\nD,600,0\n";
+pub const GOOD_SPIKES: &[u8] = b"site,time_s\nA,0.5\nB,0.6\nC,0.7\n";
+
+pub fn bad_cases() -> Vec<BadCase> {
+    let case = |name, activity, layout, file, line, column, words| BadCase {
+        name,
+        activity,
+        layout,
+        file,
+        line,
+        column,
+        words,
+        args: &[],
+    };
+    vec![
+        case(
+            "empty spike list",
+            b"",
+            GOOD_LAYOUT,
+            "activity",
+            None,
+            None,
+            "empty",
+        ),
+        case(
+            "only comments",
+            b"# nothing\n\n# here\n",
+            GOOD_LAYOUT,
+            "activity",
+            None,
+            None,
+            "empty",
+        ),
+        case(
+            "header only",
+            b"site,time_s\n",
+            GOOD_LAYOUT,
+            "activity",
+            None,
+            None,
+            "no spike rows",
+        ),
+        case(
+            "text in the time column",
+            b"site,time_ms\nA,1.0\nB,abc\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(3),
+            Some(2),
+            "found 'abc'",
+        ),
+        case(
+            "negative time",
+            b"site,time_s\nA,1.0\nB,-0.5\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(3),
+            Some(2),
+            "0 or later",
+        ),
+        case(
+            "infinite time",
+            b"site,time_s\nA,inf\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(2),
+            Some(2),
+            "found 'inf'",
+        ),
+        case(
+            "NaN time",
+            b"site,time_s\nA,1\nA,NaN\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(3),
+            Some(2),
+            "found 'NaN'",
+        ),
+        case(
+            "empty time",
+            b"site,time_s\nA,\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(2),
+            Some(2),
+            "empty field",
+        ),
+        case(
+            "no time column",
+            b"site,amplitude\nA,1\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(1),
+            None,
+            "time column",
+        ),
+        case(
+            "time without unit",
+            b"site,time\nA,1\n",
+            GOOD_LAYOUT,
+            "activity",
+            None,
+            Some(2),
+            "no unit",
+        ),
+        case(
+            "unknown time unit",
+            b"site,time_min\nA,1\n",
+            GOOD_LAYOUT,
+            "activity",
+            None,
+            Some(2),
+            "found 'min'",
+        ),
+        case(
+            "no site column",
+            b"time_s\n1.0\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(1),
+            None,
+            "site column",
+        ),
+        case(
+            "ragged row",
+            b"site,time_s\nA,1.0\nB,2.0,7\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(3),
+            None,
+            "expected 2 fields",
+        ),
+        case(
+            "empty site",
+            b"site,time_s\n,1.0\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(2),
+            Some(1),
+            "site identifier",
+        ),
+        case(
+            "not UTF-8",
+            b"site,time_s\nA,1.0\n\xff\xfe,2\n",
+            GOOD_LAYOUT,
+            "activity",
+            Some(3),
+            None,
+            "UTF-8",
+        ),
+        case(
+            "duplicate layout site",
+            GOOD_SPIKES,
+            b"site,x_um,y_um\nA,0,0\nB,1,0\nA,2,0\n",
+            "layout",
+            Some(4),
+            Some(1),
+            "first on line 2",
+        ),
+        case(
+            "layout without y",
+            GOOD_SPIKES,
+            b"site,x_um\nA,0\n",
+            "layout",
+            Some(1),
+            None,
+            "y_um",
+        ),
+        case(
+            "layout text position",
+            GOOD_SPIKES,
+            b"site,x_um,y_um\nA,0,0\nB,zero,0\n",
+            "layout",
+            Some(3),
+            Some(2),
+            "x position",
+        ),
+        case(
+            "layout without units",
+            GOOD_SPIKES,
+            b"site,x,y\nA,0,0\n",
+            "layout",
+            None,
+            Some(2),
+            "no unit",
+        ),
+        case(
+            "spikes at unplaced sites",
+            b"site,time_s\nA,1\nQ,2\nR,3\n",
+            GOOD_LAYOUT,
+            "activity",
+            None,
+            None,
+            "no position in the layout",
+        ),
+        BadCase {
+            args: &["--max-rows", "5"],
+            ..case(
+                "too many rows",
+                b"site,time_s\nA,1\nB,2\nC,3\nA,4\nB,5\nC,6\n",
+                GOOD_LAYOUT,
+                "activity",
+                Some(7),
+                None,
+                "more than 5 data rows",
+            )
+        },
+        BadCase {
+            args: &["--kind", "traces"],
+            ..case(
+                "traces without a time base",
+                b"A,B\n1,2\n3,4\n",
+                GOOD_LAYOUT,
+                "activity",
+                Some(1),
+                None,
+                "frame rate",
+            )
+        },
+        BadCase {
+            args: &["--kind", "traces"],
+            ..case(
+                "traces with times going back",
+                b"time_s,A,B\n0,1,2\n0.1,1,2\n0.05,1,2\n",
+                GOOD_LAYOUT,
+                "activity",
+                Some(4),
+                Some(1),
+                "increase",
+            )
+        },
+        BadCase {
+            args: &["--kind", "traces"],
+            ..case(
+                "traces with text values",
+                b"time_s,A,B\n0,1,2\n0.1,x,2\n",
+                GOOD_LAYOUT,
+                "activity",
+                Some(3),
+                Some(2),
+                "fluorescence value",
+            )
+        },
+    ]
+}
