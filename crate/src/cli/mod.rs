@@ -31,6 +31,18 @@ struct Cli {
 enum Command {
     /// Read a recording and its layout; report sites, spikes, rates and the detected track.
     Inspect(InspectArgs),
+    /// Simulate a recording with known fronts from a scenario file (JSON); write spikes.csv,
+    /// layout.csv and truth.json into a folder.
+    Simulate(SimulateArgs),
+}
+
+#[derive(Args, Debug)]
+struct SimulateArgs {
+    /// Scenario file (JSON), for example one of demo-data/scenarios/.
+    scenario: String,
+    /// Folder to write into (created if missing).
+    #[arg(long)]
+    out: String,
 }
 
 #[derive(Args, Debug)]
@@ -132,6 +144,7 @@ pub fn run(args: impl IntoIterator<Item = OsString>) -> i32 {
     };
     let result = match cli.command {
         Command::Inspect(args) => inspect(&args),
+        Command::Simulate(args) => simulate(&args),
     };
     match result {
         Ok(()) => 0,
@@ -184,6 +197,24 @@ fn inspect(args: &InspectArgs) -> Result<(), Failure> {
         .lock()
         .write_all(text.as_bytes())
         .map_err(Failure::Output)
+}
+
+fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
+    let bytes = read_file(&args.scenario, &ImportLimits::default())?;
+    let text = String::from_utf8(bytes)
+        .map_err(|_| Failure::Input(format!("{}: expected UTF-8 JSON text", args.scenario)))?;
+    let scenario = crate::simulate::parse_scenario(&text)
+        .map_err(|e| Failure::Input(format!("{}, {e}", args.scenario)))?;
+    let files = crate::simulate::simulation_files(&scenario)
+        .map_err(|e| Failure::Input(format!("{}: {e}", args.scenario)))?;
+    let out = std::path::Path::new(&args.out);
+    std::fs::create_dir_all(out).map_err(Failure::Output)?;
+    for (name, content) in files {
+        let path = out.join(&name);
+        std::fs::write(&path, content).map_err(Failure::Output)?;
+        eprintln!("wrote {}", path.display());
+    }
+    Ok(())
 }
 
 fn read_options(args: &ReadArgs) -> ReadOptions {

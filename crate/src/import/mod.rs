@@ -32,7 +32,7 @@ pub use table::{ImportLimits, LengthUnit, TimeUnit};
 pub use traces::{
     read_roi_traces, RoiSeries, RoiTraceTable, TraceGap, TraceOptions, FRAME_COLUMN_NAMES,
 };
-pub use write::{write_layout, write_roi_traces, write_spike_list};
+pub use write::{write_layout, write_roi_traces, write_spike_list, write_spike_list_as};
 
 /// What a text file holds, judged from its header line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]

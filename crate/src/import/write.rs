@@ -5,21 +5,34 @@
 //! `f64` bit for bit.
 
 use super::spikes::SiteSpikes;
+use super::table::TimeUnit;
 use super::traces::RoiSeries;
 use crate::recording::Site;
 use std::fmt::Write;
 
-/// Writes a spike list as CSV with the header `site,time_s`, spikes ordered by time.
+/// Writes a spike list as CSV with the header `site,time_s`, spikes ordered by time, each
+/// time in the shortest form that reads back to the same `f64`.
 pub fn write_spike_list(sites: &[SiteSpikes]) -> String {
+    write_spike_list_as(sites, TimeUnit::Seconds, None)
+}
+
+/// Writes a spike list with times in `unit` (header `site,time_ms` and so on), with a fixed
+/// number of decimals when `decimals` is given (which then sets the file's time quantum).
+pub fn write_spike_list_as(sites: &[SiteSpikes], unit: TimeUnit, decimals: Option<usize>) -> String {
     let mut rows: Vec<(f64, &str)> = sites
         .iter()
         .flat_map(|s| s.times_s.iter().map(move |&t| (t, s.site.as_str())))
         .collect();
     rows.sort_by(|a, b| a.0.total_cmp(&b.0));
     let mut out = String::with_capacity(rows.len() * 16 + 16);
-    out.push_str("site,time_s\n");
+    let _ = writeln!(out, "site,time_{}", unit.symbol());
+    let scale = 1.0 / unit.seconds();
     for (t, site) in rows {
-        let _ = writeln!(out, "{},{}", field(site), t);
+        let value = if unit == TimeUnit::Seconds { t } else { t * scale };
+        let _ = match decimals {
+            Some(d) => writeln!(out, "{},{:.d$}", field(site), value),
+            None => writeln!(out, "{},{}", field(site), value),
+        };
     }
     out
 }

@@ -234,7 +234,8 @@ impl Inspection {
             );
         }
         if let Some(l) = t.length_um {
-            let _ = write!(out, ", length {l:.1} um");
+            let word = if t.radius_um.is_some() { "circumference" } else { "length" };
+            let _ = write!(out, ", {word} {l:.1} um");
         }
         out.push('\n');
         let _ = writeln!(out, "            {}", t.reason);

@@ -1,0 +1,375 @@
+//! Kinematic fronts: each burst is a front that starts at an origin and reaches every
+//! electrode at `t0 + distance / speed`, plus jitter; electrodes fire a few spikes when the
+//! front passes and a Poisson background in between.
+
+use super::sample::{exponential, normal, poisson, uniform};
+use crate::import::SiteSpikes;
+use crate::recording::Site;
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+use std::f64::consts::TAU;
+
+/// Virtual electrodes, in micrometres.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "shape", rename_all = "snake_case")]
+pub enum ElectrodeLayout {
+    /// `count` electrodes in a straight row `pitch_um` apart, at `angle_deg` to the x axis.
+    Row {
+        count: usize,
+        pitch_um: f64,
+        #[serde(default)]
+        angle_deg: f64,
+    },
+    /// `count` electrodes evenly on a circle of `radius_um` around the origin.
+    Circle { count: usize, radius_um: f64 },
+    /// A `rows` x `columns` grid, `pitch_um` apart.
+    Grid {
+        rows: usize,
+        columns: usize,
+        pitch_um: f64,
+    },
+}
+
+/// Everything that defines a kinematic recording. Times in seconds, speeds in mm/s.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FrontScenario {
+    /// Short name, used for the output folder.
+    pub name: String,
+    /// Seed of the ChaCha8 generator.
+    pub seed: u64,
+    /// Length of the recording, seconds.
+    pub duration_s: f64,
+    pub electrodes: ElectrodeLayout,
+    /// Standard deviation of electrode positions around the nominal layout, micrometres.
+    #[serde(default)]
+    pub position_jitter_um: f64,
+    /// Shortest interval between burst starts, seconds.
+    pub min_interval_s: f64,
+    /// Mean of the exponential part of the interval added to the shortest one, seconds.
+    pub extra_interval_s: f64,
+    /// Median front speed, mm/s.
+    pub speed_mm_s: f64,
+    /// Burst-to-burst coefficient of variation of the speed (log-normal).
+    #[serde(default)]
+    pub speed_cv: f64,
+    /// Standard deviation of each electrode's activation time around the front, seconds.
+    pub activation_jitter_s: f64,
+    /// Mean number of spikes an electrode fires when the front passes (at least one).
+    pub spikes_per_burst: f64,
+    /// Mean delay of the later spikes of a burst after the first, seconds.
+    pub burst_spread_s: f64,
+    /// Background spikes per second per electrode, outside and inside bursts.
+    pub background_rate_hz: f64,
+    /// Electrodes (counted from 0) that record nothing.
+    #[serde(default)]
+    pub dead_electrodes: Vec<usize>,
+    /// Probability that a burst's front stops partway (a propagation failure).
+    #[serde(default)]
+    pub failure_probability: f64,
+    /// Spike times are rounded to this sampling rate, Hz.
+    pub sampling_rate_hz: f64,
+}
+
+/// The known answer for one burst.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TruthBurst {
+    /// Time the front leaves its origin, seconds.
+    pub start_s: f64,
+    pub speed_mm_s: f64,
+    /// Where it starts, micrometres.
+    pub origin_um: [f64; 2],
+    /// Electrode nearest the origin.
+    pub origin_site: String,
+    /// Unit vector of travel for rows and grids; `None` on a circle.
+    pub direction_xy: Option<[f64; 2]>,
+    /// `ccw` or `cw` on a circle, in the layout's axes; `None` otherwise.
+    pub rotation: Option<String>,
+    /// Distance from the origin at which the front stops, micrometres; `None` when it
+    /// crosses the whole layout.
+    pub stops_after_um: Option<f64>,
+    /// Activation time of each electrode (layout order); `None` where the front did not
+    /// arrive or the electrode is dead.
+    pub activation_s: Vec<Option<f64>>,
+}
+
+/// Ground truth of a simulated recording.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FrontTruth {
+    pub model: String,
+    pub scenario: FrontScenario,
+    pub bursts: Vec<TruthBurst>,
+}
+
+/// A simulated recording in the import formats' terms, with its truth.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SimulatedFronts {
+    pub sites: Vec<Site>,
+    pub spikes: Vec<SiteSpikes>,
+    pub truth: FrontTruth,
+}
+
+/// Checks a scenario; the message names the field.
+pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
+    let positive = [
+        ("duration_s", s.duration_s),
+        ("speed_mm_s", s.speed_mm_s),
+        ("sampling_rate_hz", s.sampling_rate_hz),
+        ("min_interval_s", s.min_interval_s),
+    ];
+    for (name, v) in positive {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(format!("{name}: expected a number above 0, found {v}"));
+        }
+    }
+    let non_negative = [
+        ("position_jitter_um", s.position_jitter_um),
+        ("extra_interval_s", s.extra_interval_s),
+        ("speed_cv", s.speed_cv),
+        ("activation_jitter_s", s.activation_jitter_s),
+        ("spikes_per_burst", s.spikes_per_burst),
+        ("burst_spread_s", s.burst_spread_s),
+        ("background_rate_hz", s.background_rate_hz),
+    ];
+    for (name, v) in non_negative {
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(format!("{name}: expected a number of 0 or more, found {v}"));
+        }
+    }
+    if !(0.0..=1.0).contains(&s.failure_probability) {
+        return Err(format!("failure_probability: expected 0 to 1, found {}", s.failure_probability));
+    }
+    let count = electrode_count(&s.electrodes);
+    if !(2..=100_000).contains(&count) {
+        return Err(format!("electrodes: expected 2 to 100000 electrodes, found {count}"));
+    }
+    if let Some(&bad) = s.dead_electrodes.iter().find(|&&i| i >= count) {
+        return Err(format!("dead_electrodes: electrode {bad} does not exist (there are {count}, counted from 0)"));
+    }
+    let expected_spikes = s.duration_s * count as f64 * (s.background_rate_hz + s.spikes_per_burst / s.min_interval_s);
+    if expected_spikes > 5e7 {
+        return Err(format!("the scenario would make about {expected_spikes:.0} spikes, more than the 50 million allowed"));
+    }
+    Ok(())
+}
+
+fn electrode_count(layout: &ElectrodeLayout) -> usize {
+    match layout {
+        ElectrodeLayout::Row { count, .. } | ElectrodeLayout::Circle { count, .. } => *count,
+        ElectrodeLayout::Grid { rows, columns, .. } => rows.saturating_mul(*columns),
+    }
+}
+
+/// Draws a recording from `scenario`. The same scenario gives the same recording, bit for
+/// bit, on every platform.
+pub fn simulate_fronts(scenario: &FrontScenario) -> Result<SimulatedFronts, String> {
+    check_scenario(scenario)?;
+    let mut rng = ChaCha8Rng::seed_from_u64(scenario.seed);
+    let nominal = nominal_positions(&scenario.electrodes);
+    let sites: Vec<Site> = nominal
+        .iter()
+        .enumerate()
+        .map(|(i, p)| Site {
+            id: format!("e{:02}", i + 1),
+            // Rounded to 0.1 um, as a layout file would give them.
+            x_um: round_to_tenth(p[0] + scenario.position_jitter_um * normal(&mut rng)),
+            y_um: round_to_tenth(p[1] + scenario.position_jitter_um * normal(&mut rng)),
+        })
+        .collect();
+    // Fronts reach each electrode where it really is (after jitter and rounding).
+    let positions: Vec<[f64; 2]> = sites.iter().map(Site::position_um).collect();
+    let n = sites.len();
+    let mut trains: Vec<Vec<f64>> = vec![Vec::new(); n];
+    let mut bursts = Vec::new();
+    let mut t0 = scenario.min_interval_s * uniform(&mut rng);
+    while t0 < scenario.duration_s {
+        let speed = scenario.speed_mm_s * lognormal_factor(&mut rng, scenario.speed_cv);
+        let speed_um_s = speed * 1e3;
+        let front = draw_front(&scenario.electrodes, &positions, &mut rng);
+        let max_distance = front.distances.iter().copied().fold(0.0, f64::max);
+        let stops_after_um = (uniform(&mut rng) < scenario.failure_probability)
+            .then(|| max_distance * (0.3 + 0.4 * uniform(&mut rng)));
+        let mut activation_s = vec![None; n];
+        for (i, &d) in front.distances.iter().enumerate() {
+            if scenario.dead_electrodes.contains(&i) || stops_after_um.is_some_and(|stop| d > stop) {
+                continue;
+            }
+            let t = t0 + d / speed_um_s + scenario.activation_jitter_s * normal(&mut rng);
+            if t < 0.0 || t >= scenario.duration_s {
+                continue;
+            }
+            activation_s[i] = Some(t);
+            trains[i].push(t);
+            let extra = poisson(&mut rng, (scenario.spikes_per_burst - 1.0).max(0.0));
+            for _ in 0..extra {
+                let later = t + exponential(&mut rng, scenario.burst_spread_s);
+                if later < scenario.duration_s {
+                    trains[i].push(later);
+                }
+            }
+        }
+        let origin_site = sites
+            .iter()
+            .min_by(|a, b| {
+                let da = (a.x_um - front.origin_um[0]).hypot(a.y_um - front.origin_um[1]);
+                let db = (b.x_um - front.origin_um[0]).hypot(b.y_um - front.origin_um[1]);
+                da.total_cmp(&db)
+            })
+            .map(|s| s.id.clone())
+            .unwrap_or_default();
+        bursts.push(TruthBurst {
+            start_s: t0,
+            speed_mm_s: speed,
+            origin_um: front.origin_um,
+            origin_site,
+            direction_xy: front.direction_xy,
+            rotation: front.rotation.map(str::to_string),
+            stops_after_um,
+            activation_s,
+        });
+        t0 += scenario.min_interval_s + exponential(&mut rng, scenario.extra_interval_s);
+    }
+    if scenario.background_rate_hz > 0.0 {
+        for (i, train) in trains.iter_mut().enumerate() {
+            if scenario.dead_electrodes.contains(&i) {
+                continue;
+            }
+            let mut t = exponential(&mut rng, 1.0 / scenario.background_rate_hz);
+            while t < scenario.duration_s {
+                train.push(t);
+                t += exponential(&mut rng, 1.0 / scenario.background_rate_hz);
+            }
+        }
+    }
+    let fs = scenario.sampling_rate_hz;
+    let spikes = sites
+        .iter()
+        .zip(trains)
+        .map(|(site, mut times)| {
+            for t in &mut times {
+                *t = (*t * fs).round() / fs;
+            }
+            times.sort_by(f64::total_cmp);
+            times.dedup();
+            SiteSpikes {
+                site: site.id.clone(),
+                times_s: times,
+            }
+        })
+        .collect();
+    Ok(SimulatedFronts {
+        sites,
+        spikes,
+        truth: FrontTruth {
+            model: "fronts".into(),
+            scenario: scenario.clone(),
+            bursts,
+        },
+    })
+}
+
+fn round_to_tenth(v: f64) -> f64 {
+    (v * 10.0).round() / 10.0 + 0.0
+}
+
+/// A log-normal factor with median 1 and the given coefficient of variation.
+fn lognormal_factor(rng: &mut ChaCha8Rng, cv: f64) -> f64 {
+    if cv == 0.0 {
+        return 1.0;
+    }
+    let sigma = libm::sqrt(libm::log(1.0 + cv * cv));
+    libm::exp(sigma * normal(rng))
+}
+
+fn nominal_positions(layout: &ElectrodeLayout) -> Vec<[f64; 2]> {
+    match *layout {
+        ElectrodeLayout::Row {
+            count,
+            pitch_um,
+            angle_deg,
+        } => {
+            let a = angle_deg.to_radians();
+            (0..count)
+                .map(|i| {
+                    let s = i as f64 * pitch_um;
+                    [s * libm::cos(a), s * libm::sin(a)]
+                })
+                .collect()
+        }
+        ElectrodeLayout::Circle { count, radius_um } => (0..count)
+            .map(|i| {
+                let a = TAU * i as f64 / count as f64;
+                [radius_um * libm::cos(a), radius_um * libm::sin(a)]
+            })
+            .collect(),
+        ElectrodeLayout::Grid {
+            rows,
+            columns,
+            pitch_um,
+        } => (0..rows)
+            .flat_map(|r| (0..columns).map(move |c| [c as f64 * pitch_um, r as f64 * pitch_um]))
+            .collect(),
+    }
+}
+
+struct Front {
+    origin_um: [f64; 2],
+    direction_xy: Option<[f64; 2]>,
+    rotation: Option<&'static str>,
+    /// Path length from the origin to each electrode, micrometres.
+    distances: Vec<f64>,
+}
+
+/// Rows: from one end or the other. Circles: from a random angle, one way round.
+/// Grids: a plane wave in a random direction, entering at the first electrode it meets.
+fn draw_front(layout: &ElectrodeLayout, positions: &[[f64; 2]], rng: &mut ChaCha8Rng) -> Front {
+    match layout {
+        ElectrodeLayout::Row { .. } | ElectrodeLayout::Grid { .. } => {
+            let direction = match layout {
+                ElectrodeLayout::Row { angle_deg, .. } => {
+                    let a = angle_deg.to_radians();
+                    let sign = if uniform(rng) < 0.5 { 1.0 } else { -1.0 };
+                    [sign * libm::cos(a), sign * libm::sin(a)]
+                }
+                _ => {
+                    let a = TAU * uniform(rng);
+                    [libm::cos(a), libm::sin(a)]
+                }
+            };
+            let along: Vec<f64> = positions
+                .iter()
+                .map(|p| p[0] * direction[0] + p[1] * direction[1])
+                .collect();
+            let first = along.iter().copied().fold(f64::INFINITY, f64::min);
+            let entry = along
+                .iter()
+                .position(|&a| a == first)
+                .map_or([0.0, 0.0], |i| positions[i]);
+            Front {
+                origin_um: entry,
+                direction_xy: Some(direction),
+                rotation: None,
+                distances: along.iter().map(|a| a - first).collect(),
+            }
+        }
+        ElectrodeLayout::Circle { radius_um, .. } => {
+            let origin_angle = TAU * uniform(rng);
+            let ccw = uniform(rng) < 0.5;
+            let distances = positions
+                .iter()
+                .map(|p| {
+                    let a = libm::atan2(p[1], p[0]);
+                    let turn = if ccw { a - origin_angle } else { origin_angle - a };
+                    radius_um * turn.rem_euclid(TAU)
+                })
+                .collect();
+            Front {
+                origin_um: [radius_um * libm::cos(origin_angle), radius_um * libm::sin(origin_angle)],
+                direction_xy: None,
+                rotation: Some(if ccw { "ccw" } else { "cw" }),
+                distances,
+            }
+        }
+    }
+}
