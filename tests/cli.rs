@@ -1,6 +1,8 @@
 //! The `ringline` command as a user runs it: exit codes, located messages on stderr, and the
 //! numbers of `inspect` worked out by hand from small inputs.
 
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
 mod common;
 
 use common::{bad_cases, GOOD_LAYOUT, GOOD_SPIKES};

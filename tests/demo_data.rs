@@ -1,7 +1,11 @@
 //! The demo recordings regenerate byte for byte from their scenarios, and the kinematic
 //! simulator keeps to its own definition (front arrival t0 + d / v; Poisson background).
 
-use ringline::simulate::{parse_scenario, simulate_fronts, simulation_files, ElectrodeLayout, FrontScenario, Scenario};
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
+use ringline::simulate::{
+    parse_scenario, simulate_fronts, simulation_files, ElectrodeLayout, FrontScenario, Scenario,
+};
 use std::path::PathBuf;
 
 fn demo_dir() -> PathBuf {
@@ -18,12 +22,24 @@ fn demo_recordings_regenerate_byte_for_byte() {
         let Scenario::Fronts(front) = &scenario;
         for (name, content) in simulation_files(&scenario).unwrap() {
             let committed = std::fs::read_to_string(demo_dir().join(&front.name).join(&name))
-                .unwrap_or_else(|_| panic!("{}/{name} is missing; run scripts/make-demo-data", front.name));
-            assert!(committed == content, "{}/{name} differs from a fresh simulation; run scripts/make-demo-data", front.name);
+                .unwrap_or_else(|_| {
+                    panic!(
+                        "{}/{name} is missing; run scripts/make-demo-data",
+                        front.name
+                    )
+                });
+            assert!(
+                committed == content,
+                "{}/{name} differs from a fresh simulation; run scripts/make-demo-data",
+                front.name
+            );
             checked += 1;
         }
     }
-    assert!(checked >= 9, "expected three demo recordings of three files, checked {checked}");
+    assert!(
+        checked >= 9,
+        "expected three demo recordings of three files, checked {checked}"
+    );
 }
 
 fn quiet_row() -> FrontScenario {
@@ -31,7 +47,11 @@ fn quiet_row() -> FrontScenario {
         name: "check".into(),
         seed: 7,
         duration_s: 100.0,
-        electrodes: ElectrodeLayout::Row { count: 10, pitch_um: 250.0, angle_deg: 30.0 },
+        electrodes: ElectrodeLayout::Row {
+            count: 10,
+            pitch_um: 250.0,
+            angle_deg: 30.0,
+        },
         position_jitter_um: 0.0,
         min_interval_s: 5.0,
         extra_interval_s: 1.0,
@@ -57,7 +77,8 @@ fn fronts_arrive_at_distance_over_speed() {
         let d = burst.direction_xy.unwrap();
         for (site, t) in sim.sites.iter().zip(&burst.activation_s) {
             let Some(t) = t else { continue };
-            let distance = (site.x_um - burst.origin_um[0]) * d[0] + (site.y_um - burst.origin_um[1]) * d[1];
+            let distance =
+                (site.x_um - burst.origin_um[0]) * d[0] + (site.y_um - burst.origin_um[1]) * d[1];
             let expected = burst.start_s + distance / (burst.speed_mm_s * 1e3);
             assert!((t - expected).abs() < 1e-9, "{t} s against {expected} s");
         }
@@ -79,7 +100,11 @@ fn background_is_poisson_at_the_given_rate() {
     let total: usize = sim.spikes.iter().map(|s| s.times_s.len()).sum();
     for s in &sim.spikes {
         let n = s.times_s.len() as f64;
-        assert!((n - mean).abs() < 4.5 * mean.sqrt(), "{}: {n} spikes, mean {mean}", s.site);
+        assert!(
+            (n - mean).abs() < 4.5 * mean.sqrt(),
+            "{}: {n} spikes, mean {mean}",
+            s.site
+        );
     }
     let n_all = total as f64;
     let mean_all = mean * sim.spikes.len() as f64;
@@ -88,9 +113,15 @@ fn background_is_poisson_at_the_given_rate() {
 
 #[test]
 fn bad_scenarios_name_the_field() {
-    let bad = FrontScenario { speed_mm_s: -1.0, ..quiet_row() };
+    let bad = FrontScenario {
+        speed_mm_s: -1.0,
+        ..quiet_row()
+    };
     assert!(simulate_fronts(&bad).unwrap_err().starts_with("speed_mm_s"));
-    let bad = FrontScenario { dead_electrodes: vec![10], ..quiet_row() };
+    let bad = FrontScenario {
+        dead_electrodes: vec![10],
+        ..quiet_row()
+    };
     assert!(simulate_fronts(&bad).unwrap_err().contains("electrode 10"));
     assert!(parse_scenario("{\"model\": \"fronts\", \"name\": 3}").is_err());
 }

@@ -1,6 +1,8 @@
 //! Track geometry against numpy and scipy. The fixture is made by
 //! `scripts/reference/make_fixtures.py`, which records the library versions.
 
+#![allow(clippy::unwrap_used, clippy::expect_used, clippy::needless_range_loop)] // a failed unwrap is a failed test
+
 use approx::assert_relative_eq;
 use ringline::geometry::{
     fit_circle_geometric, fit_circle_kasa, fit_circle_taubin, fit_line_tls, fit_track, Circle,

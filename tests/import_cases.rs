@@ -1,6 +1,8 @@
 //! Importers, case by case: accepted spellings of the formats, and every bad input with the
 //! place its error must name. Expected values are worked out by hand from the inputs.
 
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
 mod common;
 
 use approx::assert_relative_eq;

@@ -1,6 +1,8 @@
 //! Property tests (proptest): write-then-read round trips of the text formats, and invariants
 //! of the track geometry that hold for any layout.
 
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
 use proptest::prelude::*;
 use ringline::geometry::{fit_track, wrap_angle, Track, TrackChoice, TrackSettings};
 use ringline::import::{
@@ -13,8 +15,11 @@ use std::f64::consts::TAU;
 
 /// Site identifiers including characters the writer must quote (`,`, `"`, `;`, a leading `#`).
 fn site_ids(max: usize) -> impl Strategy<Value = Vec<String>> {
-    prop::collection::btree_set("[A-Za-z0-9_#,;\"-][A-Za-z0-9_ #,;\"-]{0,6}[A-Za-z0-9_#\"-]", 1..max)
-        .prop_map(|s: BTreeSet<String>| s.into_iter().collect())
+    prop::collection::btree_set(
+        "[A-Za-z0-9_#,;\"-][A-Za-z0-9_ #,;\"-]{0,6}[A-Za-z0-9_#\"-]",
+        1..max,
+    )
+    .prop_map(|s: BTreeSet<String>| s.into_iter().collect())
 }
 
 proptest! {

@@ -33,7 +33,8 @@ pub fn fit_line_tls(points: &[[f64; 2]]) -> Option<LineFit> {
     let v_t = svd.v_t?;
     let s = &svd.singular_values;
     let (major, minor) = if s[0] >= s[1] { (0, 1) } else { (1, 0) };
-    if !(s[major] > 0.0) {
+    // All points coincide (or the values are not numbers): no direction.
+    if s[major].partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
         return None;
     }
     let direction = [v_t[(major, 0)], v_t[(major, 1)]];

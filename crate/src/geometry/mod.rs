@@ -141,7 +141,8 @@ pub enum GeometryProblem {
 /// The geometry layer's error: where (site, setting) and one sentence.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct GeometryError {
-    pub place: Place,
+    /// Where the problem is (boxed to keep `Result`s small).
+    pub place: Box<Place>,
     pub problem: GeometryProblem,
     pub message: String,
 }
@@ -160,7 +161,7 @@ impl std::error::Error for GeometryError {}
 
 fn error(problem: GeometryProblem, message: impl Into<String>) -> GeometryError {
     GeometryError {
-        place: Place::default(),
+        place: Box::default(),
         problem,
         message: message.into(),
     }
@@ -247,7 +248,7 @@ pub fn fit_track(sites: &[Site], settings: &TrackSettings) -> Result<TrackFit, G
                 .iter()
                 .position(|s| &s.id == id)
                 .ok_or_else(|| GeometryError {
-                    place: Place::site(id),
+                    place: Box::new(Place::site(id)),
                     problem: GeometryProblem::UnknownSite,
                     message: "the start site is not in the layout".into(),
                 })?,
@@ -357,7 +358,7 @@ pub fn fit_track(sites: &[Site], settings: &TrackSettings) -> Result<TrackFit, G
 
 fn check_settings(settings: &TrackSettings) -> Result<(), GeometryError> {
     let bad = |what: &str, message: String| GeometryError {
-        place: Place::default(),
+        place: Box::default(),
         problem: GeometryProblem::BadSetting,
         message: format!("{what}: {message}"),
     };

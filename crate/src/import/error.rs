@@ -35,8 +35,8 @@ pub enum ImportProblem {
 /// An import failed. Carries where (file, line, column, site) and one sentence for a scientist.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ImportError {
-    /// Where the problem is.
-    pub place: Place,
+    /// Where the problem is (boxed to keep `Result`s small).
+    pub place: Box<Place>,
     /// What kind of problem it is.
     pub problem: ImportProblem,
     /// What was expected and what was found, in words.
@@ -46,7 +46,7 @@ pub struct ImportError {
 impl ImportError {
     pub fn new(place: Place, problem: ImportProblem, message: impl Into<String>) -> Self {
         ImportError {
-            place,
+            place: Box::new(place),
             problem,
             message: message.into(),
         }

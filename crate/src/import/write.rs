@@ -18,7 +18,11 @@ pub fn write_spike_list(sites: &[SiteSpikes]) -> String {
 
 /// Writes a spike list with times in `unit` (header `site,time_ms` and so on), with a fixed
 /// number of decimals when `decimals` is given (which then sets the file's time quantum).
-pub fn write_spike_list_as(sites: &[SiteSpikes], unit: TimeUnit, decimals: Option<usize>) -> String {
+pub fn write_spike_list_as(
+    sites: &[SiteSpikes],
+    unit: TimeUnit,
+    decimals: Option<usize>,
+) -> String {
     let mut rows: Vec<(f64, &str)> = sites
         .iter()
         .flat_map(|s| s.times_s.iter().map(move |&t| (t, s.site.as_str())))
@@ -28,7 +32,11 @@ pub fn write_spike_list_as(sites: &[SiteSpikes], unit: TimeUnit, decimals: Optio
     let _ = writeln!(out, "site,time_{}", unit.symbol());
     let scale = 1.0 / unit.seconds();
     for (t, site) in rows {
-        let value = if unit == TimeUnit::Seconds { t } else { t * scale };
+        let value = if unit == TimeUnit::Seconds {
+            t
+        } else {
+            t * scale
+        };
         let _ = match decimals {
             Some(d) => writeln!(out, "{},{:.d$}", field(site), value),
             None => writeln!(out, "{},{}", field(site), value),

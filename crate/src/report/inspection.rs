@@ -234,7 +234,11 @@ impl Inspection {
             );
         }
         if let Some(l) = t.length_um {
-            let word = if t.radius_um.is_some() { "circumference" } else { "length" };
+            let word = if t.radius_um.is_some() {
+                "circumference"
+            } else {
+                "length"
+            };
             let _ = write!(out, ", {word} {l:.1} um");
         }
         out.push('\n');

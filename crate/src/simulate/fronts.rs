@@ -138,16 +138,25 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
         }
     }
     if !(0.0..=1.0).contains(&s.failure_probability) {
-        return Err(format!("failure_probability: expected 0 to 1, found {}", s.failure_probability));
+        return Err(format!(
+            "failure_probability: expected 0 to 1, found {}",
+            s.failure_probability
+        ));
     }
     let count = electrode_count(&s.electrodes);
     if !(2..=100_000).contains(&count) {
-        return Err(format!("electrodes: expected 2 to 100000 electrodes, found {count}"));
+        return Err(format!(
+            "electrodes: expected 2 to 100000 electrodes, found {count}"
+        ));
     }
     if let Some(&bad) = s.dead_electrodes.iter().find(|&&i| i >= count) {
-        return Err(format!("dead_electrodes: electrode {bad} does not exist (there are {count}, counted from 0)"));
+        return Err(format!(
+            "dead_electrodes: electrode {bad} does not exist (there are {count}, counted from 0)"
+        ));
     }
-    let expected_spikes = s.duration_s * count as f64 * (s.background_rate_hz + s.spikes_per_burst / s.min_interval_s);
+    let expected_spikes = s.duration_s
+        * count as f64
+        * (s.background_rate_hz + s.spikes_per_burst / s.min_interval_s);
     if expected_spikes > 5e7 {
         return Err(format!("the scenario would make about {expected_spikes:.0} spikes, more than the 50 million allowed"));
     }
@@ -192,7 +201,8 @@ pub fn simulate_fronts(scenario: &FrontScenario) -> Result<SimulatedFronts, Stri
             .then(|| max_distance * (0.3 + 0.4 * uniform(&mut rng)));
         let mut activation_s = vec![None; n];
         for (i, &d) in front.distances.iter().enumerate() {
-            if scenario.dead_electrodes.contains(&i) || stops_after_um.is_some_and(|stop| d > stop) {
+            if scenario.dead_electrodes.contains(&i) || stops_after_um.is_some_and(|stop| d > stop)
+            {
                 continue;
             }
             let t = t0 + d / speed_um_s + scenario.activation_jitter_s * normal(&mut rng);
@@ -360,12 +370,19 @@ fn draw_front(layout: &ElectrodeLayout, positions: &[[f64; 2]], rng: &mut ChaCha
                 .iter()
                 .map(|p| {
                     let a = libm::atan2(p[1], p[0]);
-                    let turn = if ccw { a - origin_angle } else { origin_angle - a };
+                    let turn = if ccw {
+                        a - origin_angle
+                    } else {
+                        origin_angle - a
+                    };
                     radius_um * turn.rem_euclid(TAU)
                 })
                 .collect();
             Front {
-                origin_um: [radius_um * libm::cos(origin_angle), radius_um * libm::sin(origin_angle)],
+                origin_um: [
+                    radius_um * libm::cos(origin_angle),
+                    radius_um * libm::sin(origin_angle),
+                ],
                 direction_xy: None,
                 rotation: Some(if ccw { "ccw" } else { "cw" }),
                 distances,

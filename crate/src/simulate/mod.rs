@@ -11,7 +11,9 @@
 pub mod fronts;
 mod sample;
 
-pub use fronts::{simulate_fronts, ElectrodeLayout, FrontScenario, FrontTruth, SimulatedFronts, TruthBurst};
+pub use fronts::{
+    simulate_fronts, ElectrodeLayout, FrontScenario, FrontTruth, SimulatedFronts, TruthBurst,
+};
 
 use serde::{Deserialize, Serialize};
 
@@ -25,7 +27,8 @@ pub enum Scenario {
 
 /// Reads a scenario from JSON text; the error says what is wrong in the scenario's words.
 pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
-    serde_json::from_str(text).map_err(|e| format!("line {}, column {}: {}", e.line(), e.column(), e))
+    serde_json::from_str(text)
+        .map_err(|e| format!("line {}, column {}: {}", e.line(), e.column(), e))
 }
 
 /// The files a simulation writes, as (file name, content): `spikes.csv` (times in ms with
@@ -38,7 +41,11 @@ pub fn simulation_files(scenario: &Scenario) -> Result<Vec<(String, String)>, St
             Ok(vec![
                 (
                     "spikes.csv".into(),
-                    crate::import::write_spike_list_as(&sim.spikes, crate::import::TimeUnit::Milliseconds, Some(2)),
+                    crate::import::write_spike_list_as(
+                        &sim.spikes,
+                        crate::import::TimeUnit::Milliseconds,
+                        Some(2),
+                    ),
                 ),
                 ("layout.csv".into(), crate::import::write_layout(&sim.sites)),
                 ("truth.json".into(), truth),

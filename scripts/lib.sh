@@ -1,0 +1,25 @@
+# Shared helpers for the scripts in this folder. Source it; do not run it.
+
+say() { printf '\033[1m==> %s\033[0m\n' "$*" >&2; }
+
+# Installs a rustup component or target when it is missing.
+ensure_rust() {
+  if ! command -v cargo >/dev/null 2>&1; then
+    echo "cargo is not on PATH: install Rust with rustup (https://rustup.rs) and run this again" >&2
+    exit 1
+  fi
+  if command -v rustup >/dev/null 2>&1; then
+    local installed
+    installed=$(rustup component list --installed 2>/dev/null || true)
+    for component in rustfmt clippy; do
+      if ! grep -q "^$component" <<<"$installed"; then
+        say "installing the Rust component $component"
+        rustup component add "$component"
+      fi
+    done
+    if ! rustup target list --installed 2>/dev/null | grep -q '^wasm32-unknown-unknown$'; then
+      say "installing the Rust target wasm32-unknown-unknown"
+      rustup target add wasm32-unknown-unknown
+    fi
+  fi
+}
