@@ -89,6 +89,20 @@ fn extra_columns_are_left_out_and_reported() {
 }
 
 #[test]
+fn a_column_that_only_starts_like_a_time_is_not_the_time_column() {
+    let list = spikes(b"site,t_peak,time_ms,timestamp\nA,3,1.5,x\n");
+    assert_eq!(times(&list, "A"), vec![0.0015]);
+    assert_eq!(list.ignored_columns, vec!["t_peak", "timestamp"]);
+    let traces = read_roi_traces(
+        b"time_s,t_cell1,t_cell2\n0,1,2\n0.1,1,2\n",
+        "t.csv",
+        &TraceOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(traces.rois.len(), 2);
+}
+
+#[test]
 fn time_quantum_follows_the_written_decimals() {
     // Two decimals of milliseconds: the file cannot express steps under 10 us.
     let list = spikes(b"site,time_ms\nA,1.25\nA,2.5\n");

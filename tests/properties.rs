@@ -161,3 +161,34 @@ proptest! {
         }
     }
 }
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(256))]
+
+    /// Whatever comment, blank and CRLF lines surround it, a bad value is reported at the
+    /// line an editor shows it on.
+    #[test]
+    fn error_line_counts_every_line(
+        fillers in prop::collection::vec(0u8..3, 0..30),
+        rows_before in 0usize..20, crlf in any::<bool>(),
+    ) {
+        let nl = if crlf { "\r\n" } else { "\n" };
+        let mut lines: Vec<String> = vec!["site,time_s".into()];
+        let mut fill = fillers.iter().cycle();
+        for i in 0..rows_before {
+            match fill.next() {
+                Some(0) => lines.push(String::new()),
+                Some(1) => lines.push("# a note, with a comma".into()),
+                _ => {}
+            }
+            lines.push(format!("A,{i}.5"));
+        }
+        if let Some(0) = fill.next() { lines.push("# just before".into()) }
+        lines.push("B,not-a-time".into());
+        let bad_line = lines.len() as u64;
+        lines.push("C,1".into());
+        let text = lines.join(nl) + nl;
+        let err = read_spike_list(text.as_bytes(), "p.csv", &SpikeListOptions::default()).unwrap_err();
+        prop_assert_eq!(err.place.line, Some(bad_line));
+    }
+}

@@ -23,6 +23,12 @@ pub const GOOD_LAYOUT: &[u8] = b"site,x_um,y_um\nA,0,0\nB,200,0\nC,400,0\nD,600,
 pub const GOOD_SPIKES: &[u8] = b"site,time_s\nA,0.5\nB,0.6\nC,0.7\n";
 
 pub fn bad_cases() -> Vec<BadCase> {
+    let mut cases = basic_bad_cases();
+    cases.extend(bad_cases_after_comments());
+    cases
+}
+
+fn basic_bad_cases() -> Vec<BadCase> {
     let case = |name, activity, layout, file, line, column, words| BadCase {
         name,
         activity,
@@ -261,6 +267,43 @@ pub fn bad_cases() -> Vec<BadCase> {
                 Some(2),
                 "fluorescence value",
             )
+        },
+    ]
+}
+
+/// Bad inputs behind comment and blank lines: line numbers must count every line.
+pub fn bad_cases_after_comments() -> Vec<BadCase> {
+    vec![
+        BadCase {
+            name: "text time after comments",
+            activity:
+                b"# recorded on rig 2\n\n# units: ms\nsite,time_ms\n\nA,1.0\n# pause\nB,abc\n",
+            layout: GOOD_LAYOUT,
+            file: "activity",
+            line: Some(8),
+            column: Some(2),
+            words: "found 'abc'",
+            args: &[],
+        },
+        BadCase {
+            name: "missing column after comments",
+            activity: b"# header follows\n\nsite,amplitude\nA,1\n",
+            layout: GOOD_LAYOUT,
+            file: "activity",
+            line: Some(3),
+            column: None,
+            words: "time column",
+            args: &[],
+        },
+        BadCase {
+            name: "duplicate site after comments",
+            activity: GOOD_SPIKES,
+            layout: b"# layout\nsite,x_um,y_um\n# first row\nA,0,0\n\nA,1,0\n",
+            file: "layout",
+            line: Some(6),
+            column: Some(1),
+            words: "first on line 4",
+            args: &[],
         },
     ]
 }

@@ -2,7 +2,7 @@
 
 use super::error::{ImportError, ImportProblem};
 use super::spikes::{find_site_column, quoted_list};
-use super::table::{match_header, HeaderMatch, ImportLimits, LengthUnit, Table};
+use super::table::{length_header, ImportLimits, LengthUnit, Table, UnitHeader};
 use crate::place::{Notice, Place};
 use crate::recording::Site;
 use serde::{Deserialize, Serialize};
@@ -127,39 +127,34 @@ fn find_axis(
     axis: &str,
     fallback: Option<LengthUnit>,
 ) -> Result<(usize, LengthUnit), ImportError> {
-    for (i, header) in table.headers().iter().enumerate() {
-        match match_header(header, &[axis]) {
-            HeaderMatch::No => continue,
-            HeaderMatch::Unit(text) => {
-                let unit = LengthUnit::parse(&text).ok_or_else(|| {
-                    ImportError::new(
-                        table.place_column(None, i),
-                        ImportProblem::BadHeader,
-                        format!(
-                            "expected a length unit um or mm in the column name, found '{text}'"
-                        ),
-                    )
-                })?;
-                return Ok((i, unit));
-            }
-            HeaderMatch::NoUnit => {
-                let unit = fallback.ok_or_else(|| {
-                    ImportError::new(
-                        table.place_column(None, i),
-                        ImportProblem::BadHeader,
-                        format!("the {axis} column has no unit; name it {axis}_um or {axis}_mm, or give the length unit as an option"),
-                    )
-                })?;
-                return Ok((i, unit));
-            }
-        }
+    let read: Vec<(usize, UnitHeader<LengthUnit>)> = table
+        .headers()
+        .iter()
+        .enumerate()
+        .filter_map(|(i, h)| length_header(h, axis).map(|m| (i, m)))
+        .collect();
+    let usable = read.iter().find(|(_, m)| m.understood());
+    match (usable, read.first()) {
+        (Some((i, UnitHeader::Unit(unit))), _) => Ok((*i, *unit)),
+        (Some((i, _)), _) => fallback.map(|u| (*i, u)).ok_or_else(|| {
+            ImportError::new(
+                table.place_column(None, *i),
+                ImportProblem::BadHeader,
+                format!("the {axis} column has no unit; name it {axis}_um or {axis}_mm, or give the length unit as an option"),
+            )
+        }),
+        (None, Some((i, UnitHeader::UnknownUnit(text)))) => Err(ImportError::new(
+            table.place_column(None, *i),
+            ImportProblem::BadHeader,
+            format!("expected a length unit um or mm in the column name, found '{text}'"),
+        )),
+        _ => Err(ImportError::new(
+            table.place_header(),
+            ImportProblem::MissingColumn,
+            format!(
+                "expected a position column named {axis}_um or {axis}_mm, found the columns {}",
+                quoted_list(table.headers())
+            ),
+        )),
     }
-    Err(ImportError::new(
-        Place::file(table.file()).at_line(1),
-        ImportProblem::MissingColumn,
-        format!(
-            "expected a position column named {axis}_um or {axis}_mm, found the columns {}",
-            quoted_list(table.headers())
-        ),
-    ))
 }

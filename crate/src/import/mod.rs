@@ -54,14 +54,14 @@ pub fn sniff_file_kind(bytes: &[u8]) -> Option<FileKind> {
     let has_site = headers
         .iter()
         .any(|h| SITE_COLUMN_NAMES.iter().any(|n| h.eq_ignore_ascii_case(n)));
-    let has = |base: &str| {
+    let has = |axis: &str| {
         headers
             .iter()
-            .any(|h| table::match_header(h, &[base]) != table::HeaderMatch::No)
+            .any(|h| table::length_header(h, axis).is_some_and(|m| m.understood()))
     };
     let has_time = headers
         .iter()
-        .any(|h| table::match_header(h, TIME_COLUMN_BASES) != table::HeaderMatch::No);
+        .any(|h| table::time_header(h, TIME_COLUMN_BASES).is_some_and(|m| m.understood()));
     match (has_site, has_time, has("x") && has("y")) {
         (true, _, true) => Some(FileKind::Layout),
         (true, true, false) => Some(FileKind::SpikeList),

@@ -1,7 +1,7 @@
 //! Spike lists: one row per spike, a site column and a time column.
 
 use super::error::{ImportError, ImportProblem};
-use super::table::{decimal_places, match_header, HeaderMatch, ImportLimits, Table, TimeUnit};
+use super::table::{decimal_places, time_header, ImportLimits, Table, TimeUnit, UnitHeader};
 use crate::place::{Notice, Place};
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
@@ -82,7 +82,9 @@ pub fn read_spike_list(
 ) -> Result<SpikeList, ImportError> {
     let mut table = Table::open(bytes, file, options.limits)?;
     let site_col = find_site_column(&table)?;
-    let (time_col, time_unit) = find_time_column(&table, options.time_unit)?;
+    let Some((time_col, time_unit)) = find_time_column(&table, options.time_unit, true, "")? else {
+        unreachable!("a required time column is found or reported")
+    };
     let ignored_columns: Vec<String> = table
         .headers()
         .iter()
@@ -207,7 +209,7 @@ pub(crate) fn find_site_column(table: &Table<'_>) -> Result<usize, ImportError> 
     match found.as_slice() {
         [one] => Ok(*one),
         [] => Err(ImportError::new(
-            Place::file(table.file()).at_line(1),
+            table.place_header(),
             ImportProblem::MissingColumn,
             format!(
                 "expected a site column named one of {}, found the columns {}",
@@ -223,56 +225,69 @@ pub(crate) fn find_site_column(table: &Table<'_>) -> Result<usize, ImportError> 
     }
 }
 
-/// Finds the one time column and its unit. `fallback` is the unit to use when the name has none.
+/// Finds the one time column and its unit. `fallback` is the unit for a bare `time`
+/// column. With `required` false, no time column gives `Ok(None)`; `missing_hint` ends the
+/// error sentence when it is required and absent.
+///
+/// A header like `t_peak` or `time_min` (a time base followed by an unknown unit) is not
+/// taken as the time column, so it cannot clash with the real one; it is named in the error
+/// when no time column is found.
 pub(crate) fn find_time_column(
     table: &Table<'_>,
     fallback: Option<TimeUnit>,
-) -> Result<(usize, TimeUnit), ImportError> {
-    let mut found: Vec<(usize, HeaderMatch)> = table
+    required: bool,
+    missing_hint: &str,
+) -> Result<Option<(usize, TimeUnit)>, ImportError> {
+    let read: Vec<(usize, UnitHeader<TimeUnit>)> = table
         .headers()
         .iter()
         .enumerate()
-        .map(|(i, h)| (i, match_header(h, TIME_COLUMN_BASES)))
-        .filter(|(_, m)| *m != HeaderMatch::No)
+        .filter_map(|(i, h)| time_header(h, TIME_COLUMN_BASES).map(|m| (i, m)))
         .collect();
-    if found.len() > 1 {
+    let usable: Vec<&(usize, UnitHeader<TimeUnit>)> =
+        read.iter().filter(|(_, m)| m.understood()).collect();
+    if let [_, (second, _), ..] = usable.as_slice() {
         return Err(ImportError::new(
-            table.place_column(None, found[1].0),
+            table.place_column(None, *second),
             ImportProblem::BadHeader,
             "expected one time column, found more than one",
         ));
     }
-    let Some((index, matched)) = found.pop() else {
+    let Some((index, matched)) = usable.first() else {
+        if !required {
+            return Ok(None);
+        }
+        if let Some((i, UnitHeader::UnknownUnit(text))) = read.first() {
+            return Err(ImportError::new(
+                table.place_column(None, *i),
+                ImportProblem::BadHeader,
+                format!("expected a time unit s, ms or us in the column name, found '{text}'"),
+            ));
+        }
         return Err(ImportError::new(
-            Place::file(table.file()).at_line(1),
+            table.place_header(),
             ImportProblem::MissingColumn,
             format!(
-                "expected a time column named time_s, time_ms or time_us, found the columns {}",
+                "expected a time column named time_s, time_ms or time_us{missing_hint}, found the columns {}",
                 quoted_list(table.headers())
             ),
         ));
     };
+    let index = *index;
     let unit = match matched {
-        HeaderMatch::Unit(text) => {
-            let unit = TimeUnit::parse(&text).ok_or_else(|| {
-                ImportError::new(
-                    table.place_column(None, index),
-                    ImportProblem::BadHeader,
-                    format!("expected a time unit s, ms or us in the column name, found '{text}'"),
-                )
-            })?;
-            if let Some(given) = fallback.filter(|&g| g != unit) {
+        UnitHeader::Unit(unit) => {
+            if let Some(given) = fallback.filter(|g| g != unit) {
                 return Err(ImportError::new(
                     table.place_column(None, index),
                     ImportProblem::BadOption,
                     format!(
                         "the column name says {} but the time unit option says {}; remove one of them",
-                        unit_words(unit),
+                        unit_words(*unit),
                         unit_words(given)
                     ),
                 ));
             }
-            unit
+            *unit
         }
         _ => fallback.ok_or_else(|| {
             ImportError::new(
@@ -282,7 +297,7 @@ pub(crate) fn find_time_column(
             )
         })?,
     };
-    Ok((index, unit))
+    Ok(Some((index, unit)))
 }
 
 pub(crate) fn quoted_list(names: &[String]) -> String {

@@ -132,6 +132,48 @@ pub(crate) fn match_header(header: &str, bases: &[&str]) -> HeaderMatch {
     HeaderMatch::No
 }
 
+/// A header read as a quantity with a unit.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) enum UnitHeader<U> {
+    /// The bare quantity name (`time`, `x`).
+    NoUnit,
+    /// The quantity with a unit that was understood.
+    Unit(U),
+    /// The quantity name followed by something that is not a known unit (`time_min`, `t_peak`).
+    UnknownUnit(String),
+}
+
+impl<U> UnitHeader<U> {
+    /// True unless the unit was not understood.
+    pub(crate) fn understood(&self) -> bool {
+        !matches!(self, UnitHeader::UnknownUnit(_))
+    }
+}
+
+/// Reads a header as a time column (see `spikes::TIME_COLUMN_BASES`); `None` when it is not one.
+pub(crate) fn time_header(header: &str, bases: &[&str]) -> Option<UnitHeader<TimeUnit>> {
+    match match_header(header, bases) {
+        HeaderMatch::No => None,
+        HeaderMatch::NoUnit => Some(UnitHeader::NoUnit),
+        HeaderMatch::Unit(text) => Some(match TimeUnit::parse(&text) {
+            Some(unit) => UnitHeader::Unit(unit),
+            None => UnitHeader::UnknownUnit(text),
+        }),
+    }
+}
+
+/// Reads a header as a position column for `axis`; `None` when it is not one.
+pub(crate) fn length_header(header: &str, axis: &str) -> Option<UnitHeader<LengthUnit>> {
+    match match_header(header, &[axis]) {
+        HeaderMatch::No => None,
+        HeaderMatch::NoUnit => Some(UnitHeader::NoUnit),
+        HeaderMatch::Unit(text) => Some(match LengthUnit::parse(&text) {
+            Some(unit) => UnitHeader::Unit(unit),
+            None => UnitHeader::UnknownUnit(text),
+        }),
+    }
+}
+
 /// One data row of a table.
 pub(crate) struct Row {
     /// Line number in the file (counted from 1).
@@ -142,6 +184,12 @@ pub(crate) struct Row {
 /// An open delimited table: header read, rows still to come.
 pub(crate) struct Table<'a> {
     file: String,
+    /// The text after the byte-order mark; record byte offsets index into it.
+    text: &'a [u8],
+    /// Line counting: the byte offset reached so far and the line number there.
+    counted_to: usize,
+    counted_line: u64,
+    header_line: u64,
     headers: Vec<String>,
     reader: csv::Reader<&'a [u8]>,
     decimal_comma: bool,
@@ -178,14 +226,14 @@ impl<'a> Table<'a> {
             ));
         }
         let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
-        let Some(header_line) = first_content_line(bytes) else {
+        let Some((header_line, header_text)) = first_content_line(bytes) else {
             return Err(ImportError::new(
                 place,
                 ImportProblem::Empty,
                 "the file is empty (no header line and no data)",
             ));
         };
-        let delimiter = detect_delimiter(header_line);
+        let delimiter = detect_delimiter(header_text);
         let mut reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
             .comment(Some(b'#'))
@@ -195,10 +243,14 @@ impl<'a> Table<'a> {
             .from_reader(bytes);
         let headers: Vec<String> = match reader.headers() {
             Ok(h) => h.iter().map(str::to_string).collect(),
-            Err(e) => return Err(csv_error(file, e)),
+            Err(e) => return Err(csv_error(file, Some(header_line), e)),
         };
         let table = Table {
             file: file.to_string(),
+            text: bytes,
+            counted_to: 0,
+            counted_line: 1,
+            header_line,
             headers,
             reader,
             decimal_comma: delimiter == b';',
@@ -236,11 +288,6 @@ impl<'a> Table<'a> {
         Ok(())
     }
 
-    /// File name as given.
-    pub fn file(&self) -> &str {
-        &self.file
-    }
-
     /// Header names as written (trimmed).
     pub fn headers(&self) -> &[String] {
         &self.headers
@@ -258,14 +305,58 @@ impl<'a> Table<'a> {
         Place::file(&self.file).at_line(line)
     }
 
+    /// The csv reader reports a record's position from where it began reading, before the
+    /// empty and `#` comment lines it skipped; this moves past them to the record itself.
+    fn skip_ignored_lines(&self, mut offset: usize) -> usize {
+        while offset < self.text.len() {
+            let rest = &self.text[offset..];
+            let end = rest.iter().position(|&b| b == b'\n');
+            let line = &rest[..end.unwrap_or(rest.len())];
+            let ignored = line.is_empty() || line == b"\r" || line.starts_with(b"#");
+            match (ignored, end) {
+                (true, Some(end)) => offset += end + 1,
+                _ => break,
+            }
+        }
+        offset
+    }
+
+    /// Place of the header line.
+    pub fn place_header(&self) -> Place {
+        self.place_line(self.header_line)
+    }
+
+    /// Line number (from 1) of a byte offset, counting every line: the csv reader's own line
+    /// count skips comment and blank lines, which would send the user to the wrong line.
+    /// Offsets arrive in increasing order, so counting resumes where it stopped.
+    fn line_at(&mut self, offset: usize) -> u64 {
+        let offset = self.skip_ignored_lines(offset.min(self.text.len()));
+        if offset < self.counted_to {
+            self.counted_to = 0;
+            self.counted_line = 1;
+        }
+        let newlines = self.text[self.counted_to..offset]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count() as u64;
+        self.counted_line += newlines;
+        self.counted_to = offset;
+        self.counted_line
+    }
+
     /// Reads the next data row; `None` at the end of the file.
     pub fn next_row(&mut self) -> Option<Result<Row, ImportError>> {
         let mut record = csv::StringRecord::new();
         match self.reader.read_record(&mut record) {
             Ok(false) => None,
-            Err(e) => Some(Err(csv_error(&self.file, e))),
+            Err(e) => {
+                let line = e.position().map(|p| self.line_at(p.byte() as usize));
+                Some(Err(csv_error(&self.file, line, e)))
+            }
             Ok(true) => {
-                let line = record.position().map_or(0, |p| p.line());
+                let line = record
+                    .position()
+                    .map_or(0, |p| self.line_at(p.byte() as usize));
                 self.rows_read += 1;
                 if self.rows_read > self.limits.max_rows {
                     return Some(Err(ImportError::new(
@@ -362,15 +453,17 @@ fn shorten(text: &str) -> String {
     }
 }
 
-/// First line that is neither blank nor a `#` comment.
-fn first_content_line(bytes: &[u8]) -> Option<&[u8]> {
+/// First line that is neither blank nor a `#` comment, with its line number (from 1).
+fn first_content_line(bytes: &[u8]) -> Option<(u64, &[u8])> {
     bytes
         .split(|&b| b == b'\n')
         .map(|line| line.strip_suffix(b"\r").unwrap_or(line))
-        .find(|line| {
+        .enumerate()
+        .find(|(_, line)| {
             let trimmed = line.trim_ascii();
             !trimmed.is_empty() && !trimmed.starts_with(b"#")
         })
+        .map(|(i, line)| (i as u64 + 1, line))
 }
 
 /// Tab if the header has one, else comma, else semicolon, else comma (a single column).
@@ -387,11 +480,9 @@ fn detect_delimiter(header: &[u8]) -> u8 {
     }
 }
 
-fn csv_error(file: &str, error: csv::Error) -> ImportError {
+fn csv_error(file: &str, line: Option<u64>, error: csv::Error) -> ImportError {
     let mut place = Place::file(file);
-    if let Some(pos) = error.position() {
-        place.line = Some(pos.line());
-    }
+    place.line = line;
     let message = match error.kind() {
         csv::ErrorKind::Utf8 { .. } => "expected UTF-8 text, found bytes that are not".to_string(),
         _ => format!("the file cannot be read as a table: {error}"),

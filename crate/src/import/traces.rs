@@ -1,8 +1,8 @@
 //! ROI fluorescence traces: one row per frame, an optional time column, one column per ROI.
 
 use super::error::{ImportError, ImportProblem};
-use super::spikes::{unit_words, TIME_COLUMN_BASES};
-use super::table::{match_header, HeaderMatch, ImportLimits, Table, TimeUnit};
+use super::spikes::{find_time_column, unit_words};
+use super::table::{ImportLimits, Table, TimeUnit};
 use crate::place::{Notice, Place};
 use serde::{Deserialize, Serialize};
 
@@ -84,7 +84,12 @@ pub fn read_roi_traces(
         }
     }
     let mut table = Table::open(bytes, file, options.limits)?;
-    let time = find_optional_time_column(&table, options)?;
+    let time = find_time_column(
+        &table,
+        options.time_unit,
+        options.frame_rate_hz.is_none(),
+        " or a frame rate option",
+    )?;
     let frame_col = table
         .headers()
         .iter()
@@ -94,7 +99,7 @@ pub fn read_roi_traces(
         .collect();
     if roi_cols.is_empty() {
         return Err(ImportError::new(
-            Place::file(file).at_line(1),
+            table.place_header(),
             ImportProblem::MissingColumn,
             "expected at least one ROI column besides the time column, found none",
         ));
@@ -195,53 +200,6 @@ pub fn read_roi_traces(
         ignored_columns,
         notices,
     })
-}
-
-fn find_optional_time_column(
-    table: &Table<'_>,
-    options: &TraceOptions,
-) -> Result<Option<(usize, TimeUnit)>, ImportError> {
-    let found: Vec<(usize, HeaderMatch)> = table
-        .headers()
-        .iter()
-        .enumerate()
-        .map(|(i, h)| (i, match_header(h, TIME_COLUMN_BASES)))
-        .filter(|(_, m)| *m != HeaderMatch::No)
-        .collect();
-    match found.as_slice() {
-        [] => match options.frame_rate_hz {
-            Some(_) => Ok(None),
-            None => Err(ImportError::new(
-                Place::file(table.file()).at_line(1),
-                ImportProblem::MissingColumn,
-                "expected a time column (time_s or time_ms) or a frame rate option, found neither",
-            )),
-        },
-        [(index, matched)] => {
-            let unit = match matched {
-                HeaderMatch::Unit(text) => TimeUnit::parse(text).ok_or_else(|| {
-                    ImportError::new(
-                        table.place_column(None, *index),
-                        ImportProblem::BadHeader,
-                        format!("expected a time unit s, ms or us in the column name, found '{text}'"),
-                    )
-                })?,
-                _ => options.time_unit.ok_or_else(|| {
-                    ImportError::new(
-                        table.place_column(None, *index),
-                        ImportProblem::BadHeader,
-                        "the time column has no unit; name it time_s or time_ms, or give the time unit as an option",
-                    )
-                })?,
-            };
-            Ok(Some((*index, unit)))
-        }
-        [_, (second, _), ..] => Err(ImportError::new(
-            table.place_column(None, *second),
-            ImportProblem::BadHeader,
-            "expected one time column, found more than one",
-        )),
-    }
 }
 
 fn median_interval(time_s: &[f64]) -> Option<f64> {
