@@ -169,7 +169,7 @@ proptest! {
     /// line an editor shows it on.
     #[test]
     fn error_line_counts_every_line(
-        fillers in prop::collection::vec(0u8..3, 0..30),
+        fillers in prop::collection::vec(0u8..4, 0..30),
         rows_before in 0usize..20, crlf in any::<bool>(),
     ) {
         let nl = if crlf { "\r\n" } else { "\n" };
@@ -179,6 +179,7 @@ proptest! {
             match fill.next() {
                 Some(0) => lines.push(String::new()),
                 Some(1) => lines.push("# a note, with a comma".into()),
+                Some(2) => lines.push("   ,  ".into()),
                 _ => {}
             }
             lines.push(format!("A,{i}.5"));

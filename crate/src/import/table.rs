@@ -344,47 +344,50 @@ impl<'a> Table<'a> {
         self.counted_line
     }
 
-    /// Reads the next data row; `None` at the end of the file.
+    /// Reads the next data row; `None` at the end of the file. Lines of only spaces or
+    /// delimiters are passed over like blank lines.
     pub fn next_row(&mut self) -> Option<Result<Row, ImportError>> {
         let mut record = csv::StringRecord::new();
-        match self.reader.read_record(&mut record) {
-            Ok(false) => None,
-            Err(e) => {
-                let line = e.position().map(|p| self.line_at(p.byte() as usize));
-                Some(Err(csv_error(&self.file, line, e)))
-            }
-            Ok(true) => {
-                let line = record
-                    .position()
-                    .map_or(0, |p| self.line_at(p.byte() as usize));
-                self.rows_read += 1;
-                if self.rows_read > self.limits.max_rows {
-                    return Some(Err(ImportError::new(
-                        self.place_line(line),
-                        ImportProblem::TooLarge,
-                        format!(
-                            "the file has more than {} data rows, the configured limit; raise the limit if this file is expected",
-                            self.limits.max_rows
-                        ),
-                    )));
+        loop {
+            match self.reader.read_record(&mut record) {
+                Ok(false) => return None,
+                Err(e) => {
+                    let line = e.position().map(|p| self.line_at(p.byte() as usize));
+                    return Some(Err(csv_error(&self.file, line, e)));
                 }
-                if record.len() != self.headers.len() {
-                    return Some(Err(ImportError::new(
-                        self.place_line(line),
-                        ImportProblem::RaggedRow,
-                        format!(
-                            "expected {} fields as in the header, found {}",
-                            self.headers.len(),
-                            record.len()
-                        ),
-                    )));
-                }
-                Some(Ok(Row {
-                    line,
-                    fields: record,
-                }))
+                Ok(true) if record.iter().all(str::is_empty) => continue,
+                Ok(true) => break,
             }
         }
+        let line = record
+            .position()
+            .map_or(0, |p| self.line_at(p.byte() as usize));
+        self.rows_read += 1;
+        if self.rows_read > self.limits.max_rows {
+            return Some(Err(ImportError::new(
+                self.place_line(line),
+                ImportProblem::TooLarge,
+                format!(
+                    "the file has more than {} data rows, the configured limit; raise the limit if this file is expected",
+                    self.limits.max_rows
+                ),
+            )));
+        }
+        if record.len() != self.headers.len() {
+            return Some(Err(ImportError::new(
+                self.place_line(line),
+                ImportProblem::RaggedRow,
+                format!(
+                    "expected {} fields as in the header, found {}",
+                    self.headers.len(),
+                    record.len()
+                ),
+            )));
+        }
+        Some(Ok(Row {
+            line,
+            fields: record,
+        }))
     }
 
     /// Reads field `index` of `row` as a finite number; `what` names the quantity
