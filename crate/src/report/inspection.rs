@@ -212,9 +212,9 @@ impl Inspection {
         if let Some(f) = self.frame_interval_s {
             let _ = writeln!(
                 out,
-                "Frames      every {:.3} ms ({:.3} frames/s)",
-                f * 1e3,
-                1.0 / f
+                "Frame rate  {:.3} frames/s (one every {:.3} ms)",
+                1.0 / f,
+                f * 1e3
             );
         }
         if let Some(q) = self.time_quantum_s {
