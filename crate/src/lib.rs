@@ -29,12 +29,16 @@
 //! - Errors name their place (file, line, column, site) and say what was expected and what
 //!   was found. Nothing in a user's file makes the library panic.
 
+pub mod detect;
+pub mod fronts;
 pub mod geometry;
 pub mod import;
 pub mod place;
 pub mod recording;
 pub mod report;
+pub mod rhythm;
 pub mod simulate;
+pub mod stats;
 
 #[cfg(not(target_arch = "wasm32"))]
 pub mod cli;
@@ -49,6 +53,7 @@ use std::fmt;
 pub enum Error {
     Import(import::ImportError),
     Geometry(geometry::GeometryError),
+    Analysis(fronts::AnalysisError),
 }
 
 impl fmt::Display for Error {
@@ -56,6 +61,7 @@ impl fmt::Display for Error {
         match self {
             Error::Import(e) => e.fmt(f),
             Error::Geometry(e) => e.fmt(f),
+            Error::Analysis(e) => e.fmt(f),
         }
     }
 }
@@ -65,6 +71,12 @@ impl std::error::Error for Error {}
 impl From<import::ImportError> for Error {
     fn from(e: import::ImportError) -> Self {
         Error::Import(e)
+    }
+}
+
+impl From<fronts::AnalysisError> for Error {
+    fn from(e: fronts::AnalysisError) -> Self {
+        Error::Analysis(e)
     }
 }
 
@@ -85,4 +97,22 @@ pub fn inspect_files(
     let recording = import::read_recording(activity, layout, read)?;
     let fit = geometry::fit_track(&recording.sites, track)?;
     Ok(report::inspect(&recording, &fit))
+}
+
+/// Reads an activity file and a layout, fits the track and runs the front analysis: the whole
+/// of `ringline analyze`. `progress(done, total)` is called after each burst.
+pub fn analyze_files(
+    activity: (&str, &[u8]),
+    layout: (&str, &[u8]),
+    read: &import::ReadOptions,
+    track: &geometry::TrackSettings,
+    settings: &fronts::AnalysisSettings,
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<report::AnalysisReport, Error> {
+    let recording = import::read_recording(activity, layout, read)?;
+    let fit = geometry::fit_track(&recording.sites, track)?;
+    let analysis = fronts::analyze(&recording, &fit, settings, progress)?;
+    Ok(report::AnalysisReport::new(
+        &recording, &fit, settings, analysis,
+    ))
 }

@@ -63,5 +63,6 @@ pub fn inspect(
         Ok(report) => to_js(&report),
         Err(crate::Error::Import(e)) => Err(to_js(&e)?),
         Err(crate::Error::Geometry(e)) => Err(to_js(&e)?),
+        Err(crate::Error::Analysis(e)) => Err(to_js(&e)?),
     }
 }

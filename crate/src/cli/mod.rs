@@ -31,9 +31,60 @@ struct Cli {
 enum Command {
     /// Read a recording and its layout; report sites, spikes, rates and the detected track.
     Inspect(InspectArgs),
+    /// Find network bursts, time each front at every site, and fit its speed and direction.
+    Analyze(AnalyzeArgs),
     /// Simulate a recording with known fronts from a scenario file (JSON); write spikes.csv,
     /// layout.csv and truth.json into a folder.
     Simulate(SimulateArgs),
+}
+
+#[derive(Args, Debug)]
+struct AnalyzeArgs {
+    /// Spike list (site, time_s|time_ms|time_us), CSV or TSV.
+    recording: String,
+    /// Layout file: site, x_um, y_um (or x_mm, y_mm).
+    #[arg(long)]
+    layout: String,
+    /// Print one JSON document on stdout instead of text.
+    #[arg(long)]
+    json: bool,
+    /// Write bursts.csv, fronts.csv, activation.csv and summary.json into this folder.
+    #[arg(long, value_name = "DIR")]
+    out: Option<String>,
+    /// Analysis settings as JSON (any subset of the keys in the report's "settings").
+    #[arg(long, value_name = "FILE")]
+    settings: Option<String>,
+    /// Network-burst detector.
+    #[arg(long, value_enum)]
+    detector: Option<DetectorArg>,
+    /// Estimator of the time-position fit.
+    #[arg(long, value_enum)]
+    estimator: Option<EstimatorArg>,
+    /// Bootstrap resamples over sites per front (at least 100).
+    #[arg(long, value_name = "N")]
+    resamples: Option<usize>,
+    /// Seed of the bootstrap generator.
+    #[arg(long, value_name = "N")]
+    seed: Option<u64>,
+    #[command(flatten)]
+    read: ReadArgs,
+    #[command(flatten)]
+    track: TrackArgs,
+}
+
+#[derive(ValueEnum, Clone, Copy, Debug)]
+enum DetectorArg {
+    /// Thresholded population rate.
+    Rate,
+    /// Per-site ISI_N bursts joined across sites.
+    IsiN,
+}
+
+#[derive(ValueEnum, Clone, Copy, Debug)]
+enum EstimatorArg {
+    TheilSen,
+    Huber,
+    Ols,
 }
 
 #[derive(Args, Debug)]
@@ -144,6 +195,7 @@ pub fn run(args: impl IntoIterator<Item = OsString>) -> i32 {
     };
     let result = match cli.command {
         Command::Inspect(args) => inspect(&args),
+        Command::Analyze(args) => analyze(&args),
         Command::Simulate(args) => simulate(&args),
     };
     match result {
@@ -190,6 +242,89 @@ fn inspect(args: &InspectArgs) -> Result<(), Failure> {
     )?;
     let text = if args.json {
         serde_json::to_string_pretty(&report).map_err(|e| Failure::Output(e.into()))? + "\n"
+    } else {
+        report.to_text()
+    };
+    std::io::stdout()
+        .lock()
+        .write_all(text.as_bytes())
+        .map_err(Failure::Output)
+}
+
+fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
+    use crate::detect::BurstDetector;
+    use crate::fronts::{AnalysisSettings, Estimator};
+    use std::io::IsTerminal;
+    let read = read_options(&args.read);
+    let track = track_settings(&args.track)?;
+    let mut settings = match &args.settings {
+        Some(path) => {
+            let bytes = read_file(path, &ImportLimits::default())?;
+            let text = String::from_utf8(bytes)
+                .map_err(|_| Failure::Input(format!("{path}: expected UTF-8 JSON text")))?;
+            serde_json::from_str::<AnalysisSettings>(&text).map_err(|e| {
+                Failure::Input(format!(
+                    "{path}, line {}, column {}: {e}",
+                    e.line(),
+                    e.column()
+                ))
+            })?
+        }
+        None => AnalysisSettings::default(),
+    };
+    if let Some(d) = args.detector {
+        settings.bursts.detector = match d {
+            DetectorArg::Rate => BurstDetector::PopulationRate,
+            DetectorArg::IsiN => BurstDetector::IsiN,
+        };
+    }
+    if let Some(e) = args.estimator {
+        settings.fronts.estimator = match e {
+            EstimatorArg::TheilSen => Estimator::TheilSen,
+            EstimatorArg::Huber => Estimator::Huber,
+            EstimatorArg::Ols => Estimator::Ols,
+        };
+    }
+    if let Some(n) = args.resamples {
+        settings.fronts.resamples = n;
+    }
+    if let Some(seed) = args.seed {
+        settings.fronts.seed = seed;
+    }
+    let activity = read_file(&args.recording, &read.limits)?;
+    let layout = read_file(&args.layout, &read.limits)?;
+    let show_progress = std::io::stderr().is_terminal();
+    let mut progress = |done: usize, total: usize| {
+        if show_progress && (done == total || done % 10 == 0) {
+            eprint!("\ranalysing bursts: {done}/{total}");
+            if done == total {
+                eprintln!();
+            }
+        }
+    };
+    let report = crate::analyze_files(
+        (&args.recording, &activity),
+        (&args.layout, &layout),
+        &read,
+        &track,
+        &settings,
+        &mut progress,
+    )?;
+    if let Some(dir) = &args.out {
+        let out = std::path::Path::new(dir);
+        std::fs::create_dir_all(out).map_err(Failure::Output)?;
+        for (name, content) in [
+            ("bursts.csv", report.bursts_csv()),
+            ("fronts.csv", report.fronts_csv()),
+            ("activation.csv", report.activation_csv()),
+            ("summary.json", report.summary_json()),
+        ] {
+            std::fs::write(out.join(name), content).map_err(Failure::Output)?;
+        }
+        eprintln!("wrote bursts.csv, fronts.csv, activation.csv and summary.json to {dir}");
+    }
+    let text = if args.json {
+        serde_json::to_string(&report).map_err(|e| Failure::Output(e.into()))? + "\n"
     } else {
         report.to_text()
     };

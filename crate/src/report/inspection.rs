@@ -128,14 +128,6 @@ pub fn inspect(recording: &Recording, track: &TrackFit) -> Inspection {
         n if n % 2 == 1 => Some(active_rates[n / 2]),
         n => Some(0.5 * (active_rates[n / 2 - 1] + active_rates[n / 2])),
     };
-    let (radius_um, centre_um) = match &track.track {
-        Track::Ring {
-            radius_um,
-            centre_um,
-            ..
-        } => (Some(*radius_um), Some(*centre_um)),
-        _ => (None, None),
-    };
     let mut notices = recording.notices.clone();
     notices.extend(track.notices.iter().cloned());
     Inspection {
@@ -159,7 +151,23 @@ pub fn inspect(recording: &Recording, track: &TrackFit) -> Inspection {
         },
         time_quantum_s: recording.metadata.time_quantum_s,
         sites,
-        track: TrackSummary {
+        track: TrackSummary::of(track),
+        notices,
+    }
+}
+
+impl TrackSummary {
+    /// Summary of a fitted track.
+    pub fn of(track: &TrackFit) -> TrackSummary {
+        let (radius_um, centre_um) = match &track.track {
+            Track::Ring {
+                radius_um,
+                centre_um,
+                ..
+            } => (Some(*radius_um), Some(*centre_um)),
+            _ => (None, None),
+        };
+        TrackSummary {
             kind: track.track.kind_name().into(),
             chosen_by: track.chosen_by.clone(),
             reason: track.reason.clone(),
@@ -175,8 +183,7 @@ pub fn inspect(recording: &Recording, track: &TrackFit) -> Inspection {
             arc_coverage_deg: track.arc_coverage_deg,
             off_track_sites: track.off_track_sites.clone(),
             track: track.track.clone(),
-        },
-        notices,
+        }
     }
 }
 

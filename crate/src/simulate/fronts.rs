@@ -31,6 +31,21 @@ pub enum ElectrodeLayout {
     },
 }
 
+/// Which fronts a scenario draws.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum FrontPattern {
+    /// Rows: from one end or the other; circles: one way round from a random angle; grids:
+    /// plane waves in random directions.
+    #[default]
+    OneWay,
+    /// Rows: both ways from a random interior point; circles: both ways round, meeting
+    /// opposite the origin; grids: point sources inside the grid.
+    TwoWay,
+    /// Each burst one-way or two-way with equal probability.
+    Mixed,
+}
+
 /// Everything that defines a kinematic recording. Times in seconds, speeds in mm/s.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -42,6 +57,9 @@ pub struct FrontScenario {
     /// Length of the recording, seconds.
     pub duration_s: f64,
     pub electrodes: ElectrodeLayout,
+    /// Which fronts to draw.
+    #[serde(default)]
+    pub pattern: FrontPattern,
     /// Standard deviation of electrode positions around the nominal layout, micrometres.
     #[serde(default)]
     pub position_jitter_um: f64,
@@ -195,7 +213,16 @@ pub fn simulate_fronts(scenario: &FrontScenario) -> Result<SimulatedFronts, Stri
     while t0 < scenario.duration_s {
         let speed = scenario.speed_mm_s * lognormal_factor(&mut rng, scenario.speed_cv);
         let speed_um_s = speed * 1e3;
-        let front = draw_front(&scenario.electrodes, &positions, &mut rng);
+        let two_way = match scenario.pattern {
+            FrontPattern::OneWay => false,
+            FrontPattern::TwoWay => true,
+            FrontPattern::Mixed => uniform(&mut rng) < 0.5,
+        };
+        let front = if two_way {
+            draw_two_way_front(&scenario.electrodes, &positions, &mut rng)
+        } else {
+            draw_front(&scenario.electrodes, &positions, &mut rng)
+        };
         let max_distance = front.distances.iter().copied().fold(0.0, f64::max);
         let stops_after_um = (uniform(&mut rng) < scenario.failure_probability)
             .then(|| max_distance * (0.3 + 0.4 * uniform(&mut rng)));
@@ -386,6 +413,76 @@ fn draw_front(layout: &ElectrodeLayout, positions: &[[f64; 2]], rng: &mut ChaCha
                 direction_xy: None,
                 rotation: Some(if ccw { "ccw" } else { "cw" }),
                 distances,
+            }
+        }
+    }
+}
+
+/// Rows: from a random point in the middle 60% of the row, both ways. Circles: from a random
+/// angle both ways round. Grids: from a random point in the middle 60% of the grid.
+fn draw_two_way_front(
+    layout: &ElectrodeLayout,
+    positions: &[[f64; 2]],
+    rng: &mut ChaCha8Rng,
+) -> Front {
+    match layout {
+        ElectrodeLayout::Row {
+            count,
+            pitch_um,
+            angle_deg,
+        } => {
+            let a = angle_deg.to_radians();
+            let d = [libm::cos(a), libm::sin(a)];
+            let length = (*count as f64 - 1.0) * pitch_um;
+            let s0 = length * (0.2 + 0.6 * uniform(rng));
+            Front {
+                origin_um: [s0 * d[0], s0 * d[1]],
+                direction_xy: None,
+                rotation: None,
+                distances: positions
+                    .iter()
+                    .map(|p| (p[0] * d[0] + p[1] * d[1] - s0).abs())
+                    .collect(),
+            }
+        }
+        ElectrodeLayout::Circle { radius_um, .. } => {
+            let origin_angle = TAU * uniform(rng);
+            let distances = positions
+                .iter()
+                .map(|p| {
+                    let turn = (libm::atan2(p[1], p[0]) - origin_angle).rem_euclid(TAU);
+                    radius_um * turn.min(TAU - turn)
+                })
+                .collect();
+            Front {
+                origin_um: [
+                    radius_um * libm::cos(origin_angle),
+                    radius_um * libm::sin(origin_angle),
+                ],
+                direction_xy: None,
+                rotation: Some("both"),
+                distances,
+            }
+        }
+        ElectrodeLayout::Grid {
+            rows,
+            columns,
+            pitch_um,
+        } => {
+            let w = (*columns as f64 - 1.0) * pitch_um;
+            let h = (*rows as f64 - 1.0) * pitch_um;
+            let o = [
+                w * (0.2 + 0.6 * uniform(rng)),
+                h * (0.2 + 0.6 * uniform(rng)),
+            ];
+            Front {
+                origin_um: o,
+                direction_xy: None,
+                rotation: None,
+                distances: positions
+                    .iter()
+                    .map(|p| (p[0] - o[0]).hypot(p[1] - o[1]))
+                    .collect(),
             }
         }
     }

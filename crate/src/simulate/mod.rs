@@ -12,7 +12,8 @@ pub mod fronts;
 mod sample;
 
 pub use fronts::{
-    simulate_fronts, ElectrodeLayout, FrontScenario, FrontTruth, SimulatedFronts, TruthBurst,
+    simulate_fronts, ElectrodeLayout, FrontPattern, FrontScenario, FrontTruth, SimulatedFronts,
+    TruthBurst,
 };
 
 use serde::{Deserialize, Serialize};

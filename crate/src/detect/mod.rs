@@ -1,0 +1,8 @@
+//! Detection: network bursts from spike trains (and, in a later issue, spikes from voltage
+//! and events from fluorescence).
+
+mod bursts;
+
+pub use bursts::{
+    detect_bursts, BurstDetector, BurstSettings, IsiNSettings, NetworkBurst, PopulationRateSettings,
+};

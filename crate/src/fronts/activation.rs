@@ -1,0 +1,82 @@
+//! When the front reached each site in a burst.
+
+use crate::detect::NetworkBurst;
+use serde::{Deserialize, Serialize};
+
+/// How a site's activation time is read from its spikes in a burst.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ActivationRule {
+    /// The first spike that opens a cluster of `cluster_spikes` spikes within
+    /// `cluster_window_s`: a lone stray spike before the front is passed over.
+    #[default]
+    FirstOfCluster,
+    /// The median of the site's first `median_of_first` spikes in the burst.
+    MedianOfFirst,
+}
+
+/// Activation settings. Times in seconds.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ActivationSettings {
+    pub rule: ActivationRule,
+    /// Spikes that make a cluster (the first included).
+    pub cluster_spikes: usize,
+    /// Span of a cluster.
+    pub cluster_window_s: f64,
+    /// k for the median-of-first-k rule.
+    pub median_of_first: usize,
+    /// The search starts this long before the burst window (the origin fires before the
+    /// population rate crosses its threshold), but never before the previous burst ended.
+    pub lead_s: f64,
+}
+
+impl Default for ActivationSettings {
+    fn default() -> Self {
+        ActivationSettings {
+            rule: ActivationRule::FirstOfCluster,
+            cluster_spikes: 2,
+            cluster_window_s: 0.02,
+            median_of_first: 3,
+            lead_s: 0.1,
+        }
+    }
+}
+
+/// Activation time of every site (seconds) in `burst`; `None` for sites that do not take
+/// part. `not_before_s` is the end of the previous burst.
+pub fn activation_times(
+    trains_s: &[Vec<f64>],
+    burst: &NetworkBurst,
+    not_before_s: f64,
+    settings: &ActivationSettings,
+) -> Vec<Option<f64>> {
+    let from = (burst.start_s - settings.lead_s).max(not_before_s);
+    let to = burst.end_s;
+    trains_s
+        .iter()
+        .map(|train| {
+            let a = train.partition_point(|&t| t < from);
+            let b = train.partition_point(|&t| t <= to);
+            if a == b {
+                return None;
+            }
+            match settings.rule {
+                ActivationRule::FirstOfCluster => {
+                    let k = settings.cluster_spikes.max(1);
+                    (a..b)
+                        .find(|&j| {
+                            let end = train
+                                .partition_point(|&t| t <= train[j] + settings.cluster_window_s);
+                            end - j >= k
+                        })
+                        .map(|j| train[j])
+                }
+                ActivationRule::MedianOfFirst => {
+                    let k = settings.median_of_first.max(1).min(b - a);
+                    crate::stats::median(&train[a..a + k])
+                }
+            }
+        })
+        .collect()
+}

@@ -1,0 +1,371 @@
+//! Front analysis: for every network burst, when each site activated, which front model fits,
+//! its speed and direction with intervals; then the recording-level summary.
+//!
+//! Speeds are in mm/s, distances in micrometres, times in seconds.
+
+mod activation;
+mod models;
+pub mod regression;
+mod summary;
+
+pub use activation::{activation_times, ActivationRule, ActivationSettings};
+pub use models::{
+    distance_from_origin, fit_front, model_name, Estimator, FittedFront, FrontModel, FrontPoints,
+    FrontSettings, ModelScore, Origin,
+};
+pub use summary::{
+    summarise, DirectionBalance, InitiationCount, PropagationFailure, ReliabilityPoint, Summary,
+    ZoneCount,
+};
+
+use crate::detect::{detect_bursts, BurstSettings, NetworkBurst};
+use crate::geometry::{Track, TrackFit};
+use crate::place::Notice;
+use crate::recording::{Activity, Recording};
+use serde::{Deserialize, Serialize};
+
+/// Every setting of the analysis, with documented defaults.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct AnalysisSettings {
+    pub bursts: BurstSettings,
+    pub activation: ActivationSettings,
+    pub fronts: FrontSettings,
+    /// Number of equal zones along the track for the initiation counts.
+    pub initiation_zones: Option<usize>,
+}
+
+/// One site's activation in one burst.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Activation {
+    pub site: String,
+    /// Track coordinate, micrometres (`None` on a plane).
+    pub along_um: Option<f64>,
+    pub x_um: f64,
+    pub y_um: f64,
+    pub time_s: f64,
+    /// Whether the front fit used it (off-track sites are not used).
+    pub used: bool,
+}
+
+/// A front as reported to the user.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FrontReport {
+    /// `line_one_way`, `line_two_way`, `ring_one_way`, `ring_two_way`, `plane_wave`, `point_source`.
+    pub model: String,
+    pub speed_mm_s: f64,
+    pub speed_ci95_mm_s: [f64; 2],
+    pub speed_ci95_analytic_mm_s: Option<[f64; 2]>,
+    /// Site nearest the origin (first reached for one-way lines and plane waves).
+    pub origin_site: String,
+    pub origin_along_um: Option<f64>,
+    pub origin_xy_um: Option<[f64; 2]>,
+    pub origin_angle_deg: Option<f64>,
+    /// Unit vector of travel in the layout's axes, for one-way line and plane-wave fronts.
+    pub direction_xy: Option<[f64; 2]>,
+    /// `ccw` or `cw` for one-way ring fronts (layout axes), `both` for two-way ring fronts.
+    pub rotation: Option<String>,
+    /// `increasing` or `decreasing` track coordinate, for one-way line fronts.
+    pub travel: Option<String>,
+    pub sites_used: usize,
+    pub r2: f64,
+    pub residual_rms_ms: f64,
+    /// Time the front left its origin, seconds.
+    pub start_s: f64,
+    /// Farthest distance from the origin at which a site activated, micrometres.
+    pub reach_um: f64,
+    /// Farthest distance from the origin of any recording site in the front's path, micrometres.
+    pub available_um: f64,
+    /// Recording sites beyond the reach that did not activate.
+    pub missed_beyond_reach: usize,
+    /// Propagation failure: the front stopped short of two or more recording sites.
+    pub failed: bool,
+    /// Fastest speed the sampling can resolve over this front's span, mm/s (None without a
+    /// known time step).
+    pub resolution_limit_mm_s: Option<f64>,
+    /// The transit took fewer than 3 x resolution_steps sampling intervals.
+    pub near_resolution_limit: bool,
+    pub candidates: Vec<ModelScore>,
+    pub resamples_used: usize,
+}
+
+/// One network burst and its front.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BurstResult {
+    /// Counted from 1.
+    pub burst: usize,
+    pub start_s: f64,
+    pub end_s: f64,
+    pub peak_s: f64,
+    pub spike_count: usize,
+    /// Sites with spikes in the window.
+    pub site_count: usize,
+    pub activations: Vec<Activation>,
+    pub front: Option<FrontReport>,
+    pub no_front_reason: Option<String>,
+}
+
+/// The whole analysis of one recording.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Analysis {
+    pub bursts: Vec<BurstResult>,
+    pub summary: Summary,
+    pub notices: Vec<Notice>,
+}
+
+/// The analysis layer's error.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct AnalysisError {
+    pub message: String,
+}
+
+impl std::fmt::Display for AnalysisError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "analysis: {}", self.message)
+    }
+}
+
+impl std::error::Error for AnalysisError {}
+
+/// Runs the analysis: bursts, activation times, front fits, summary. `progress(done, total)`
+/// is called after each burst.
+///
+/// Spike recordings only for now (traces come with event detection).
+pub fn analyze(
+    recording: &Recording,
+    track: &TrackFit,
+    settings: &AnalysisSettings,
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<Analysis, AnalysisError> {
+    check_settings(settings)?;
+    let Activity::Spikes { trains_s } = &recording.activity else {
+        return Err(AnalysisError {
+            message: "this recording holds fluorescence traces; front analysis needs spike times (event detection from traces is not yet available)".into(),
+        });
+    };
+    let mut notices = Vec::new();
+    let bursts = detect_bursts(trains_s, &settings.bursts);
+    let time_step_s = recording
+        .metadata
+        .sample_interval_s
+        .or(recording.metadata.time_quantum_s);
+    if time_step_s.is_none() {
+        notices.push(Notice::new(
+            crate::place::Place::default(),
+            "no sampling interval or time quantum is known, so the speed resolution limit is not reported",
+        ));
+    }
+    let on_track: Vec<bool> = match &track.track {
+        Track::Plane => vec![true; recording.sites.len()],
+        _ => track.placements.iter().map(|p| !p.off_track).collect(),
+    };
+    let recording_site: Vec<bool> = trains_s.iter().map(|t| !t.is_empty()).collect();
+    let mut results = Vec::with_capacity(bursts.len());
+    let mut previous_end = f64::NEG_INFINITY;
+    for (k, burst) in bursts.iter().enumerate() {
+        let times = activation_times(trains_s, burst, previous_end, &settings.activation);
+        previous_end = burst.end_s;
+        results.push(analyse_burst(
+            k,
+            burst,
+            &times,
+            recording,
+            track,
+            &on_track,
+            &recording_site,
+            settings,
+            time_step_s,
+        ));
+        progress(k + 1, bursts.len());
+    }
+    let span = recording.observed_span_s();
+    let summary = summarise(&results, recording, track, span, settings);
+    Ok(Analysis {
+        bursts: results,
+        summary,
+        notices,
+    })
+}
+
+fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
+    let bad = |m: String| Err(AnalysisError { message: m });
+    let p = &s.bursts.population_rate;
+    for (name, v) in [
+        ("bursts.population_rate.bin_s", p.bin_s),
+        ("bursts.population_rate.smooth_sd_s", p.smooth_sd_s),
+        ("bursts.isi_n.max_span_s", s.bursts.isi_n.max_span_s),
+        ("activation.cluster_window_s", s.activation.cluster_window_s),
+    ] {
+        if !(v.is_finite() && v > 0.0) {
+            return bad(format!("{name}: expected a time above 0 s, found {v}"));
+        }
+    }
+    if !(s.fronts.confidence > 0.5 && s.fronts.confidence < 1.0) {
+        return bad(format!(
+            "fronts.confidence: expected a level between 0.5 and 1, found {}",
+            s.fronts.confidence
+        ));
+    }
+    if s.fronts.resamples < 100 {
+        return bad(format!(
+            "fronts.resamples: expected at least 100 bootstrap resamples, found {}",
+            s.fronts.resamples
+        ));
+    }
+    if !(0.0..=1.0).contains(&s.bursts.min_site_fraction) {
+        return bad(format!(
+            "bursts.min_site_fraction: expected 0 to 1, found {}",
+            s.bursts.min_site_fraction
+        ));
+    }
+    Ok(())
+}
+
+#[allow(clippy::too_many_arguments)]
+fn analyse_burst(
+    k: usize,
+    burst: &NetworkBurst,
+    times: &[Option<f64>],
+    recording: &Recording,
+    track: &TrackFit,
+    on_track: &[bool],
+    recording_site: &[bool],
+    settings: &AnalysisSettings,
+    time_step_s: Option<f64>,
+) -> BurstResult {
+    let along = |i: usize| track.placements.get(i).map(|p| p.along_um);
+    let activations: Vec<Activation> = times
+        .iter()
+        .enumerate()
+        .filter_map(|(i, t)| {
+            t.map(|time_s| Activation {
+                site: recording.sites[i].id.clone(),
+                along_um: along(i),
+                x_um: recording.sites[i].x_um,
+                y_um: recording.sites[i].y_um,
+                time_s,
+                used: on_track[i],
+            })
+        })
+        .collect();
+    let mut points = FrontPoints {
+        site: Vec::new(),
+        along_um: Vec::new(),
+        angle_rad: Vec::new(),
+        xy_um: Vec::new(),
+        t_s: Vec::new(),
+    };
+    for (i, t) in times.iter().enumerate() {
+        if let (Some(t), true) = (t, on_track[i]) {
+            let xy = recording.sites[i].position_um();
+            points.site.push(i);
+            points.along_um.push(along(i).unwrap_or(0.0));
+            points.angle_rad.push(models::ring_angle(&track.track, xy));
+            points.xy_um.push(xy);
+            points.t_s.push(*t);
+        }
+    }
+    let seed = settings.fronts.seed.wrapping_add(k as u64);
+    let (front, no_front_reason) =
+        match fit_front(&points, &track.track, &settings.fronts, seed, time_step_s) {
+            Ok(f) => (
+                Some(report_front(
+                    &f,
+                    &points,
+                    recording,
+                    track,
+                    on_track,
+                    recording_site,
+                    time_step_s,
+                    settings,
+                )),
+                None,
+            ),
+            Err(reason) => (None, Some(reason)),
+        };
+    BurstResult {
+        burst: k + 1,
+        start_s: burst.start_s,
+        end_s: burst.end_s,
+        peak_s: burst.peak_s,
+        spike_count: burst.spike_count,
+        site_count: burst.sites.len(),
+        activations,
+        front,
+        no_front_reason,
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn report_front(
+    f: &FittedFront,
+    points: &FrontPoints,
+    recording: &Recording,
+    track: &TrackFit,
+    on_track: &[bool],
+    recording_site: &[bool],
+    time_step_s: Option<f64>,
+    settings: &AnalysisSettings,
+) -> FrontReport {
+    let reach_um = f.distance_um.iter().copied().fold(0.0, f64::max);
+    let mut available_um: f64 = 0.0;
+    let mut missed = 0;
+    let used: std::collections::HashSet<usize> = points.site.iter().copied().collect();
+    for (i, site) in recording.sites.iter().enumerate() {
+        if !(recording_site[i] && on_track[i]) {
+            continue;
+        }
+        let along = track.placements.get(i).map_or(0.0, |p| p.along_um);
+        let d = distance_from_origin(f, &track.track, along, site.position_um());
+        if d < 0.0 {
+            continue;
+        }
+        available_um = available_um.max(d);
+        if d > reach_um + 1e-6 && !used.contains(&i) {
+            missed += 1;
+        }
+    }
+    let span_um = {
+        let lo = f.distance_um.iter().copied().fold(f64::INFINITY, f64::min);
+        (reach_um - lo).max(0.0)
+    };
+    let steps = settings.fronts.resolution_steps;
+    let resolution_limit_mm_s = time_step_s.map(|dt| span_um / (steps * dt) / 1e3);
+    let near_resolution_limit = time_step_s.is_some_and(|dt| {
+        let transit = span_um / (f.speed_mm_s * 1e3);
+        transit < 3.0 * steps * dt
+    });
+    let origin_site = recording.sites[points.site[f.origin_point]].id.clone();
+    let (origin_along_um, origin_xy_um, origin_angle_deg) = match f.origin {
+        Origin::Along { along_um } => (Some(along_um), None, None),
+        Origin::Angle { angle_rad } => (None, None, Some(angle_rad.to_degrees())),
+        Origin::Point { xy_um } => (None, Some(xy_um), None),
+    };
+    FrontReport {
+        model: model_name(f.model).into(),
+        speed_mm_s: f.speed_mm_s,
+        speed_ci95_mm_s: f.speed_ci95_mm_s,
+        speed_ci95_analytic_mm_s: f.speed_ci95_analytic_mm_s,
+        origin_site,
+        origin_along_um,
+        origin_xy_um,
+        origin_angle_deg,
+        direction_xy: f.direction_xy,
+        rotation: f.rotation.clone(),
+        travel: f
+            .towards_increasing
+            .map(|up| if up { "increasing" } else { "decreasing" }.to_string()),
+        sites_used: f.sites_used,
+        r2: f.r2,
+        residual_rms_ms: f.residual_rms_s * 1e3,
+        start_s: f.start_s,
+        reach_um,
+        available_um,
+        missed_beyond_reach: missed,
+        failed: missed >= 2,
+        resolution_limit_mm_s,
+        near_resolution_limit,
+        candidates: f.candidates.clone(),
+        resamples_used: f.resamples_used,
+    }
+}

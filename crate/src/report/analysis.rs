@@ -1,0 +1,267 @@
+//! The report of `ringline analyze`: one JSON document and the CSV tables, built as strings
+//! so the command line and the page export the same bytes.
+
+use super::TrackSummary;
+use crate::fronts::{Analysis, AnalysisSettings, BurstResult, Summary};
+use crate::geometry::TrackFit;
+use crate::place::Notice;
+use crate::recording::{Recording, SourceFile};
+use serde::Serialize;
+use std::fmt::Write;
+
+/// Version of the analysis document's layout; bump it when a key changes meaning.
+pub const ANALYSIS_SCHEMA: u32 = 1;
+
+/// Everything `ringline analyze --json` prints.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct AnalysisReport {
+    pub schema: u32,
+    pub files: Vec<SourceFile>,
+    pub track: TrackSummary,
+    pub settings: AnalysisSettings,
+    pub bursts: Vec<BurstResult>,
+    pub summary: Summary,
+    pub notices: Vec<Notice>,
+}
+
+impl AnalysisReport {
+    pub fn new(
+        recording: &Recording,
+        track: &TrackFit,
+        settings: &AnalysisSettings,
+        analysis: Analysis,
+    ) -> Self {
+        let mut notices = recording.notices.clone();
+        notices.extend(track.notices.iter().cloned());
+        notices.extend(analysis.notices);
+        AnalysisReport {
+            schema: ANALYSIS_SCHEMA,
+            files: recording.metadata.sources.clone(),
+            track: TrackSummary::of(track),
+            settings: settings.clone(),
+            bursts: analysis.bursts,
+            summary: analysis.summary,
+            notices,
+        }
+    }
+
+    /// `bursts.csv`: one row per network burst.
+    pub fn bursts_csv(&self) -> String {
+        let mut out = String::from(
+            "burst,start_s,end_s,peak_s,spike_count,site_count,front_model,no_front_reason\n",
+        );
+        for b in &self.bursts {
+            let _ = writeln!(
+                out,
+                "{},{},{},{},{},{},{},{}",
+                b.burst,
+                b.start_s,
+                b.end_s,
+                b.peak_s,
+                b.spike_count,
+                b.site_count,
+                b.front.as_ref().map_or("", |f| f.model.as_str()),
+                csv_text(b.no_front_reason.as_deref().unwrap_or(""))
+            );
+        }
+        out
+    }
+
+    /// `fronts.csv`: one row per burst with a front.
+    pub fn fronts_csv(&self) -> String {
+        let mut out = String::from(
+            "burst,model,speed_mm_s,speed_ci95_low_mm_s,speed_ci95_high_mm_s,origin_site,origin_along_um,direction_x,direction_y,rotation,travel,sites_used,r2,residual_rms_ms,start_s,reach_um,available_um,failed,near_resolution_limit\n",
+        );
+        let opt = |v: Option<f64>| v.map_or(String::new(), |x| x.to_string());
+        for b in &self.bursts {
+            let Some(f) = &b.front else { continue };
+            let _ = writeln!(
+                out,
+                "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+                b.burst,
+                f.model,
+                f.speed_mm_s,
+                f.speed_ci95_mm_s[0],
+                f.speed_ci95_mm_s[1],
+                csv_text(&f.origin_site),
+                opt(f.origin_along_um),
+                opt(f.direction_xy.map(|d| d[0])),
+                opt(f.direction_xy.map(|d| d[1])),
+                f.rotation.as_deref().unwrap_or(""),
+                f.travel.as_deref().unwrap_or(""),
+                f.sites_used,
+                f.r2,
+                f.residual_rms_ms,
+                f.start_s,
+                f.reach_um,
+                f.available_um,
+                f.failed,
+                f.near_resolution_limit
+            );
+        }
+        out
+    }
+
+    /// `activation.csv`: long format, one row per site activation in a burst.
+    pub fn activation_csv(&self) -> String {
+        let mut out = String::from("burst,site,along_um,x_um,y_um,time_s,used\n");
+        for b in &self.bursts {
+            for a in &b.activations {
+                let _ = writeln!(
+                    out,
+                    "{},{},{},{},{},{},{}",
+                    b.burst,
+                    csv_text(&a.site),
+                    a.along_um.map_or(String::new(), |v| v.to_string()),
+                    a.x_um,
+                    a.y_um,
+                    a.time_s,
+                    a.used
+                );
+            }
+        }
+        out
+    }
+
+    /// `summary.json`: the summary with the track and the files.
+    pub fn summary_json(&self) -> String {
+        #[derive(Serialize)]
+        struct SummaryFile<'a> {
+            schema: u32,
+            files: &'a [SourceFile],
+            track: &'a TrackSummary,
+            summary: &'a Summary,
+        }
+        serde_json::to_string_pretty(&SummaryFile {
+            schema: self.schema,
+            files: &self.files,
+            track: &self.track,
+            summary: &self.summary,
+        })
+        .unwrap_or_default()
+            + "\n"
+    }
+
+    /// A terminal summary, every number with its unit.
+    pub fn to_text(&self) -> String {
+        let s = &self.summary;
+        let mut out = String::new();
+        let names: Vec<&str> = self.files.iter().map(|f| f.name.as_str()).collect();
+        let _ = writeln!(out, "Recording      {}", names.join(" + "));
+        let _ = writeln!(
+            out,
+            "Track          {} ({})",
+            self.track.kind, self.track.reason
+        );
+        let _ = write!(out, "Bursts         {}", s.burst_count);
+        if let Some(r) = s.burst_rate_per_min {
+            let _ = write!(out, " ({r:.2} per min)");
+        }
+        out.push('\n');
+        if let (Some(m), Some(iqr), Some(cv)) = (s.ibi.median_s, s.ibi.iqr_s, s.ibi.cv) {
+            let _ = writeln!(
+                out,
+                "Interburst     median {m:.2} s, IQR {iqr:.2} s, CV {cv:.2}"
+            );
+        }
+        let _ = writeln!(
+            out,
+            "Fronts         {} ({} bursts without a resolvable front)",
+            s.front_count, s.no_front_count
+        );
+        if let Some(m) = s.median_speed_mm_s {
+            let _ = write!(out, "Speed          median {m:.1} mm/s");
+            if let Some([a, b]) = s.median_speed_ci95_mm_s {
+                let _ = write!(out, " (95% CI {a:.1} to {b:.1} mm/s)");
+            }
+            if let (Some(a), Some(b)) = (s.speed_q25_mm_s, s.speed_q75_mm_s) {
+                let _ = write!(out, ", IQR {a:.1} to {b:.1} mm/s");
+            }
+            out.push('\n');
+        }
+        if let Some(d) = &s.speed_drift {
+            let _ = writeln!(
+                out,
+                "Drift          {:+.3} mm/s per min",
+                d.slope_mm_s_per_min
+            );
+        }
+        let d = &s.direction;
+        if let (Some(a), Some(b)) = (&d.first_label, &d.second_label) {
+            let _ = write!(
+                out,
+                "Direction      {} {}, {} {}",
+                d.first_count, a, d.second_count, b
+            );
+            if let (Some(f), Some([lo, hi])) = (d.first_fraction, d.first_fraction_ci95) {
+                let _ = write!(
+                    out,
+                    " ({:.0}% {a}, 95% CI {:.0} to {:.0}%)",
+                    f * 100.0,
+                    lo * 100.0,
+                    hi * 100.0
+                );
+            }
+            let _ = writeln!(out, "; {} two-way", d.two_way_count);
+        } else if let (Some(deg), Some(r)) = (d.mean_direction_deg, d.mean_resultant_length) {
+            let _ = writeln!(out, "Direction      mean {deg:.0} deg from +x, resultant length {r:.2}; {} point sources", d.two_way_count);
+        }
+        if let Some(top) = s.initiation_sites.first() {
+            let _ = writeln!(
+                out,
+                "Initiation     most often at {} ({} of {} fronts)",
+                top.site, top.count, s.front_count
+            );
+        }
+        let _ = writeln!(
+            out,
+            "Failures       {} fronts stopped before the end of their path",
+            s.failure_count
+        );
+        out.push_str("\nburst   start (s)  model           speed (mm/s)   95% CI (mm/s)     origin   sites\n");
+        for b in &self.bursts {
+            match &b.front {
+                Some(f) => {
+                    let _ = writeln!(
+                        out,
+                        "{:>5} {:>11.3}  {:<14} {:>12.1}   {:>7.1} to {:<7.1} {:<8} {:>5}{}",
+                        b.burst,
+                        b.start_s,
+                        f.model,
+                        f.speed_mm_s,
+                        f.speed_ci95_mm_s[0],
+                        f.speed_ci95_mm_s[1],
+                        f.origin_site,
+                        f.sites_used,
+                        if f.failed { "  stopped" } else { "" }
+                    );
+                }
+                None => {
+                    let _ = writeln!(
+                        out,
+                        "{:>5} {:>11.3}  no front: {}",
+                        b.burst,
+                        b.start_s,
+                        b.no_front_reason.as_deref().unwrap_or("")
+                    );
+                }
+            }
+        }
+        if !self.notices.is_empty() {
+            out.push_str("\nNotices\n");
+            for n in &self.notices {
+                let _ = writeln!(out, "- {n}");
+            }
+        }
+        out
+    }
+}
+
+/// Quotes a CSV field when it holds a comma, quote or line break.
+fn csv_text(text: &str) -> String {
+    if text.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", text.replace('"', "\"\""))
+    } else {
+        text.to_string()
+    }
+}

@@ -1,0 +1,37 @@
+//! Rhythm: how regularly bursts recur.
+
+use crate::stats::{mean, quantile, sample_sd};
+use serde::Serialize;
+
+/// Interburst intervals: times between successive burst starts, seconds.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct IntervalStats {
+    /// Number of intervals (bursts - 1).
+    pub count: usize,
+    pub median_s: Option<f64>,
+    /// 25th and 75th percentiles (numpy's default linear interpolation).
+    pub q25_s: Option<f64>,
+    pub q75_s: Option<f64>,
+    pub iqr_s: Option<f64>,
+    pub mean_s: Option<f64>,
+    /// Coefficient of variation: sample SD / mean.
+    pub cv: Option<f64>,
+}
+
+/// Interval statistics of event times (seconds, ascending). Fewer than two events give
+/// counts of zero and `None` everywhere else.
+pub fn interval_stats(starts_s: &[f64]) -> IntervalStats {
+    let intervals: Vec<f64> = starts_s.windows(2).map(|w| w[1] - w[0]).collect();
+    let q25 = quantile(&intervals, 0.25);
+    let q75 = quantile(&intervals, 0.75);
+    let m = mean(&intervals);
+    IntervalStats {
+        count: intervals.len(),
+        median_s: quantile(&intervals, 0.5),
+        q25_s: q25,
+        q75_s: q75,
+        iqr_s: q25.zip(q75).map(|(a, b)| b - a),
+        mean_s: m,
+        cv: sample_sd(&intervals).zip(m).map(|(s, m)| s / m),
+    }
+}

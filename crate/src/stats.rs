@@ -1,0 +1,114 @@
+//! Small statistics shared by the analysis stages: order statistics, robust scale,
+//! intervals. Distribution quantiles come from `statrs`.
+//!
+//! NaN policy: callers pass finite values; functions here do not filter NaN.
+
+use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
+
+/// Median (mean of the two middle values for an even count); `None` when empty.
+pub fn median(values: &[f64]) -> Option<f64> {
+    quantile(values, 0.5)
+}
+
+/// Quantile `q` in [0, 1] by linear interpolation between order statistics (Hyndman & Fan
+/// 1996 type 7, numpy's default `linear` method); `None` when empty.
+pub fn quantile(values: &[f64], q: f64) -> Option<f64> {
+    if values.is_empty() {
+        return None;
+    }
+    let mut v = values.to_vec();
+    v.sort_by(f64::total_cmp);
+    Some(quantile_sorted(&v, q))
+}
+
+/// Type-7 quantile of already sorted, non-empty values.
+pub fn quantile_sorted(sorted: &[f64], q: f64) -> f64 {
+    let h = (sorted.len() - 1) as f64 * q.clamp(0.0, 1.0);
+    let lo = h.floor() as usize;
+    let hi = (lo + 1).min(sorted.len() - 1);
+    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+}
+
+/// Mean; `None` when empty.
+pub fn mean(values: &[f64]) -> Option<f64> {
+    (!values.is_empty()).then(|| values.iter().sum::<f64>() / values.len() as f64)
+}
+
+/// Sample standard deviation (n - 1 in the denominator); `None` below two values.
+pub fn sample_sd(values: &[f64]) -> Option<f64> {
+    let m = mean(values)?;
+    (values.len() >= 2).then(|| {
+        (values.iter().map(|v| (v - m) * (v - m)).sum::<f64>() / (values.len() - 1) as f64).sqrt()
+    })
+}
+
+/// Phi^-1(0.75): the median of |Z| for a standard normal Z.
+pub const MAD_TO_SD: f64 = 0.674_489_750_196_081_7;
+
+/// Robust standard deviation: median(|x - median(x)|) / Phi^-1(0.75).
+pub fn mad_sd(values: &[f64]) -> Option<f64> {
+    let m = median(values)?;
+    let dev: Vec<f64> = values.iter().map(|v| (v - m).abs()).collect();
+    median(&dev).map(|d| d / MAD_TO_SD)
+}
+
+/// Standard normal quantile.
+pub fn normal_quantile(p: f64) -> f64 {
+    Normal::standard().inverse_cdf(p)
+}
+
+/// Student t quantile with `df` degrees of freedom.
+pub fn t_quantile(p: f64, df: f64) -> f64 {
+    match StudentsT::new(0.0, 1.0, df) {
+        Ok(t) => t.inverse_cdf(p),
+        Err(_) => f64::NAN,
+    }
+}
+
+/// Wilson score interval for `successes` out of `trials` at `confidence` (Wilson 1927,
+/// J. Am. Stat. Assoc. 22:209); `None` for no trials.
+pub fn wilson_interval(successes: usize, trials: usize, confidence: f64) -> Option<[f64; 2]> {
+    if trials == 0 {
+        return None;
+    }
+    let n = trials as f64;
+    let p = successes as f64 / n;
+    let z = normal_quantile(0.5 + confidence / 2.0);
+    let z2 = z * z;
+    let centre = (p + z2 / (2.0 * n)) / (1.0 + z2 / n);
+    let half = z / (1.0 + z2 / n) * (p * (1.0 - p) / n + z2 / (4.0 * n * n)).sqrt();
+    Some([(centre - half).max(0.0), (centre + half).min(1.0)])
+}
+
+/// Distribution-free confidence interval of the median from order statistics: the
+/// `l`-th and `(n + 1 - l)`-th smallest values, with l the largest rank for which
+/// P(Binomial(n, 1/2) < l) <= (1 - confidence) / 2 (Conover 1999, Practical Nonparametric
+/// Statistics, sec. 3.2). Its coverage is at least `confidence`. `None` when n is too small
+/// for any such interval (n < 6 at 95%).
+pub fn median_interval(values: &[f64], confidence: f64) -> Option<[f64; 2]> {
+    let n = values.len();
+    let alpha_half = (1.0 - confidence) / 2.0;
+    // Cumulative binomial(n, 1/2) probabilities, in log space to stay finite for large n.
+    let ln_half_n = n as f64 * std::f64::consts::LN_2;
+    let mut cdf = 0.0;
+    let mut ln_choose = 0.0; // ln C(n, k)
+    let mut rank = 0usize; // largest l with P(B <= l - 1) <= alpha_half
+    for k in 0..n {
+        if k > 0 {
+            ln_choose += ((n - k + 1) as f64).ln() - (k as f64).ln();
+        }
+        cdf += (ln_choose - ln_half_n).exp();
+        if cdf <= alpha_half {
+            rank = k + 1;
+        } else {
+            break;
+        }
+    }
+    if rank == 0 {
+        return None;
+    }
+    let mut v = values.to_vec();
+    v.sort_by(f64::total_cmp);
+    // 1-based ranks l and n + 1 - l are 0-based l - 1 and n - l.
+    Some([v[rank - 1], v[n - rank]])
+}

@@ -1,0 +1,305 @@
+//! The analysis against simulated recordings with known fronts (the kinematic simulator's
+//! truth): median speed within 3%, direction right for more than 95% of fronts, origins of
+//! two-way fronts where they were, and no fronts invented in background noise.
+
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
+use ringline::fronts::{analyze, AnalysisSettings, BurstResult};
+use ringline::geometry::{fit_track, TrackSettings};
+use ringline::import::{read_recording, write_layout, write_spike_list, ReadOptions};
+use ringline::simulate::{
+    simulate_fronts, ElectrodeLayout, FrontPattern, FrontScenario, TruthBurst,
+};
+
+fn scenario(
+    name: &str,
+    electrodes: ElectrodeLayout,
+    pattern: FrontPattern,
+    speed: f64,
+    seed: u64,
+) -> FrontScenario {
+    FrontScenario {
+        name: name.into(),
+        seed,
+        duration_s: 600.0,
+        electrodes,
+        pattern,
+        position_jitter_um: 2.0,
+        min_interval_s: 4.0,
+        extra_interval_s: 5.0,
+        speed_mm_s: speed,
+        speed_cv: 0.2,
+        activation_jitter_s: 0.002,
+        spikes_per_burst: 10.0,
+        burst_spread_s: 0.02,
+        background_rate_hz: 0.5,
+        dead_electrodes: vec![],
+        failure_probability: 0.0,
+        sampling_rate_hz: 25_000.0,
+    }
+}
+
+struct Outcome {
+    matched: usize,
+    truth: usize,
+    with_front: usize,
+    speed_error: f64,
+    direction_right: f64,
+    origin_right: f64,
+}
+
+/// Runs the whole chain through the file formats, as a user would.
+fn run(
+    s: &FrontScenario,
+) -> (
+    Vec<BurstResult>,
+    Vec<TruthBurst>,
+    f64,
+    Vec<ringline::recording::Site>,
+) {
+    let sim = simulate_fronts(s).unwrap();
+    let spikes = write_spike_list(&sim.spikes);
+    let layout = write_layout(&sim.sites);
+    let rec = read_recording(
+        ("s.csv", spikes.as_bytes()),
+        ("l.csv", layout.as_bytes()),
+        &ReadOptions::default(),
+    )
+    .unwrap();
+    let fit = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
+    let spacing = fit.site_spacing_um.unwrap();
+    let analysis = analyze(&rec, &fit, &AnalysisSettings::default(), &mut |_, _| {}).unwrap();
+    (analysis.bursts, sim.truth.bursts, spacing, sim.sites)
+}
+
+fn first_activation(t: &TruthBurst) -> Option<f64> {
+    t.activation_s.iter().flatten().copied().reduce(f64::min)
+}
+
+fn evaluate(s: &FrontScenario) -> Outcome {
+    let (bursts, truth, spacing, sites) = run(s);
+    let (mut matched, mut with_front, mut dir_ok, mut origin_ok, mut origin_n) = (0, 0, 0, 0, 0);
+    let mut est = Vec::new();
+    let mut tru = Vec::new();
+    for t in &truth {
+        let Some(t0) = first_activation(t) else {
+            continue;
+        };
+        let Some(b) = bursts
+            .iter()
+            .find(|b| b.start_s - 0.15 <= t0 && t0 <= b.end_s)
+        else {
+            continue;
+        };
+        matched += 1;
+        let Some(f) = &b.front else { continue };
+        with_front += 1;
+        est.push(f.speed_mm_s);
+        tru.push(t.speed_mm_s);
+        let right = match (&t.direction_xy, &t.rotation) {
+            (Some(d), _) => f
+                .direction_xy
+                .is_some_and(|e| e[0] * d[0] + e[1] * d[1] > 0.9),
+            (None, Some(r)) => f.rotation.as_deref() == Some(r.as_str()),
+            (None, None) => f.model.ends_with("two_way") || f.model == "point_source",
+        };
+        dir_ok += usize::from(right);
+        if t.direction_xy.is_none() {
+            origin_n += 1;
+            let o = match (f.origin_xy_um, f.origin_along_um, f.origin_angle_deg) {
+                (Some(xy), _, _) => xy,
+                _ => {
+                    // The site nearest the fitted origin stands for it on lines and rings.
+                    let site = sites.iter().find(|x| x.id == f.origin_site).unwrap();
+                    [site.x_um, site.y_um]
+                }
+            };
+            let miss = (o[0] - t.origin_um[0]).hypot(o[1] - t.origin_um[1]);
+            origin_ok += usize::from(miss < 1.5 * spacing);
+        }
+    }
+    let median = |v: &mut Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v[v.len() / 2]
+    };
+    let speed_error = if est.is_empty() {
+        f64::NAN
+    } else {
+        (median(&mut est) / median(&mut tru) - 1.0).abs()
+    };
+    Outcome {
+        matched,
+        truth: truth.len(),
+        with_front,
+        speed_error,
+        direction_right: dir_ok as f64 / with_front.max(1) as f64,
+        origin_right: if origin_n == 0 {
+            1.0
+        } else {
+            origin_ok as f64 / origin_n as f64
+        },
+    }
+}
+
+fn check(name: &str, s: &FrontScenario) {
+    let o = evaluate(s);
+    eprintln!(
+        "{name}: {} of {} bursts found, {} fronts, median speed error {:.2}%, direction right {:.1}%, origin right {:.1}%",
+        o.matched, o.truth, o.with_front, o.speed_error * 100.0, o.direction_right * 100.0, o.origin_right * 100.0
+    );
+    assert!(
+        o.matched as f64 >= 0.95 * o.truth as f64,
+        "{name}: found {} of {} bursts",
+        o.matched,
+        o.truth
+    );
+    assert!(
+        o.with_front as f64 >= 0.9 * o.matched as f64,
+        "{name}: fronts for {} of {} bursts",
+        o.with_front,
+        o.matched
+    );
+    assert!(
+        o.speed_error < 0.03,
+        "{name}: median speed off by {:.2}%",
+        o.speed_error * 100.0
+    );
+    assert!(
+        o.direction_right > 0.95,
+        "{name}: direction right for {:.1}%",
+        o.direction_right * 100.0
+    );
+    assert!(
+        o.origin_right > 0.9,
+        "{name}: origin right for {:.1}%",
+        o.origin_right * 100.0
+    );
+}
+
+#[test]
+fn straight_line_one_way_fronts() {
+    let s = FrontScenario {
+        dead_electrodes: vec![3, 9],
+        ..scenario(
+            "line",
+            ElectrodeLayout::Row {
+                count: 16,
+                pitch_um: 375.0,
+                angle_deg: 0.0,
+            },
+            FrontPattern::OneWay,
+            40.0,
+            101,
+        )
+    };
+    check("straight line", &s);
+}
+
+#[test]
+fn tilted_line_with_silent_sites_and_background() {
+    let s = FrontScenario {
+        dead_electrodes: vec![0, 7, 12],
+        background_rate_hz: 2.0,
+        ..scenario(
+            "tilted",
+            ElectrodeLayout::Row {
+                count: 20,
+                pitch_um: 250.0,
+                angle_deg: 35.0,
+            },
+            FrontPattern::OneWay,
+            25.0,
+            102,
+        )
+    };
+    check("tilted line", &s);
+}
+
+#[test]
+fn line_two_way_fronts_from_interior_origins() {
+    let s = scenario(
+        "line2",
+        ElectrodeLayout::Row {
+            count: 16,
+            pitch_um: 375.0,
+            angle_deg: 0.0,
+        },
+        FrontPattern::TwoWay,
+        40.0,
+        103,
+    );
+    check("line, two-way", &s);
+}
+
+#[test]
+fn ring_one_way_fronts_each_way() {
+    let s = scenario(
+        "ring",
+        ElectrodeLayout::Circle {
+            count: 24,
+            radius_um: 1500.0,
+        },
+        FrontPattern::OneWay,
+        60.0,
+        104,
+    );
+    check("ring, one-way", &s);
+}
+
+#[test]
+fn ring_two_way_fronts_from_random_origins() {
+    let s = scenario(
+        "ring2",
+        ElectrodeLayout::Circle {
+            count: 24,
+            radius_um: 1500.0,
+        },
+        FrontPattern::TwoWay,
+        60.0,
+        105,
+    );
+    check("ring, two-way", &s);
+}
+
+#[test]
+fn grid_plane_waves() {
+    let s = scenario(
+        "grid",
+        ElectrodeLayout::Grid {
+            rows: 8,
+            columns: 8,
+            pitch_um: 200.0,
+        },
+        FrontPattern::OneWay,
+        25.0,
+        106,
+    );
+    check("grid, plane waves", &s);
+}
+
+#[test]
+fn no_fronts_invented_in_background_noise() {
+    let s = FrontScenario {
+        min_interval_s: 1e6,
+        background_rate_hz: 3.0,
+        ..scenario(
+            "noise",
+            ElectrodeLayout::Row {
+                count: 16,
+                pitch_um: 375.0,
+                angle_deg: 0.0,
+            },
+            FrontPattern::OneWay,
+            40.0,
+            107,
+        )
+    };
+    let (bursts, truth, _, _) = run(&s);
+    assert!(truth.is_empty());
+    let fronts = bursts.iter().filter(|b| b.front.is_some()).count();
+    eprintln!(
+        "background noise: {} bursts detected, {fronts} fronts",
+        bursts.len()
+    );
+    assert_eq!(fronts, 0, "fronts invented in noise: {bursts:?}");
+}
