@@ -52,6 +52,7 @@ fn quiet_row() -> FrontScenario {
             pitch_um: 250.0,
             angle_deg: 30.0,
         },
+        pattern: ringline::simulate::FrontPattern::OneWay,
         position_jitter_um: 0.0,
         min_interval_s: 5.0,
         extra_interval_s: 1.0,
