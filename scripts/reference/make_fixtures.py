@@ -1,9 +1,9 @@
 #!/usr/bin/env python3
 """Reference fixtures for ringline's tests, computed with numpy and scipy.
 
-Writes tests/fixtures/geometry_reference.json. With --check, computes the same fixtures
-afresh and compares them with the committed file (numbers to a relative 1e-9), exiting 1
-on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
+Writes tests/fixtures/geometry_reference.json and tests/fixtures/stats_reference.json.
+With --check, computes the same fixtures afresh and compares them with the committed files
+(numbers to a relative 1e-9), exiting 1 on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
 
 References used:
 - total-least-squares line: numpy.linalg.svd of the centred points (first right singular
@@ -11,7 +11,14 @@ References used:
   distance);
 - geometric circle fit: scipy.optimize.least_squares (method 'lm', i.e. MINPACK) on the
   radial residuals |p - c| - R;
-- Kasa's algebraic fit: numpy.linalg.lstsq on x^2 + y^2 + D x + E y + F = 0.
+- Kasa's algebraic fit: numpy.linalg.lstsq on x^2 + y^2 + D x + E y + F = 0;
+- Theil-Sen: scipy.stats.theilslopes (defaults: method 'separate', 95%);
+- OLS: scipy.stats.linregress, and NIST StRD Norris (data and certified values read from the
+  copy that ships inside the scipy wheel);
+- Huber M-estimation: statsmodels RLM with HuberT() and its defaults;
+- Wilson interval: statsmodels.stats.proportion.proportion_confint(method='wilson');
+- median interval ranks: scipy.stats.binom.ppf(0.025, n, 0.5);
+- quantiles: numpy.percentile (default 'linear').
 """
 import json
 import math
@@ -25,6 +32,7 @@ from scipy.optimize import least_squares
 
 ROOT = Path(__file__).resolve().parents[2]
 OUT = ROOT / "tests" / "fixtures" / "geometry_reference.json"
+STATS_OUT = ROOT / "tests" / "fixtures" / "stats_reference.json"
 SEED = 20261201
 
 
@@ -133,6 +141,91 @@ def build():
     }
 
 
+def norris():
+    import os
+    path = os.path.join(os.path.dirname(scipy.__file__), "stats", "tests", "data",
+                        "nist_linregress", "Norris.dat")
+    lines = open(path).read().splitlines()
+    certified = {}
+    for line in lines[30:46]:
+        words = line.split()
+        if words[:1] == ["B0"]:
+            certified["b0"], certified["b0_sd"] = float(words[1]), float(words[2])
+        elif words[:1] == ["B1"]:
+            certified["b1"], certified["b1_sd"] = float(words[1]), float(words[2])
+        elif "Standard Deviation" in line and words[0] == "Standard":
+            certified["residual_sd"] = float(words[-1])
+        elif words[:1] == ["R-Squared"]:
+            certified["r_squared"] = float(words[-1])
+    data = np.array([[float(v) for v in line.split()] for line in lines[60:96]])
+    return {"y": data[:, 0].tolist(), "x": data[:, 1].tolist(), "certified": certified,
+            "source": "NIST StRD Norris.dat as shipped in the scipy wheel"}
+
+
+def stats_fixtures(rng):
+    from scipy import stats
+    import statsmodels.api as sm
+    from statsmodels.stats.proportion import proportion_confint
+
+    theil = []
+    sets = [("check values example", [0, 0.2, 0.4, 0.6, 0.8], [0, 4, 8, 12, 100])]
+    x = np.arange(12) * 0.375
+    sets.append(("front with two strays", x.tolist(), (5 + 25 * x + rng.normal(0, 0.4, 12) + np.where(np.arange(12) % 5 == 3, 30, 0)).tolist()))
+    xt = np.repeat(np.arange(6) * 0.2, 2)
+    sets.append(("ties in x and y", xt.tolist(), np.round(3 + 10 * xt + rng.normal(0, 0.5, 12), 0).tolist()))
+    x = rng.uniform(0, 5, 40)
+    sets.append(("40 points", x.tolist(), (2 - 3 * x + rng.standard_t(3, 40)).tolist()))
+    for name, xv, yv in sets:
+        r = stats.theilslopes(yv, xv)
+        theil.append({"name": name, "x": list(map(float, xv)), "y": list(map(float, yv)),
+                      "slope": float(r.slope), "intercept": float(r.intercept),
+                      "low": float(r.low_slope), "high": float(r.high_slope)})
+
+    linreg = []
+    for name, xv, yv, _ in [(t["name"], t["x"], t["y"], None) for t in theil]:
+        r = stats.linregress(xv, yv)
+        linreg.append({"name": name, "x": xv, "y": yv, "slope": float(r.slope),
+                       "intercept": float(r.intercept), "r": float(r.rvalue),
+                       "stderr": float(r.stderr), "intercept_stderr": float(r.intercept_stderr)})
+
+    huber = []
+    x = np.arange(20) * 0.3
+    y = 1.0 + 4.0 * x + rng.normal(0, 0.3, 20)
+    y[[3, 11, 17]] += [6.0, -5.0, 9.0]
+    design = sm.add_constant(x)
+    res = sm.RLM(y, design, M=sm.robust.norms.HuberT()).fit()
+    huber.append({"name": "line with three outliers", "design": design.tolist(), "y": y.tolist(),
+                  "params": res.params.tolist(), "scale": float(res.scale)})
+    xy = rng.uniform(0, 1400, (30, 2))
+    y = 0.2 + xy @ np.array([3e-5, -1.5e-5]) + rng.normal(0, 0.002, 30)
+    y[[4, 20]] += [0.05, -0.04]
+    design = sm.add_constant(xy)
+    res = sm.RLM(y, design, M=sm.robust.norms.HuberT()).fit()
+    huber.append({"name": "plane wave with two outliers", "design": design.tolist(), "y": y.tolist(),
+                  "params": res.params.tolist(), "scale": float(res.scale)})
+
+    wilson = []
+    for k, n in [(0, 10), (3, 10), (7, 20), (20, 20), (13, 37), (140, 200)]:
+        lo, hi = proportion_confint(k, n, alpha=0.05, method="wilson")
+        wilson.append({"successes": k, "trials": n, "low": float(lo), "high": float(hi)})
+
+    median_ranks = []
+    for n in [6, 7, 10, 11, 25, 60, 200, 1001]:
+        median_ranks.append({"n": n, "binom_ppf": int(stats.binom.ppf(0.025, n, 0.5)),
+                             "cdf_at_ppf": float(stats.binom.cdf(stats.binom.ppf(0.025, n, 0.5), n, 0.5))})
+
+    values = rng.normal(10, 3, 23)
+    percentiles = {"values": values.tolist(), "q": [0, 0.1, 0.25, 0.5, 0.75, 0.9, 1],
+                   "numpy": [float(np.percentile(values, 100 * q)) for q in [0, 0.1, 0.25, 0.5, 0.75, 0.9, 1]]}
+    return {
+        "made_by": "scripts/reference/make_fixtures.py",
+        "versions": {"python": platform.python_version(), "numpy": np.__version__,
+                     "scipy": scipy.__version__, "statsmodels": sm.__version__ if hasattr(sm, "__version__") else __import__("statsmodels").__version__},
+        "theilslopes": theil, "linregress": linreg, "norris": norris(), "huber": huber,
+        "wilson": wilson, "median_ranks": median_ranks, "percentiles": percentiles,
+    }
+
+
 def compare(a, b, path="$"):
     """Yields differences between two fixture trees; numbers compare to a relative 1e-9."""
     if isinstance(a, dict) and isinstance(b, dict):
@@ -156,22 +249,25 @@ def compare(a, b, path="$"):
 
 
 def main():
-    fresh = build()
+    outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1)))]
     if "--check" in sys.argv:
-        committed = json.loads(OUT.read_text())
-        diffs = list(compare(committed, fresh))
-        if diffs:
-            print("reference fixtures differ from a fresh computation:")
-            for d in diffs[:20]:
-                print("  " + d)
-            return 1
-        print(f"reference fixtures match a fresh computation "
-              f"(numpy {np.__version__}, scipy {scipy.__version__}; made with "
-              f"numpy {committed['versions']['numpy']}, scipy {committed['versions']['scipy']})")
-        return 0
-    OUT.parent.mkdir(parents=True, exist_ok=True)
-    OUT.write_text(json.dumps(fresh, indent=1) + "\n")
-    print(f"wrote {OUT.relative_to(ROOT)}")
+        failed = False
+        for path, fresh in outputs:
+            committed = json.loads(path.read_text())
+            diffs = list(compare(committed, fresh))
+            if diffs:
+                failed = True
+                print(f"{path.relative_to(ROOT)} differs from a fresh computation:")
+                for d in diffs[:20]:
+                    print("  " + d)
+            else:
+                print(f"{path.relative_to(ROOT)} matches a fresh computation "
+                      f"(now {json.dumps(fresh['versions'])}; made with {json.dumps(committed['versions'])})")
+        return 1 if failed else 0
+    for path, fresh in outputs:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(json.dumps(fresh, indent=1) + "\n")
+        print(f"wrote {path.relative_to(ROOT)}")
     return 0
 
 
