@@ -23,3 +23,18 @@ ensure_rust() {
     fi
   fi
 }
+
+# Makes (once) the private venv with the reference libraries and prints its python's path.
+# Prints nothing when no python3 is available.
+reference_python() {
+  local venv=.venv-reference python
+  python=$(command -v python3 || true)
+  [ -n "$python" ] || return 0
+  if [ ! -x "$venv/bin/python" ] || ! "$venv/bin/python" -c 'import numpy, scipy, statsmodels' 2>/dev/null; then
+    echo "creating $venv with the reference libraries from PyPI" >&2
+    rm -rf "$venv"
+    "$python" -m venv "$venv" >&2
+    "$venv/bin/pip" install --quiet --disable-pip-version-check -r scripts/reference/requirements.txt >&2
+  fi
+  echo "$venv/bin/python"
+}

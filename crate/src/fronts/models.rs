@@ -1,7 +1,9 @@
 //! Front models: activation time as a function of position, fitted per burst, chosen by BIC,
 //! with bootstrap intervals over sites.
 
-use super::regression::{huber, ols, ols_slope_weighted, theil_sen, TheilSenResampler};
+use super::regression::{
+    huber, ols, ols_slope_weighted, theil_sen, theil_sen_point, TheilSenResampler,
+};
 use crate::geometry::{wrap_angle, Rotation, Track};
 use crate::stats::quantile;
 use nalgebra::DMatrix;
@@ -242,8 +244,23 @@ struct Line1 {
     analytic_ci: Option<[f64; 2]>,
 }
 
-fn fit_1d(u: &[f64], t: &[f64], estimator: Estimator, confidence: f64) -> Option<Line1> {
+fn fit_1d(
+    u: &[f64],
+    t: &[f64],
+    estimator: Estimator,
+    confidence: f64,
+    search: bool,
+) -> Option<Line1> {
     match estimator {
+        // While searching for the origin only the line matters: selection, not sorting.
+        Estimator::TheilSen if search => {
+            let mut scratch = Vec::new();
+            theil_sen_point(u, t, &mut scratch).map(|(slope, intercept)| Line1 {
+                slope,
+                intercept,
+                analytic_ci: None,
+            })
+        }
         Estimator::TheilSen => theil_sen(u, t, confidence).map(|f| Line1 {
             slope: f.slope,
             intercept: f.intercept,
@@ -288,7 +305,7 @@ fn candidate_1d(
     origin: Origin,
     rotation: Option<Rotation>,
 ) -> Option<(Candidate, f64)> {
-    let fit = fit_1d(&u, t, settings.estimator, settings.confidence)?;
+    let fit = fit_1d(&u, t, settings.estimator, settings.confidence, true)?;
     let r = residuals_1d(&u, t, &fit);
     let l = loss(&r, settings.estimator);
     Some((
@@ -678,9 +695,15 @@ pub fn fit_front(
             speed_mm_s: 1.0 / (c.slope.abs() * 1e3),
         })
         .collect();
-    let Some((best, best_bic)) = scored.into_iter().next() else {
+    let Some((mut best, best_bic)) = scored.into_iter().next() else {
         return Err("no front model could be fitted to these sites".into());
     };
+    if best.slowness.is_none() && best.analytic_ci.is_none() {
+        // The origin search fits lines without intervals; the chosen one gets its own.
+        if let Some(full) = fit_1d(&best.u, t, settings.estimator, settings.confidence, false) {
+            best.analytic_ci = full.analytic_ci;
+        }
+    }
     if best_bic >= constant_bic {
         return Err(format!(
             "no propagation: the activation times fit one common time as well as any front (BIC {constant_bic:.1} against {best_bic:.1} for {})",

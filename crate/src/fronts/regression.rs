@@ -149,36 +149,56 @@ fn round_half_even(v: f64) -> f64 {
 }
 
 /// Pairwise slopes sorted once, so that the Theil-Sen slope of any bootstrap resample is a
-/// weighted median over them (weight c_i c_j for sites drawn c_i and c_j times) in O(n^2)
-/// without re-sorting. Pairs of one site with itself have equal x and drop out, as in
-/// [`theil_sen`].
+/// weighted median over them (weight c_i c_j for sites drawn c_i and c_j times) in one
+/// partial pass, without re-sorting. Pairs of one site with itself have equal x and drop
+/// out, as in [`theil_sen`]; so do pairs of distinct sites at equal x.
 pub struct TheilSenResampler {
-    /// (slope, i, j), ascending by slope.
-    pairs: Vec<(f64, u32, u32)>,
+    slopes: Vec<f64>,
+    first: Vec<u32>,
+    second: Vec<u32>,
+    /// Pairs of distinct points with equal x (left out of the slopes).
+    tied_pairs: Vec<(u32, u32)>,
 }
 
 impl TheilSenResampler {
     pub fn new(x: &[f64], y: &[f64]) -> Self {
         let n = x.len();
-        let mut pairs = Vec::with_capacity(n * (n.saturating_sub(1)) / 2);
+        let mut pairs: Vec<(f64, u32, u32)> = Vec::with_capacity(n * n.saturating_sub(1) / 2);
+        let mut tied_pairs = Vec::new();
         for i in 0..n {
             for j in 0..i {
                 let dx = x[i] - x[j];
                 if dx != 0.0 {
                     pairs.push(((y[i] - y[j]) / dx, i as u32, j as u32));
+                } else {
+                    tied_pairs.push((i as u32, j as u32));
                 }
             }
         }
-        pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
-        TheilSenResampler { pairs }
+        pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+        TheilSenResampler {
+            slopes: pairs.iter().map(|p| p.0).collect(),
+            first: pairs.iter().map(|p| p.1).collect(),
+            second: pairs.iter().map(|p| p.2).collect(),
+            tied_pairs,
+        }
     }
 
     /// Theil-Sen slope of the resample in which point i appears `counts[i]` times; `None`
     /// when no pair has distinct x.
     pub fn slope(&self, counts: &[u32]) -> Option<f64> {
-        let weight =
-            |p: &(f64, u32, u32)| u64::from(counts[p.1 as usize]) * u64::from(counts[p.2 as usize]);
-        let total: u64 = self.pairs.iter().map(weight).sum();
+        // Total weight of pairs with distinct x: all pairs of drawn points, less same-site
+        // pairs, less pairs of distinct sites at equal x.
+        let (sum, sum_sq) = counts.iter().fold((0u64, 0u64), |(s, q), &c| {
+            let c = u64::from(c);
+            (s + c, q + c * c)
+        });
+        let tied: u64 = self
+            .tied_pairs
+            .iter()
+            .map(|&(i, j)| u64::from(counts[i as usize]) * u64::from(counts[j as usize]))
+            .sum();
+        let total = (sum * sum - sum_sq) / 2 - tied;
         if total == 0 {
             return None;
         }
@@ -188,23 +208,73 @@ impl TheilSenResampler {
         } else {
             (total / 2 - 1, total / 2)
         };
+        // Walk the sorted slopes accumulating weights; the loops carry no data-dependent
+        // branch but their exit (a zero weight, common in a resample, just adds nothing).
+        let weight = |k: usize| {
+            u64::from(counts[self.first[k] as usize]) * u64::from(counts[self.second[k] as usize])
+        };
+        let len = self.slopes.len();
         let mut seen = 0u64;
-        let mut lo = None;
-        for p in &self.pairs {
-            let w = weight(p);
-            if w == 0 {
-                continue;
+        let mut k = 0;
+        while k < len {
+            seen += weight(k);
+            if seen > lo_rank {
+                break;
             }
-            seen += w;
-            if lo.is_none() && seen > lo_rank {
-                lo = Some(p.0);
-            }
+            k += 1;
+        }
+        let lo = *self.slopes.get(k)?;
+        if seen > hi_rank {
+            return Some(lo);
+        }
+        k += 1;
+        while k < len {
+            seen += weight(k);
             if seen > hi_rank {
-                return lo.map(|l| 0.5 * (l + p.0));
+                return Some(0.5 * (lo + self.slopes[k]));
             }
+            k += 1;
         }
         None
     }
+}
+
+/// Theil-Sen slope and intercept only (no interval), by selection instead of sorting: the
+/// fast form used while searching for a front's origin. Same values as [`theil_sen`].
+pub fn theil_sen_point(x: &[f64], y: &[f64], scratch: &mut Vec<f64>) -> Option<(f64, f64)> {
+    let n = x.len();
+    scratch.clear();
+    for i in 0..n {
+        for j in 0..i {
+            let dx = x[i] - x[j];
+            if dx != 0.0 {
+                scratch.push((y[i] - y[j]) / dx);
+            }
+        }
+    }
+    let slope = select_median(scratch)?;
+    scratch.clear();
+    scratch.extend_from_slice(y);
+    let my = select_median(scratch)?;
+    scratch.clear();
+    scratch.extend_from_slice(x);
+    let mx = select_median(scratch)?;
+    Some((slope, my - slope * mx))
+}
+
+/// Median by selection (numpy's value: the mean of the two middle values for an even count);
+/// reorders `v`.
+pub fn select_median(v: &mut [f64]) -> Option<f64> {
+    let n = v.len();
+    if n == 0 {
+        return None;
+    }
+    let (_, &mut upper, _) = v.select_nth_unstable_by(n / 2, f64::total_cmp);
+    if n % 2 == 1 {
+        return Some(upper);
+    }
+    let lower = v[..n / 2].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    Some(0.5 * (lower + upper))
 }
 
 /// Linear model y = X beta fitted by Huber's M-estimator.

@@ -2,7 +2,7 @@
 
 use super::error::{ImportError, ImportProblem};
 use super::spikes::{find_site_column, quoted_list};
-use super::table::{length_header, ImportLimits, LengthUnit, Table, UnitHeader};
+use super::table::{length_header, ImportLimits, LengthUnit, Row, Table, UnitHeader};
 use crate::place::{Notice, Place};
 use crate::recording::Site;
 use serde::{Deserialize, Serialize};
@@ -68,9 +68,10 @@ pub fn read_layout(
 
     let mut seen: HashMap<String, u64> = HashMap::new();
     let mut sites = Vec::new();
-    while let Some(row) = table.next_row() {
-        let row = row?;
-        let id = row.fields.get(site_col).unwrap_or("");
+    let mut row = Row::default();
+    while let Some(next) = table.next_row(&mut row) {
+        next?;
+        let id = row.field(site_col);
         if id.is_empty() {
             return Err(ImportError::new(
                 table.place_column(Some(row.line), site_col),

@@ -1,7 +1,7 @@
 //! Spike lists: one row per spike, a site column and a time column.
 
 use super::error::{ImportError, ImportProblem};
-use super::table::{decimal_places, time_header, ImportLimits, Table, TimeUnit, UnitHeader};
+use super::table::{decimal_places, time_header, ImportLimits, Row, Table, TimeUnit, UnitHeader};
 use crate::place::{Notice, Place};
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
@@ -101,9 +101,10 @@ pub fn read_spike_list(
     let mut max_decimals: Option<u32> = Some(0);
     let mut row_count = 0usize;
 
-    while let Some(row) = table.next_row() {
-        let row = row?;
-        let site = row.fields.get(site_col).unwrap_or("");
+    let mut row = Row::default();
+    while let Some(next) = table.next_row(&mut row) {
+        next?;
+        let site = row.field(site_col);
         if site.is_empty() {
             return Err(ImportError::new(
                 table.place_column(Some(row.line), site_col),
@@ -123,18 +124,22 @@ pub fn read_spike_list(
                 ),
             ));
         }
-        let text = row.fields.get(time_col).unwrap_or("");
+        let text = row.field(time_col);
         max_decimals = match (max_decimals, decimal_places(text)) {
             (Some(a), Some(b)) => Some(a.max(b)),
             _ => None,
         };
-        let index = *index_of.entry(site.to_string()).or_insert_with(|| {
-            sites.push(SiteSpikes {
-                site: site.to_string(),
-                times_s: Vec::new(),
-            });
-            sites.len() - 1
-        });
+        let index = match index_of.get(site) {
+            Some(&i) => i,
+            None => {
+                index_of.insert(site.to_string(), sites.len());
+                sites.push(SiteSpikes {
+                    site: site.to_string(),
+                    times_s: Vec::new(),
+                });
+                sites.len() - 1
+            }
+        };
         let time_s = value * scale;
         let train = &mut sites[index].times_s;
         if train.last().is_some_and(|&last| time_s < last) {

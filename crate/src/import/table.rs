@@ -174,11 +174,20 @@ pub(crate) fn length_header(header: &str, axis: &str) -> Option<UnitHeader<Lengt
     }
 }
 
-/// One data row of a table.
+/// One data row of a table; the caller keeps one and [`Table::next_row`] refills it, so a
+/// large file costs no allocation per row.
+#[derive(Default)]
 pub(crate) struct Row {
     /// Line number in the file (counted from 1).
     pub line: u64,
-    pub fields: csv::StringRecord,
+    fields: csv::StringRecord,
+}
+
+impl Row {
+    /// Field `index` without surrounding white space; "" when absent.
+    pub fn field(&self, index: usize) -> &str {
+        self.fields.get(index).map_or("", str::trim)
+    }
 }
 
 /// An open delimited table: header read, rows still to come.
@@ -237,12 +246,13 @@ impl<'a> Table<'a> {
         let mut reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
             .comment(Some(b'#'))
-            .trim(csv::Trim::All)
+            // Fields are trimmed when read (Row::field): csv's own trimming copies every record.
+            .trim(csv::Trim::None)
             .flexible(true)
             .has_headers(true)
             .from_reader(bytes);
         let headers: Vec<String> = match reader.headers() {
-            Ok(h) => h.iter().map(str::to_string).collect(),
+            Ok(h) => h.iter().map(|f| f.trim().to_string()).collect(),
             Err(e) => return Err(csv_error(file, Some(header_line), e)),
         };
         let table = Table {
@@ -346,16 +356,16 @@ impl<'a> Table<'a> {
 
     /// Reads the next data row; `None` at the end of the file. Lines of only spaces or
     /// delimiters are passed over like blank lines.
-    pub fn next_row(&mut self) -> Option<Result<Row, ImportError>> {
-        let mut record = csv::StringRecord::new();
+    pub fn next_row(&mut self, row: &mut Row) -> Option<Result<(), ImportError>> {
+        let record = &mut row.fields;
         loop {
-            match self.reader.read_record(&mut record) {
+            match self.reader.read_record(record) {
                 Ok(false) => return None,
                 Err(e) => {
                     let line = e.position().map(|p| self.line_at(p.byte() as usize));
                     return Some(Err(csv_error(&self.file, line, e)));
                 }
-                Ok(true) if record.iter().all(str::is_empty) => continue,
+                Ok(true) if record.iter().all(|f| f.trim().is_empty()) => continue,
                 Ok(true) => break,
             }
         }
@@ -384,16 +394,14 @@ impl<'a> Table<'a> {
                 ),
             )));
         }
-        Some(Ok(Row {
-            line,
-            fields: record,
-        }))
+        row.line = line;
+        Some(Ok(()))
     }
 
     /// Reads field `index` of `row` as a finite number; `what` names the quantity
     /// in the error ("a time in milliseconds").
     pub fn number(&self, row: &Row, index: usize, what: &str) -> Result<f64, ImportError> {
-        let text = row.fields.get(index).unwrap_or("");
+        let text = row.field(index);
         parse_number(text, self.decimal_comma)
             .filter(|v| v.is_finite())
             .ok_or_else(|| {
@@ -418,7 +426,7 @@ impl<'a> Table<'a> {
         index: usize,
         what: &str,
     ) -> Result<Option<f64>, ImportError> {
-        let text = row.fields.get(index).unwrap_or("");
+        let text = row.field(index);
         if text.is_empty() || text.eq_ignore_ascii_case("nan") || text.eq_ignore_ascii_case("na") {
             return Ok(None);
         }
@@ -533,11 +541,12 @@ mod tests {
     fn line_numbers_count_comments_and_blank_lines() {
         let text = b"# a comment\nsite,time_s\n\n# another\nA,1.0\nB,oops\n";
         let mut table = Table::open(text, "f.csv", ImportLimits::default()).unwrap();
-        let first = table.next_row().unwrap().unwrap();
-        assert_eq!(first.line, 5);
-        let second = table.next_row().unwrap().unwrap();
-        assert_eq!(second.line, 6);
-        let err = table.number(&second, 1, "a time").unwrap_err();
+        let mut row = Row::default();
+        table.next_row(&mut row).unwrap().unwrap();
+        assert_eq!(row.line, 5);
+        table.next_row(&mut row).unwrap().unwrap();
+        assert_eq!(row.line, 6);
+        let err = table.number(&row, 1, "a time").unwrap_err();
         assert_eq!(err.place.line, Some(6));
         assert_eq!(err.place.column.as_ref().map(|c| c.number), Some(2));
     }

@@ -2,7 +2,7 @@
 
 use super::error::{ImportError, ImportProblem};
 use super::spikes::{find_time_column, unit_words};
-use super::table::{ImportLimits, Table, TimeUnit};
+use super::table::{ImportLimits, Row, Table, TimeUnit};
 use crate::place::{Notice, Place};
 use serde::{Deserialize, Serialize};
 
@@ -113,8 +113,9 @@ pub fn read_roi_traces(
         .collect();
     let mut lines: Vec<u64> = Vec::new();
     let mut time_s: Vec<f64> = Vec::new();
-    while let Some(row) = table.next_row() {
-        let row = row?;
+    let mut row = Row::default();
+    while let Some(next) = table.next_row(&mut row) {
+        next?;
         if let Some((col, unit)) = time {
             let what = format!("a frame time in {}", unit_words(unit));
             let t = table.number(&row, col, &what)? * unit.seconds();
