@@ -1,7 +1,7 @@
 //! Regression and interval kernels against scipy, statsmodels, numpy and NIST. The fixture is
 //! made by `scripts/reference/make_fixtures.py`, which records the library versions.
 
-#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+#![allow(clippy::unwrap_used, clippy::expect_used, clippy::needless_range_loop)] // a failed unwrap is a failed test
 
 use approx::assert_relative_eq;
 use nalgebra::DMatrix;
