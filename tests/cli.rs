@@ -215,3 +215,141 @@ fn inspect_text_carries_units_and_start_site_flips_the_line() {
     assert_eq!(v["sites"][3]["along_um"], 0.0);
     assert_eq!(v["sites"][0]["along_um"], 600.0);
 }
+
+/// `analyze` on the demo strip: the documented JSON keys, the files of --out, and the same
+/// numbers in both.
+#[test]
+fn analyze_json_keys_and_out_files_agree() {
+    let demo = concat!(env!("CARGO_MANIFEST_DIR"), "/../demo-data/strip-16");
+    let dir = tempfile::tempdir().unwrap();
+    let spikes = format!("{demo}/spikes.csv");
+    let layout = format!("{demo}/layout.csv");
+    let out_dir = dir.path().join("out");
+    let out = ringline(
+        &[
+            "analyze",
+            &spikes,
+            "--layout",
+            &layout,
+            "--json",
+            "--out",
+            out_dir.to_str().unwrap(),
+        ],
+        dir.path(),
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["track"]["kind"], "line");
+    let bursts = v["bursts"].as_array().unwrap();
+    assert_eq!(
+        v["summary"]["burst_count"].as_u64().unwrap() as usize,
+        bursts.len()
+    );
+    assert!(v["summary"]["median_speed_mm_s"].as_f64().unwrap() > 0.0);
+    assert!(v["summary"]["ibi_median_s"].as_f64().unwrap() > 0.0);
+    let mut with_front = 0;
+    for b in bursts {
+        assert!(b["start_s"].as_f64().unwrap() < b["end_s"].as_f64().unwrap());
+        if b["front"].is_null() {
+            assert!(b["no_front_reason"].is_string());
+            continue;
+        }
+        with_front += 1;
+        let f = &b["front"];
+        let speed = f["speed_mm_s"].as_f64().unwrap();
+        let ci = f["speed_ci95_mm_s"].as_array().unwrap();
+        assert!(
+            speed > 0.0 && ci[0].as_f64().unwrap() <= speed && speed <= ci[1].as_f64().unwrap()
+        );
+        for key in [
+            "model",
+            "origin_site",
+            "direction_xy",
+            "rotation",
+            "sites_used",
+            "r2",
+        ] {
+            assert!(f.get(key).is_some(), "front lacks {key}");
+        }
+        if f["model"] == "line_one_way" {
+            let d = f["direction_xy"].as_array().unwrap();
+            let norm = d[0].as_f64().unwrap().hypot(d[1].as_f64().unwrap());
+            assert!((norm - 1.0).abs() < 1e-9);
+        }
+    }
+    let fronts_csv = std::fs::read_to_string(out_dir.join("fronts.csv")).unwrap();
+    assert_eq!(fronts_csv.lines().count() - 1, with_front);
+    let bursts_csv = std::fs::read_to_string(out_dir.join("bursts.csv")).unwrap();
+    assert_eq!(bursts_csv.lines().count() - 1, bursts.len());
+    let activation = std::fs::read_to_string(out_dir.join("activation.csv")).unwrap();
+    assert!(activation.starts_with("burst,site,along_um,x_um,y_um,time_s,used\n"));
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out_dir.join("summary.json")).unwrap())
+            .unwrap();
+    assert_eq!(summary["summary"], v["summary"]);
+    // The first front's speed, written in fronts.csv, is the JSON's number to the last bit.
+    let first = fronts_csv
+        .lines()
+        .nth(1)
+        .unwrap()
+        .split(',')
+        .nth(2)
+        .unwrap()
+        .parse::<f64>()
+        .unwrap();
+    let json_first = bursts.iter().find(|b| !b["front"].is_null()).unwrap()["front"]["speed_mm_s"]
+        .as_f64()
+        .unwrap();
+    assert_eq!(first, json_first);
+}
+
+#[test]
+fn analyze_bad_settings_and_traces_exit_2() {
+    let dir = tempfile::tempdir().unwrap();
+    write(dir.path(), "lay.csv", GOOD_LAYOUT);
+    write(dir.path(), "act.csv", GOOD_SPIKES);
+    write(
+        dir.path(),
+        "settings.json",
+        b"{\n  \"fronts\": { \"resamples\": \"many\" }\n}\n",
+    );
+    let out = ringline(
+        &[
+            "analyze",
+            "act.csv",
+            "--layout",
+            "lay.csv",
+            "--settings",
+            "settings.json",
+        ],
+        dir.path(),
+    );
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("settings.json, line 2"), "{stderr}");
+    let out = ringline(
+        &[
+            "analyze",
+            "act.csv",
+            "--layout",
+            "lay.csv",
+            "--resamples",
+            "10",
+        ],
+        dir.path(),
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("at least 100"));
+    write(dir.path(), "traces.csv", b"time_s,A,B\n0,1,2\n0.1,1,2\n");
+    let out = ringline(
+        &["analyze", "traces.csv", "--layout", "lay.csv"],
+        dir.path(),
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("fluorescence traces"));
+}

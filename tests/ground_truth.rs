@@ -303,3 +303,167 @@ fn no_fronts_invented_in_background_noise() {
     );
     assert_eq!(fronts, 0, "fronts invented in noise: {bursts:?}");
 }
+
+#[test]
+fn grid_point_sources() {
+    let s = scenario(
+        "grid2",
+        ElectrodeLayout::Grid {
+            rows: 8,
+            columns: 8,
+            pitch_um: 200.0,
+        },
+        FrontPattern::TwoWay,
+        25.0,
+        108,
+    );
+    check("grid, point sources", &s);
+}
+
+/// The ISI_N detector (Bakkum et al. 2013) finds the same bursts on the same recording.
+#[test]
+fn isi_n_detector_finds_the_bursts() {
+    use ringline::detect::BurstDetector;
+    let s = scenario(
+        "isi",
+        ElectrodeLayout::Row {
+            count: 16,
+            pitch_um: 375.0,
+            angle_deg: 0.0,
+        },
+        FrontPattern::OneWay,
+        40.0,
+        109,
+    );
+    let sim = simulate_fronts(&s).unwrap();
+    let rec = read_recording(
+        ("s.csv", write_spike_list(&sim.spikes).as_bytes()),
+        ("l.csv", write_layout(&sim.sites).as_bytes()),
+        &ReadOptions::default(),
+    )
+    .unwrap();
+    let fit = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
+    let mut settings = AnalysisSettings::default();
+    settings.bursts.detector = BurstDetector::IsiN;
+    let analysis = analyze(&rec, &fit, &settings, &mut |_, _| {}).unwrap();
+    let truth = &sim.truth.bursts;
+    let found = truth
+        .iter()
+        .filter(|t| {
+            let t0 = first_activation(t).unwrap();
+            analysis
+                .bursts
+                .iter()
+                .any(|b| b.start_s - 0.15 <= t0 && t0 <= b.end_s)
+        })
+        .count();
+    let spurious = analysis.bursts.len().saturating_sub(found);
+    eprintln!(
+        "ISI_N: {found} of {} bursts found, {spurious} extra",
+        truth.len()
+    );
+    assert!(found as f64 >= 0.95 * truth.len() as f64);
+    assert!(spurious as f64 <= 0.05 * truth.len() as f64);
+}
+
+/// Fronts drawn to stop partway are listed as propagation failures; complete ones are not.
+#[test]
+fn propagation_failures_are_found() {
+    let s = FrontScenario {
+        failure_probability: 0.4,
+        ..scenario(
+            "fail",
+            ElectrodeLayout::Row {
+                count: 16,
+                pitch_um: 375.0,
+                angle_deg: 0.0,
+            },
+            FrontPattern::OneWay,
+            40.0,
+            110,
+        )
+    };
+    let (bursts, truth, _, _) = run(&s);
+    let (mut hits, mut misses, mut false_alarms, mut stopped) = (0, 0, 0, 0);
+    for t in &truth {
+        let t0 = first_activation(t).unwrap();
+        let Some(f) = bursts
+            .iter()
+            .find(|b| b.start_s - 0.15 <= t0 && t0 <= b.end_s)
+            .and_then(|b| b.front.as_ref())
+        else {
+            continue;
+        };
+        // A stop that leaves two or more sites unreached is a failure the analysis must see.
+        let unreached = t.activation_s.iter().filter(|a| a.is_none()).count();
+        let truly_failed = t.stops_after_um.is_some() && unreached >= 2;
+        stopped += usize::from(truly_failed);
+        match (truly_failed, f.failed) {
+            (true, true) => hits += 1,
+            (true, false) => misses += 1,
+            (false, true) => false_alarms += 1,
+            _ => {}
+        }
+    }
+    eprintln!("failures: {hits} of {stopped} found, {misses} missed, {false_alarms} false alarms");
+    assert!(stopped >= 10, "the scenario should stop at least 10 fronts");
+    assert!(hits as f64 >= 0.9 * stopped as f64);
+    assert!(false_alarms <= 1);
+}
+
+/// A front that crosses the sites in fewer sampling steps than the limit allows is flagged,
+/// and one far under a sampling step is not reported as a front at all.
+#[test]
+fn fronts_near_the_resolution_limit_are_flagged() {
+    use ringline::fronts::{fit_front, FrontPoints, FrontSettings};
+    // 16 sites over 1.5 mm at 300 mm/s with 1 kHz sampling: a 5 ms transit, 5 steps.
+    let s = FrontScenario {
+        sampling_rate_hz: 1000.0,
+        activation_jitter_s: 0.0003,
+        duration_s: 120.0,
+        ..scenario(
+            "fast",
+            ElectrodeLayout::Row {
+                count: 16,
+                pitch_um: 100.0,
+                angle_deg: 0.0,
+            },
+            FrontPattern::OneWay,
+            300.0,
+            111,
+        )
+    };
+    let (bursts, _, _, _) = run(&s);
+    let fronts: Vec<_> = bursts.iter().filter_map(|b| b.front.as_ref()).collect();
+    assert!(fronts.len() >= 5);
+    for f in &fronts {
+        // Limit: span / (3 steps of 1 ms, the file's time quantum) in mm/s = reach_um / 3.
+        let limit = f.resolution_limit_mm_s.unwrap();
+        assert!(
+            (limit - f.reach_um / 3.0).abs() < 1e-9 * limit,
+            "limit {limit} mm/s over {} um",
+            f.reach_um
+        );
+        assert!(
+            f.near_resolution_limit,
+            "{} mm/s over {} um not flagged",
+            f.speed_mm_s, f.reach_um
+        );
+    }
+    // 0.9 mm crossed in 18 ms, sampled every 100 ms (10 frames/s imaging): unresolvable.
+    let along: Vec<f64> = (0..10).map(|i| i as f64 * 100.0).collect();
+    let points = FrontPoints {
+        site: (0..10).collect(),
+        t_s: along.iter().map(|s| s / 50e3).collect(),
+        angle_rad: vec![0.0; 10],
+        xy_um: along.iter().map(|&s| [s, 0.0]).collect(),
+        along_um: along,
+    };
+    let track = ringline::geometry::Track::Line {
+        start_um: [0.0, 0.0],
+        direction: [1.0, 0.0],
+        length_um: 900.0,
+    };
+    let reason = fit_front(&points, &track, &FrontSettings::default(), 1, Some(0.1)).unwrap_err();
+    assert!(reason.contains("no propagation"), "{reason}");
+}

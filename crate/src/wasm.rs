@@ -2,6 +2,7 @@
 //! bytes and settings (plain JS objects, read with serde), calls the library and hands back
 //! plain JS objects. Errors come back as `{ place, problem, message }` objects, never panics.
 
+use crate::fronts::AnalysisSettings;
 use crate::geometry::TrackSettings;
 use crate::import::ReadOptions;
 use serde::Serialize;
@@ -35,10 +36,12 @@ pub fn default_settings() -> Result<JsValue, JsValue> {
     struct Defaults {
         read: ReadOptions,
         track: TrackSettings,
+        analysis: AnalysisSettings,
     }
     to_js(&Defaults {
         read: ReadOptions::default(),
         track: TrackSettings::default(),
+        analysis: AnalysisSettings::default(),
     })
 }
 
@@ -61,8 +64,53 @@ pub fn inspect(
         &track,
     ) {
         Ok(report) => to_js(&report),
-        Err(crate::Error::Import(e)) => Err(to_js(&e)?),
-        Err(crate::Error::Geometry(e)) => Err(to_js(&e)?),
-        Err(crate::Error::Analysis(e)) => Err(to_js(&e)?),
+        Err(e) => Err(error_to_js(&e)?),
+    }
+}
+
+fn error_to_js(e: &crate::Error) -> Result<JsValue, JsValue> {
+    match e {
+        crate::Error::Import(e) => to_js(e),
+        crate::Error::Geometry(e) => to_js(e),
+        crate::Error::Analysis(e) => to_js(e),
+    }
+}
+
+/// `ringline analyze` on two files' bytes. `progress`, when given, is called as
+/// `progress(done, total)` after each burst.
+#[wasm_bindgen]
+#[allow(clippy::too_many_arguments)]
+pub fn analyze(
+    activity_name: &str,
+    activity_bytes: &[u8],
+    layout_name: &str,
+    layout_bytes: &[u8],
+    read: JsValue,
+    track: JsValue,
+    analysis: JsValue,
+    progress: Option<js_sys::Function>,
+) -> Result<JsValue, JsValue> {
+    let read: ReadOptions = settings(read, "reader")?;
+    let track: TrackSettings = settings(track, "track")?;
+    let analysis: AnalysisSettings = settings(analysis, "analysis")?;
+    let mut report_progress = |done: usize, total: usize| {
+        if let Some(f) = &progress {
+            let _ = f.call2(
+                &JsValue::NULL,
+                &JsValue::from(done as u32),
+                &JsValue::from(total as u32),
+            );
+        }
+    };
+    match crate::analyze_files(
+        (activity_name, activity_bytes),
+        (layout_name, layout_bytes),
+        &read,
+        &track,
+        &analysis,
+        &mut report_progress,
+    ) {
+        Ok(report) => to_js(&report),
+        Err(e) => Err(error_to_js(&e)?),
     }
 }

@@ -80,3 +80,43 @@ pub fn activation_times(
         })
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn burst(start_s: f64, end_s: f64) -> NetworkBurst {
+        NetworkBurst {
+            start_s,
+            end_s,
+            peak_s: start_s,
+            sites: vec![0],
+            spike_count: 0,
+        }
+    }
+
+    #[test]
+    fn a_stray_spike_before_the_cluster_is_passed_over() {
+        // Stray at 0.95 s, the site's own burst from 1.00 s.
+        let trains = vec![vec![0.95, 1.0, 1.004, 1.01, 1.2], vec![], vec![1.3]];
+        let t = activation_times(
+            &trains,
+            &burst(1.0, 1.5),
+            f64::NEG_INFINITY,
+            &ActivationSettings::default(),
+        );
+        assert_eq!(t, vec![Some(1.0), None, None]);
+    }
+
+    #[test]
+    fn median_of_first_k_and_the_previous_burst_bound() {
+        let trains = vec![vec![0.5, 1.0, 1.004, 1.01, 1.2]];
+        let settings = ActivationSettings {
+            rule: ActivationRule::MedianOfFirst,
+            ..ActivationSettings::default()
+        };
+        // The previous burst ended at 0.9 s, so 0.5 s is out of reach even with the lead.
+        let t = activation_times(&trains, &burst(1.0, 1.5), 0.9, &settings);
+        assert_eq!(t, vec![Some(1.004)]);
+    }
+}

@@ -35,3 +35,24 @@ pub fn interval_stats(starts_s: &[f64]) -> IntervalStats {
         cv: sample_sd(&intervals).zip(m).map(|(s, m)| s / m),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn intervals_worked_by_hand() {
+        // Starts 0, 2, 5, 9, 14: intervals 2, 3, 4, 5; median 3.5; numpy percentiles
+        // (linear) 25% = 2.75, 75% = 4.25; mean 3.5; sample sd sqrt(5/3).
+        let s = interval_stats(&[0.0, 2.0, 5.0, 9.0, 14.0]);
+        assert_eq!(s.count, 4);
+        assert_eq!(s.median_s, Some(3.5));
+        assert_eq!(s.q25_s, Some(2.75));
+        assert_eq!(s.q75_s, Some(4.25));
+        assert_eq!(s.iqr_s, Some(1.5));
+        let cv = s.cv.unwrap();
+        assert!((cv - (5.0f64 / 3.0).sqrt() / 3.5).abs() < 1e-12);
+        let none = interval_stats(&[1.0]);
+        assert_eq!((none.count, none.median_s, none.cv), (0, None, None));
+    }
+}
