@@ -20,6 +20,11 @@ pub use fit::{
 pub use track::{wrap_angle, Projection, Rotation, Track};
 
 use crate::place::{Notice, Place};
+
+/// Total length of a polyline through `waypoints`, micrometres.
+pub fn polyline_length_um(waypoints: &[[f64; 2]]) -> f64 {
+    track::polyline_length(waypoints)
+}
 use crate::recording::Site;
 use serde::{Deserialize, Serialize};
 use std::f64::consts::TAU;

@@ -9,6 +9,7 @@
 //! with the same seed write the same bytes.
 
 pub mod fronts;
+pub mod network;
 mod sample;
 
 pub use fronts::{

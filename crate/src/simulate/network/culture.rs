@@ -1,0 +1,474 @@
+//! The culture: neurons placed in a pattern, connected by a distance-dependent rule, stored
+//! as compressed sparse rows (CSR) of outgoing synapses.
+
+use super::super::sample::uniform;
+use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+use std::f64::consts::{PI, TAU};
+
+/// Where neurons may grow, micrometres, centred on the origin.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "shape", rename_all = "snake_case")]
+pub enum Pattern {
+    /// A straight strip along x from 0 to `length_um`, `width_um` wide (centred on y = 0).
+    Strip { length_um: f64, width_um: f64 },
+    /// A ring annulus around the origin: mean radius `radius_um`, `width_um` wide.
+    Annulus { radius_um: f64, width_um: f64 },
+    /// A strip of `width_um` along a polyline through `waypoints_um`.
+    PolylineStrip { waypoints_um: Vec<[f64; 2]>, width_um: f64 },
+    /// A rectangular dish from (0, 0) to (`width_um`, `height_um`).
+    Rectangle { width_um: f64, height_um: f64 },
+    /// A round dish of `radius_um` around the origin.
+    Disk { radius_um: f64 },
+    /// A 1-D lattice along x, `spacing_um` apart (for the theory checks; density is ignored).
+    Chain { length_um: f64, spacing_um: f64 },
+}
+
+impl Pattern {
+    /// Area in mm^2 (length in mm for a chain).
+    pub fn area_mm2(&self) -> f64 {
+        let um2 = match self {
+            Pattern::Strip { length_um, width_um } => length_um * width_um,
+            Pattern::Annulus { radius_um, width_um } => TAU * radius_um * width_um,
+            Pattern::PolylineStrip { waypoints_um, width_um } => crate::geometry::polyline_length_um(waypoints_um) * width_um,
+            Pattern::Rectangle { width_um, height_um } => width_um * height_um,
+            Pattern::Disk { radius_um } => PI * radius_um * radius_um,
+            Pattern::Chain { length_um, .. } => *length_um * 1e3,
+        };
+        um2 / 1e6
+    }
+
+    fn bounds(&self) -> ([f64; 2], [f64; 2]) {
+        match self {
+            Pattern::Strip { length_um, width_um } => ([0.0, -width_um / 2.0], [*length_um, width_um / 2.0]),
+            Pattern::Annulus { radius_um, width_um } => {
+                let r = radius_um + width_um / 2.0;
+                ([-r, -r], [r, r])
+            }
+            Pattern::PolylineStrip { waypoints_um, width_um } => {
+                let mut lo = [f64::INFINITY; 2];
+                let mut hi = [f64::NEG_INFINITY; 2];
+                for w in waypoints_um {
+                    for k in 0..2 {
+                        lo[k] = lo[k].min(w[k] - width_um / 2.0);
+                        hi[k] = hi[k].max(w[k] + width_um / 2.0);
+                    }
+                }
+                (lo, hi)
+            }
+            Pattern::Rectangle { width_um, height_um } => ([0.0, 0.0], [*width_um, *height_um]),
+            Pattern::Disk { radius_um } => ([-radius_um, -radius_um], [*radius_um, *radius_um]),
+            Pattern::Chain { length_um, .. } => ([0.0, 0.0], [*length_um, 0.0]),
+        }
+    }
+
+    fn contains(&self, p: [f64; 2]) -> bool {
+        match self {
+            Pattern::Strip { length_um, width_um } => {
+                (0.0..=*length_um).contains(&p[0]) && p[1].abs() <= width_um / 2.0
+            }
+            Pattern::Annulus { radius_um, width_um } => (p[0].hypot(p[1]) - radius_um).abs() <= width_um / 2.0,
+            Pattern::PolylineStrip { waypoints_um, width_um } => waypoints_um.windows(2).any(|w| {
+                let (a, b) = (w[0], w[1]);
+                let l2 = (b[0] - a[0]).powi(2) + (b[1] - a[1]).powi(2);
+                let t = if l2 > 0.0 {
+                    (((p[0] - a[0]) * (b[0] - a[0]) + (p[1] - a[1]) * (b[1] - a[1])) / l2).clamp(0.0, 1.0)
+                } else {
+                    0.0
+                };
+                let q = [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])];
+                (p[0] - q[0]).hypot(p[1] - q[1]) <= width_um / 2.0
+            }),
+            Pattern::Rectangle { width_um, height_um } => {
+                (0.0..=*width_um).contains(&p[0]) && (0.0..=*height_um).contains(&p[1])
+            }
+            Pattern::Disk { radius_um } => p[0].hypot(p[1]) <= *radius_um,
+            Pattern::Chain { .. } => true,
+        }
+    }
+
+    /// The track along which fronts in this pattern are measured.
+    pub fn track(&self) -> crate::geometry::Track {
+        use crate::geometry::{Rotation, Track};
+        match self {
+            Pattern::Strip { length_um, .. } | Pattern::Chain { length_um, .. } => Track::Line {
+                start_um: [0.0, 0.0],
+                direction: [1.0, 0.0],
+                length_um: *length_um,
+            },
+            Pattern::Annulus { radius_um, .. } => Track::Ring {
+                centre_um: [0.0, 0.0],
+                radius_um: *radius_um,
+                start_angle_rad: 0.0,
+                rotation: Rotation::Ccw,
+            },
+            Pattern::PolylineStrip { waypoints_um, .. } => Track::Polyline {
+                waypoints_um: waypoints_um.clone(),
+                length_um: crate::geometry::polyline_length_um(waypoints_um),
+            },
+            Pattern::Rectangle { .. } | Pattern::Disk { .. } => Track::Plane,
+        }
+    }
+}
+
+/// Places `count` neurons uniformly in the pattern (rejection sampling in its bounding box);
+/// a chain gets a regular lattice instead.
+pub fn place_neurons(pattern: &Pattern, count: usize, rng: &mut ChaCha8Rng) -> Vec<[f64; 2]> {
+    if let Pattern::Chain { length_um, spacing_um } = pattern {
+        let n = (length_um / spacing_um).floor() as usize + 1;
+        return (0..n).map(|i| [i as f64 * spacing_um, 0.0]).collect();
+    }
+    let (lo, hi) = pattern.bounds();
+    let mut out = Vec::with_capacity(count);
+    let mut attempts = 0usize;
+    while out.len() < count && attempts < count.saturating_mul(1000).max(1000) {
+        attempts += 1;
+        let p = [lo[0] + (hi[0] - lo[0]) * uniform(rng), lo[1] + (hi[1] - lo[1]) * uniform(rng)];
+        if pattern.contains(p) {
+            out.push(p);
+        }
+    }
+    out
+}
+
+/// Shape of the connection probability (or weight) against distance.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Footprint {
+    /// exp(-d^2 / (2 sigma^2)), cut at 4 sigma.
+    Gaussian,
+    /// exp(-d / sigma), cut at 10 sigma.
+    Exponential,
+    /// 1 closer than sigma, 0 beyond, and 1/2 at exactly sigma (the mean of the two sides,
+    /// so a lattice sum approximates the step's integral without an endpoint bias).
+    Step,
+    /// The same for every pair, whatever the distance (the non-spatial limit).
+    Uniform,
+}
+
+impl Footprint {
+    /// Unnormalised footprint at distance d for length sigma.
+    pub fn value(self, d: f64, sigma: f64) -> f64 {
+        match self {
+            Footprint::Gaussian => libm::exp(-0.5 * (d / sigma) * (d / sigma)),
+            Footprint::Exponential => libm::exp(-d / sigma),
+            Footprint::Step => {
+                if d < sigma {
+                    1.0
+                } else if d == sigma {
+                    0.5
+                } else {
+                    0.0
+                }
+            }
+            Footprint::Uniform => 1.0,
+        }
+    }
+
+    /// Distance beyond which the footprint is taken as zero.
+    pub fn cutoff(self, sigma: f64) -> f64 {
+        match self {
+            Footprint::Gaussian => 4.0 * sigma,
+            Footprint::Exponential => 10.0 * sigma,
+            Footprint::Step => sigma,
+            Footprint::Uniform => f64::INFINITY,
+        }
+    }
+}
+
+/// Outgoing synapses of every neuron, CSR: neuron i's synapses are `offsets[i]..offsets[i+1]`.
+#[derive(Debug, Clone, Default)]
+pub struct Synapses {
+    pub offsets: Vec<u32>,
+    pub targets: Vec<u32>,
+    /// Weight scale of each synapse (1 for probabilistic wiring; the footprint value for
+    /// weighted wiring).
+    pub weights: Vec<f32>,
+    /// Delay of each synapse, seconds.
+    pub delays: Vec<f32>,
+}
+
+impl Synapses {
+    pub fn count(&self) -> usize {
+        self.targets.len()
+    }
+
+    /// In-degree of every neuron.
+    pub fn in_degrees(&self, neurons: usize) -> Vec<u32> {
+        let mut d = vec![0u32; neurons];
+        for &t in &self.targets {
+            d[t as usize] += 1;
+        }
+        d
+    }
+}
+
+/// How neurons are wired.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Connectivity {
+    pub footprint: Footprint,
+    /// Footprint length, micrometres.
+    pub sigma_um: f64,
+    /// Target mean number of inputs per neuron (probabilistic wiring).
+    pub mean_in_degree: f64,
+    /// Connect every pair within the cut-off, weighted by the footprint (normalised to
+    /// integrate to 1 over both sides of a chain, times the lattice spacing), instead of by
+    /// chance: the deterministic limit used by the front-speed theory.
+    #[serde(default)]
+    pub weighted: bool,
+}
+
+/// Distance histogram of candidate pairs and of made connections, for checking the wiring
+/// against its footprint.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct WiringCheck {
+    pub bin_um: f64,
+    /// Expected connections per distance bin (sum of connection probabilities).
+    pub expected: Vec<f64>,
+    /// Connections made per distance bin.
+    pub made: Vec<u64>,
+    /// Probability scale c in p(d) = min(1, c f(d)).
+    pub scale: f64,
+}
+
+/// A uniform grid of cells for neighbour search.
+struct CellGrid {
+    origin: [f64; 2],
+    cell: f64,
+    nx: usize,
+    ny: usize,
+    /// Neuron indices sorted by cell; cell k holds start[k]..start[k+1].
+    start: Vec<u32>,
+    order: Vec<u32>,
+}
+
+impl CellGrid {
+    fn new(points: &[[f64; 2]], cell: f64) -> Self {
+        let mut lo = [f64::INFINITY; 2];
+        let mut hi = [f64::NEG_INFINITY; 2];
+        for p in points {
+            for k in 0..2 {
+                lo[k] = lo[k].min(p[k]);
+                hi[k] = hi[k].max(p[k]);
+            }
+        }
+        let nx = (((hi[0] - lo[0]) / cell).floor() as usize + 1).max(1);
+        let ny = (((hi[1] - lo[1]) / cell).floor() as usize + 1).max(1);
+        let key = |p: &[f64; 2]| {
+            let cx = (((p[0] - lo[0]) / cell) as usize).min(nx - 1);
+            let cy = (((p[1] - lo[1]) / cell) as usize).min(ny - 1);
+            cy * nx + cx
+        };
+        let mut counts = vec![0u32; nx * ny + 1];
+        for p in points {
+            counts[key(p) + 1] += 1;
+        }
+        for k in 1..counts.len() {
+            counts[k] += counts[k - 1];
+        }
+        let mut fill = counts.clone();
+        let mut order = vec![0u32; points.len()];
+        for (i, p) in points.iter().enumerate() {
+            let k = key(p);
+            order[fill[k] as usize] = i as u32;
+            fill[k] += 1;
+        }
+        CellGrid { origin: lo, cell, nx, ny, start: counts, order }
+    }
+
+    /// Calls `f(j)` for every point in cells within `radius` of `p`.
+    fn for_near(&self, p: [f64; 2], radius: f64, mut f: impl FnMut(u32)) {
+        let reach = (radius / self.cell).ceil() as isize;
+        let cx = ((p[0] - self.origin[0]) / self.cell).floor() as isize;
+        let cy = ((p[1] - self.origin[1]) / self.cell).floor() as isize;
+        for y in (cy - reach).max(0)..=(cy + reach).min(self.ny as isize - 1) {
+            for x in (cx - reach).max(0)..=(cx + reach).min(self.nx as isize - 1) {
+                let k = y as usize * self.nx + x as usize;
+                for &j in &self.order[self.start[k] as usize..self.start[k + 1] as usize] {
+                    f(j);
+                }
+            }
+        }
+    }
+}
+
+/// Wires the culture. Probabilistic wiring connects i -> j with probability
+/// p(d) = min(1, c f(d / sigma)), c chosen so the expected mean in-degree is `mean_in_degree`
+/// (exactly, summing over the actual pairs, so edges of the pattern are accounted for).
+/// Uniform footprints use geometric skipping over all pairs (O(synapses)). Delays are
+/// `synaptic_delay_s + d / axon_speed_um_s`.
+pub fn wire(
+    positions: &[[f64; 2]],
+    c: &Connectivity,
+    synaptic_delay_s: f64,
+    axon_speed_um_s: f64,
+    rng: &mut ChaCha8Rng,
+) -> (Synapses, WiringCheck) {
+    let n = positions.len();
+    let sigma = c.sigma_um;
+    let delay = |d: f64| (synaptic_delay_s + d / axon_speed_um_s) as f32;
+    let mut incoming: Vec<Vec<(u32, f32)>> = vec![Vec::new(); n]; // per target: (source, weight)
+    let mut check = WiringCheck {
+        bin_um: sigma / 4.0,
+        expected: Vec::new(),
+        made: Vec::new(),
+        scale: 0.0,
+    };
+    if c.footprint == Footprint::Uniform {
+        let p = (c.mean_in_degree / (n.max(2) - 1) as f64).min(1.0);
+        check.scale = p;
+        let total = (n * n) as u64;
+        let ln_q = libm::log(1.0 - p);
+        let mut k: u64 = 0;
+        loop {
+            // Gap to the next success of a Bernoulli(p) sequence: floor(ln U / ln(1 - p)).
+            let skip = if p >= 1.0 { 0 } else { (libm::log(1.0 - uniform(rng)) / ln_q).floor() as u64 };
+            k = k.saturating_add(skip);
+            if k >= total {
+                break;
+            }
+            let (i, j) = ((k / n as u64) as usize, (k % n as u64) as usize);
+            if i != j {
+                incoming[j].push((i as u32, 1.0));
+            }
+            k += 1;
+        }
+    } else {
+        let cutoff = c.footprint.cutoff(sigma);
+        let grid = CellGrid::new(positions, cutoff.max(1e-9));
+        let bins = (cutoff / check.bin_um).ceil() as usize + 1;
+        check.expected = vec![0.0; bins];
+        check.made = vec![0; bins];
+        let scale = if c.weighted {
+            1.0
+        } else {
+            // Pass 1: sum of footprint values over all pairs within the cut-off.
+            let mut total = 0.0;
+            for (j, &pj) in positions.iter().enumerate() {
+                grid.for_near(pj, cutoff, |i| {
+                    let pi = positions[i as usize];
+                    let d = (pi[0] - pj[0]).hypot(pi[1] - pj[1]);
+                    if i as usize != j && d <= cutoff {
+                        total += c.footprint.value(d, sigma);
+                    }
+                });
+            }
+            if total > 0.0 {
+                c.mean_in_degree * n as f64 / total
+            } else {
+                0.0
+            }
+        };
+        check.scale = scale;
+        for (j, &pj) in positions.iter().enumerate() {
+            grid.for_near(pj, cutoff, |i| {
+                if i as usize == j {
+                    return;
+                }
+                let pi = positions[i as usize];
+                let d = (pi[0] - pj[0]).hypot(pi[1] - pj[1]);
+                if d > cutoff {
+                    return;
+                }
+                let f = c.footprint.value(d, sigma);
+                let bin = ((d / check.bin_um) as usize).min(bins - 1);
+                if c.weighted {
+                    if f > 0.0 {
+                        incoming[j].push((i, f as f32));
+                        check.made[bin] += 1;
+                        check.expected[bin] += 1.0;
+                    }
+                } else {
+                    let p = (scale * f).min(1.0);
+                    check.expected[bin] += p;
+                    if uniform(rng) < p {
+                        incoming[j].push((i, 1.0));
+                        check.made[bin] += 1;
+                    }
+                }
+            });
+        }
+    }
+    // Invert to outgoing CSR.
+    let mut out_count = vec![0u32; n + 1];
+    for list in &incoming {
+        for &(i, _) in list {
+            out_count[i as usize + 1] += 1;
+        }
+    }
+    for k in 1..=n {
+        out_count[k] += out_count[k - 1];
+    }
+    let total = out_count[n] as usize;
+    let mut syn = Synapses {
+        offsets: out_count.clone(),
+        targets: vec![0; total],
+        weights: vec![0.0; total],
+        delays: vec![0.0; total],
+    };
+    let mut fill = out_count;
+    for (j, list) in incoming.iter().enumerate() {
+        for &(i, w) in list {
+            let slot = fill[i as usize] as usize;
+            fill[i as usize] += 1;
+            let (pi, pj) = (positions[i as usize], positions[j]);
+            syn.targets[slot] = j as u32;
+            syn.weights[slot] = w;
+            syn.delays[slot] = delay((pi[0] - pj[0]).hypot(pi[1] - pj[1]));
+        }
+    }
+    (syn, check)
+}
+
+/// Graph statistics of the wiring, computed with petgraph.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct GraphStats {
+    pub neurons: usize,
+    pub synapses: usize,
+    pub mean_in_degree: f64,
+    pub in_degree_histogram: Vec<u64>,
+    pub out_degree_histogram: Vec<u64>,
+    /// Connected components of the undirected graph.
+    pub components: usize,
+    /// Fraction of neurons in the largest undirected component.
+    pub giant_component_fraction: f64,
+}
+
+/// Degrees and connected components (ignoring direction) of the wiring.
+pub fn graph_stats(neurons: usize, syn: &Synapses) -> GraphStats {
+    use petgraph::unionfind::UnionFind;
+    let mut uf = UnionFind::<u32>::new(neurons);
+    let mut out_deg = vec![0u32; neurons];
+    for i in 0..neurons {
+        let (a, b) = (syn.offsets[i] as usize, syn.offsets[i + 1] as usize);
+        out_deg[i] = (b - a) as u32;
+        for &t in &syn.targets[a..b] {
+            uf.union(i as u32, t);
+        }
+    }
+    let labels = uf.into_labeling();
+    let mut sizes = std::collections::HashMap::new();
+    for l in labels {
+        *sizes.entry(l).or_insert(0usize) += 1;
+    }
+    let giant = sizes.values().copied().max().unwrap_or(0);
+    let in_deg = syn.in_degrees(neurons);
+    let histogram = |d: &[u32]| {
+        let max = d.iter().copied().max().unwrap_or(0) as usize;
+        let mut h = vec![0u64; max + 1];
+        for &v in d {
+            h[v as usize] += 1;
+        }
+        h
+    };
+    GraphStats {
+        neurons,
+        synapses: syn.count(),
+        mean_in_degree: syn.count() as f64 / neurons.max(1) as f64,
+        in_degree_histogram: histogram(&in_deg),
+        out_degree_histogram: histogram(&out_deg),
+        components: sizes.len(),
+        giant_component_fraction: giant as f64 / neurons.max(1) as f64,
+    }
+}

@@ -1,0 +1,9 @@
+//! A spiking network grown in a pattern: neurons placed at a density, wired by distance,
+//! integrated as leaky integrate-and-fire units with short-term depression, and recorded by
+//! virtual electrodes or calcium imaging, with the ground truth of every front.
+
+pub mod culture;
+pub mod dynamics;
+
+pub use culture::{graph_stats, place_neurons, wire, Connectivity, Footprint, GraphStats, Pattern, Synapses, WiringCheck};
+pub use dynamics::{integrate, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams};
