@@ -340,8 +340,18 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
         .map_err(|_| Failure::Input(format!("{}: expected UTF-8 JSON text", args.scenario)))?;
     let scenario = crate::simulate::parse_scenario(&text)
         .map_err(|e| Failure::Input(format!("{}, {e}", args.scenario)))?;
-    let files = crate::simulate::simulation_files(&scenario)
+    use std::io::IsTerminal;
+    let show = std::io::stderr().is_terminal();
+    let mut progress = |stage: &str, done: f64, total: f64| {
+        if show {
+            eprint!("\r{stage}: {done:.0} of {total:.0} s simulated   ");
+        }
+    };
+    let files = crate::simulate::simulation_files(&scenario, &mut progress)
         .map_err(|e| Failure::Input(format!("{}: {e}", args.scenario)))?;
+    if show {
+        eprintln!();
+    }
     let out = std::path::Path::new(&args.out);
     std::fs::create_dir_all(out).map_err(Failure::Output)?;
     for (name, content) in files {

@@ -13,6 +13,11 @@ pub use models::{
     distance_from_origin, fit_front, model_name, Estimator, FittedFront, FrontModel, FrontPoints,
     FrontSettings, ModelScore, Origin,
 };
+/// Angle of a point seen from a ring track's centre, radians (0 for other tracks).
+pub fn ring_angle_of(track: &Track, p: [f64; 2]) -> f64 {
+    models::ring_angle(track, p)
+}
+
 pub use summary::{
     summarise, DirectionBalance, InitiationCount, PropagationFailure, ReliabilityPoint, Summary,
     ZoneCount,

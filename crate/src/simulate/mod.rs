@@ -25,6 +25,8 @@ use serde::{Deserialize, Serialize};
 pub enum Scenario {
     /// Kinematic fronts drawn onto electrodes.
     Fronts(FrontScenario),
+    /// A spiking network grown in a pattern (see [`network`]).
+    Network(network::NetworkScenario),
 }
 
 /// Reads a scenario from JSON text; the error says what is wrong in the scenario's words.
@@ -34,9 +36,32 @@ pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
 }
 
 /// The files a simulation writes, as (file name, content): `spikes.csv` (times in ms with
-/// two decimals, i.e. a 10 us quantum), `layout.csv` and `truth.json`.
-pub fn simulation_files(scenario: &Scenario) -> Result<Vec<(String, String)>, String> {
+/// two decimals, i.e. a 10 us quantum) and `layout.csv` for electrodes, `traces.csv` and
+/// `roi_layout.csv` for imaging, and `truth.json`. `progress(stage, done, total)` reports
+/// long runs.
+pub fn simulation_files(
+    scenario: &Scenario,
+    progress: &mut dyn FnMut(&str, f64, f64),
+) -> Result<Vec<(String, String)>, String> {
     match scenario {
+        Scenario::Network(s) => {
+            let rec = network::simulate_network(s, progress)?;
+            let mut files = Vec::new();
+            if let Some((sites, spikes)) = &rec.electrodes {
+                files.push((
+                    "spikes.csv".to_string(),
+                    crate::import::write_spike_list_as(spikes, crate::import::TimeUnit::Milliseconds, Some(2)),
+                ));
+                files.push(("layout.csv".to_string(), crate::import::write_layout(sites)));
+            }
+            if let Some((sites, time_s, rois)) = &rec.imaging {
+                files.push(("traces.csv".to_string(), crate::import::write_roi_traces(time_s, rois)));
+                files.push(("roi_layout.csv".to_string(), crate::import::write_layout(sites)));
+            }
+            let truth = serde_json::to_string_pretty(&rec.truth).map_err(|e| e.to_string())? + "\n";
+            files.push(("truth.json".to_string(), truth));
+            Ok(files)
+        }
         Scenario::Fronts(s) => {
             let sim = simulate_fronts(s)?;
             let truth = serde_json::to_string_pretty(&sim.truth).map_err(|e| e.to_string())? + "\n";

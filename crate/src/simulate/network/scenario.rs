@@ -1,0 +1,395 @@
+//! A network scenario from end to end: grow, wire, integrate, record, and work out the truth.
+
+use super::culture::{graph_stats, place_neurons, wire, Connectivity, GraphStats, Pattern};
+use super::dynamics::{integrate, Network, NeuronParams, NoiseParams, Spike, SynapseParams};
+use crate::detect::{detect_bursts, BurstSettings};
+use crate::fronts::{fit_front, model_name, FrontPoints, FrontSettings};
+use crate::import::{RoiSeries, SiteSpikes};
+use crate::recording::Site;
+use crate::simulate::fronts::ElectrodeLayout;
+use crate::simulate::sample::{normal, uniform};
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use serde::{Deserialize, Serialize};
+
+/// Constant drive per neuron, mV: normal with this mean and SD, clipped at 0.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DriveParams {
+    pub mean_mv: f64,
+    pub sd_mv: f64,
+}
+
+/// Virtual electrodes over the culture.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Electrodes {
+    pub layout: ElectrodeLayout,
+    /// Added to every electrode position, micrometres.
+    #[serde(default)]
+    pub offset_um: [f64; 2],
+    /// An electrode hears neurons closer than this, micrometres.
+    pub pickup_radius_um: f64,
+    /// Chance that an electrode registers a spike of a neuron it hears.
+    pub detection_probability: f64,
+    /// Electrodes (counted from 0) that record nothing.
+    #[serde(default)]
+    pub dead: Vec<usize>,
+    /// Spike times are rounded to this sampling rate, Hz.
+    pub sampling_rate_hz: f64,
+}
+
+/// Virtual calcium imaging.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Imaging {
+    /// Number of ROIs, each over one neuron, spread over the culture.
+    pub rois: usize,
+    pub frame_rate_hz: f64,
+    /// Decay time constant of a transient, s.
+    pub decay_s: f64,
+    /// Peak of one spike's transient, as a fraction of baseline (dF/F).
+    pub amplitude: f64,
+    /// Standard deviation of the measurement noise, dF/F.
+    pub noise_sd: f64,
+}
+
+/// Everything that defines a network recording. Potentials in mV above rest, times in s.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NetworkScenario {
+    pub name: String,
+    pub seed: u64,
+    pub duration_s: f64,
+    pub pattern: Pattern,
+    pub density_per_mm2: f64,
+    #[serde(default = "default_excitatory")]
+    pub excitatory_fraction: f64,
+    pub connectivity: Connectivity,
+    #[serde(default = "default_synaptic_delay")]
+    pub synaptic_delay_s: f64,
+    #[serde(default = "default_axon_speed")]
+    pub axon_speed_mm_s: f64,
+    pub neuron: NeuronParams,
+    pub drive: DriveParams,
+    pub noise: NoiseParams,
+    pub synapse: SynapseParams,
+    #[serde(default)]
+    pub electrodes: Option<Electrodes>,
+    #[serde(default)]
+    pub imaging: Option<Imaging>,
+}
+
+fn default_excitatory() -> f64 {
+    0.8
+}
+fn default_synaptic_delay() -> f64 {
+    1e-3
+}
+fn default_axon_speed() -> f64 {
+    300.0
+}
+
+/// The ground truth of one burst, from the first spikes of neurons across the culture.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct NetworkTruthBurst {
+    pub start_s: f64,
+    pub end_s: f64,
+    /// Neurons that fired in the burst.
+    pub neurons_active: usize,
+    /// Front fitted to the first spikes of up to 400 neurons spread over the culture.
+    pub model: Option<String>,
+    pub speed_mm_s: Option<f64>,
+    pub origin_along_um: Option<f64>,
+    pub origin_angle_deg: Option<f64>,
+    pub origin_xy_um: Option<[f64; 2]>,
+    pub direction_xy: Option<[f64; 2]>,
+    pub rotation: Option<String>,
+    pub no_front_reason: Option<String>,
+}
+
+/// Ground truth and bookkeeping of a network run.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct NetworkTruth {
+    pub model: String,
+    pub scenario: NetworkScenario,
+    pub neurons: usize,
+    pub graph: GraphStats,
+    pub spikes: usize,
+    pub synaptic_events: u64,
+    pub mean_rate_hz: f64,
+    pub bursts: Vec<NetworkTruthBurst>,
+}
+
+/// What a network run gives.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NetworkRecording {
+    pub positions: Vec<[f64; 2]>,
+    pub spikes: Vec<Spike>,
+    /// Electrode sites and their spikes, when the scenario has electrodes.
+    pub electrodes: Option<(Vec<Site>, Vec<SiteSpikes>)>,
+    /// ROI sites, frame times and traces, when the scenario has imaging.
+    pub imaging: Option<(Vec<Site>, Vec<f64>, Vec<RoiSeries>)>,
+    pub truth: NetworkTruth,
+}
+
+/// Checks a scenario; the message names the field.
+pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
+    for (name, v) in [
+        ("duration_s", s.duration_s),
+        ("density_per_mm2", s.density_per_mm2),
+        ("connectivity.sigma_um", s.connectivity.sigma_um),
+        ("synaptic_delay_s", s.synaptic_delay_s),
+        ("axon_speed_mm_s", s.axon_speed_mm_s),
+        ("neuron.tau_m_s", s.neuron.tau_m_s),
+        ("neuron.threshold_mv", s.neuron.threshold_mv),
+    ] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(format!("{name}: expected a number above 0, found {v}"));
+        }
+    }
+    if !(0.0..=1.0).contains(&s.excitatory_fraction) {
+        return Err(format!("excitatory_fraction: expected 0 to 1, found {}", s.excitatory_fraction));
+    }
+    if s.neuron.reset_mv >= s.neuron.threshold_mv {
+        return Err("neuron.reset_mv: expected a reset below the threshold".into());
+    }
+    let neurons = s.density_per_mm2 * s.pattern.area_mm2();
+    if neurons > 2e6 {
+        return Err(format!("the pattern would hold {neurons:.0} neurons, more than the 2 million allowed"));
+    }
+    let synapses = neurons * s.connectivity.mean_in_degree;
+    if synapses > 1.2e8 {
+        return Err(format!("the wiring would make {synapses:.0} synapses, more than the 120 million allowed"));
+    }
+    if let Some(e) = &s.electrodes {
+        if !(0.0..=1.0).contains(&e.detection_probability) {
+            return Err("electrodes.detection_probability: expected 0 to 1".into());
+        }
+        if !(e.sampling_rate_hz > 0.0 && e.pickup_radius_um > 0.0) {
+            return Err("electrodes: sampling_rate_hz and pickup_radius_um must be above 0".into());
+        }
+    }
+    if let Some(i) = &s.imaging {
+        if !(i.frame_rate_hz > 0.0 && i.decay_s > 0.0 && i.noise_sd >= 0.0) {
+            return Err("imaging: frame_rate_hz and decay_s must be above 0, noise_sd 0 or more".into());
+        }
+    }
+    Ok(())
+}
+
+/// Runs a network scenario. `progress(stage, done, total)` reports the integration in
+/// simulated seconds. The same scenario gives the same recording on every platform.
+pub fn simulate_network(
+    s: &NetworkScenario,
+    progress: &mut dyn FnMut(&str, f64, f64),
+) -> Result<NetworkRecording, String> {
+    check_network_scenario(s)?;
+    let mut rng = ChaCha8Rng::seed_from_u64(s.seed);
+    let count = (s.density_per_mm2 * s.pattern.area_mm2()).round() as usize;
+    let positions = place_neurons(&s.pattern, count, &mut rng);
+    let n = positions.len();
+    if n < 2 {
+        return Err("the pattern holds fewer than two neurons at this density".into());
+    }
+    let excitatory: Vec<bool> = (0..n).map(|_| uniform(&mut rng) < s.excitatory_fraction).collect();
+    let drive: Vec<f64> = (0..n)
+        .map(|_| (s.drive.mean_mv + s.drive.sd_mv * normal(&mut rng)).max(0.0))
+        .collect();
+    progress("wiring", 0.0, 1.0);
+    let (synapses, _) = wire(&positions, &s.connectivity, s.synaptic_delay_s, s.axon_speed_mm_s * 1e3, &mut rng);
+    let graph = graph_stats(n, &synapses);
+    let net = Network {
+        synapses: &synapses,
+        excitatory: &excitatory,
+        drive_mv: &drive,
+        neuron: &s.neuron,
+        synapse: &s.synapse,
+        noise: &s.noise,
+    };
+    let duration = s.duration_s;
+    let run = integrate(&net, duration, &[], &mut rng, &mut |t| progress("integrating", t, duration));
+    drop(synapses);
+
+    let mut trains: Vec<Vec<f64>> = vec![Vec::new(); n];
+    for sp in &run.spikes {
+        trains[sp.neuron as usize].push(sp.time_s);
+    }
+    let bursts = truth_bursts(s, &positions, &trains);
+    let electrodes = s.electrodes.as_ref().map(|e| record_electrodes(e, &positions, &trains, &mut rng));
+    let imaging = s.imaging.as_ref().map(|i| record_imaging(i, duration, &positions, &trains, &mut rng));
+    let spikes = run.spikes.len();
+    Ok(NetworkRecording {
+        positions,
+        spikes: run.spikes,
+        electrodes,
+        imaging,
+        truth: NetworkTruth {
+            model: "network".into(),
+            scenario: s.clone(),
+            neurons: n,
+            graph,
+            spikes,
+            synaptic_events: run.synaptic_events,
+            mean_rate_hz: spikes as f64 / n as f64 / duration,
+            bursts,
+        },
+    })
+}
+
+/// Bursts of the whole population and the front of each, fitted to neurons' first spikes.
+fn truth_bursts(s: &NetworkScenario, positions: &[[f64; 2]], trains: &[Vec<f64>]) -> Vec<NetworkTruthBurst> {
+    let track = s.pattern.track();
+    let settings = BurstSettings::default();
+    let bursts = detect_bursts(trains, &settings);
+    let stride = (positions.len() / 400).max(1);
+    let sample: Vec<usize> = (0..positions.len()).step_by(stride).collect();
+    let front_settings = FrontSettings {
+        resamples: 200,
+        min_sites: 8,
+        ..FrontSettings::default()
+    };
+    bursts
+        .iter()
+        .enumerate()
+        .map(|(k, b)| {
+            let mut points = FrontPoints {
+                site: Vec::new(),
+                along_um: Vec::new(),
+                angle_rad: Vec::new(),
+                xy_um: Vec::new(),
+                t_s: Vec::new(),
+            };
+            for &i in &sample {
+                let t = &trains[i];
+                let a = t.partition_point(|&x| x < b.start_s - 0.05);
+                if let Some(&first) = t.get(a).filter(|&&x| x <= b.end_s) {
+                    let p = positions[i];
+                    points.site.push(i);
+                    points.along_um.push(track.project(p).map_or(0.0, |q| q.along_um));
+                    points.angle_rad.push(crate::fronts::ring_angle_of(&track, p));
+                    points.xy_um.push(p);
+                    points.t_s.push(first);
+                }
+            }
+            let fit = fit_front(&points, &track, &front_settings, s.seed.wrapping_add(k as u64), Some(1e-6));
+            let (model, speed, origin, direction, rotation, reason) = match fit {
+                Ok(f) => (Some(model_name(f.model).to_string()), Some(f.speed_mm_s), Some(f.origin), f.direction_xy, f.rotation, None),
+                Err(r) => (None, None, None, None, None, Some(r)),
+            };
+            use crate::fronts::Origin;
+            NetworkTruthBurst {
+                start_s: b.start_s,
+                end_s: b.end_s,
+                neurons_active: b.sites.len(),
+                model,
+                speed_mm_s: speed,
+                origin_along_um: match origin {
+                    Some(Origin::Along { along_um }) => Some(along_um),
+                    _ => None,
+                },
+                origin_angle_deg: match origin {
+                    Some(Origin::Angle { angle_rad }) => Some(angle_rad.to_degrees()),
+                    _ => None,
+                },
+                origin_xy_um: match origin {
+                    Some(Origin::Point { xy_um }) => Some(xy_um),
+                    _ => None,
+                },
+                direction_xy: direction,
+                rotation,
+                no_front_reason: reason,
+            }
+        })
+        .collect()
+}
+
+fn electrode_positions(layout: &ElectrodeLayout, offset: [f64; 2]) -> Vec<[f64; 2]> {
+    let nominal: Vec<[f64; 2]> = match *layout {
+        ElectrodeLayout::Row { count, pitch_um, angle_deg } => {
+            let a = angle_deg.to_radians();
+            (0..count)
+                .map(|i| [i as f64 * pitch_um * libm::cos(a), i as f64 * pitch_um * libm::sin(a)])
+                .collect()
+        }
+        ElectrodeLayout::Circle { count, radius_um } => (0..count)
+            .map(|i| {
+                let a = std::f64::consts::TAU * i as f64 / count as f64;
+                [radius_um * libm::cos(a), radius_um * libm::sin(a)]
+            })
+            .collect(),
+        ElectrodeLayout::Grid { rows, columns, pitch_um } => (0..rows)
+            .flat_map(|r| (0..columns).map(move |c| [c as f64 * pitch_um, r as f64 * pitch_um]))
+            .collect(),
+    };
+    nominal.iter().map(|p| [p[0] + offset[0], p[1] + offset[1]]).collect()
+}
+
+fn record_electrodes(
+    e: &Electrodes,
+    positions: &[[f64; 2]],
+    trains: &[Vec<f64>],
+    rng: &mut ChaCha8Rng,
+) -> (Vec<Site>, Vec<SiteSpikes>) {
+    let at = electrode_positions(&e.layout, e.offset_um);
+    let fs = e.sampling_rate_hz;
+    let mut sites = Vec::with_capacity(at.len());
+    let mut spikes = Vec::with_capacity(at.len());
+    for (k, p) in at.iter().enumerate() {
+        let id = format!("e{:02}", k + 1);
+        sites.push(Site { id: id.clone(), x_um: p[0], y_um: p[1] });
+        let mut times = Vec::new();
+        if !e.dead.contains(&k) {
+            for (i, q) in positions.iter().enumerate() {
+                if (q[0] - p[0]).hypot(q[1] - p[1]) <= e.pickup_radius_um {
+                    for &t in &trains[i] {
+                        if uniform(rng) < e.detection_probability {
+                            times.push((t * fs).round() / fs);
+                        }
+                    }
+                }
+            }
+        }
+        times.sort_by(f64::total_cmp);
+        times.dedup();
+        spikes.push(SiteSpikes { site: id, times_s: times });
+    }
+    (sites, spikes)
+}
+
+fn record_imaging(
+    im: &Imaging,
+    duration: f64,
+    positions: &[[f64; 2]],
+    trains: &[Vec<f64>],
+    rng: &mut ChaCha8Rng,
+) -> (Vec<Site>, Vec<f64>, Vec<RoiSeries>) {
+    let n = positions.len();
+    let rois = im.rois.min(n).max(1);
+    let stride = (n / rois).max(1);
+    let frames = (duration * im.frame_rate_hz).floor() as usize;
+    let time_s: Vec<f64> = (0..frames).map(|k| k as f64 / im.frame_rate_hz).collect();
+    let mut sites = Vec::with_capacity(rois);
+    let mut series = Vec::with_capacity(rois);
+    for r in 0..rois {
+        let i = r * stride;
+        let id = format!("r{:03}", r + 1);
+        sites.push(Site { id: id.clone(), x_um: positions[i][0], y_um: positions[i][1] });
+        let mut values = vec![0.0f64; frames];
+        // Sum of decaying transients, evaluated frame by frame with one running sum.
+        let decay = libm::exp(-1.0 / (im.frame_rate_hz * im.decay_s));
+        let mut level = 0.0;
+        let mut next = 0;
+        let spikes = &trains[i];
+        for (k, t) in time_s.iter().enumerate() {
+            level *= if k > 0 { decay } else { 1.0 };
+            while next < spikes.len() && spikes[next] <= *t {
+                level += im.amplitude * libm::exp(-(t - spikes[next]) / im.decay_s);
+                next += 1;
+            }
+            values[k] = 1.0 + level + im.noise_sd * normal(rng);
+        }
+        series.push(RoiSeries { roi: id, values });
+    }
+    (sites, time_s, series)
+}
