@@ -799,7 +799,8 @@ pub fn fit_front(
                     .iter()
                     .map(|s| (s - origin_s).abs())
                     .collect(),
-                Some([sign * direction[0], sign * direction[1]]),
+                // + 0.0 turns -0.0 into 0.0.
+                Some([sign * direction[0] + 0.0, sign * direction[1] + 0.0]),
                 Some(up),
             )
         }

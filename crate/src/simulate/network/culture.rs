@@ -131,6 +131,31 @@ pub fn place_neurons(pattern: &Pattern, count: usize, rng: &mut ChaCha8Rng) -> V
     out
 }
 
+/// Orders neurons along a Z-order (Morton) curve over `cell_um` cells, so that neurons close
+/// in space are close in memory: a spike's targets then sit together, which keeps the
+/// integrator's state accesses in cache.
+pub fn sort_spatially(positions: &mut [[f64; 2]], cell_um: f64) {
+    let (mut lo_x, mut lo_y) = (f64::INFINITY, f64::INFINITY);
+    for p in positions.iter() {
+        lo_x = lo_x.min(p[0]);
+        lo_y = lo_y.min(p[1]);
+    }
+    let spread = |v: u32| -> u64 {
+        let mut x = u64::from(v) & 0xffff_ffff;
+        x = (x | (x << 16)) & 0x0000_ffff_0000_ffff;
+        x = (x | (x << 8)) & 0x00ff_00ff_00ff_00ff;
+        x = (x | (x << 4)) & 0x0f0f_0f0f_0f0f_0f0f;
+        x = (x | (x << 2)) & 0x3333_3333_3333_3333;
+        (x | (x << 1)) & 0x5555_5555_5555_5555
+    };
+    let key = |p: &[f64; 2]| {
+        let cx = ((p[0] - lo_x) / cell_um) as u32;
+        let cy = ((p[1] - lo_y) / cell_um) as u32;
+        spread(cx) | (spread(cy) << 1)
+    };
+    positions.sort_by(|a, b| key(a).cmp(&key(b)).then(a[0].total_cmp(&b[0])).then(a[1].total_cmp(&b[1])));
+}
+
 /// Shape of the connection probability (or weight) against distance.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -173,6 +198,43 @@ impl Footprint {
             Footprint::Step => sigma,
             Footprint::Uniform => f64::INFINITY,
         }
+    }
+}
+
+/// The footprint tabulated against squared distance (4097 points over [0, cutoff^2], linear
+/// interpolation), so wiring needs neither a square root nor an exponential per pair. The
+/// table is built with `libm`, so it is the same on every platform; its relative error is
+/// under 1e-6 of the footprint's peak.
+struct FootprintTable {
+    step: f64,
+    values: Vec<f64>,
+    cutoff_sq: f64,
+}
+
+impl FootprintTable {
+    fn new(footprint: Footprint, sigma: f64, cutoff: f64) -> Self {
+        const POINTS: usize = 4096;
+        let cutoff_sq = cutoff * cutoff;
+        let step = cutoff_sq / POINTS as f64;
+        let values = (0..=POINTS)
+            .map(|k| footprint.value(libm::sqrt(k as f64 * step), sigma))
+            .collect();
+        FootprintTable { step, values, cutoff_sq }
+    }
+
+    /// Footprint at squared distance `d2` (0 beyond the cut-off).
+    fn at(&self, footprint: Footprint, sigma: f64, d2: f64) -> f64 {
+        if d2 > self.cutoff_sq {
+            return 0.0;
+        }
+        if footprint == Footprint::Step {
+            // A step has no slope to interpolate: evaluate it exactly.
+            return footprint.value(libm::sqrt(d2), sigma);
+        }
+        let x = d2 / self.step;
+        let k = (x as usize).min(self.values.len() - 2);
+        let f = x - k as f64;
+        self.values[k] + f * (self.values[k + 1] - self.values[k])
     }
 }
 
@@ -336,7 +398,10 @@ pub fn wire(
         }
     } else {
         let cutoff = c.footprint.cutoff(sigma);
-        let grid = CellGrid::new(positions, cutoff.max(1e-9));
+        let table = FootprintTable::new(c.footprint, sigma, cutoff);
+        // Cells half the cut-off wide: the 5 x 5 cells around a neuron cover less area than
+        // 3 x 3 cells of the full cut-off.
+        let grid = CellGrid::new(positions, (cutoff / 2.0).max(1e-9));
         let bins = (cutoff / check.bin_um).ceil() as usize + 1;
         check.expected = vec![0.0; bins];
         check.made = vec![0; bins];
@@ -348,9 +413,9 @@ pub fn wire(
             for (j, &pj) in positions.iter().enumerate() {
                 grid.for_near(pj, cutoff, |i| {
                     let pi = positions[i as usize];
-                    let d = (pi[0] - pj[0]).hypot(pi[1] - pj[1]);
-                    if i as usize != j && d <= cutoff {
-                        total += c.footprint.value(d, sigma);
+                    let (dx, dy) = (pi[0] - pj[0], pi[1] - pj[1]);
+                    if i as usize != j {
+                        total += table.at(c.footprint, sigma, dx * dx + dy * dy);
                     }
                 });
             }
@@ -367,12 +432,13 @@ pub fn wire(
                     return;
                 }
                 let pi = positions[i as usize];
-                let d = (pi[0] - pj[0]).hypot(pi[1] - pj[1]);
-                if d > cutoff {
+                let (dx, dy) = (pi[0] - pj[0], pi[1] - pj[1]);
+                let d2 = dx * dx + dy * dy;
+                if d2 > table.cutoff_sq {
                     return;
                 }
-                let f = c.footprint.value(d, sigma);
-                let bin = ((d / check.bin_um) as usize).min(bins - 1);
+                let f = table.at(c.footprint, sigma, d2);
+                let bin = ((libm::sqrt(d2) / check.bin_um) as usize).min(bins - 1);
                 if c.weighted {
                     if f > 0.0 {
                         incoming[j].push((i, f as f32));

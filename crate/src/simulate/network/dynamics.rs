@@ -70,14 +70,39 @@ pub struct Run {
     pub synaptic_events: u64,
 }
 
+/// A scheduled event, 16 bytes: its time, the target with the event kind in the top two
+/// bits, and a payload (the weight in mV as f32 bits, or a state version for a crossing).
 #[derive(Clone, Copy)]
 struct Event {
     time: f64,
-    target: u32,
-    /// Version of the target's state for a drive crossing; unused otherwise.
-    version: u32,
-    weight: f32,
-    kind: u8,
+    target_kind: u32,
+    payload: u32,
+}
+
+const ARRIVAL: u32 = 0;
+const NOISE: u32 = 1;
+const CROSSING: u32 = 2;
+const FORCED: u32 = 3;
+const KIND_SHIFT: u32 = 30;
+const TARGET_MASK: u32 = (1 << KIND_SHIFT) - 1;
+
+impl Event {
+    fn new(time: f64, target: u32, kind: u32, payload: u32) -> Self {
+        Event {
+            time,
+            target_kind: target | (kind << KIND_SHIFT),
+            payload,
+        }
+    }
+    fn target(&self) -> usize {
+        (self.target_kind & TARGET_MASK) as usize
+    }
+    fn kind(&self) -> u32 {
+        self.target_kind >> KIND_SHIFT
+    }
+    fn weight(&self) -> f64 {
+        f64::from(f32::from_bits(self.payload))
+    }
 }
 
 /// Events too far ahead for the ring, earliest first.
@@ -100,18 +125,12 @@ impl Ord for Far {
     }
 }
 
-const ARRIVAL: u8 = 0;
-const NOISE: u8 = 1;
-const CROSSING: u8 = 2;
-
+/// The membrane state every event touches, kept together for the cache.
 #[derive(Clone, Copy)]
-struct State {
+struct Membrane {
     v: f64,
     last: f64,
     refractory_until: f64,
-    resources: f64,
-    last_spike: f64,
-    version: u32,
 }
 
 /// Everything the integrator needs.
@@ -125,6 +144,41 @@ pub struct Network<'a> {
     pub noise: &'a NoiseParams,
 }
 
+/// The ring of delivery buckets plus a heap for events beyond it.
+struct Queue {
+    width: f64,
+    buckets: Vec<Vec<Event>>,
+    far: BinaryHeap<Far>,
+}
+
+impl Queue {
+    fn bucket_of(&self, t: f64) -> u64 {
+        (t / self.width).floor() as u64
+    }
+
+    /// Schedules `e` while bucket `now` is being processed (events never go before it).
+    fn push(&mut self, now: u64, e: Event) {
+        let ring = self.buckets.len() as u64;
+        let b = self.bucket_of(e.time).max(now);
+        if b < now + ring - 1 {
+            self.buckets[(b % ring) as usize].push(e);
+        } else {
+            self.far.push(Far(e));
+        }
+    }
+
+    /// Moves heap events whose buckets have come within the ring's reach.
+    fn pull_near(&mut self, now: u64) {
+        let ring = self.buckets.len() as u64;
+        while self.far.peek().is_some_and(|f| self.bucket_of(f.0.time) < now + ring - 1) {
+            if let Some(Far(e)) = self.far.pop() {
+                let b = self.bucket_of(e.time).max(now);
+                self.buckets[(b % ring) as usize].push(e);
+            }
+        }
+    }
+}
+
 /// Integrates the network from t = 0 (all neurons at rest, full resources) to `duration_s`.
 /// `forced` spikes are imposed (neuron, time), for example to start a front. `progress`
 /// gets the simulated time after each simulated second.
@@ -136,125 +190,115 @@ pub fn integrate(
     progress: &mut dyn FnMut(f64),
 ) -> Run {
     let n = net.drive_mv.len();
-    let min_delay = net.synapses.delays.iter().copied().fold(f32::INFINITY, f32::min) as f64;
-    let max_delay = net.synapses.delays.iter().copied().fold(0.0f32, f32::max) as f64;
+    let p = net.neuron;
+    let syn = net.synapses;
+    let min_delay = syn.delays.iter().copied().fold(f32::INFINITY, f32::min) as f64;
+    let max_delay = syn.delays.iter().copied().fold(0.0f32, f32::max) as f64;
     let width = if min_delay.is_finite() { min_delay.min(1e-4) } else { 1e-4 };
     // The ring spans at least a second, so nearly every noise kick fits in it; the rest wait
-    // in a heap.
-    let ring = (((max_delay.max(1.0)) / width).ceil() as usize + 2).max(2);
-    let mut buckets: Vec<Vec<Event>> = vec![Vec::new(); ring];
-    let mut far: BinaryHeap<Far> = BinaryHeap::new();
-    let p = net.neuron;
-    let mut state = vec![
-        State {
+    // in the heap.
+    let ring = ((max_delay.max(1.0) / width).ceil() as usize + 2).max(2);
+    let mut q = Queue {
+        width,
+        buckets: vec![Vec::new(); ring],
+        far: BinaryHeap::new(),
+    };
+    let mut membrane = vec![
+        Membrane {
             v: 0.0,
             last: 0.0,
             refractory_until: f64::NEG_INFINITY,
-            resources: 1.0,
-            last_spike: f64::NEG_INFINITY,
-            version: 0,
         };
         n
     ];
-    let bucket_of = |t: f64| (t / width).floor() as u64;
-    let schedule = |buckets: &mut Vec<Vec<Event>>, far: &mut BinaryHeap<Far>, now_bucket: u64, e: Event| {
-        let b = bucket_of(e.time);
-        if b < now_bucket + ring as u64 - 1 {
-            buckets[(b.max(now_bucket) % ring as u64) as usize].push(e);
-        } else {
-            far.push(Far(e));
-        }
-    };
-    // Initial noise kicks and drive crossings.
+    let mut resources = vec![1.0f64; n];
+    let mut last_spike = vec![f64::NEG_INFINITY; n];
+    let mut version = vec![0u32; n];
+    // Only neurons driven above threshold can cross it without input.
+    let self_firing: Vec<bool> = net.drive_mv.iter().map(|&d| d > p.threshold_mv).collect();
+    let noise_mean = if net.noise.rate_hz > 0.0 { 1.0 / net.noise.rate_hz } else { f64::INFINITY };
+    let noise_bits = (net.noise.amplitude_mv as f32).to_bits();
     for j in 0..n {
         if net.noise.rate_hz > 0.0 {
-            let t = exponential(rng, 1.0 / net.noise.rate_hz);
+            let t = exponential(rng, noise_mean);
             if t < duration_s {
-                schedule(&mut buckets, &mut far, 0, Event { time: t, target: j as u32, version: 0, weight: net.noise.amplitude_mv as f32, kind: NOISE });
+                q.push(0, Event::new(t, j as u32, NOISE, noise_bits));
             }
         }
         if let Some(t) = crossing_time(0.0, 0.0, net.drive_mv[j], p) {
             if t < duration_s {
-                schedule(&mut buckets, &mut far, 0, Event { time: t, target: j as u32, version: 0, weight: 0.0, kind: CROSSING });
+                q.push(0, Event::new(t, j as u32, CROSSING, 0));
             }
         }
     }
     for &(j, t) in forced {
-        schedule(&mut buckets, &mut far, 0, Event { time: t, target: j, version: u32::MAX, weight: f32::INFINITY, kind: ARRIVAL });
+        q.push(0, Event::new(t, j, FORCED, 0));
     }
     let mut spikes: Vec<Spike> = Vec::new();
     let mut synaptic_events = 0u64;
-    let total_buckets = bucket_of(duration_s) + 1;
+    let total_buckets = q.bucket_of(duration_s) + 1;
     let mut next_report = 1.0;
-    let mut current: Vec<Event> = Vec::new();
+    // Each bucket is taken out when its time comes and its memory freed after, so the ring
+    // holds only the events in flight, not every bucket at its largest.
     for b in 0..total_buckets {
-        // Bring far events into the ring as their buckets come within reach.
-        while far.peek().is_some_and(|f| bucket_of(f.0.time) < b + ring as u64 - 1) {
-            if let Some(Far(e)) = far.pop() {
-                buckets[(bucket_of(e.time).max(b) % ring as u64) as usize].push(e);
-            }
-        }
-        std::mem::swap(&mut current, &mut buckets[(b % ring as u64) as usize]);
-        for e in current.drain(..) {
+        q.pull_near(b);
+        let slot = (b % ring as u64) as usize;
+        let current = std::mem::take(&mut q.buckets[slot]);
+        for e in &current {
             if e.time >= duration_s {
                 continue;
             }
-            let j = e.target as usize;
-            let s = &mut state[j];
-            let mut fire = false;
-            match e.kind {
-                NOISE => {
-                    let next = e.time + exponential(rng, 1.0 / net.noise.rate_hz);
-                    if next < duration_s {
-                        schedule(&mut buckets, &mut far, b, Event { time: next, ..e });
-                    }
-                    fire = apply_input(s, e.time, e.weight as f64, net.drive_mv[j], p);
-                }
+            let j = e.target();
+            let fire = match e.kind() {
                 ARRIVAL => {
-                    if e.version != u32::MAX {
-                        synaptic_events += 1;
-                    }
-                    fire = apply_input(s, e.time, e.weight as f64, net.drive_mv[j], p);
+                    synaptic_events += 1;
+                    apply_input(&mut membrane[j], e.time, e.weight(), net.drive_mv[j], p)
                 }
-                _ => {
-                    if e.version == s.version && e.time >= s.refractory_until {
-                        fire = true;
+                NOISE => {
+                    let next = e.time + exponential(rng, noise_mean);
+                    if next < duration_s {
+                        q.push(b, Event::new(next, j as u32, NOISE, noise_bits));
                     }
+                    apply_input(&mut membrane[j], e.time, e.weight(), net.drive_mv[j], p)
                 }
-            }
+                CROSSING => e.payload == version[j] && e.time >= membrane[j].refractory_until,
+                _ => e.time >= membrane[j].refractory_until,
+            };
             if !fire {
-                // The drive may carry the neuron over threshold later: schedule that.
-                if e.kind != CROSSING {
-                    s.version = s.version.wrapping_add(1);
-                    if let Some(t) = crossing_time(s.v, s.last, net.drive_mv[j], p) {
+                if self_firing[j] && e.kind() != CROSSING {
+                    // The input moved the potential: the drive's crossing comes at a new time.
+                    version[j] = version[j].wrapping_add(1);
+                    let m = membrane[j];
+                    if let Some(t) = crossing_time(m.v, m.last, net.drive_mv[j], p) {
                         if t < duration_s {
-                            let version = s.version;
-                            schedule(&mut buckets, &mut far, b, Event { time: t, target: j as u32, version, weight: 0.0, kind: CROSSING });
+                            q.push(b, Event::new(t, j as u32, CROSSING, version[j]));
                         }
                     }
                 }
                 continue;
             }
-            // Spike at e.time.
-            let t = e.time.max(s.last);
+            // Spike at e.time (or at the state's own time when a late-ordered arrival fired it).
+            let m = &mut membrane[j];
+            let t = e.time.max(m.last);
             spikes.push(Spike { time_s: t, neuron: j as u32 });
-            s.version = s.version.wrapping_add(1);
-            s.v = p.reset_mv;
-            s.refractory_until = t + p.refractory_s;
-            s.last = s.refractory_until;
+            version[j] = version[j].wrapping_add(1);
+            m.v = p.reset_mv;
+            m.refractory_until = t + p.refractory_s;
+            m.last = m.refractory_until;
             let efficacy = if net.synapse.depression_u > 0.0 {
-                let x = 1.0 - (1.0 - s.resources) * libm::exp(-(t - s.last_spike) / net.synapse.recovery_s);
+                let x = 1.0 - (1.0 - resources[j]) * libm::exp(-(t - last_spike[j]) / net.synapse.recovery_s);
                 let used = net.synapse.depression_u * x;
-                s.resources = x - used;
+                resources[j] = x - used;
                 used
             } else {
                 1.0
             };
-            s.last_spike = t;
-            if let Some(tc) = crossing_time(p.reset_mv, s.refractory_until, net.drive_mv[j], p) {
-                if tc < duration_s {
-                    let version = s.version;
-                    schedule(&mut buckets, &mut far, b, Event { time: tc, target: j as u32, version, weight: 0.0, kind: CROSSING });
+            last_spike[j] = t;
+            if self_firing[j] {
+                if let Some(tc) = crossing_time(p.reset_mv, m.refractory_until, net.drive_mv[j], p) {
+                    if tc < duration_s {
+                        q.push(b, Event::new(tc, j as u32, CROSSING, version[j]));
+                    }
                 }
             }
             let jump = if net.excitatory[j] {
@@ -262,26 +306,16 @@ pub fn integrate(
             } else {
                 -net.synapse.inhibitory_mv
             };
-            let (a, z) = (net.synapses.offsets[j] as usize, net.synapses.offsets[j + 1] as usize);
+            let (a, z) = (syn.offsets[j] as usize, syn.offsets[j + 1] as usize);
             for k in a..z {
-                let arrival = t + net.synapses.delays[k] as f64;
+                let arrival = t + f64::from(syn.delays[k]);
                 if arrival < duration_s {
-                    let ev = Event {
-                        time: arrival,
-                        target: net.synapses.targets[k],
-                        version: 0,
-                        weight: (jump * net.synapses.weights[k] as f64) as f32,
-                        kind: ARRIVAL,
-                    };
-                    let bk = bucket_of(arrival);
-                    if bk < b + ring as u64 - 1 {
-                        buckets[(bk.max(b + 1) % ring as u64) as usize].push(ev);
-                    } else {
-                        far.push(Far(ev));
-                    }
+                    let w = (jump * f64::from(syn.weights[k])) as f32;
+                    q.push(b + 1, Event::new(arrival, syn.targets[k], ARRIVAL, w.to_bits()));
                 }
             }
         }
+        drop(current);
         let now = (b + 1) as f64 * width;
         if now >= next_report {
             progress(now.min(duration_s));
@@ -293,13 +327,9 @@ pub fn integrate(
 }
 
 /// Applies an input of `weight` mV at time `t`; returns whether the neuron reaches threshold.
-/// An infinite weight forces a spike (imposed spikes).
-fn apply_input(s: &mut State, t: f64, weight: f64, drive: f64, p: &NeuronParams) -> bool {
+fn apply_input(s: &mut Membrane, t: f64, weight: f64, drive: f64, p: &NeuronParams) -> bool {
     if t < s.refractory_until {
         return false;
-    }
-    if weight.is_infinite() {
-        return true;
     }
     if t >= s.last {
         s.v = drive + (s.v - drive) * libm::exp(-(t - s.last) / p.tau_m_s);

@@ -1,6 +1,6 @@
 //! A network scenario from end to end: grow, wire, integrate, record, and work out the truth.
 
-use super::culture::{graph_stats, place_neurons, wire, Connectivity, GraphStats, Pattern};
+use super::culture::{graph_stats, place_neurons, sort_spatially, wire, Connectivity, GraphStats, Pattern};
 use super::dynamics::{integrate, Network, NeuronParams, NoiseParams, Spike, SynapseParams};
 use crate::detect::{detect_bursts, BurstSettings};
 use crate::fronts::{fit_front, model_name, FrontPoints, FrontSettings};
@@ -97,7 +97,7 @@ pub struct NetworkTruthBurst {
     pub end_s: f64,
     /// Neurons that fired in the burst.
     pub neurons_active: usize,
-    /// Front fitted to the first spikes of up to 400 neurons spread over the culture.
+    /// Front fitted to the first spikes of about 200 neurons spread over the culture.
     pub model: Option<String>,
     pub speed_mm_s: Option<f64>,
     pub origin_along_um: Option<f64>,
@@ -187,7 +187,8 @@ pub fn simulate_network(
     check_network_scenario(s)?;
     let mut rng = ChaCha8Rng::seed_from_u64(s.seed);
     let count = (s.density_per_mm2 * s.pattern.area_mm2()).round() as usize;
-    let positions = place_neurons(&s.pattern, count, &mut rng);
+    let mut positions = place_neurons(&s.pattern, count, &mut rng);
+    sort_spatially(&mut positions, s.connectivity.sigma_um);
     let n = positions.len();
     if n < 2 {
         return Err("the pattern holds fewer than two neurons at this density".into());
@@ -242,7 +243,7 @@ fn truth_bursts(s: &NetworkScenario, positions: &[[f64; 2]], trains: &[Vec<f64>]
     let track = s.pattern.track();
     let settings = BurstSettings::default();
     let bursts = detect_bursts(trains, &settings);
-    let stride = (positions.len() / 400).max(1);
+    let stride = (positions.len() / 200).max(1);
     let sample: Vec<usize> = (0..positions.len()).step_by(stride).collect();
     let front_settings = FrontSettings {
         resamples: 200,
