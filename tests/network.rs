@@ -8,18 +8,13 @@
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use ringline::simulate::network::{
-    graph_stats, integrate, place_neurons, wire, Connectivity, Footprint, Network, NeuronParams, NoiseParams, Pattern, Synapses,
-    SynapseParams,
+    graph_stats, integrate, place_neurons, wire, Connectivity, Footprint, Network, NeuronParams,
+    NoiseParams, Pattern, SynapseParams, Synapses,
 };
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
 fn no_synapses(n: usize) -> Synapses {
-    Synapses {
-        offsets: vec![0; n + 1],
-        targets: vec![],
-        weights: vec![],
-        delays: vec![],
-    }
+    Synapses::none(n)
 }
 
 /// An isolated LIF neuron with constant drive R I > theta, reset to rest, fires at
@@ -28,12 +23,38 @@ fn no_synapses(n: usize) -> Synapses {
 #[test]
 fn isolated_lif_rate_matches_the_closed_form() {
     for (drive, tau, t_ref) in [(25.0, 0.02, 0.002), (20.5, 0.01, 0.0), (60.0, 0.03, 0.005)] {
-        let neuron = NeuronParams { tau_m_s: tau, threshold_mv: 20.0, reset_mv: 0.0, refractory_s: t_ref };
-        let synapse = SynapseParams { excitatory_mv: 0.0, inhibitory_mv: 0.0, depression_u: 0.0, recovery_s: 1.0 };
-        let noise = NoiseParams { rate_hz: 0.0, amplitude_mv: 0.0 };
+        let neuron = NeuronParams {
+            tau_m_s: tau,
+            threshold_mv: 20.0,
+            reset_mv: 0.0,
+            refractory_s: t_ref,
+        };
+        let synapse = SynapseParams {
+            excitatory_mv: 0.0,
+            inhibitory_mv: 0.0,
+            depression_u: 0.0,
+            recovery_s: 1.0,
+        };
+        let noise = NoiseParams {
+            rate_hz: 0.0,
+            amplitude_mv: 0.0,
+        };
         let syn = no_synapses(1);
-        let net = Network { synapses: &syn, excitatory: &[true], drive_mv: &[drive], neuron: &neuron, synapse: &synapse, noise: &noise };
-        let run = integrate(&net, 200.0, &[], &mut ChaCha8Rng::seed_from_u64(1), &mut |_| {});
+        let net = Network {
+            synapses: &syn,
+            excitatory: &[true],
+            drive_mv: &[drive],
+            neuron: &neuron,
+            synapse: &synapse,
+            noise: &noise,
+        };
+        let run = integrate(
+            &net,
+            200.0,
+            &[],
+            &mut ChaCha8Rng::seed_from_u64(1),
+            &mut |_| {},
+        );
         let n = run.spikes.len();
         let measured = (n - 1) as f64 / (run.spikes[n - 1].time_s - run.spikes[0].time_s);
         let theory = 1.0 / (t_ref + tau * (drive / (drive - 20.0)).ln());
@@ -56,26 +77,69 @@ fn chain_front_speed_matches_the_threshold_condition() {
     let g_over_theta = 10.0f64;
     let normal = Normal::standard();
     let cases = [
-        (Footprint::Exponential, 1.0 / (2.0 * sigma), (g_over_theta / 2.0).ln()),
-        (Footprint::Gaussian, 1.0 / ((2.0 * std::f64::consts::PI).sqrt() * sigma), normal.inverse_cdf(1.0 - 1.0 / g_over_theta)),
-        (Footprint::Step, 1.0 / (2.0 * sigma), 1.0 - 2.0 / g_over_theta),
+        (
+            Footprint::Exponential,
+            1.0 / (2.0 * sigma),
+            (g_over_theta / 2.0).ln(),
+        ),
+        (
+            Footprint::Gaussian,
+            1.0 / ((2.0 * std::f64::consts::PI).sqrt() * sigma),
+            normal.inverse_cdf(1.0 - 1.0 / g_over_theta),
+        ),
+        (
+            Footprint::Step,
+            1.0 / (2.0 * sigma),
+            1.0 - 2.0 / g_over_theta,
+        ),
     ];
     for (footprint, norm, theory) in cases {
         let length = 6000.0;
-        let pattern = Pattern::Chain { length_um: length, spacing_um: spacing };
+        let pattern = Pattern::Chain {
+            length_um: length,
+            spacing_um: spacing,
+        };
         let mut rng = ChaCha8Rng::seed_from_u64(5);
         let positions = place_neurons(&pattern, 0, &mut rng);
-        let conn = Connectivity { footprint, sigma_um: sigma, mean_in_degree: 0.0, weighted: true };
+        let conn = Connectivity {
+            footprint,
+            sigma_um: sigma,
+            mean_in_degree: 0.0,
+            weighted: true,
+        };
         let (syn, _) = wire(&positions, &conn, delay, 1e30, &mut rng);
         let n = positions.len();
-        let neuron = NeuronParams { tau_m_s: 1e12, threshold_mv: 1.0, reset_mv: -1e12, refractory_s: 1e12 };
-        let synapse = SynapseParams { excitatory_mv: g_over_theta * spacing * norm, inhibitory_mv: 0.0, depression_u: 0.0, recovery_s: 1.0 };
-        let noise = NoiseParams { rate_hz: 0.0, amplitude_mv: 0.0 };
+        let neuron = NeuronParams {
+            tau_m_s: 1e12,
+            threshold_mv: 1.0,
+            reset_mv: -1e12,
+            refractory_s: 1e12,
+        };
+        let synapse = SynapseParams {
+            excitatory_mv: g_over_theta * spacing * norm,
+            inhibitory_mv: 0.0,
+            depression_u: 0.0,
+            recovery_s: 1.0,
+        };
+        let noise = NoiseParams {
+            rate_hz: 0.0,
+            amplitude_mv: 0.0,
+        };
         let drive = vec![0.0; n];
         let excitatory = vec![true; n];
-        let net = Network { synapses: &syn, excitatory: &excitatory, drive_mv: &drive, neuron: &neuron, synapse: &synapse, noise: &noise };
+        let net = Network {
+            synapses: &syn,
+            excitatory: &excitatory,
+            drive_mv: &drive,
+            neuron: &neuron,
+            synapse: &synapse,
+            noise: &noise,
+        };
         // Start: the first 10 sigma fire at t = 0.
-        let forced: Vec<(u32, f64)> = (0..n).filter(|&i| positions[i][0] <= 10.0 * sigma).map(|i| (i as u32, 0.0)).collect();
+        let forced: Vec<(u32, f64)> = (0..n)
+            .filter(|&i| positions[i][0] <= 10.0 * sigma)
+            .map(|i| (i as u32, 0.0))
+            .collect();
         let run = integrate(&net, 0.1, &forced, &mut rng, &mut |_| {});
         // Front position after each generation (spikes come at whole multiples of the delay).
         let generations = (run.spikes.last().unwrap().time_s / delay).round() as usize;
@@ -85,7 +149,10 @@ fn chain_front_speed_matches_the_threshold_condition() {
             front[k] = front[k].max(positions[s.neuron as usize][0]);
         }
         // Mean speed between generation 5 and the last generation still 12 sigma from the end.
-        let last = (0..=generations).filter(|&k| front[k] < length - 12.0 * sigma).max().unwrap();
+        let last = (0..=generations)
+            .filter(|&k| front[k] < length - 12.0 * sigma)
+            .max()
+            .unwrap();
         let speed = (front[last] - front[5]) / ((last - 5) as f64 * delay); // um/s
         let in_units = speed * delay / sigma;
         let error = (in_units / theory - 1.0).abs();
@@ -98,13 +165,21 @@ fn chain_front_speed_matches_the_threshold_condition() {
 /// distance bin match the footprint by Pearson's chi-square test at the 0.1% level.
 #[test]
 fn wiring_matches_in_degree_and_footprint() {
-    let pattern = Pattern::Strip { length_um: 4000.0, width_um: 600.0 };
+    let pattern = Pattern::Strip {
+        length_um: 4000.0,
+        width_um: 600.0,
+    };
     let mut rng = ChaCha8Rng::seed_from_u64(9);
     let count = (2000.0 * pattern.area_mm2()).round() as usize;
     let positions = place_neurons(&pattern, count, &mut rng);
     assert_eq!(positions.len(), count);
     for (footprint, k) in [(Footprint::Gaussian, 60.0), (Footprint::Exponential, 30.0)] {
-        let conn = Connectivity { footprint, sigma_um: 80.0, mean_in_degree: k, weighted: false };
+        let conn = Connectivity {
+            footprint,
+            sigma_um: 80.0,
+            mean_in_degree: k,
+            weighted: false,
+        };
         let (syn, check) = wire(&positions, &conn, 1e-3, 3e5, &mut rng);
         let stats = graph_stats(count, &syn);
         let rel = (stats.mean_in_degree / k - 1.0).abs();
@@ -129,15 +204,29 @@ fn wiring_matches_in_degree_and_footprint() {
 fn erdos_renyi_giant_component() {
     let n = 40_000;
     let positions: Vec<[f64; 2]> = (0..n).map(|i| [i as f64, 0.0]).collect();
-    let conn = Connectivity { footprint: Footprint::Uniform, sigma_um: 1.0, mean_in_degree: 1.0, weighted: false };
-    let (syn, _) = wire(&positions, &conn, 1e-3, 3e5, &mut ChaCha8Rng::seed_from_u64(11));
+    let conn = Connectivity {
+        footprint: Footprint::Uniform,
+        sigma_um: 1.0,
+        mean_in_degree: 1.0,
+        weighted: false,
+    };
+    let (syn, _) = wire(
+        &positions,
+        &conn,
+        1e-3,
+        3e5,
+        &mut ChaCha8Rng::seed_from_u64(11),
+    );
     let stats = graph_stats(n, &syn);
     // Solve S = 1 - exp(-2 S) by fixed-point iteration.
     let mut s = 0.5f64;
     for _ in 0..200 {
         s = 1.0 - (-2.0 * s).exp();
     }
-    eprintln!("giant component {:.4} against {s:.6} (mean in-degree {:.4})", stats.giant_component_fraction, stats.mean_in_degree);
+    eprintln!(
+        "giant component {:.4} against {s:.6} (mean in-degree {:.4})",
+        stats.giant_component_fraction, stats.mean_in_degree
+    );
     assert!((s - 0.796812).abs() < 1e-6);
     assert!((stats.giant_component_fraction - s).abs() < 0.01);
 }

@@ -50,13 +50,23 @@ pub fn simulation_files(
             if let Some((sites, spikes)) = &rec.electrodes {
                 files.push((
                     "spikes.csv".to_string(),
-                    crate::import::write_spike_list_as(spikes, crate::import::TimeUnit::Milliseconds, Some(2)),
+                    crate::import::write_spike_list_as(
+                        spikes,
+                        crate::import::TimeUnit::Milliseconds,
+                        Some(2),
+                    ),
                 ));
                 files.push(("layout.csv".to_string(), crate::import::write_layout(sites)));
             }
             if let Some((sites, time_s, rois)) = &rec.imaging {
-                files.push(("traces.csv".to_string(), crate::import::write_roi_traces(time_s, rois)));
-                files.push(("roi_layout.csv".to_string(), crate::import::write_layout(sites)));
+                files.push((
+                    "traces.csv".to_string(),
+                    crate::import::write_roi_traces(time_s, rois),
+                ));
+                files.push((
+                    "roi_layout.csv".to_string(),
+                    crate::import::write_layout(sites),
+                ));
             }
             let truth = serde_json::to_string_pretty(&rec.truth).map_err(|e| e.to_string())? + "\n";
             files.push(("truth.json".to_string(), truth));

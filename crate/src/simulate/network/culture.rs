@@ -15,7 +15,10 @@ pub enum Pattern {
     /// A ring annulus around the origin: mean radius `radius_um`, `width_um` wide.
     Annulus { radius_um: f64, width_um: f64 },
     /// A strip of `width_um` along a polyline through `waypoints_um`.
-    PolylineStrip { waypoints_um: Vec<[f64; 2]>, width_um: f64 },
+    PolylineStrip {
+        waypoints_um: Vec<[f64; 2]>,
+        width_um: f64,
+    },
     /// A rectangular dish from (0, 0) to (`width_um`, `height_um`).
     Rectangle { width_um: f64, height_um: f64 },
     /// A round dish of `radius_um` around the origin.
@@ -28,10 +31,22 @@ impl Pattern {
     /// Area in mm^2 (length in mm for a chain).
     pub fn area_mm2(&self) -> f64 {
         let um2 = match self {
-            Pattern::Strip { length_um, width_um } => length_um * width_um,
-            Pattern::Annulus { radius_um, width_um } => TAU * radius_um * width_um,
-            Pattern::PolylineStrip { waypoints_um, width_um } => crate::geometry::polyline_length_um(waypoints_um) * width_um,
-            Pattern::Rectangle { width_um, height_um } => width_um * height_um,
+            Pattern::Strip {
+                length_um,
+                width_um,
+            } => length_um * width_um,
+            Pattern::Annulus {
+                radius_um,
+                width_um,
+            } => TAU * radius_um * width_um,
+            Pattern::PolylineStrip {
+                waypoints_um,
+                width_um,
+            } => crate::geometry::polyline_length_um(waypoints_um) * width_um,
+            Pattern::Rectangle {
+                width_um,
+                height_um,
+            } => width_um * height_um,
             Pattern::Disk { radius_um } => PI * radius_um * radius_um,
             Pattern::Chain { length_um, .. } => *length_um * 1e3,
         };
@@ -40,12 +55,21 @@ impl Pattern {
 
     fn bounds(&self) -> ([f64; 2], [f64; 2]) {
         match self {
-            Pattern::Strip { length_um, width_um } => ([0.0, -width_um / 2.0], [*length_um, width_um / 2.0]),
-            Pattern::Annulus { radius_um, width_um } => {
+            Pattern::Strip {
+                length_um,
+                width_um,
+            } => ([0.0, -width_um / 2.0], [*length_um, width_um / 2.0]),
+            Pattern::Annulus {
+                radius_um,
+                width_um,
+            } => {
                 let r = radius_um + width_um / 2.0;
                 ([-r, -r], [r, r])
             }
-            Pattern::PolylineStrip { waypoints_um, width_um } => {
+            Pattern::PolylineStrip {
+                waypoints_um,
+                width_um,
+            } => {
                 let mut lo = [f64::INFINITY; 2];
                 let mut hi = [f64::NEG_INFINITY; 2];
                 for w in waypoints_um {
@@ -56,7 +80,10 @@ impl Pattern {
                 }
                 (lo, hi)
             }
-            Pattern::Rectangle { width_um, height_um } => ([0.0, 0.0], [*width_um, *height_um]),
+            Pattern::Rectangle {
+                width_um,
+                height_um,
+            } => ([0.0, 0.0], [*width_um, *height_um]),
             Pattern::Disk { radius_um } => ([-radius_um, -radius_um], [*radius_um, *radius_um]),
             Pattern::Chain { length_um, .. } => ([0.0, 0.0], [*length_um, 0.0]),
         }
@@ -64,24 +91,33 @@ impl Pattern {
 
     fn contains(&self, p: [f64; 2]) -> bool {
         match self {
-            Pattern::Strip { length_um, width_um } => {
-                (0.0..=*length_um).contains(&p[0]) && p[1].abs() <= width_um / 2.0
-            }
-            Pattern::Annulus { radius_um, width_um } => (p[0].hypot(p[1]) - radius_um).abs() <= width_um / 2.0,
-            Pattern::PolylineStrip { waypoints_um, width_um } => waypoints_um.windows(2).any(|w| {
+            Pattern::Strip {
+                length_um,
+                width_um,
+            } => (0.0..=*length_um).contains(&p[0]) && p[1].abs() <= width_um / 2.0,
+            Pattern::Annulus {
+                radius_um,
+                width_um,
+            } => (p[0].hypot(p[1]) - radius_um).abs() <= width_um / 2.0,
+            Pattern::PolylineStrip {
+                waypoints_um,
+                width_um,
+            } => waypoints_um.windows(2).any(|w| {
                 let (a, b) = (w[0], w[1]);
                 let l2 = (b[0] - a[0]).powi(2) + (b[1] - a[1]).powi(2);
                 let t = if l2 > 0.0 {
-                    (((p[0] - a[0]) * (b[0] - a[0]) + (p[1] - a[1]) * (b[1] - a[1])) / l2).clamp(0.0, 1.0)
+                    (((p[0] - a[0]) * (b[0] - a[0]) + (p[1] - a[1]) * (b[1] - a[1])) / l2)
+                        .clamp(0.0, 1.0)
                 } else {
                     0.0
                 };
                 let q = [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])];
                 (p[0] - q[0]).hypot(p[1] - q[1]) <= width_um / 2.0
             }),
-            Pattern::Rectangle { width_um, height_um } => {
-                (0.0..=*width_um).contains(&p[0]) && (0.0..=*height_um).contains(&p[1])
-            }
+            Pattern::Rectangle {
+                width_um,
+                height_um,
+            } => (0.0..=*width_um).contains(&p[0]) && (0.0..=*height_um).contains(&p[1]),
             Pattern::Disk { radius_um } => p[0].hypot(p[1]) <= *radius_um,
             Pattern::Chain { .. } => true,
         }
@@ -114,7 +150,11 @@ impl Pattern {
 /// Places `count` neurons uniformly in the pattern (rejection sampling in its bounding box);
 /// a chain gets a regular lattice instead.
 pub fn place_neurons(pattern: &Pattern, count: usize, rng: &mut ChaCha8Rng) -> Vec<[f64; 2]> {
-    if let Pattern::Chain { length_um, spacing_um } = pattern {
+    if let Pattern::Chain {
+        length_um,
+        spacing_um,
+    } = pattern
+    {
         let n = (length_um / spacing_um).floor() as usize + 1;
         return (0..n).map(|i| [i as f64 * spacing_um, 0.0]).collect();
     }
@@ -123,7 +163,10 @@ pub fn place_neurons(pattern: &Pattern, count: usize, rng: &mut ChaCha8Rng) -> V
     let mut attempts = 0usize;
     while out.len() < count && attempts < count.saturating_mul(1000).max(1000) {
         attempts += 1;
-        let p = [lo[0] + (hi[0] - lo[0]) * uniform(rng), lo[1] + (hi[1] - lo[1]) * uniform(rng)];
+        let p = [
+            lo[0] + (hi[0] - lo[0]) * uniform(rng),
+            lo[1] + (hi[1] - lo[1]) * uniform(rng),
+        ];
         if pattern.contains(p) {
             out.push(p);
         }
@@ -153,7 +196,12 @@ pub fn sort_spatially(positions: &mut [[f64; 2]], cell_um: f64) {
         let cy = ((p[1] - lo_y) / cell_um) as u32;
         spread(cx) | (spread(cy) << 1)
     };
-    positions.sort_by(|a, b| key(a).cmp(&key(b)).then(a[0].total_cmp(&b[0])).then(a[1].total_cmp(&b[1])));
+    positions.sort_by(|a, b| {
+        key(a)
+            .cmp(&key(b))
+            .then(a[0].total_cmp(&b[0]))
+            .then(a[1].total_cmp(&b[1]))
+    });
 }
 
 /// Shape of the connection probability (or weight) against distance.
@@ -219,7 +267,11 @@ impl FootprintTable {
         let values = (0..=POINTS)
             .map(|k| footprint.value(libm::sqrt(k as f64 * step), sigma))
             .collect();
-        FootprintTable { step, values, cutoff_sq }
+        FootprintTable {
+            step,
+            values,
+            cutoff_sq,
+        }
     }
 
     /// Footprint at squared distance `d2` (0 beyond the cut-off).
@@ -238,30 +290,57 @@ impl FootprintTable {
     }
 }
 
-/// Outgoing synapses of every neuron, CSR: neuron i's synapses are `offsets[i]..offsets[i+1]`.
+/// One synapse as the integrator reads it: target and delay side by side, so a delivery
+/// touches one cache line where three arrays would touch three.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Link {
+    pub target: u32,
+    /// Delay, seconds.
+    pub delay_s: f32,
+}
+
+/// Outgoing synapses of every neuron, CSR: neuron i's synapses are `offsets[i]..offsets[i+1]`,
+/// each row in order of delay.
 #[derive(Debug, Clone, Default)]
 pub struct Synapses {
     pub offsets: Vec<u32>,
-    pub targets: Vec<u32>,
-    /// Weight scale of each synapse (1 for probabilistic wiring; the footprint value for
-    /// weighted wiring).
-    pub weights: Vec<f32>,
-    /// Delay of each synapse, seconds.
-    pub delays: Vec<f32>,
+    pub links: Vec<Link>,
+    /// Weight scale of each synapse for weighted wiring (the footprint value); `None` when
+    /// every synapse has weight 1 (probabilistic wiring).
+    pub weights: Option<Vec<f32>>,
 }
 
 impl Synapses {
+    /// No synapses among `neurons` neurons.
+    pub fn none(neurons: usize) -> Self {
+        Synapses {
+            offsets: vec![0; neurons + 1],
+            links: Vec::new(),
+            weights: None,
+        }
+    }
+
     pub fn count(&self) -> usize {
-        self.targets.len()
+        self.links.len()
     }
 
     /// In-degree of every neuron.
     pub fn in_degrees(&self, neurons: usize) -> Vec<u32> {
         let mut d = vec![0u32; neurons];
-        for &t in &self.targets {
-            d[t as usize] += 1;
+        for l in &self.links {
+            d[l.target as usize] += 1;
         }
         d
+    }
+
+    /// Shortest and longest delay, seconds (infinity and 0 when there are no synapses).
+    pub fn delay_range_s(&self) -> (f64, f64) {
+        self.links
+            .iter()
+            .fold((f64::INFINITY, 0.0f64), |(lo, hi), l| {
+                let d = f64::from(l.delay_s);
+                (lo.min(d), hi.max(d))
+            })
     }
 }
 
@@ -336,7 +415,14 @@ impl CellGrid {
             order[fill[k] as usize] = i as u32;
             fill[k] += 1;
         }
-        CellGrid { origin: lo, cell, nx, ny, start: counts, order }
+        CellGrid {
+            origin: lo,
+            cell,
+            nx,
+            ny,
+            start: counts,
+            order,
+        }
     }
 
     /// Calls `f(j)` for every point in cells within `radius` of `p`.
@@ -385,7 +471,11 @@ pub fn wire(
         let mut k: u64 = 0;
         loop {
             // Gap to the next success of a Bernoulli(p) sequence: floor(ln U / ln(1 - p)).
-            let skip = if p >= 1.0 { 0 } else { (libm::log(1.0 - uniform(rng)) / ln_q).floor() as u64 };
+            let skip = if p >= 1.0 {
+                0
+            } else {
+                (libm::log(1.0 - uniform(rng)) / ln_q).floor() as u64
+            };
             k = k.saturating_add(skip);
             if k >= total {
                 break;
@@ -467,23 +557,49 @@ pub fn wire(
         out_count[k] += out_count[k - 1];
     }
     let total = out_count[n] as usize;
-    let mut syn = Synapses {
-        offsets: out_count.clone(),
-        targets: vec![0; total],
-        weights: vec![0.0; total],
-        delays: vec![0.0; total],
-    };
-    let mut fill = out_count;
+    let mut links = vec![
+        Link {
+            target: 0,
+            delay_s: 0.0
+        };
+        total
+    ];
+    let mut weights = vec![0.0f32; total];
+    let mut fill = out_count.clone();
     for (j, list) in incoming.iter().enumerate() {
         for &(i, w) in list {
             let slot = fill[i as usize] as usize;
             fill[i as usize] += 1;
             let (pi, pj) = (positions[i as usize], positions[j]);
-            syn.targets[slot] = j as u32;
-            syn.weights[slot] = w;
-            syn.delays[slot] = delay((pi[0] - pj[0]).hypot(pi[1] - pj[1]));
+            links[slot] = Link {
+                target: j as u32,
+                delay_s: delay((pi[0] - pj[0]).hypot(pi[1] - pj[1])),
+            };
+            weights[slot] = w;
         }
     }
+    drop(incoming);
+    // Each row in order of delay, so a spike's deliveries go out in delay groups.
+    let mut row: Vec<(Link, f32)> = Vec::new();
+    for i in 0..n {
+        let (a, b) = (out_count[i] as usize, out_count[i + 1] as usize);
+        row.clear();
+        row.extend((a..b).map(|k| (links[k], weights[k])));
+        row.sort_by(|x, y| {
+            x.0.delay_s
+                .total_cmp(&y.0.delay_s)
+                .then(x.0.target.cmp(&y.0.target))
+        });
+        for (k, &(l, w)) in (a..b).zip(&row) {
+            links[k] = l;
+            weights[k] = w;
+        }
+    }
+    let syn = Synapses {
+        offsets: out_count,
+        links,
+        weights: c.weighted.then_some(weights),
+    };
     (syn, check)
 }
 
@@ -509,8 +625,8 @@ pub fn graph_stats(neurons: usize, syn: &Synapses) -> GraphStats {
     for i in 0..neurons {
         let (a, b) = (syn.offsets[i] as usize, syn.offsets[i + 1] as usize);
         out_deg[i] = (b - a) as u32;
-        for &t in &syn.targets[a..b] {
-            uf.union(i as u32, t);
+        for l in &syn.links[a..b] {
+            uf.union(i as u32, l.target);
         }
     }
     let labels = uf.into_labeling();

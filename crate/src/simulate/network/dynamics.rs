@@ -16,11 +16,12 @@
 //! U x of them, and its synapses deliver J U x.
 
 use super::super::sample::exponential;
-use std::cmp::Ordering;
-use std::collections::BinaryHeap;
 use super::culture::Synapses;
+use rand::Rng;
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
+use std::cmp::Ordering;
+use std::collections::BinaryHeap;
 
 /// Membrane parameters; potentials in mV above rest.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -70,8 +71,8 @@ pub struct Run {
     pub synaptic_events: u64,
 }
 
-/// A scheduled event, 16 bytes: its time, the target with the event kind in the top two
-/// bits, and a payload (the weight in mV as f32 bits, or a state version for a crossing).
+/// A scheduled event, 16 bytes: its time, the neuron with the event kind in the top two
+/// bits, and a payload (a synapse index for a delivery, a state version for a crossing).
 #[derive(Clone, Copy)]
 struct Event {
     time: f64,
@@ -79,8 +80,8 @@ struct Event {
     payload: u32,
 }
 
-const ARRIVAL: u32 = 0;
-const NOISE: u32 = 1;
+/// A spike's synapses from index `payload` on are due (target = source neuron, time = spike time).
+const DELIVERY: u32 = 0;
 const CROSSING: u32 = 2;
 const FORCED: u32 = 3;
 const KIND_SHIFT: u32 = 30;
@@ -99,9 +100,6 @@ impl Event {
     }
     fn kind(&self) -> u32 {
         self.target_kind >> KIND_SHIFT
-    }
-    fn weight(&self) -> f64 {
-        f64::from(f32::from_bits(self.payload))
     }
 }
 
@@ -167,10 +165,23 @@ impl Queue {
         }
     }
 
+    /// Schedules `e` by its due time `due` rather than its own time (deliveries carry the
+    /// spike's time). Deliveries are never further ahead than the longest delay, which the
+    /// ring spans.
+    fn push_at(&mut self, now: u64, due: f64, e: Event) {
+        let ring = self.buckets.len() as u64;
+        let b = self.bucket_of(due).max(now);
+        self.buckets[(b % ring) as usize].push(e);
+    }
+
     /// Moves heap events whose buckets have come within the ring's reach.
     fn pull_near(&mut self, now: u64) {
         let ring = self.buckets.len() as u64;
-        while self.far.peek().is_some_and(|f| self.bucket_of(f.0.time) < now + ring - 1) {
+        while self
+            .far
+            .peek()
+            .is_some_and(|f| self.bucket_of(f.0.time) < now + ring - 1)
+        {
             if let Some(Far(e)) = self.far.pop() {
                 let b = self.bucket_of(e.time).max(now);
                 self.buckets[(b % ring) as usize].push(e);
@@ -179,9 +190,95 @@ impl Queue {
     }
 }
 
+/// Mutable state of a run.
+struct Engine<'a> {
+    net: &'a Network<'a>,
+    duration_s: f64,
+    q: Queue,
+    membrane: Vec<Membrane>,
+    resources: Vec<f64>,
+    last_spike: Vec<f64>,
+    version: Vec<u32>,
+    self_firing: Vec<bool>,
+    spikes: Vec<Spike>,
+    synaptic_events: u64,
+    /// Jump (mV) each neuron's latest spike delivers, read by its deliveries.
+    jump_mv: Vec<f32>,
+}
+
+impl Engine<'_> {
+    /// An input moved neuron j's potential without a spike: a neuron driven above threshold
+    /// now crosses at a new time.
+    fn moved(&mut self, j: usize, b: u64) {
+        if !self.self_firing[j] {
+            return;
+        }
+        self.version[j] = self.version[j].wrapping_add(1);
+        let m = self.membrane[j];
+        if let Some(t) = crossing_time(m.v, m.last, self.net.drive_mv[j], self.net.neuron) {
+            if t < self.duration_s {
+                self.q
+                    .push(b, Event::new(t, j as u32, CROSSING, self.version[j]));
+            }
+        }
+    }
+
+    /// Records a spike of neuron `j` at `t` while bucket `b` is processed: reset,
+    /// refractoriness, depression, the drive's next crossing, and the first delivery of its
+    /// synapses (rows are sorted by delay, so deliveries go out in delay groups).
+    fn spike(&mut self, j: usize, t: f64, b: u64) {
+        let p = self.net.neuron;
+        self.spikes.push(Spike {
+            time_s: t,
+            neuron: j as u32,
+        });
+        self.version[j] = self.version[j].wrapping_add(1);
+        let m = &mut self.membrane[j];
+        m.v = p.reset_mv;
+        m.refractory_until = t + p.refractory_s;
+        m.last = m.refractory_until;
+        let refractory_until = m.refractory_until;
+        let syn = self.net.synapse;
+        let efficacy = if syn.depression_u > 0.0 {
+            let x = 1.0
+                - (1.0 - self.resources[j]) * libm::exp(-(t - self.last_spike[j]) / syn.recovery_s);
+            let used = syn.depression_u * x;
+            self.resources[j] = x - used;
+            used
+        } else {
+            1.0
+        };
+        self.last_spike[j] = t;
+        if self.self_firing[j] {
+            if let Some(tc) = crossing_time(p.reset_mv, refractory_until, self.net.drive_mv[j], p) {
+                if tc < self.duration_s {
+                    self.q
+                        .push(b, Event::new(tc, j as u32, CROSSING, self.version[j]));
+                }
+            }
+        }
+        let jump = if self.net.excitatory[j] {
+            syn.excitatory_mv * efficacy
+        } else {
+            -syn.inhibitory_mv
+        };
+        let s = self.net.synapses;
+        let (a, z) = (s.offsets[j] as usize, s.offsets[j + 1] as usize);
+        if a < z {
+            self.jump_mv[j] = jump as f32;
+            let first = t + f64::from(s.links[a].delay_s);
+            if first < self.duration_s {
+                self.q
+                    .push_at(b + 1, first, Event::new(t, j as u32, DELIVERY, a as u32));
+            }
+        }
+    }
+}
+
 /// Integrates the network from t = 0 (all neurons at rest, full resources) to `duration_s`.
 /// `forced` spikes are imposed (neuron, time), for example to start a front. `progress`
-/// gets the simulated time after each simulated second.
+/// gets the simulated time after each simulated second. Synapse rows must be sorted by delay
+/// (as [`super::culture::wire`] leaves them).
 pub fn integrate(
     net: &Network<'_>,
     duration_s: f64,
@@ -192,138 +289,154 @@ pub fn integrate(
     let n = net.drive_mv.len();
     let p = net.neuron;
     let syn = net.synapses;
-    let min_delay = syn.delays.iter().copied().fold(f32::INFINITY, f32::min) as f64;
-    let max_delay = syn.delays.iter().copied().fold(0.0f32, f32::max) as f64;
-    let width = if min_delay.is_finite() { min_delay.min(1e-4) } else { 1e-4 };
-    // The ring spans at least a second, so nearly every noise kick fits in it; the rest wait
-    // in the heap.
-    let ring = ((max_delay.max(1.0) / width).ceil() as usize + 2).max(2);
-    let mut q = Queue {
-        width,
-        buckets: vec![Vec::new(); ring],
-        far: BinaryHeap::new(),
+    let (min_delay, max_delay) = syn.delay_range_s();
+    let width = if min_delay.is_finite() {
+        min_delay.min(1e-4)
+    } else {
+        1e-4
     };
-    let mut membrane = vec![
-        Membrane {
-            v: 0.0,
-            last: 0.0,
-            refractory_until: f64::NEG_INFINITY,
-        };
-        n
-    ];
-    let mut resources = vec![1.0f64; n];
-    let mut last_spike = vec![f64::NEG_INFINITY; n];
-    let mut version = vec![0u32; n];
-    // Only neurons driven above threshold can cross it without input.
-    let self_firing: Vec<bool> = net.drive_mv.iter().map(|&d| d > p.threshold_mv).collect();
-    let noise_mean = if net.noise.rate_hz > 0.0 { 1.0 / net.noise.rate_hz } else { f64::INFINITY };
-    let noise_bits = (net.noise.amplitude_mv as f32).to_bits();
+    // The ring spans the longest delay; drive crossings further ahead wait in the heap.
+    let ring = ((max_delay / width).ceil() as usize + 2).max(2);
+    let mut e = Engine {
+        net,
+        duration_s,
+        q: Queue {
+            width,
+            buckets: vec![Vec::new(); ring],
+            far: BinaryHeap::new(),
+        },
+        membrane: vec![
+            Membrane {
+                v: 0.0,
+                last: 0.0,
+                refractory_until: f64::NEG_INFINITY,
+            };
+            n
+        ],
+        resources: vec![1.0; n],
+        last_spike: vec![f64::NEG_INFINITY; n],
+        version: vec![0; n],
+        // Only neurons driven above threshold can cross it without input.
+        self_firing: net.drive_mv.iter().map(|&d| d > p.threshold_mv).collect(),
+        spikes: Vec::new(),
+        synaptic_events: 0,
+        jump_mv: vec![0.0; n],
+    };
+    // Independent Poisson kicks at rate r on each of n neurons are, together, one Poisson
+    // process at rate n r whose every kick picks its neuron at random (superposition), so
+    // the kicks are drawn bucket by bucket and never queued.
+    let population_noise_rate = net.noise.rate_hz * n as f64;
+    let noise_gap = if population_noise_rate > 0.0 {
+        1.0 / population_noise_rate
+    } else {
+        f64::INFINITY
+    };
+    let noise_mv = f64::from(net.noise.amplitude_mv as f32);
+    let mut next_noise = if noise_gap.is_finite() {
+        exponential(rng, noise_gap)
+    } else {
+        f64::INFINITY
+    };
     for j in 0..n {
-        if net.noise.rate_hz > 0.0 {
-            let t = exponential(rng, noise_mean);
-            if t < duration_s {
-                q.push(0, Event::new(t, j as u32, NOISE, noise_bits));
-            }
-        }
         if let Some(t) = crossing_time(0.0, 0.0, net.drive_mv[j], p) {
             if t < duration_s {
-                q.push(0, Event::new(t, j as u32, CROSSING, 0));
+                e.q.push(0, Event::new(t, j as u32, CROSSING, 0));
             }
         }
     }
     for &(j, t) in forced {
-        q.push(0, Event::new(t, j, FORCED, 0));
+        e.q.push(0, Event::new(t, j, FORCED, 0));
     }
-    let mut spikes: Vec<Spike> = Vec::new();
-    let mut synaptic_events = 0u64;
-    let total_buckets = q.bucket_of(duration_s) + 1;
+    let total_buckets = e.q.bucket_of(duration_s) + 1;
     let mut next_report = 1.0;
-    // Each bucket is taken out when its time comes and its memory freed after, so the ring
-    // holds only the events in flight, not every bucket at its largest.
+    let mut current: Vec<Event> = Vec::new();
     for b in 0..total_buckets {
-        q.pull_near(b);
+        e.q.pull_near(b);
         let slot = (b % ring as u64) as usize;
-        let current = std::mem::take(&mut q.buckets[slot]);
-        for e in &current {
-            if e.time >= duration_s {
+        std::mem::swap(&mut current, &mut e.q.buckets[slot]);
+        let bucket_end = ((b + 1) as f64 * width).min(duration_s);
+        while next_noise < bucket_end {
+            let j = rng.random_range(0..n);
+            if apply_input(&mut e.membrane[j], next_noise, noise_mv, net.drive_mv[j], p) {
+                let t = next_noise.max(e.membrane[j].last);
+                e.spike(j, t, b);
+            } else {
+                e.moved(j, b);
+            }
+            next_noise += exponential(rng, noise_gap);
+        }
+        for ev in &current {
+            if ev.time >= duration_s {
                 continue;
             }
-            let j = e.target();
-            let fire = match e.kind() {
-                ARRIVAL => {
-                    synaptic_events += 1;
-                    apply_input(&mut membrane[j], e.time, e.weight(), net.drive_mv[j], p)
-                }
-                NOISE => {
-                    let next = e.time + exponential(rng, noise_mean);
-                    if next < duration_s {
-                        q.push(b, Event::new(next, j as u32, NOISE, noise_bits));
-                    }
-                    apply_input(&mut membrane[j], e.time, e.weight(), net.drive_mv[j], p)
-                }
-                CROSSING => e.payload == version[j] && e.time >= membrane[j].refractory_until,
-                _ => e.time >= membrane[j].refractory_until,
-            };
-            if !fire {
-                if self_firing[j] && e.kind() != CROSSING {
-                    // The input moved the potential: the drive's crossing comes at a new time.
-                    version[j] = version[j].wrapping_add(1);
-                    let m = membrane[j];
-                    if let Some(t) = crossing_time(m.v, m.last, net.drive_mv[j], p) {
-                        if t < duration_s {
-                            q.push(b, Event::new(t, j as u32, CROSSING, version[j]));
+            let j = ev.target();
+            match ev.kind() {
+                DELIVERY => {
+                    // Deliver source j's synapses whose arrivals fall in this bucket; send the
+                    // rest on to the bucket of the next delay.
+                    let t = ev.time;
+                    let jump = f64::from(e.jump_mv[j]);
+                    let end = syn.offsets[j + 1] as usize;
+                    let mut k = ev.payload as usize;
+                    while k < end {
+                        let link = syn.links[k];
+                        let arrival = t + f64::from(link.delay_s);
+                        if arrival >= duration_s {
+                            break;
                         }
+                        let bk = e.q.bucket_of(arrival);
+                        if bk > b {
+                            e.q.push_at(
+                                b + 1,
+                                arrival,
+                                Event::new(t, j as u32, DELIVERY, k as u32),
+                            );
+                            break;
+                        }
+                        let target = link.target as usize;
+                        e.synaptic_events += 1;
+                        let w = match &syn.weights {
+                            Some(weights) => jump * f64::from(weights[k]),
+                            None => jump,
+                        };
+                        if apply_input(&mut e.membrane[target], arrival, w, net.drive_mv[target], p)
+                        {
+                            let ts = arrival.max(e.membrane[target].last);
+                            e.spike(target, ts, b);
+                        } else {
+                            e.moved(target, b);
+                        }
+                        k += 1;
                     }
                 }
-                continue;
-            }
-            // Spike at e.time (or at the state's own time when a late-ordered arrival fired it).
-            let m = &mut membrane[j];
-            let t = e.time.max(m.last);
-            spikes.push(Spike { time_s: t, neuron: j as u32 });
-            version[j] = version[j].wrapping_add(1);
-            m.v = p.reset_mv;
-            m.refractory_until = t + p.refractory_s;
-            m.last = m.refractory_until;
-            let efficacy = if net.synapse.depression_u > 0.0 {
-                let x = 1.0 - (1.0 - resources[j]) * libm::exp(-(t - last_spike[j]) / net.synapse.recovery_s);
-                let used = net.synapse.depression_u * x;
-                resources[j] = x - used;
-                used
-            } else {
-                1.0
-            };
-            last_spike[j] = t;
-            if self_firing[j] {
-                if let Some(tc) = crossing_time(p.reset_mv, m.refractory_until, net.drive_mv[j], p) {
-                    if tc < duration_s {
-                        q.push(b, Event::new(tc, j as u32, CROSSING, version[j]));
+                CROSSING => {
+                    if ev.payload == e.version[j] && ev.time >= e.membrane[j].refractory_until {
+                        e.spike(j, ev.time, b);
                     }
                 }
-            }
-            let jump = if net.excitatory[j] {
-                net.synapse.excitatory_mv * efficacy
-            } else {
-                -net.synapse.inhibitory_mv
-            };
-            let (a, z) = (syn.offsets[j] as usize, syn.offsets[j + 1] as usize);
-            for k in a..z {
-                let arrival = t + f64::from(syn.delays[k]);
-                if arrival < duration_s {
-                    let w = (jump * f64::from(syn.weights[k])) as f32;
-                    q.push(b + 1, Event::new(arrival, syn.targets[k], ARRIVAL, w.to_bits()));
+                _ => {
+                    if ev.time >= e.membrane[j].refractory_until {
+                        let t = ev.time.max(e.membrane[j].last);
+                        e.spike(j, t, b);
+                    }
                 }
             }
         }
-        drop(current);
+        current.clear();
+        // A bucket that swelled in a burst keeps at most 1 MiB of capacity.
+        current.shrink_to(1 << 16);
         let now = (b + 1) as f64 * width;
         if now >= next_report {
             progress(now.min(duration_s));
             next_report += 1.0;
         }
     }
+    let mut spikes = e.spikes;
     spikes.sort_by(|a, b| a.time_s.total_cmp(&b.time_s).then(a.neuron.cmp(&b.neuron)));
-    Run { spikes, synaptic_events }
+    Run {
+        spikes,
+        synaptic_events: e.synaptic_events,
+    }
 }
 
 /// Applies an input of `weight` mV at time `t`; returns whether the neuron reaches threshold.

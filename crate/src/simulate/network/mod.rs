@@ -6,6 +6,12 @@ pub mod culture;
 pub mod dynamics;
 pub mod scenario;
 
-pub use culture::{graph_stats, place_neurons, wire, Connectivity, Footprint, GraphStats, Pattern, Synapses, WiringCheck};
+pub use culture::{
+    graph_stats, place_neurons, wire, Connectivity, Footprint, GraphStats, Pattern, Synapses,
+    WiringCheck,
+};
 pub use dynamics::{integrate, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams};
-pub use scenario::{simulate_network, DriveParams, Electrodes, Imaging, NetworkRecording, NetworkScenario, NetworkTruth, NetworkTruthBurst};
+pub use scenario::{
+    simulate_network, DriveParams, Electrodes, Imaging, NetworkRecording, NetworkScenario,
+    NetworkTruth, NetworkTruthBurst,
+};

@@ -1,6 +1,8 @@
 //! A network scenario from end to end: grow, wire, integrate, record, and work out the truth.
 
-use super::culture::{graph_stats, place_neurons, sort_spatially, wire, Connectivity, GraphStats, Pattern};
+use super::culture::{
+    graph_stats, place_neurons, sort_spatially, wire, Connectivity, GraphStats, Pattern,
+};
 use super::dynamics::{integrate, Network, NeuronParams, NoiseParams, Spike, SynapseParams};
 use crate::detect::{detect_bursts, BurstSettings};
 use crate::fronts::{fit_front, model_name, FrontPoints, FrontSettings};
@@ -149,18 +151,25 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         }
     }
     if !(0.0..=1.0).contains(&s.excitatory_fraction) {
-        return Err(format!("excitatory_fraction: expected 0 to 1, found {}", s.excitatory_fraction));
+        return Err(format!(
+            "excitatory_fraction: expected 0 to 1, found {}",
+            s.excitatory_fraction
+        ));
     }
     if s.neuron.reset_mv >= s.neuron.threshold_mv {
         return Err("neuron.reset_mv: expected a reset below the threshold".into());
     }
     let neurons = s.density_per_mm2 * s.pattern.area_mm2();
     if neurons > 2e6 {
-        return Err(format!("the pattern would hold {neurons:.0} neurons, more than the 2 million allowed"));
+        return Err(format!(
+            "the pattern would hold {neurons:.0} neurons, more than the 2 million allowed"
+        ));
     }
     let synapses = neurons * s.connectivity.mean_in_degree;
     if synapses > 1.2e8 {
-        return Err(format!("the wiring would make {synapses:.0} synapses, more than the 120 million allowed"));
+        return Err(format!(
+            "the wiring would make {synapses:.0} synapses, more than the 120 million allowed"
+        ));
     }
     if let Some(e) = &s.electrodes {
         if !(0.0..=1.0).contains(&e.detection_probability) {
@@ -172,7 +181,9 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
     }
     if let Some(i) = &s.imaging {
         if !(i.frame_rate_hz > 0.0 && i.decay_s > 0.0 && i.noise_sd >= 0.0) {
-            return Err("imaging: frame_rate_hz and decay_s must be above 0, noise_sd 0 or more".into());
+            return Err(
+                "imaging: frame_rate_hz and decay_s must be above 0, noise_sd 0 or more".into(),
+            );
         }
     }
     Ok(())
@@ -193,12 +204,20 @@ pub fn simulate_network(
     if n < 2 {
         return Err("the pattern holds fewer than two neurons at this density".into());
     }
-    let excitatory: Vec<bool> = (0..n).map(|_| uniform(&mut rng) < s.excitatory_fraction).collect();
+    let excitatory: Vec<bool> = (0..n)
+        .map(|_| uniform(&mut rng) < s.excitatory_fraction)
+        .collect();
     let drive: Vec<f64> = (0..n)
         .map(|_| (s.drive.mean_mv + s.drive.sd_mv * normal(&mut rng)).max(0.0))
         .collect();
     progress("wiring", 0.0, 1.0);
-    let (synapses, _) = wire(&positions, &s.connectivity, s.synaptic_delay_s, s.axon_speed_mm_s * 1e3, &mut rng);
+    let (synapses, _) = wire(
+        &positions,
+        &s.connectivity,
+        s.synaptic_delay_s,
+        s.axon_speed_mm_s * 1e3,
+        &mut rng,
+    );
     let graph = graph_stats(n, &synapses);
     let net = Network {
         synapses: &synapses,
@@ -209,7 +228,9 @@ pub fn simulate_network(
         noise: &s.noise,
     };
     let duration = s.duration_s;
-    let run = integrate(&net, duration, &[], &mut rng, &mut |t| progress("integrating", t, duration));
+    let run = integrate(&net, duration, &[], &mut rng, &mut |t| {
+        progress("integrating", t, duration)
+    });
     drop(synapses);
 
     let mut trains: Vec<Vec<f64>> = vec![Vec::new(); n];
@@ -217,8 +238,14 @@ pub fn simulate_network(
         trains[sp.neuron as usize].push(sp.time_s);
     }
     let bursts = truth_bursts(s, &positions, &trains);
-    let electrodes = s.electrodes.as_ref().map(|e| record_electrodes(e, &positions, &trains, &mut rng));
-    let imaging = s.imaging.as_ref().map(|i| record_imaging(i, duration, &positions, &trains, &mut rng));
+    let electrodes = s
+        .electrodes
+        .as_ref()
+        .map(|e| record_electrodes(e, &positions, &trains, &mut rng));
+    let imaging = s
+        .imaging
+        .as_ref()
+        .map(|i| record_imaging(i, duration, &positions, &trains, &mut rng));
     let spikes = run.spikes.len();
     Ok(NetworkRecording {
         positions,
@@ -239,7 +266,11 @@ pub fn simulate_network(
 }
 
 /// Bursts of the whole population and the front of each, fitted to neurons' first spikes.
-fn truth_bursts(s: &NetworkScenario, positions: &[[f64; 2]], trains: &[Vec<f64>]) -> Vec<NetworkTruthBurst> {
+fn truth_bursts(
+    s: &NetworkScenario,
+    positions: &[[f64; 2]],
+    trains: &[Vec<f64>],
+) -> Vec<NetworkTruthBurst> {
     let track = s.pattern.track();
     let settings = BurstSettings::default();
     let bursts = detect_bursts(trains, &settings);
@@ -267,15 +298,32 @@ fn truth_bursts(s: &NetworkScenario, positions: &[[f64; 2]], trains: &[Vec<f64>]
                 if let Some(&first) = t.get(a).filter(|&&x| x <= b.end_s) {
                     let p = positions[i];
                     points.site.push(i);
-                    points.along_um.push(track.project(p).map_or(0.0, |q| q.along_um));
-                    points.angle_rad.push(crate::fronts::ring_angle_of(&track, p));
+                    points
+                        .along_um
+                        .push(track.project(p).map_or(0.0, |q| q.along_um));
+                    points
+                        .angle_rad
+                        .push(crate::fronts::ring_angle_of(&track, p));
                     points.xy_um.push(p);
                     points.t_s.push(first);
                 }
             }
-            let fit = fit_front(&points, &track, &front_settings, s.seed.wrapping_add(k as u64), Some(1e-6));
+            let fit = fit_front(
+                &points,
+                &track,
+                &front_settings,
+                s.seed.wrapping_add(k as u64),
+                Some(1e-6),
+            );
             let (model, speed, origin, direction, rotation, reason) = match fit {
-                Ok(f) => (Some(model_name(f.model).to_string()), Some(f.speed_mm_s), Some(f.origin), f.direction_xy, f.rotation, None),
+                Ok(f) => (
+                    Some(model_name(f.model).to_string()),
+                    Some(f.speed_mm_s),
+                    Some(f.origin),
+                    f.direction_xy,
+                    f.rotation,
+                    None,
+                ),
                 Err(r) => (None, None, None, None, None, Some(r)),
             };
             use crate::fronts::Origin;
@@ -307,10 +355,19 @@ fn truth_bursts(s: &NetworkScenario, positions: &[[f64; 2]], trains: &[Vec<f64>]
 
 fn electrode_positions(layout: &ElectrodeLayout, offset: [f64; 2]) -> Vec<[f64; 2]> {
     let nominal: Vec<[f64; 2]> = match *layout {
-        ElectrodeLayout::Row { count, pitch_um, angle_deg } => {
+        ElectrodeLayout::Row {
+            count,
+            pitch_um,
+            angle_deg,
+        } => {
             let a = angle_deg.to_radians();
             (0..count)
-                .map(|i| [i as f64 * pitch_um * libm::cos(a), i as f64 * pitch_um * libm::sin(a)])
+                .map(|i| {
+                    [
+                        i as f64 * pitch_um * libm::cos(a),
+                        i as f64 * pitch_um * libm::sin(a),
+                    ]
+                })
                 .collect()
         }
         ElectrodeLayout::Circle { count, radius_um } => (0..count)
@@ -319,11 +376,18 @@ fn electrode_positions(layout: &ElectrodeLayout, offset: [f64; 2]) -> Vec<[f64; 
                 [radius_um * libm::cos(a), radius_um * libm::sin(a)]
             })
             .collect(),
-        ElectrodeLayout::Grid { rows, columns, pitch_um } => (0..rows)
+        ElectrodeLayout::Grid {
+            rows,
+            columns,
+            pitch_um,
+        } => (0..rows)
             .flat_map(|r| (0..columns).map(move |c| [c as f64 * pitch_um, r as f64 * pitch_um]))
             .collect(),
     };
-    nominal.iter().map(|p| [p[0] + offset[0], p[1] + offset[1]]).collect()
+    nominal
+        .iter()
+        .map(|p| [p[0] + offset[0], p[1] + offset[1]])
+        .collect()
 }
 
 fn record_electrodes(
@@ -338,7 +402,11 @@ fn record_electrodes(
     let mut spikes = Vec::with_capacity(at.len());
     for (k, p) in at.iter().enumerate() {
         let id = format!("e{:02}", k + 1);
-        sites.push(Site { id: id.clone(), x_um: p[0], y_um: p[1] });
+        sites.push(Site {
+            id: id.clone(),
+            x_um: p[0],
+            y_um: p[1],
+        });
         let mut times = Vec::new();
         if !e.dead.contains(&k) {
             for (i, q) in positions.iter().enumerate() {
@@ -353,7 +421,10 @@ fn record_electrodes(
         }
         times.sort_by(f64::total_cmp);
         times.dedup();
-        spikes.push(SiteSpikes { site: id, times_s: times });
+        spikes.push(SiteSpikes {
+            site: id,
+            times_s: times,
+        });
     }
     (sites, spikes)
 }
@@ -375,7 +446,11 @@ fn record_imaging(
     for r in 0..rois {
         let i = r * stride;
         let id = format!("r{:03}", r + 1);
-        sites.push(Site { id: id.clone(), x_um: positions[i][0], y_um: positions[i][1] });
+        sites.push(Site {
+            id: id.clone(),
+            x_um: positions[i][0],
+            y_um: positions[i][1],
+        });
         let mut values = vec![0.0f64; frames];
         // Sum of decaying transients, evaluated frame by frame with one running sum.
         let decay = libm::exp(-1.0 / (im.frame_rate_hz * im.decay_s));
