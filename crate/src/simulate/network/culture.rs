@@ -621,11 +621,9 @@ pub struct GraphStats {
 pub fn graph_stats(neurons: usize, syn: &Synapses) -> GraphStats {
     use petgraph::unionfind::UnionFind;
     let mut uf = UnionFind::<u32>::new(neurons);
-    let mut out_deg = vec![0u32; neurons];
-    for i in 0..neurons {
-        let (a, b) = (syn.offsets[i] as usize, syn.offsets[i + 1] as usize);
-        out_deg[i] = (b - a) as u32;
-        for l in &syn.links[a..b] {
+    let out_deg: Vec<u32> = syn.offsets.windows(2).map(|w| w[1] - w[0]).collect();
+    for (i, w) in syn.offsets.windows(2).enumerate() {
+        for l in &syn.links[w[0] as usize..w[1] as usize] {
             uf.union(i as u32, l.target);
         }
     }
