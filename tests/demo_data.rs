@@ -19,19 +19,18 @@ fn demo_recordings_regenerate_byte_for_byte() {
     for entry in scenarios {
         let path = entry.unwrap().path();
         let scenario = parse_scenario(&std::fs::read_to_string(&path).unwrap()).unwrap();
-        let Scenario::Fronts(front) = &scenario;
-        for (name, content) in simulation_files(&scenario).unwrap() {
-            let committed = std::fs::read_to_string(demo_dir().join(&front.name).join(&name))
+        let folder = match &scenario {
+            Scenario::Fronts(s) => s.name.clone(),
+            Scenario::Network(s) => s.name.clone(),
+        };
+        for (name, content) in simulation_files(&scenario, &mut |_, _, _| {}).unwrap() {
+            let committed = std::fs::read_to_string(demo_dir().join(&folder).join(&name))
                 .unwrap_or_else(|_| {
-                    panic!(
-                        "{}/{name} is missing; run scripts/make-demo-data",
-                        front.name
-                    )
+                    panic!("{folder}/{name} is missing; run scripts/make-demo-data")
                 });
             assert!(
                 committed == content,
-                "{}/{name} differs from a fresh simulation; run scripts/make-demo-data",
-                front.name
+                "{folder}/{name} differs from a fresh simulation; run scripts/make-demo-data"
             );
             checked += 1;
         }

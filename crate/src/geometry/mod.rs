@@ -178,7 +178,7 @@ fn error(problem: GeometryProblem, message: impl Into<String>) -> GeometryError 
 /// 1. a total-least-squares line whose residual RMS is at most
 ///    [`TrackSettings::max_relative_residual`] of the site spacing;
 /// 2. a circle (Taubin start, geometric Levenberg-Marquardt fit) within the same bound, from
-///    five sites up;
+///    five sites up, whose radius is at most twice the layout's extent;
 /// 3. a strip: a line whose length is at least 5 times its width (width = 2 sqrt(3) x RMS
 ///    offset, the full width of a uniform band), for tracks with several rows of sites;
 /// 4. an annulus: a circle that fits at least twice as well as the line, whose width is at
@@ -458,7 +458,19 @@ fn detect_kind(
             ),
         );
     }
-    let ring = ring.filter(|_| points.len() >= 5);
+    // A circle much larger than the layout is a line seen through noise: a ring needs the
+    // sites to span at least half its radius (an arc of about 30 degrees).
+    let extent = {
+        let (mut lo, mut hi) = ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]);
+        for p in points {
+            for k in 0..2 {
+                lo[k] = lo[k].min(p[k]);
+                hi[k] = hi[k].max(p[k]);
+            }
+        }
+        (hi[0] - lo[0]).hypot(hi[1] - lo[1])
+    };
+    let ring = ring.filter(|r| points.len() >= 5 && extent >= 0.5 * r.circle.radius_um);
     if let Some(ring) = ring {
         let ring_rel = ring.rms_um / spacing;
         if ring_rel <= max_rel {

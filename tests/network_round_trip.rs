@@ -1,0 +1,109 @@
+//! Round trip through the spiking-network simulator: simulate a culture on a strip and on a
+//! ring, record it with virtual electrodes, analyse the spike list as a user would, and
+//! compare with the ground truth measured from all neurons' first spikes: median speed
+//! within 5%, origins and directions agreeing for more than 90% of bursts.
+
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
+use ringline::fronts::{analyze, AnalysisSettings};
+use ringline::geometry::{fit_track, TrackSettings};
+use ringline::import::{read_recording, write_layout, write_spike_list, ReadOptions};
+use ringline::simulate::{parse_scenario, Scenario};
+
+fn scenario(file: &str) -> ringline::simulate::network::NetworkScenario {
+    let path = format!(
+        "{}/../demo-data/scenarios/{file}",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    match parse_scenario(&std::fs::read_to_string(path).unwrap()).unwrap() {
+        Scenario::Network(s) => s,
+        Scenario::Fronts(_) => panic!("expected a network scenario"),
+    }
+}
+
+fn round_trip(file: &str) {
+    let s = scenario(file);
+    let rec = ringline::simulate::network::simulate_network(&s, &mut |_, _, _| {}).unwrap();
+    let (sites, spikes) = rec.electrodes.clone().unwrap();
+    let recording = read_recording(
+        ("s.csv", write_spike_list(&spikes).as_bytes()),
+        ("l.csv", write_layout(&sites).as_bytes()),
+        &ReadOptions::default(),
+    )
+    .unwrap();
+    let fit = fit_track(&recording.sites, &TrackSettings::default()).unwrap();
+    let analysis = analyze(
+        &recording,
+        &fit,
+        &AnalysisSettings::default(),
+        &mut |_, _| {},
+    )
+    .unwrap();
+    let pitch = fit.site_spacing_um.unwrap();
+    let (mut truth_speeds, mut speeds) = (Vec::new(), Vec::new());
+    let (mut compared, mut agree) = (0, 0);
+    for t in &rec.truth.bursts {
+        let Some(truth_speed) = t.speed_mm_s else {
+            continue;
+        };
+        let Some(f) = analysis
+            .bursts
+            .iter()
+            .find(|b| b.start_s - 0.2 <= t.start_s && t.start_s <= b.end_s + 0.2)
+            .and_then(|b| b.front.as_ref())
+        else {
+            continue;
+        };
+        truth_speeds.push(truth_speed);
+        speeds.push(f.speed_mm_s);
+        compared += 1;
+        // The origin: the electrode nearest the truth's origin (taken along the electrode
+        // row, or as an angle on the ring) must be within two electrodes of the fitted one.
+        let site = sites.iter().find(|x| x.id == f.origin_site).unwrap();
+        let ok = match (t.origin_along_um, t.origin_angle_deg) {
+            (Some(a), _) => {
+                let lo = sites.iter().map(|x| x.x_um).fold(f64::INFINITY, f64::min);
+                let hi = sites
+                    .iter()
+                    .map(|x| x.x_um)
+                    .fold(f64::NEG_INFINITY, f64::max);
+                (a.clamp(lo, hi) - site.x_um).abs() <= 2.0 * pitch
+            }
+            (None, Some(deg)) => {
+                let fitted = site.y_um.atan2(site.x_um).to_degrees();
+                let d = (deg - fitted).rem_euclid(360.0);
+                let r = site.x_um.hypot(site.y_um);
+                d.min(360.0 - d).to_radians() * r <= 2.0 * pitch
+            }
+            _ => false,
+        };
+        agree += usize::from(ok);
+    }
+    let median = |v: &mut Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v[v.len() / 2]
+    };
+    let (truth, est) = (median(&mut truth_speeds), median(&mut speeds));
+    let error = (est / truth - 1.0).abs();
+    let agreement = agree as f64 / compared.max(1) as f64;
+    eprintln!(
+        "{file}: {} neurons, {} true bursts with fronts, {compared} compared; median speed {est:.1} mm/s against {truth:.1} mm/s ({:.2}% off); origins agree for {:.1}%",
+        rec.truth.neurons,
+        rec.truth.bursts.iter().filter(|b| b.speed_mm_s.is_some()).count(),
+        error * 100.0,
+        agreement * 100.0
+    );
+    assert!(compared >= 10);
+    assert!(error < 0.05);
+    assert!(agreement > 0.9);
+}
+
+#[test]
+fn strip_culture_round_trip() {
+    round_trip("network-strip-16.json");
+}
+
+#[test]
+fn ring_culture_round_trip() {
+    round_trip("network-ring-24.json");
+}
