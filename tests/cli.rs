@@ -353,3 +353,72 @@ fn analyze_bad_settings_and_traces_exit_2() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("fluorescence traces"));
 }
+
+/// `simulate` writes the files of a network scenario, and a shorter duration from the
+/// command line gives a truth whose bursts all lie inside it.
+#[test]
+fn simulate_network_scenario_with_overrides() {
+    let dir = tempfile::tempdir().unwrap();
+    let scenario = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../demo-data/scenarios/network-strip-16.json"
+    );
+    let out = ringline(
+        &[
+            "simulate",
+            scenario,
+            "--out",
+            "sim",
+            "--duration",
+            "12",
+            "--seed",
+            "5",
+        ],
+        dir.path(),
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    for f in [
+        "spikes.csv",
+        "layout.csv",
+        "traces.csv",
+        "roi_layout.csv",
+        "truth.json",
+    ] {
+        assert!(dir.path().join("sim").join(f).exists(), "{f} missing");
+    }
+    let truth: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("sim/truth.json")).unwrap())
+            .unwrap();
+    assert_eq!(truth["scenario"]["seed"], 5);
+    for b in truth["bursts"].as_array().unwrap() {
+        assert!(b["end_s"].as_f64().unwrap() <= 12.0);
+    }
+    write(
+        dir.path(),
+        "bad.json",
+        b"{\"model\": \"network\", \"name\": 1}",
+    );
+    let out = ringline(&["simulate", "bad.json", "--out", "x"], dir.path());
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains(
+            "bad.json: the scenario cannot be read: invalid type: integer `1`, expected a string"
+        ),
+        "{stderr}"
+    );
+    write(
+        dir.path(),
+        "broken.json",
+        b"{\n  \"model\": \"fronts\",\n  oops\n}",
+    );
+    let out = ringline(&["simulate", "broken.json", "--out", "x"], dir.path());
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr.contains("broken.json: line 3, column 3"), "{stderr}");
+}

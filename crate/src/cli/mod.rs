@@ -94,6 +94,12 @@ struct SimulateArgs {
     /// Folder to write into (created if missing).
     #[arg(long)]
     out: String,
+    /// Replace the scenario's seed.
+    #[arg(long, value_name = "N")]
+    seed: Option<u64>,
+    /// Replace the scenario's duration, seconds.
+    #[arg(long, value_name = "S")]
+    duration: Option<f64>,
 }
 
 #[derive(Args, Debug)]
@@ -338,8 +344,18 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     let bytes = read_file(&args.scenario, &ImportLimits::default())?;
     let text = String::from_utf8(bytes)
         .map_err(|_| Failure::Input(format!("{}: expected UTF-8 JSON text", args.scenario)))?;
-    let scenario = crate::simulate::parse_scenario(&text)
-        .map_err(|e| Failure::Input(format!("{}, {e}", args.scenario)))?;
+    let mut scenario = crate::simulate::parse_scenario(&text)
+        .map_err(|e| Failure::Input(format!("{}: {e}", args.scenario)))?;
+    match &mut scenario {
+        crate::simulate::Scenario::Fronts(s) => {
+            s.seed = args.seed.unwrap_or(s.seed);
+            s.duration_s = args.duration.unwrap_or(s.duration_s);
+        }
+        crate::simulate::Scenario::Network(s) => {
+            s.seed = args.seed.unwrap_or(s.seed);
+            s.duration_s = args.duration.unwrap_or(s.duration_s);
+        }
+    }
     use std::io::IsTerminal;
     let show = std::io::stderr().is_terminal();
     let mut progress = |stage: &str, done: f64, total: f64| {

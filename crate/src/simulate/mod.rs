@@ -31,8 +31,20 @@ pub enum Scenario {
 
 /// Reads a scenario from JSON text; the error says what is wrong in the scenario's words.
 pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
-    serde_json::from_str(text)
-        .map_err(|e| format!("line {}, column {}: {}", e.line(), e.column(), e))
+    serde_json::from_str(text).map_err(|e| {
+        // serde reports no position for errors inside a tagged scenario; say none then.
+        let words = e.to_string();
+        let words = words
+            .split(" at line ")
+            .next()
+            .unwrap_or(&words)
+            .to_string();
+        if e.line() == 0 {
+            format!("the scenario cannot be read: {words}")
+        } else {
+            format!("line {}, column {}: {words}", e.line(), e.column())
+        }
+    })
 }
 
 /// The files a simulation writes, as (file name, content): `spikes.csv` (times in ms with
