@@ -251,6 +251,11 @@ fn inspect(args: &InspectArgs) -> Result<(), Failure> {
     } else {
         report.to_text()
     };
+    print(&text)
+}
+
+/// Writes the command's result to stdout.
+fn print(text: &str) -> Result<(), Failure> {
     std::io::stdout()
         .lock()
         .write_all(text.as_bytes())
@@ -334,10 +339,7 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     } else {
         report.to_text()
     };
-    std::io::stdout()
-        .lock()
-        .write_all(text.as_bytes())
-        .map_err(Failure::Output)
+    print(&text)
 }
 
 fn simulate(args: &SimulateArgs) -> Result<(), Failure> {

@@ -319,7 +319,9 @@ fn lognormal_factor(rng: &mut ChaCha8Rng, cv: f64) -> f64 {
     libm::exp(sigma * normal(rng))
 }
 
-fn nominal_positions(layout: &ElectrodeLayout) -> Vec<[f64; 2]> {
+/// Nominal electrode positions of a layout, micrometres (rows and grids start at the origin,
+/// circles are centred on it).
+pub fn nominal_positions(layout: &ElectrodeLayout) -> Vec<[f64; 2]> {
     match *layout {
         ElectrodeLayout::Row {
             count,

@@ -8,7 +8,7 @@ use crate::detect::{detect_bursts, BurstSettings};
 use crate::fronts::{fit_front, model_name, FrontPoints, FrontSettings};
 use crate::import::{RoiSeries, SiteSpikes};
 use crate::recording::Site;
-use crate::simulate::fronts::ElectrodeLayout;
+use crate::simulate::fronts::{nominal_positions, ElectrodeLayout};
 use crate::simulate::sample::{normal, uniform};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -354,37 +354,7 @@ fn truth_bursts(
 }
 
 fn electrode_positions(layout: &ElectrodeLayout, offset: [f64; 2]) -> Vec<[f64; 2]> {
-    let nominal: Vec<[f64; 2]> = match *layout {
-        ElectrodeLayout::Row {
-            count,
-            pitch_um,
-            angle_deg,
-        } => {
-            let a = angle_deg.to_radians();
-            (0..count)
-                .map(|i| {
-                    [
-                        i as f64 * pitch_um * libm::cos(a),
-                        i as f64 * pitch_um * libm::sin(a),
-                    ]
-                })
-                .collect()
-        }
-        ElectrodeLayout::Circle { count, radius_um } => (0..count)
-            .map(|i| {
-                let a = std::f64::consts::TAU * i as f64 / count as f64;
-                [radius_um * libm::cos(a), radius_um * libm::sin(a)]
-            })
-            .collect(),
-        ElectrodeLayout::Grid {
-            rows,
-            columns,
-            pitch_um,
-        } => (0..rows)
-            .flat_map(|r| (0..columns).map(move |c| [c as f64 * pitch_um, r as f64 * pitch_um]))
-            .collect(),
-    };
-    nominal
+    nominal_positions(layout)
         .iter()
         .map(|p| [p[0] + offset[0], p[1] + offset[1]])
         .collect()
