@@ -341,11 +341,7 @@ fn report_front(
         transit < 3.0 * steps * dt
     });
     let origin_site = recording.sites[points.site[f.origin_point]].id.clone();
-    let (origin_along_um, origin_xy_um, origin_angle_deg) = match f.origin {
-        Origin::Along { along_um } => (Some(along_um), None, None),
-        Origin::Angle { angle_rad } => (None, None, Some(angle_rad.to_degrees())),
-        Origin::Point { xy_um } => (None, Some(xy_um), None),
-    };
+    let (origin_along_um, origin_angle_deg, origin_xy_um) = f.origin.parts();
     FrontReport {
         model: model_name(f.model).into(),
         speed_mm_s: f.speed_mm_s,

@@ -139,6 +139,18 @@ pub enum Origin {
     Point { xy_um: [f64; 2] },
 }
 
+impl Origin {
+    /// The origin as the report's three optional fields: track coordinate (um), ring angle
+    /// (degrees) and plane point (um); exactly one is set.
+    pub fn parts(&self) -> (Option<f64>, Option<f64>, Option<[f64; 2]>) {
+        match *self {
+            Origin::Along { along_um } => (Some(along_um), None, None),
+            Origin::Angle { angle_rad } => (None, Some(angle_rad.to_degrees()), None),
+            Origin::Point { xy_um } => (None, None, Some(xy_um)),
+        }
+    }
+}
+
 /// A model's fit to one burst.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ModelScore {

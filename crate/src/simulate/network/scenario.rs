@@ -326,25 +326,17 @@ fn truth_bursts(
                 ),
                 Err(r) => (None, None, None, None, None, Some(r)),
             };
-            use crate::fronts::Origin;
+            let (origin_along_um, origin_angle_deg, origin_xy_um) =
+                origin.map_or((None, None, None), |o| o.parts());
             NetworkTruthBurst {
                 start_s: b.start_s,
                 end_s: b.end_s,
                 neurons_active: b.sites.len(),
                 model,
                 speed_mm_s: speed,
-                origin_along_um: match origin {
-                    Some(Origin::Along { along_um }) => Some(along_um),
-                    _ => None,
-                },
-                origin_angle_deg: match origin {
-                    Some(Origin::Angle { angle_rad }) => Some(angle_rad.to_degrees()),
-                    _ => None,
-                },
-                origin_xy_um: match origin {
-                    Some(Origin::Point { xy_um }) => Some(xy_um),
-                    _ => None,
-                },
+                origin_along_um,
+                origin_angle_deg,
+                origin_xy_um,
                 direction_xy: direction,
                 rotation,
                 no_front_reason: reason,
