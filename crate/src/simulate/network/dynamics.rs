@@ -4,12 +4,14 @@
 //! Between events a neuron's potential (mV above rest) follows the exact solution
 //! V(t) = D + (V0 - D) exp(-(t - t0) / tau_m) for its constant drive D; a synaptic arrival
 //! adds its weight at once; a neuron whose drive is above threshold crosses it at the
-//! analytic time t0 + tau_m ln((D - V0) / (D - theta)). Arrivals are delivered through
-//! buckets 0.1 ms wide (at most the shortest delay): within one bucket they are applied in
-//! the order they were scheduled, each at its own time, so a spike triggered by an arrival
-//! is timed exactly unless an earlier arrival in the same bucket came later in that order,
-//! when it may be up to one bucket (0.1 ms) late. Threshold crossings under the drive alone
-//! are always exact.
+//! analytic time t0 + tau_m ln((D - V0) / (D - theta)). When a neuron spikes, its whole
+//! synapse row is read once and each arrival goes into the bucket of its time (buckets
+//! 0.1 ms wide, at most the shortest delay, in a ring that spans the longest delay). Within
+//! one bucket arrivals are applied in the order they were scheduled, each at its own time, so
+//! a spike triggered by an arrival is timed exactly unless an earlier arrival in the same
+//! bucket came later in that order, when it may be up to one bucket (0.1 ms) late. Threshold
+//! crossings under the drive alone are always exact. The decay factor comes from a
+//! table-driven exp within 2 ulp of `libm` ([`super::decay`]).
 //!
 //! Short-term depression follows Tsodyks & Markram 1997 (PNAS 94:719): each presynaptic
 //! neuron has resources x in [0, 1] recovering as dx/dt = (1 - x) / tau_rec; a spike uses
@@ -17,6 +19,7 @@
 
 use super::super::sample::exponential;
 use super::culture::Synapses;
+use super::decay::DecayTable;
 use rand::Rng;
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
@@ -71,37 +74,25 @@ pub struct Run {
     pub synaptic_events: u64,
 }
 
-/// A scheduled event, 16 bytes: its time, the neuron with the event kind in the top two
-/// bits, and a payload (a synapse index for a delivery, a state version for a crossing).
+/// A synaptic arrival waiting in the bucket of its time: 16 bytes.
+#[derive(Clone, Copy)]
+struct Arrival {
+    time: f64,
+    target: u32,
+    weight_mv: f32,
+}
+
+/// A scheduled spike of one neuron: a threshold crossing under its drive (valid while the
+/// neuron's state version is `version`) or a spike imposed from outside.
 #[derive(Clone, Copy)]
 struct Event {
     time: f64,
-    target_kind: u32,
-    payload: u32,
+    neuron: u32,
+    /// State version for a crossing; [`FORCED`] for an imposed spike.
+    version: u32,
 }
 
-/// A spike's synapses from index `payload` on are due (target = source neuron, time = spike time).
-const DELIVERY: u32 = 0;
-const CROSSING: u32 = 2;
-const FORCED: u32 = 3;
-const KIND_SHIFT: u32 = 30;
-const TARGET_MASK: u32 = (1 << KIND_SHIFT) - 1;
-
-impl Event {
-    fn new(time: f64, target: u32, kind: u32, payload: u32) -> Self {
-        Event {
-            time,
-            target_kind: target | (kind << KIND_SHIFT),
-            payload,
-        }
-    }
-    fn target(&self) -> usize {
-        (self.target_kind & TARGET_MASK) as usize
-    }
-    fn kind(&self) -> u32 {
-        self.target_kind >> KIND_SHIFT
-    }
-}
+const FORCED: u32 = u32::MAX;
 
 /// Events too far ahead for the ring, earliest first.
 struct Far(Event);
@@ -123,12 +114,16 @@ impl Ord for Far {
     }
 }
 
-/// The membrane state every event touches, kept together for the cache.
+/// The state every input touches, 32 bytes so that one input reads one half cache line.
 #[derive(Clone, Copy)]
 struct Membrane {
+    /// Potential at `last`, mV above rest.
     v: f64,
+    /// Time of the last update, s.
     last: f64,
     refractory_until: f64,
+    /// Constant drive (R I), mV.
+    drive: f64,
 }
 
 /// Everything the integrator needs.
@@ -142,41 +137,51 @@ pub struct Network<'a> {
     pub noise: &'a NoiseParams,
 }
 
-/// The ring of delivery buckets plus a heap for events beyond it.
-struct Queue {
-    width: f64,
-    buckets: Vec<Vec<Event>>,
+/// Buckets of `width` seconds in a ring spanning the longest delay: synaptic arrivals go
+/// straight into the bucket of their time when their spike happens; threshold crossings and
+/// imposed spikes go into the ring when near and into a heap when further ahead.
+struct Schedule {
+    /// Buckets per second (1 / width).
+    rate: f64,
+    /// Ring length minus one; the ring length is a power of two.
+    mask: u64,
+    arrivals: Vec<Vec<Arrival>>,
+    events: Vec<Vec<Event>>,
     far: BinaryHeap<Far>,
+    /// Events that fall in the bucket being processed.
+    due_now: Vec<Event>,
 }
 
-impl Queue {
+impl Schedule {
     fn bucket_of(&self, t: f64) -> u64 {
-        (t / self.width).floor() as u64
+        // Times are never negative, so truncation is the floor.
+        (t * self.rate) as u64
     }
 
     /// Schedules `e` while bucket `now` is being processed (events never go before it).
-    fn push(&mut self, now: u64, e: Event) {
-        let ring = self.buckets.len() as u64;
+    fn push_event(&mut self, now: u64, e: Event) {
+        let ring = self.mask + 1;
         let b = self.bucket_of(e.time).max(now);
-        if b < now + ring - 1 {
-            self.buckets[(b % ring) as usize].push(e);
+        if b == now {
+            self.due_now.push(e);
+        } else if b < now + ring - 1 {
+            self.events[(b & self.mask) as usize].push(e);
         } else {
             self.far.push(Far(e));
         }
     }
 
-    /// Schedules `e` by its due time `due` rather than its own time (deliveries carry the
-    /// spike's time). Deliveries are never further ahead than the longest delay, which the
-    /// ring spans.
-    fn push_at(&mut self, now: u64, due: f64, e: Event) {
-        let ring = self.buckets.len() as u64;
-        let b = self.bucket_of(due).max(now);
-        self.buckets[(b % ring) as usize].push(e);
+    /// Schedules an arrival while bucket `now` is processed; arrivals come at least one
+    /// shortest delay (>= one bucket) after their spike and at most the longest delay, which
+    /// the ring spans.
+    fn push_arrival(&mut self, now: u64, a: Arrival) {
+        let b = self.bucket_of(a.time).max(now + 1);
+        self.arrivals[(b & self.mask) as usize].push(a);
     }
 
     /// Moves heap events whose buckets have come within the ring's reach.
     fn pull_near(&mut self, now: u64) {
-        let ring = self.buckets.len() as u64;
+        let ring = self.mask + 1;
         while self
             .far
             .peek()
@@ -184,7 +189,7 @@ impl Queue {
         {
             if let Some(Far(e)) = self.far.pop() {
                 let b = self.bucket_of(e.time).max(now);
-                self.buckets[(b % ring) as usize].push(e);
+                self.events[(b & self.mask) as usize].push(e);
             }
         }
     }
@@ -194,54 +199,92 @@ impl Queue {
 struct Engine<'a> {
     net: &'a Network<'a>,
     duration_s: f64,
-    q: Queue,
+    q: Schedule,
     membrane: Vec<Membrane>,
     resources: Vec<f64>,
     last_spike: Vec<f64>,
     version: Vec<u32>,
-    self_firing: Vec<bool>,
     spikes: Vec<Spike>,
     synaptic_events: u64,
-    /// Jump (mV) each neuron's latest spike delivers, read by its deliveries.
-    jump_mv: Vec<f32>,
+    decay: DecayTable,
 }
 
 impl Engine<'_> {
     /// An input moved neuron j's potential without a spike: a neuron driven above threshold
     /// now crosses at a new time.
     fn moved(&mut self, j: usize, b: u64) {
-        if !self.self_firing[j] {
+        let m = self.membrane[j];
+        if m.drive <= self.net.neuron.threshold_mv {
             return;
         }
-        self.version[j] = self.version[j].wrapping_add(1);
-        let m = self.membrane[j];
-        if let Some(t) = crossing_time(m.v, m.last, self.net.drive_mv[j], self.net.neuron) {
+        self.version[j] = self.version[j].wrapping_add(1) % FORCED;
+        if let Some(t) = crossing_time(m.v, m.last, m.drive, self.net.neuron) {
             if t < self.duration_s {
-                self.q
-                    .push(b, Event::new(t, j as u32, CROSSING, self.version[j]));
+                self.q.push_event(
+                    b,
+                    Event {
+                        time: t,
+                        neuron: j as u32,
+                        version: self.version[j],
+                    },
+                );
             }
         }
     }
 
+    /// Applies an input of `weight` mV to neuron `j` at `t`, and fires it when it reaches
+    /// threshold.
+    fn input(&mut self, j: usize, t: f64, weight: f64, b: u64) {
+        if apply_input(
+            &mut self.membrane[j],
+            t,
+            weight,
+            self.net.neuron,
+            &self.decay,
+        ) {
+            let ts = t.max(self.membrane[j].last);
+            self.spike(j, ts, b);
+        } else {
+            self.moved(j, b);
+        }
+    }
+
+    /// Handles a crossing or imposed spike taken from the schedule.
+    fn event(&mut self, ev: Event, b: u64) {
+        let j = ev.neuron as usize;
+        if ev.time >= self.duration_s || ev.time < self.membrane[j].refractory_until {
+            return;
+        }
+        if ev.version == FORCED {
+            let t = ev.time.max(self.membrane[j].last);
+            self.spike(j, t, b);
+        } else if ev.version == self.version[j] {
+            self.spike(j, ev.time, b);
+        }
+    }
+
     /// Records a spike of neuron `j` at `t` while bucket `b` is processed: reset,
-    /// refractoriness, depression, the drive's next crossing, and the first delivery of its
-    /// synapses (rows are sorted by delay, so deliveries go out in delay groups).
+    /// refractoriness, depression, the drive's next crossing, and one arrival per synapse in
+    /// the bucket of its time (the row is read once, front to back).
     fn spike(&mut self, j: usize, t: f64, b: u64) {
         let p = self.net.neuron;
         self.spikes.push(Spike {
             time_s: t,
             neuron: j as u32,
         });
-        self.version[j] = self.version[j].wrapping_add(1);
+        self.version[j] = self.version[j].wrapping_add(1) % FORCED;
         let m = &mut self.membrane[j];
         m.v = p.reset_mv;
         m.refractory_until = t + p.refractory_s;
         m.last = m.refractory_until;
-        let refractory_until = m.refractory_until;
+        let (refractory_until, drive) = (m.refractory_until, m.drive);
         let syn = self.net.synapse;
         let efficacy = if syn.depression_u > 0.0 {
             let x = 1.0
-                - (1.0 - self.resources[j]) * libm::exp(-(t - self.last_spike[j]) / syn.recovery_s);
+                - (1.0 - self.resources[j])
+                    * self
+                        .decay
+                        .exp_neg((t - self.last_spike[j]) / syn.recovery_s);
             let used = syn.depression_u * x;
             self.resources[j] = x - used;
             used
@@ -249,12 +292,16 @@ impl Engine<'_> {
             1.0
         };
         self.last_spike[j] = t;
-        if self.self_firing[j] {
-            if let Some(tc) = crossing_time(p.reset_mv, refractory_until, self.net.drive_mv[j], p) {
-                if tc < self.duration_s {
-                    self.q
-                        .push(b, Event::new(tc, j as u32, CROSSING, self.version[j]));
-                }
+        if let Some(tc) = crossing_time(p.reset_mv, refractory_until, drive, p) {
+            if tc < self.duration_s {
+                self.q.push_event(
+                    b,
+                    Event {
+                        time: tc,
+                        neuron: j as u32,
+                        version: self.version[j],
+                    },
+                );
             }
         }
         let jump = if self.net.excitatory[j] {
@@ -264,13 +311,25 @@ impl Engine<'_> {
         };
         let s = self.net.synapses;
         let (a, z) = (s.offsets[j] as usize, s.offsets[j + 1] as usize);
-        if a < z {
-            self.jump_mv[j] = jump as f32;
-            let first = t + f64::from(s.links[a].delay_s);
-            if first < self.duration_s {
-                self.q
-                    .push_at(b + 1, first, Event::new(t, j as u32, DELIVERY, a as u32));
+        for k in a..z {
+            let link = s.links[k];
+            let time = t + f64::from(link.delay_s);
+            if time >= self.duration_s {
+                break; // the row is sorted by delay: the rest arrive later still
             }
+            let weight = match &s.weights {
+                Some(w) => jump * f64::from(w[k]),
+                None => jump,
+            };
+            self.q.push_arrival(
+                b,
+                Arrival {
+                    time,
+                    target: link.target,
+                    weight_mv: weight as f32,
+                },
+            );
+            self.synaptic_events += 1;
         }
     }
 }
@@ -296,31 +355,34 @@ pub fn integrate(
         1e-4
     };
     // The ring spans the longest delay; drive crossings further ahead wait in the heap.
-    let ring = ((max_delay / width).ceil() as usize + 2).max(2);
+    let ring = ((max_delay / width).ceil() as usize + 2).next_power_of_two();
     let mut e = Engine {
         net,
         duration_s,
-        q: Queue {
-            width,
-            buckets: vec![Vec::new(); ring],
+        q: Schedule {
+            rate: 1.0 / width,
+            mask: ring as u64 - 1,
+            arrivals: vec![Vec::new(); ring],
+            events: vec![Vec::new(); ring],
             far: BinaryHeap::new(),
+            due_now: Vec::new(),
         },
-        membrane: vec![
-            Membrane {
+        membrane: net
+            .drive_mv
+            .iter()
+            .map(|&drive| Membrane {
                 v: 0.0,
                 last: 0.0,
                 refractory_until: f64::NEG_INFINITY,
-            };
-            n
-        ],
+                drive,
+            })
+            .collect(),
         resources: vec![1.0; n],
         last_spike: vec![f64::NEG_INFINITY; n],
         version: vec![0; n],
-        // Only neurons driven above threshold can cross it without input.
-        self_firing: net.drive_mv.iter().map(|&d| d > p.threshold_mv).collect(),
         spikes: Vec::new(),
         synaptic_events: 0,
-        jump_mv: vec![0.0; n],
+        decay: DecayTable::new(),
     };
     // Independent Poisson kicks at rate r on each of n neurons are, together, one Poisson
     // process at rate n r whose every kick picks its neuron at random (superposition), so
@@ -340,91 +402,60 @@ pub fn integrate(
     for j in 0..n {
         if let Some(t) = crossing_time(0.0, 0.0, net.drive_mv[j], p) {
             if t < duration_s {
-                e.q.push(0, Event::new(t, j as u32, CROSSING, 0));
+                e.q.push_event(
+                    0,
+                    Event {
+                        time: t,
+                        neuron: j as u32,
+                        version: 0,
+                    },
+                );
             }
         }
     }
     for &(j, t) in forced {
-        e.q.push(0, Event::new(t, j, FORCED, 0));
+        e.q.push_event(
+            0,
+            Event {
+                time: t,
+                neuron: j,
+                version: FORCED,
+            },
+        );
     }
+    // Events pushed before the loop for bucket 0 wait in `due_now`; bucket 0 takes them.
     let total_buckets = e.q.bucket_of(duration_s) + 1;
     let mut next_report = 1.0;
-    let mut current: Vec<Event> = Vec::new();
+    let mut events: Vec<Event> = Vec::new();
+    let mut arrivals: Vec<Arrival> = Vec::new();
     for b in 0..total_buckets {
         e.q.pull_near(b);
-        let slot = (b % ring as u64) as usize;
-        std::mem::swap(&mut current, &mut e.q.buckets[slot]);
+        let slot = (b & e.q.mask) as usize;
+        std::mem::swap(&mut events, &mut e.q.events[slot]);
+        std::mem::swap(&mut arrivals, &mut e.q.arrivals[slot]);
         let bucket_end = ((b + 1) as f64 * width).min(duration_s);
         while next_noise < bucket_end {
             let j = rng.random_range(0..n);
-            if apply_input(&mut e.membrane[j], next_noise, noise_mv, net.drive_mv[j], p) {
-                let t = next_noise.max(e.membrane[j].last);
-                e.spike(j, t, b);
-            } else {
-                e.moved(j, b);
-            }
+            e.input(j, next_noise, noise_mv, b);
             next_noise += exponential(rng, noise_gap);
         }
-        for ev in &current {
-            if ev.time >= duration_s {
-                continue;
-            }
-            let j = ev.target();
-            match ev.kind() {
-                DELIVERY => {
-                    // Deliver source j's synapses whose arrivals fall in this bucket; send the
-                    // rest on to the bucket of the next delay.
-                    let t = ev.time;
-                    let jump = f64::from(e.jump_mv[j]);
-                    let end = syn.offsets[j + 1] as usize;
-                    let mut k = ev.payload as usize;
-                    while k < end {
-                        let link = syn.links[k];
-                        let arrival = t + f64::from(link.delay_s);
-                        if arrival >= duration_s {
-                            break;
-                        }
-                        let bk = e.q.bucket_of(arrival);
-                        if bk > b {
-                            e.q.push_at(
-                                b + 1,
-                                arrival,
-                                Event::new(t, j as u32, DELIVERY, k as u32),
-                            );
-                            break;
-                        }
-                        let target = link.target as usize;
-                        e.synaptic_events += 1;
-                        let w = match &syn.weights {
-                            Some(weights) => jump * f64::from(weights[k]),
-                            None => jump,
-                        };
-                        if apply_input(&mut e.membrane[target], arrival, w, net.drive_mv[target], p)
-                        {
-                            let ts = arrival.max(e.membrane[target].last);
-                            e.spike(target, ts, b);
-                        } else {
-                            e.moved(target, b);
-                        }
-                        k += 1;
-                    }
-                }
-                CROSSING => {
-                    if ev.payload == e.version[j] && ev.time >= e.membrane[j].refractory_until {
-                        e.spike(j, ev.time, b);
-                    }
-                }
-                _ => {
-                    if ev.time >= e.membrane[j].refractory_until {
-                        let t = ev.time.max(e.membrane[j].last);
-                        e.spike(j, t, b);
-                    }
-                }
+        for &ev in &events {
+            e.event(ev, b);
+        }
+        for a in &arrivals {
+            e.input(a.target as usize, a.time, f64::from(a.weight_mv), b);
+        }
+        // Crossings moved into this very bucket by the inputs above (and any they cause).
+        while !e.q.due_now.is_empty() {
+            let now: Vec<Event> = std::mem::take(&mut e.q.due_now);
+            for ev in now {
+                e.event(ev, b);
             }
         }
-        current.clear();
+        events.clear();
+        arrivals.clear();
         // A bucket that swelled in a burst keeps at most 1 MiB of capacity.
-        current.shrink_to(1 << 16);
+        arrivals.shrink_to(1 << 16);
         let now = (b + 1) as f64 * width;
         if now >= next_report {
             progress(now.min(duration_s));
@@ -440,18 +471,24 @@ pub fn integrate(
 }
 
 /// Applies an input of `weight` mV at time `t`; returns whether the neuron reaches threshold.
-fn apply_input(s: &mut Membrane, t: f64, weight: f64, drive: f64, p: &NeuronParams) -> bool {
+fn apply_input(
+    s: &mut Membrane,
+    t: f64,
+    weight: f64,
+    p: &NeuronParams,
+    decay: &DecayTable,
+) -> bool {
     if t < s.refractory_until {
         return false;
     }
     if t >= s.last {
-        s.v = drive + (s.v - drive) * libm::exp(-(t - s.last) / p.tau_m_s);
+        s.v = s.drive + (s.v - s.drive) * decay.exp_neg((t - s.last) / p.tau_m_s);
         s.last = t;
         s.v += weight;
     } else {
         // An earlier arrival handled after a later one in the same bucket: its jump has
         // decayed by now.
-        s.v += weight * libm::exp(-(s.last - t) / p.tau_m_s);
+        s.v += weight * decay.exp_neg((s.last - t) / p.tau_m_s);
     }
     s.v >= p.threshold_mv
 }

@@ -3,6 +3,7 @@
 //! virtual electrodes or calcium imaging, with the ground truth of every front.
 
 pub mod culture;
+mod decay;
 pub mod dynamics;
 pub mod scenario;
 
