@@ -1,12 +1,58 @@
 //! WebAssembly bindings: a thin shell for the page's worker. Each entry point takes file
 //! bytes and settings (plain JS objects, read with serde), calls the library and hands back
-//! plain JS objects. Errors come back as `{ place, problem, message }` objects, never panics.
+//! plain JS objects. Errors come back as `{ place, problem, message }` objects, never panics;
+//! should a panic happen anyway, its message is kept for [`last_panic`] and the worker that
+//! caught the trap is replaced by the page.
 
 use crate::fronts::AnalysisSettings;
 use crate::geometry::TrackSettings;
-use crate::import::ReadOptions;
+use crate::import::{sniff_file_kind, FileKind, ReadOptions};
+use crate::report::figures::{Figure, Size};
+use crate::report::workbook::{open_notebook, FigureRequest, StepSettings, ViewSettings, Workbook};
 use serde::Serialize;
+use std::sync::Mutex;
 use wasm_bindgen::prelude::*;
+
+static LAST_PANIC: Mutex<String> = Mutex::new(String::new());
+
+/// Keeps every panic's message for [`last_panic`] (runs once when the module starts).
+#[wasm_bindgen(start)]
+pub fn start() {
+    std::panic::set_hook(Box::new(|info| {
+        if let Ok(mut last) = LAST_PANIC.lock() {
+            *last = info.to_string();
+        }
+    }));
+}
+
+/// The message of the last panic, if any: the worker reads it after a trap.
+#[wasm_bindgen(js_name = lastPanic)]
+pub fn last_panic() -> String {
+    LAST_PANIC.lock().map(|s| s.clone()).unwrap_or_default()
+}
+
+/// Panics on purpose, so the page's tests can check that a panic is shown and the worker is
+/// replaced. Nothing in the page calls it.
+#[wasm_bindgen(js_name = panicForTest)]
+pub fn panic_for_test() {
+    #[allow(clippy::panic)]
+    {
+        panic!("a deliberate panic for the page's recovery test");
+    }
+}
+
+/// What a file holds, from its header: `spike_list`, `layout`, `roi_traces`, or `null`.
+#[wasm_bindgen(js_name = sniffKind)]
+pub fn sniff_kind(bytes: &[u8]) -> Option<String> {
+    sniff_file_kind(bytes).map(|k| {
+        match k {
+            FileKind::SpikeList => "spike_list",
+            FileKind::Layout => "layout",
+            FileKind::RoiTraces => "roi_traces",
+        }
+        .to_string()
+    })
+}
 
 fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsValue> {
     value
@@ -113,4 +159,213 @@ pub fn analyze(
         Ok(report) => to_js(&report),
         Err(e) => Err(error_to_js(&e)?),
     }
+}
+
+fn progress_fn(progress: &Option<js_sys::Function>) -> impl FnMut(usize, usize) + '_ {
+    move |done: usize, total: usize| {
+        if let Some(f) = progress {
+            let _ = f.call2(
+                &JsValue::NULL,
+                &JsValue::from(done as u32),
+                &JsValue::from(total as u32),
+            );
+        }
+    }
+}
+
+fn message<E: std::fmt::Display + Serialize>(e: &E) -> JsValue {
+    #[derive(Serialize)]
+    struct Located<'a, E> {
+        /// The sentence the command line prints, with its place.
+        text: String,
+        detail: &'a E,
+    }
+    to_js(&Located {
+        text: e.to_string(),
+        detail: e,
+    })
+    .unwrap_or_else(|_| JsValue::from_str(&e.to_string()))
+}
+
+fn located(e: &crate::Error) -> JsValue {
+    match e {
+        crate::Error::Import(inner) => message(inner),
+        crate::Error::Geometry(inner) => message(inner),
+        crate::Error::Analysis(inner) => message(inner),
+    }
+}
+
+/// The page's state in the worker: files, settings and results of every step (see
+/// [`crate::report::workbook`]).
+#[wasm_bindgen(js_name = Workbook)]
+pub struct WasmWorkbook {
+    inner: Workbook,
+    /// The last activation figure, for the pointer read-out.
+    activation: Option<Figure>,
+}
+
+#[wasm_bindgen(js_class = Workbook)]
+impl WasmWorkbook {
+    /// Reads both files and fits the track with `settings` (a `StepSettings` object or null).
+    #[wasm_bindgen(constructor)]
+    pub fn new(
+        activity_name: &str,
+        activity_bytes: &[u8],
+        layout_name: &str,
+        layout_bytes: &[u8],
+        settings: JsValue,
+    ) -> Result<WasmWorkbook, JsValue> {
+        let settings: StepSettings = self::settings(settings, "notebook")?;
+        Workbook::open(
+            (activity_name, activity_bytes),
+            (layout_name, layout_bytes),
+            settings,
+        )
+        .map(|inner| WasmWorkbook {
+            inner,
+            activation: None,
+        })
+        .map_err(|e| located(&e))
+    }
+
+    /// Re-opens a notebook file and runs its analysis.
+    #[wasm_bindgen(js_name = fromNotebook)]
+    pub fn from_notebook(
+        name: &str,
+        bytes: &[u8],
+        progress: Option<js_sys::Function>,
+    ) -> Result<WasmWorkbook, JsValue> {
+        let nb = open_notebook(name, bytes).map_err(|e| message(&e))?;
+        let mut report = progress_fn(&progress);
+        Workbook::from_notebook(&nb, &mut report)
+            .map(|inner| WasmWorkbook {
+                inner,
+                activation: None,
+            })
+            .map_err(|e| located(&e))
+    }
+
+    /// The inspection: sites, track, notices.
+    pub fn inspection(&self) -> Result<JsValue, JsValue> {
+        to_js(self.inner.inspection())
+    }
+
+    /// Every setting in use.
+    pub fn settings(&self) -> Result<JsValue, JsValue> {
+        to_js(&self.inner.settings)
+    }
+
+    /// Re-fits the track with new track settings; returns the new inspection.
+    #[wasm_bindgen(js_name = setTrack)]
+    pub fn set_track(&mut self, track: JsValue) -> Result<JsValue, JsValue> {
+        let track: TrackSettings = settings(track, "track")?;
+        self.activation = None;
+        match self.inner.set_track(track) {
+            Ok(inspection) => to_js(inspection),
+            Err(e) => Err(located(&e)),
+        }
+    }
+
+    /// Runs the analysis; `progress(done, total)` after each burst. Returns the report.
+    pub fn analyze(
+        &mut self,
+        analysis: JsValue,
+        progress: Option<js_sys::Function>,
+    ) -> Result<JsValue, JsValue> {
+        let analysis: AnalysisSettings = settings(analysis, "analysis")?;
+        let mut report = progress_fn(&progress);
+        self.activation = None;
+        match self.inner.analyze(analysis, &mut report) {
+            Ok(r) => to_js(r),
+            Err(e) => Err(located(&e)),
+        }
+    }
+
+    /// The report of the last analysis, or null.
+    pub fn report(&self) -> Result<JsValue, JsValue> {
+        to_js(&self.inner.report())
+    }
+
+    /// Sets the selected burst and the raster window.
+    #[wasm_bindgen(js_name = setView)]
+    pub fn set_view(&mut self, view: JsValue) -> Result<(), JsValue> {
+        self.inner.settings.view = settings::<ViewSettings>(view, "view")?;
+        Ok(())
+    }
+
+    /// Draws a figure: `request` is `{ figure: "site_map" | "raster" | "population_rate" |
+    /// "interval_histogram" | "activation" | "speed_over_time" | "speed_histogram" |
+    /// "initiation_sites" | "reliability" }`. Returns `{ svg, width_px, height_px }`.
+    pub fn figure(
+        &mut self,
+        request: JsValue,
+        width_px: u32,
+        height_px: u32,
+    ) -> Result<JsValue, JsValue> {
+        let request: FigureRequest = serde_wasm_bindgen::from_value(request)
+            .map_err(|e| JsValue::from_str(&format!("figure: the request cannot be read: {e}")))?;
+        let size = Size {
+            width_px: width_px.clamp(200, 4000),
+            height_px: height_px.clamp(150, 4000),
+        };
+        let figure = self
+            .inner
+            .figure(&request, size)
+            .map_err(|e| message(&e))?;
+        #[derive(Serialize)]
+        struct Drawn<'a> {
+            svg: &'a str,
+            width_px: u32,
+            height_px: u32,
+        }
+        let out = to_js(&Drawn {
+            svg: &figure.svg,
+            width_px: figure.width_px,
+            height_px: figure.height_px,
+        });
+        if request == FigureRequest::Activation {
+            self.activation = Some(figure);
+        }
+        out
+    }
+
+    /// The activation point nearest to (x, y) pixels of the last activation figure (within
+    /// 12 px), described with its units; null when none is near.
+    pub fn readout(&self, x_px: f64, y_px: f64) -> Option<String> {
+        self.activation
+            .as_ref()
+            .and_then(|f| f.nearest(x_px, y_px, 12.0))
+            .map(|p| p.label.clone())
+    }
+
+    /// `{ bursts_csv, fronts_csv, activation_csv, summary_json }`, as `ringline analyze --out`
+    /// writes them; null before the analysis.
+    pub fn exports(&self) -> Result<JsValue, JsValue> {
+        to_js(&self.inner.exports())
+    }
+
+    /// The notebook file (JSON text).
+    #[wasm_bindgen(js_name = notebookJson)]
+    pub fn notebook_json(&self) -> String {
+        self.inner.notebook_json()
+    }
+}
+
+/// The demo recording the page offers on first load: `{ activity_name, activity, layout_name,
+/// layout }` (text). It is the kinematic strip of `demo-data/strip-16`, made by our simulator.
+#[wasm_bindgen(js_name = demoFiles)]
+pub fn demo_files() -> Result<JsValue, JsValue> {
+    #[derive(Serialize)]
+    struct Demo {
+        activity_name: &'static str,
+        activity: &'static str,
+        layout_name: &'static str,
+        layout: &'static str,
+    }
+    to_js(&Demo {
+        activity_name: "strip-16/spikes.csv",
+        activity: include_str!("../../demo-data/strip-16/spikes.csv"),
+        layout_name: "strip-16/layout.csv",
+        layout: include_str!("../../demo-data/strip-16/layout.csv"),
+    })
 }

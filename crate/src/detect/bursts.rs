@@ -153,22 +153,45 @@ pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> Vec<Net
         .collect()
 }
 
-/// (start, end, peak) windows from the smoothed population rate.
-fn rate_windows(trains_s: &[Vec<f64>], s: &PopulationRateSettings) -> Vec<(f64, f64, f64)> {
-    let (Some(first), Some(last)) = (
-        trains_s
-            .iter()
-            .filter_map(|t| t.first())
-            .copied()
-            .reduce(f64::min),
-        trains_s
-            .iter()
-            .filter_map(|t| t.last())
-            .copied()
-            .reduce(f64::max),
-    ) else {
-        return Vec::new();
-    };
+/// The smoothed population rate and the levels the rate detector uses.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PopulationRate {
+    /// Start of the first bin, seconds.
+    pub origin_s: f64,
+    /// Bin width, seconds.
+    pub bin_s: f64,
+    /// Rate in each bin, spikes per second summed over all sites.
+    pub rate_hz: Vec<f64>,
+    /// Median rate, spikes/s.
+    pub baseline_hz: f64,
+    /// A burst must reach this rate, spikes/s.
+    pub threshold_hz: f64,
+    /// A burst's window extends while the rate is above this, spikes/s.
+    pub edge_hz: f64,
+}
+
+impl PopulationRate {
+    /// Centre of bin `k`, seconds.
+    pub fn time_s(&self, k: usize) -> f64 {
+        self.origin_s + (k as f64 + 0.5) * self.bin_s
+    }
+}
+
+/// Population rate of all spikes: counts in bins of `bin_s`, smoothed by a Gaussian of SD
+/// `smooth_sd_s` (normalised to spikes per second), with the median baseline, the threshold
+/// `median + threshold_sd * MAD / 0.6745` (at least `min_coincident_spikes` single-spike
+/// peaks) and the edge level. `None` when there are no spikes.
+pub fn population_rate(trains_s: &[Vec<f64>], s: &PopulationRateSettings) -> Option<PopulationRate> {
+    let first = trains_s
+        .iter()
+        .filter_map(|t| t.first())
+        .copied()
+        .reduce(f64::min)?;
+    let last = trains_s
+        .iter()
+        .filter_map(|t| t.last())
+        .copied()
+        .reduce(f64::max)?;
     let bin = s.bin_s;
     let pad = 4.0 * s.smooth_sd_s;
     let origin = first - pad;
@@ -206,8 +229,24 @@ fn rate_windows(trains_s: &[Vec<f64>], s: &PopulationRateSettings) -> Vec<(f64, 
     let single_spike_peak = kernel[half] / norm;
     let threshold =
         (baseline + s.threshold_sd * spread).max(s.min_coincident_spikes * single_spike_peak);
-    let edge = baseline + s.edge_fraction * (threshold - baseline);
-    let time = |k: usize| origin + (k as f64 + 0.5) * bin;
+    Some(PopulationRate {
+        origin_s: origin,
+        bin_s: bin,
+        rate_hz: rate,
+        baseline_hz: baseline,
+        threshold_hz: threshold,
+        edge_hz: baseline + s.edge_fraction * (threshold - baseline),
+    })
+}
+
+/// (start, end, peak) windows from the smoothed population rate.
+fn rate_windows(trains_s: &[Vec<f64>], s: &PopulationRateSettings) -> Vec<(f64, f64, f64)> {
+    let Some(pr) = population_rate(trains_s, s) else {
+        return Vec::new();
+    };
+    let (bin, bins, threshold, edge) = (pr.bin_s, pr.rate_hz.len(), pr.threshold_hz, pr.edge_hz);
+    let rate = &pr.rate_hz;
+    let time = |k: usize| pr.time_s(k);
 
     let mut windows: Vec<(usize, usize, usize)> = Vec::new();
     let mut k = 0;

@@ -4,5 +4,6 @@
 mod bursts;
 
 pub use bursts::{
-    detect_bursts, BurstDetector, BurstSettings, IsiNSettings, NetworkBurst, PopulationRateSettings,
+    detect_bursts, population_rate, BurstDetector, BurstSettings, IsiNSettings, NetworkBurst, PopulationRate,
+    PopulationRateSettings,
 };

@@ -2,6 +2,9 @@
 //! structs with units in every field name, and their text renderings for the terminal.
 
 mod analysis;
+pub mod figures;
+mod svg;
+pub mod workbook;
 mod inspection;
 
 pub use analysis::{AnalysisReport, ANALYSIS_SCHEMA};

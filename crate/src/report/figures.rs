@@ -1,0 +1,846 @@
+//! Figures of the page and of exports, written as SVG text (see [`super::svg`]): the same
+//! figure code serves the screen (the page shows the SVG as an image) and the SVG export.
+//!
+//! Every axis carries its unit. Colours are the Okabe-Ito palette (Okabe & Ito 2008, "Color
+//! Universal Design"), which stays distinguishable under the common colour-vision
+//! deficiencies. Figures that offer a read-out return the pixel position and label of every
+//! data point, and [`Figure::nearest`] names the point under the pointer.
+
+use super::{AnalysisReport, Inspection};
+use crate::detect::PopulationRate;
+use crate::fronts::{BurstResult, FrontReport};
+use crate::geometry::{Rotation, Track};
+use super::svg::{Colour, Plot};
+use serde::Serialize;
+use std::f64::consts::TAU;
+
+/// Okabe-Ito colours.
+pub const BLACK: Colour = Colour(0, 0, 0);
+pub const ORANGE: Colour = Colour(230, 159, 0);
+pub const SKY_BLUE: Colour = Colour(86, 180, 233);
+pub const GREEN: Colour = Colour(0, 158, 115);
+pub const BLUE: Colour = Colour(0, 114, 178);
+pub const VERMILLION: Colour = Colour(213, 94, 0);
+pub const PURPLE: Colour = Colour(204, 121, 167);
+const GREY: Colour = Colour(150, 150, 150);
+
+/// A drawn figure.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Figure {
+    /// The whole figure as an SVG document.
+    pub svg: String,
+    pub width_px: u32,
+    pub height_px: u32,
+    /// Data points a pointer can be read out at (empty for figures without a read-out).
+    pub points: Vec<ReadoutPoint>,
+}
+
+/// One data point's place in the figure and its description.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ReadoutPoint {
+    pub x_px: f64,
+    pub y_px: f64,
+    pub label: String,
+}
+
+impl Figure {
+    /// The point nearest to (x, y) pixels, if one is within `radius_px`.
+    pub fn nearest(&self, x_px: f64, y_px: f64, radius_px: f64) -> Option<&ReadoutPoint> {
+        self.points
+            .iter()
+            .map(|p| (p, (p.x_px - x_px).hypot(p.y_px - y_px)))
+            .filter(|(_, d)| *d <= radius_px)
+            .min_by(|a, b| a.1.total_cmp(&b.1))
+            .map(|(p, _)| p)
+    }
+}
+
+/// Why a figure could not be drawn.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FigureError {
+    pub message: String,
+}
+
+impl std::fmt::Display for FigureError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+impl std::error::Error for FigureError {}
+
+fn empty(what: &str) -> FigureError {
+    FigureError {
+        message: format!("nothing to draw: {what}"),
+    }
+}
+
+/// Size of a figure, pixels.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Size {
+    pub width_px: u32,
+    pub height_px: u32,
+}
+
+impl Default for Size {
+    fn default() -> Self {
+        Size {
+            width_px: 760,
+            height_px: 340,
+        }
+    }
+}
+
+/// Range covering `values` with 5% of padding each side (a unit range around a single value).
+fn padded(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
+    let (lo, hi) = values
+        .filter(|v| v.is_finite())
+        .fold(None, |acc: Option<(f64, f64)>, v| match acc {
+            None => Some((v, v)),
+            Some((a, b)) => Some((a.min(v), b.max(v))),
+        })?;
+    let span = hi - lo;
+    if span <= 0.0 {
+        let d = if lo == 0.0 { 1.0 } else { lo.abs() * 0.1 };
+        return Some((lo - d, hi + d));
+    }
+    Some((lo - 0.05 * span, hi + 0.05 * span))
+}
+
+/// Draws a chart with the given axes; `draw` adds the marks and returns the read-out points
+/// (data coordinates plus label), which are mapped to pixels.
+fn chart(
+    size: Size,
+    title: &str,
+    x: (f64, f64, &str),
+    y: (f64, f64, &str),
+    draw: impl FnOnce(&mut Plot) -> Result<Vec<(f64, f64, String)>, FigureError>,
+) -> Result<Figure, FigureError> {
+    if !(x.0.is_finite() && x.1.is_finite() && y.0.is_finite() && y.1.is_finite())
+        || x.1 <= x.0
+        || y.1 <= y.0
+    {
+        return Err(empty("the axes have no extent"));
+    }
+    let mut plot = Plot::new(size.width_px, size.height_px, title, x, y);
+    let marks = draw(&mut plot)?;
+    let points = marks
+        .into_iter()
+        .map(|(px, py, label)| {
+            let (u, v) = plot.at(px, py);
+            ReadoutPoint {
+                x_px: u,
+                y_px: v,
+                label,
+            }
+        })
+        .collect();
+    Ok(Figure {
+        svg: plot.finish(),
+        width_px: size.width_px,
+        height_px: size.height_px,
+        points,
+    })
+}
+
+/// Map of the sites in the layout's axes with the track drawn over them: active sites filled,
+/// silent sites hollow, off-track sites in vermillion, the track's start marked.
+pub fn site_map(inspection: &Inspection, size: Size) -> Result<Figure, FigureError> {
+    let sites = &inspection.sites;
+    if sites.is_empty() {
+        return Err(empty("the layout has no sites"));
+    }
+    let track = &inspection.track.track;
+    let mut track_path: Vec<(f64, f64)> = Vec::new();
+    match track {
+        Track::Line {
+            start_um,
+            direction,
+            length_um,
+        } => {
+            track_path.push((start_um[0], start_um[1]));
+            track_path.push((
+                start_um[0] + direction[0] * length_um,
+                start_um[1] + direction[1] * length_um,
+            ));
+        }
+        Track::Polyline { waypoints_um, .. } => {
+            track_path.extend(waypoints_um.iter().map(|w| (w[0], w[1])));
+        }
+        Track::Ring {
+            centre_um,
+            radius_um,
+            ..
+        } => {
+            track_path.extend((0..=180).map(|k| {
+                let a = TAU * k as f64 / 180.0;
+                (
+                    centre_um[0] + radius_um * a.cos(),
+                    centre_um[1] + radius_um * a.sin(),
+                )
+            }));
+        }
+        Track::Plane => {}
+    }
+    let xs = sites.iter().map(|s| s.x_um).chain(track_path.iter().map(|p| p.0));
+    let ys = sites.iter().map(|s| s.y_um).chain(track_path.iter().map(|p| p.1));
+    let (x0, x1) = padded(xs).ok_or_else(|| empty("no finite site positions"))?;
+    let (y0, y1) = padded(ys).ok_or_else(|| empty("no finite site positions"))?;
+    // Equal scales on both axes, so a ring looks round.
+    let plot_w = f64::from(size.width_px.saturating_sub(100).max(1));
+    let plot_h = f64::from(size.height_px.saturating_sub(80).max(1));
+    let scale = ((x1 - x0) / plot_w).max((y1 - y0) / plot_h);
+    let (cx, cy) = ((x0 + x1) / 2.0, (y0 + y1) / 2.0);
+    let (hw, hh) = (scale * plot_w / 2.0, scale * plot_h / 2.0);
+    let title = format!("Sites and track ({})", inspection.track.kind);
+    chart(
+        size,
+        &title,
+        (cx - hw, cx + hw, "x (µm)"),
+        (cy - hh, cy + hh, "y (µm)"),
+        |c| {
+            if track_path.len() >= 2 {
+                c.polyline(&track_path, SKY_BLUE, 3.0);
+                // Start of the coordinate and its direction.
+                let start = track_start_and_step(track);
+                if let Some(((sx, sy), (dx, dy))) = start {
+                    c.triangle(sx, sy, 12.0, GREEN);
+                    let len = 0.08 * (x1 - x0).max(y1 - y0);
+                    c.segment((sx, sy), (sx + dx * len, sy + dy * len), GREEN, 2.0);
+                }
+            }
+            let mut out = Vec::new();
+            for s in sites {
+                let colour = if s.off_track { VERMILLION } else { BLUE };
+                c.circle(s.x_um, s.y_um, 5.0, colour, !s.silent);
+                let state = match (s.silent, s.off_track) {
+                    (true, _) => ", silent",
+                    (false, true) => ", off the track",
+                    _ => "",
+                };
+                let along = s
+                    .along_um
+                    .map(|a| format!(", {a:.0} µm along the track"))
+                    .unwrap_or_default();
+                out.push((
+                    s.x_um,
+                    s.y_um,
+                    format!(
+                        "site {}: ({:.0}, {:.0}) µm{along}{state}",
+                        s.site, s.x_um, s.y_um
+                    ),
+                ));
+            }
+            Ok(out)
+        },
+    )
+}
+
+/// The start point of the track coordinate and the unit direction in which it grows.
+fn track_start_and_step(track: &Track) -> Option<((f64, f64), (f64, f64))> {
+    match track {
+        Track::Line {
+            start_um,
+            direction,
+            ..
+        } => Some(((start_um[0], start_um[1]), (direction[0], direction[1]))),
+        Track::Polyline { waypoints_um, .. } => {
+            let (a, b) = (waypoints_um.first()?, waypoints_um.get(1)?);
+            let d = (b[0] - a[0]).hypot(b[1] - a[1]);
+            (d > 0.0).then(|| ((a[0], a[1]), ((b[0] - a[0]) / d, (b[1] - a[1]) / d)))
+        }
+        Track::Ring {
+            centre_um,
+            radius_um,
+            start_angle_rad,
+            rotation,
+        } => {
+            let a = *start_angle_rad;
+            let sense = if *rotation == Rotation::Ccw { 1.0 } else { -1.0 };
+            Some((
+                (
+                    centre_um[0] + radius_um * a.cos(),
+                    centre_um[1] + radius_um * a.sin(),
+                ),
+                (-a.sin() * sense, a.cos() * sense),
+            ))
+        }
+        Track::Plane => None,
+    }
+}
+
+/// One site's row in the raster.
+pub struct RasterRow<'a> {
+    pub site: &'a str,
+    /// Track coordinate, µm (`None` on a plane).
+    pub along_um: Option<f64>,
+    /// Spike times, seconds, ascending.
+    pub spikes_s: &'a [f64],
+}
+
+/// Raster of spikes between `from_s` and `to_s`, one row per site ordered by track coordinate
+/// (sites without one keep their order, below), with burst windows shaded.
+pub fn raster(
+    rows: &[RasterRow<'_>],
+    bursts: &[BurstResult],
+    from_s: f64,
+    to_s: f64,
+    size: Size,
+) -> Result<Figure, FigureError> {
+    if rows.is_empty() {
+        return Err(empty("no sites"));
+    }
+    if to_s.partial_cmp(&from_s) != Some(std::cmp::Ordering::Greater) {
+        return Err(empty("the time window is empty"));
+    }
+    let mut order: Vec<usize> = (0..rows.len()).collect();
+    order.sort_by(|&a, &b| {
+        let key = |i: usize| rows[i].along_um.unwrap_or(f64::INFINITY);
+        key(a).total_cmp(&key(b)).then(a.cmp(&b))
+    });
+    let n = rows.len() as f64;
+    // Each row's ticks fill 80% of its height.
+    let row_half_px = 0.4 * f64::from(size.height_px.saturating_sub(82)) / n;
+    let title = format!(
+        "Spikes by site (ordered along the track), {from_s:.1}-{to_s:.1} s"
+    );
+    chart(
+        size,
+        &title,
+        (from_s, to_s, "time (s)"),
+        (-0.5, n - 0.5, "site rank along the track"),
+        |c| {
+            for b in bursts
+                .iter()
+                .filter(|b| b.end_s >= from_s && b.start_s <= to_s)
+            {
+                c.rect(
+                    (b.start_s.max(from_s), -0.5),
+                    (b.end_s.min(to_s), n - 0.5),
+                    ORANGE,
+                    0.25,
+                );
+            }
+            for (rank, &i) in order.iter().enumerate() {
+                let y = rank as f64;
+                let spikes = rows[i].spikes_s;
+                let lo = spikes.partition_point(|&t| t < from_s);
+                let hi = spikes.partition_point(|&t| t <= to_s);
+                c.ticks(spikes[lo..hi].iter().map(|&t| (t, y)), row_half_px, BLACK);
+            }
+            Ok(order
+                .iter()
+                .enumerate()
+                .map(|(rank, &i)| {
+                    let along = rows[i]
+                        .along_um
+                        .map(|a| format!(" at {a:.0} µm"))
+                        .unwrap_or_default();
+                    (from_s, rank as f64, format!("site {}{along}", rows[i].site))
+                })
+                .collect())
+        },
+    )
+}
+
+/// Smoothed population rate between `from_s` and `to_s` with the detector's threshold and
+/// edge levels.
+pub fn population_rate(
+    rate: &PopulationRate,
+    from_s: f64,
+    to_s: f64,
+    size: Size,
+) -> Result<Figure, FigureError> {
+    let samples: Vec<(f64, f64)> = (0..rate.rate_hz.len())
+        .map(|k| (rate.time_s(k), rate.rate_hz[k]))
+        .filter(|(t, _)| *t >= from_s && *t <= to_s)
+        .collect();
+    if samples.is_empty() {
+        return Err(empty("no rate samples in the time window"));
+    }
+    let top = samples
+        .iter()
+        .map(|s| s.1)
+        .fold(rate.threshold_hz, f64::max)
+        * 1.05;
+    chart(
+        size,
+        "Population rate (all sites)",
+        (from_s, to_s, "time (s)"),
+        (0.0, top.max(1e-9), "rate (spikes/s)"),
+        |c| {
+            c.polyline(&samples, BLUE, 1.0);
+            for (level, colour) in [(rate.threshold_hz, VERMILLION), (rate.edge_hz, ORANGE)] {
+                c.segment((from_s, level), (to_s, level), colour, 1.0);
+            }
+            Ok(Vec::new())
+        },
+    )
+}
+
+/// Bars of a histogram with `bins` equal bins over the values' range; returns (left edges,
+/// counts, width).
+fn histogram(values: &[f64], bins: usize) -> Option<(Vec<f64>, Vec<usize>, f64)> {
+    let lo = values.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if !lo.is_finite() || !hi.is_finite() {
+        return None;
+    }
+    let bins = bins.max(1);
+    let width = if hi > lo {
+        (hi - lo) / bins as f64
+    } else {
+        lo.abs().max(1.0) * 0.1
+    };
+    let mut counts = vec![0usize; bins];
+    for &v in values {
+        let k = (((v - lo) / width) as usize).min(bins - 1);
+        counts[k] += 1;
+    }
+    Some(((0..bins).map(|k| lo + k as f64 * width).collect(), counts, width))
+}
+
+/// Bin count for a histogram of n values: the square-root choice, between 5 and 40
+/// (common practice, no source).
+fn bin_count(n: usize) -> usize {
+    ((n as f64).sqrt().ceil() as usize).clamp(5, 40)
+}
+
+fn bars(
+    values: &[f64],
+    size: Size,
+    title: &str,
+    x_label: &str,
+    unit: &str,
+    colour: Colour,
+) -> Result<Figure, FigureError> {
+    let (edges, counts, width) =
+        histogram(values, bin_count(values.len())).ok_or_else(|| empty("no values"))?;
+    let top = counts.iter().copied().max().unwrap_or(1).max(1) as f64 * 1.1;
+    let (x0, x1) = (edges[0], edges[edges.len() - 1] + width);
+    chart(
+        size,
+        title,
+        (x0, x1, x_label),
+        (0.0, top, "count"),
+        |c| {
+            for (&e, &k) in edges.iter().zip(&counts) {
+                c.rect((e, 0.0), (e + width, k as f64), colour, 1.0);
+            }
+            Ok(edges
+                .iter()
+                .zip(&counts)
+                .map(|(&e, &k)| {
+                    (
+                        e + width / 2.0,
+                        k as f64,
+                        format!("{e:.3}-{:.3} {unit}: {k}", e + width),
+                    )
+                })
+                .collect())
+        },
+    )
+}
+
+/// Histogram of interburst intervals (from burst start to next burst start), seconds.
+pub fn interval_histogram(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
+    let ibis: Vec<f64> = report
+        .bursts
+        .windows(2)
+        .map(|w| w[1].start_s - w[0].start_s)
+        .collect();
+    if ibis.is_empty() {
+        return Err(empty("fewer than two bursts, so no interburst intervals"));
+    }
+    bars(
+        &ibis,
+        size,
+        "Interburst intervals",
+        "interval (s)",
+        "s",
+        BLUE,
+    )
+}
+
+/// Histogram of front speeds, mm/s.
+pub fn speed_histogram(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
+    let speeds: Vec<f64> = report
+        .bursts
+        .iter()
+        .filter_map(|b| b.front.as_ref().map(|f| f.speed_mm_s))
+        .collect();
+    if speeds.is_empty() {
+        return Err(empty("no fronts"));
+    }
+    bars(
+        &speeds,
+        size,
+        "Front speeds",
+        "speed (mm/s)",
+        "mm/s",
+        GREEN,
+    )
+}
+
+/// Speed of every front against its start time with its 95% bootstrap interval.
+pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
+    let fronts: Vec<(&BurstResult, &FrontReport)> = report
+        .bursts
+        .iter()
+        .filter_map(|b| b.front.as_ref().map(|f| (b, f)))
+        .collect();
+    if fronts.is_empty() {
+        return Err(empty("no fronts"));
+    }
+    let (t0, t1) = padded(fronts.iter().map(|(_, f)| f.start_s)).ok_or_else(|| empty("no times"))?;
+    let top = fronts
+        .iter()
+        .map(|(_, f)| f.speed_ci95_mm_s[1].max(f.speed_mm_s))
+        .filter(|v| v.is_finite())
+        .fold(0.0, f64::max)
+        * 1.1;
+    chart(
+        size,
+        "Front speed over the recording (95% intervals)",
+        (t0, t1, "front start (s)"),
+        (0.0, top.max(1e-9), "speed (mm/s)"),
+        |c| {
+            for (_, f) in &fronts {
+                c.segment(
+                    (f.start_s, f.speed_ci95_mm_s[0]),
+                    (f.start_s, f.speed_ci95_mm_s[1]),
+                    SKY_BLUE,
+                    2.0,
+                );
+            }
+            for (_, f) in &fronts {
+                c.circle(f.start_s, f.speed_mm_s, 3.0, BLUE, true);
+            }
+            Ok(fronts
+                .iter()
+                .map(|(b, f)| {
+                    (
+                        f.start_s,
+                        f.speed_mm_s,
+                        format!(
+                            "burst {} at {:.2} s: {:.1} mm/s (95% {:.1}-{:.1})",
+                            b.burst,
+                            f.start_s,
+                            f.speed_mm_s,
+                            f.speed_ci95_mm_s[0],
+                            f.speed_ci95_mm_s[1]
+                        ),
+                    )
+                })
+                .collect())
+        },
+    )
+}
+
+/// How many fronts started at each site, against the site's track coordinate (or rank on a
+/// plane).
+pub fn initiation_sites(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
+    let counts = &report.summary.initiation_sites;
+    if counts.is_empty() {
+        return Err(empty("no fronts, so no initiation sites"));
+    }
+    let on_track = counts.iter().all(|c| c.along_um.is_some());
+    let xs: Vec<f64> = counts
+        .iter()
+        .enumerate()
+        .map(|(k, c)| c.along_um.filter(|_| on_track).unwrap_or(k as f64))
+        .collect();
+    let (x0, x1) = padded(xs.iter().copied()).ok_or_else(|| empty("no positions"))?;
+    let top = counts.iter().map(|c| c.count).max().unwrap_or(1).max(1) as f64 * 1.15;
+    let width = if on_track {
+        report
+            .track
+            .site_spacing_um
+            .unwrap_or((x1 - x0) / 40.0)
+            .max(1e-9)
+            * 0.6
+    } else {
+        0.6
+    };
+    let x_label = if on_track {
+        "origin along the track (µm)"
+    } else {
+        "origin site (rank)"
+    };
+    chart(
+        size,
+        "Where fronts start",
+        (x0 - width, x1 + width, x_label),
+        (0.0, top, "fronts"),
+        |c| {
+            for (&x, k) in xs.iter().zip(counts) {
+                c.rect(
+                    (x - width / 2.0, 0.0),
+                    (x + width / 2.0, k.count as f64),
+                    PURPLE,
+                    1.0,
+                );
+            }
+            Ok(xs
+                .iter()
+                .zip(counts)
+                .map(|(&x, k)| {
+                    (
+                        x,
+                        k.count as f64,
+                        format!(
+                            "site {}: {} fronts ({:.0}%)",
+                            k.site,
+                            k.count,
+                            100.0 * k.fraction
+                        ),
+                    )
+                })
+                .collect())
+        },
+    )
+}
+
+/// Fraction of fronts that reached each distance from their origin, among those that could.
+pub fn reliability(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
+    let points: Vec<(f64, f64, usize, usize)> = report
+        .summary
+        .reliability
+        .iter()
+        .filter_map(|p| {
+            p.fraction
+                .map(|f| (p.distance_um, f, p.fronts_reaching, p.fronts_able))
+        })
+        .collect();
+    if points.is_empty() {
+        return Err(empty("no propagation distances"));
+    }
+    let (x0, x1) = padded(points.iter().map(|p| p.0)).ok_or_else(|| empty("no distances"))?;
+    chart(
+        size,
+        "Propagation reliability",
+        (x0.min(0.0), x1, "distance from the origin (µm)"),
+        (0.0, 1.05, "fraction of fronts reaching it"),
+        |c| {
+            let line: Vec<(f64, f64)> = points.iter().map(|p| (p.0, p.1)).collect();
+            c.polyline(&line, GREEN, 2.0);
+            for p in &points {
+                c.circle(p.0, p.1, 3.0, GREEN, true);
+            }
+            Ok(points
+                .iter()
+                .map(|p| {
+                    (
+                        p.0,
+                        p.1,
+                        format!("{:.0} µm: {} of {} fronts", p.0, p.2, p.3),
+                    )
+                })
+                .collect())
+        },
+    )
+}
+
+/// Distance a front has travelled from its origin to an activation, µm, along the path its
+/// model describes (track coordinate `along_um` on a line or ring `track`, layout position
+/// `xy_um` on a plane); `None` when the report lacks what the model needs.
+pub fn distance_from_origin_um(
+    front: &FrontReport,
+    track: &Track,
+    along_um: Option<f64>,
+    xy_um: [f64; 2],
+) -> Option<f64> {
+    let ring = match track {
+        Track::Ring {
+            radius_um,
+            rotation,
+            ..
+        } => Some((
+            TAU * radius_um,
+            if *rotation == Rotation::Cw { -1.0 } else { 1.0 },
+        )),
+        _ => None,
+    };
+    match front.model.as_str() {
+        "line_one_way" | "line_two_way" => Some((along_um? - front.origin_along_um?).abs()),
+        "ring_one_way" => {
+            let (c, coordinate_sense) = ring?;
+            // The front's rotation is in the layout's axes; the coordinate grows in the
+            // track's rotation.
+            let travel_sense = if front.rotation.as_deref() == Some("cw") {
+                -1.0
+            } else {
+                1.0
+            };
+            Some(
+                (travel_sense * coordinate_sense * (along_um? - front.origin_along_um?))
+                    .rem_euclid(c),
+            )
+        }
+        "ring_two_way" => {
+            let (c, _) = ring?;
+            let d = (along_um? - front.origin_along_um?).rem_euclid(c);
+            Some(d.min(c - d))
+        }
+        "plane_wave" => {
+            let (o, n) = (front.origin_xy_um?, front.direction_xy?);
+            Some((xy_um[0] - o[0]) * n[0] + (xy_um[1] - o[1]) * n[1])
+        }
+        "point_source" => {
+            let o = front.origin_xy_um?;
+            Some((xy_um[0] - o[0]).hypot(xy_um[1] - o[1]))
+        }
+        _ => None,
+    }
+}
+
+/// Activation time against position for one burst (counted from 1), with the fitted model
+/// and the lines of its 95% speed interval through the origin. On a track the position is
+/// the track coordinate; on a plane it is the distance travelled from the origin.
+pub fn activation_plot(
+    report: &AnalysisReport,
+    burst: usize,
+    size: Size,
+) -> Result<Figure, FigureError> {
+    let b = report
+        .bursts
+        .iter()
+        .find(|b| b.burst == burst)
+        .ok_or_else(|| empty(&format!("there is no burst {burst}")))?;
+    if b.activations.is_empty() {
+        return Err(empty("no site activated in this burst"));
+    }
+    let track = &report.track.track;
+    let circumference = match track {
+        Track::Ring { radius_um, .. } => Some(TAU * radius_um),
+        _ => None,
+    };
+    let on_track = !matches!(track, Track::Plane);
+    let front = b.front.as_ref();
+    let t_ref = b.start_s;
+    // Position of each activation on the x axis.
+    let position = |a: &crate::fronts::Activation| -> Option<f64> {
+        if on_track {
+            a.along_um
+        } else {
+            front.and_then(|f| distance_from_origin_um(f, track, None, [a.x_um, a.y_um]))
+        }
+    };
+    let pts: Vec<(f64, f64, &crate::fronts::Activation)> = b
+        .activations
+        .iter()
+        .filter_map(|a| position(a).map(|x| (x, (a.time_s - t_ref) * 1e3, a)))
+        .collect();
+    if pts.is_empty() {
+        return Err(empty("no activation has a position to plot"));
+    }
+    // The model, sampled densely along the x axis.
+    let (x0, x1) = padded(pts.iter().map(|p| p.0)).ok_or_else(|| empty("no positions"))?;
+    let (x0, x1) = circumference.map_or((x0, x1), |c| (0.0, c));
+    let model_at = |x: f64, speed_mm_s: f64| -> Option<f64> {
+        let f = front?;
+        let d = if on_track {
+            // A one-way front on a line exists only on the side it travels to.
+            if f.model == "line_one_way" {
+                let ahead = x - f.origin_along_um?;
+                let forward = f.travel.as_deref() != Some("decreasing");
+                if (ahead < 0.0 && forward) || (ahead > 0.0 && !forward) {
+                    return None;
+                }
+            }
+            distance_from_origin_um(f, track, Some(x), [0.0, 0.0])?
+        } else {
+            x
+        };
+        // µm / (mm/s) = µm / (µm/ms) = ms
+        Some((f.start_s - t_ref) * 1e3 + d / speed_mm_s)
+    };
+    let samples = 400;
+    let curve = |speed: f64| -> Vec<Vec<(f64, f64)>> {
+        // Split where the model jumps (a one-way ring front wraps round).
+        let mut pieces: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+        let mut previous: Option<f64> = None;
+        for k in 0..=samples {
+            let x = x0 + (x1 - x0) * k as f64 / samples as f64;
+            let Some(y) = model_at(x, speed) else {
+                continue;
+            };
+            if let Some(p) = previous {
+                if (y - p).abs() > 0.25 * (x1 - x0) / speed.max(1e-9) {
+                    pieces.push(Vec::new());
+                }
+            }
+            previous = Some(y);
+            if let Some(last) = pieces.last_mut() {
+                last.push((x, y));
+            }
+        }
+        pieces.retain(|p| p.len() >= 2);
+        pieces
+    };
+    let fitted = front.map(|f| curve(f.speed_mm_s)).unwrap_or_default();
+    let bounds: Vec<Vec<(f64, f64)>> = front
+        .map(|f| {
+            f.speed_ci95_mm_s
+                .iter()
+                .filter(|v| v.is_finite() && **v > 0.0)
+                .flat_map(|&v| curve(v))
+                .collect()
+        })
+        .unwrap_or_default();
+    let ys = pts
+        .iter()
+        .map(|p| p.1)
+        .chain(fitted.iter().flatten().map(|p| p.1));
+    let (y0, y1) = padded(ys).ok_or_else(|| empty("no times"))?;
+    let title = match front {
+        Some(f) => format!(
+            "Burst {}: {} front, {:.1} mm/s (95% {:.1}-{:.1})",
+            b.burst,
+            f.model.replace('_', " "),
+            f.speed_mm_s,
+            f.speed_ci95_mm_s[0],
+            f.speed_ci95_mm_s[1]
+        ),
+        None => format!(
+            "Burst {}: no front ({})",
+            b.burst,
+            b.no_front_reason.as_deref().unwrap_or("no reason given")
+        ),
+    };
+    let x_label = if on_track {
+        "position along the track (µm)"
+    } else {
+        "distance travelled from the origin (µm)"
+    };
+    let y_label = format!("activation time after {:.3} s (ms)", t_ref);
+    chart(size, &title, (x0, x1, x_label), (y0, y1, &y_label), |c| {
+        for piece in &bounds {
+            c.polyline(piece, SKY_BLUE, 1.0);
+        }
+        for piece in &fitted {
+            c.polyline(piece, VERMILLION, 2.0);
+        }
+        for (x, y, a) in &pts {
+            if a.used {
+                c.circle(*x, *y, 4.0, BLUE, true);
+            } else {
+                c.circle(*x, *y, 4.0, GREY, false);
+            }
+        }
+        Ok(pts
+            .iter()
+            .map(|(x, y, a)| {
+                let unused = if a.used { "" } else { " (not used in the fit)" };
+                (
+                    *x,
+                    *y,
+                    format!(
+                        "site {}: {:.0} µm, {:.2} ms (t = {:.4} s){unused}",
+                        a.site, x, y, a.time_s
+                    ),
+                )
+            })
+            .collect())
+    })
+}

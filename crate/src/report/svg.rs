@@ -1,0 +1,324 @@
+//! A small SVG writer for the figures: a plot area with linear axes, ticks at "nice" numbers
+//! (Heckbert 1990, "Nice numbers for graph labels", Graphics Gems I), and the few marks the
+//! figures need.
+//!
+//! Why not `plotters`: its text layout on wasm32 (0.3.7) measures strings through the DOM's
+//! `window`, which a Web Worker does not have, so every figure with a label panicked in the
+//! page's worker. SVG text needs no measuring (the viewer lays it out), so the figures write
+//! SVG themselves; the output is the same natively and in wasm.
+
+use std::fmt::Write;
+
+/// An sRGB colour.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Colour(pub u8, pub u8, pub u8);
+
+impl Colour {
+    fn hex(self) -> String {
+        format!("#{:02x}{:02x}{:02x}", self.0, self.1, self.2)
+    }
+}
+
+/// Escapes text for SVG content and attribute values.
+pub fn escape(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '&' => out.push_str("&amp;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&apos;"),
+            c if (c as u32) < 0x20 && c != '\t' && c != '\n' => out.push(' '),
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// Ticks at nice numbers (1, 2 or 5 times a power of ten) covering [lo, hi], about `target`
+/// of them (Heckbert 1990). Returns the tick values and the decimals needed to print them.
+pub fn nice_ticks(lo: f64, hi: f64, target: usize) -> (Vec<f64>, usize) {
+    if !(lo.is_finite() && hi.is_finite()) || hi <= lo {
+        return (vec![lo], 0);
+    }
+    let range = nice_number(hi - lo, false);
+    let step = nice_number(range / (target.max(2) - 1) as f64, true);
+    let first = (lo / step).ceil() * step;
+    let decimals = (-step.log10().floor()).max(0.0) as usize;
+    let mut ticks = Vec::new();
+    let mut k = 0;
+    loop {
+        let t = first + k as f64 * step;
+        if t > hi + step * 1e-9 || k > 1000 {
+            break;
+        }
+        // Clean the rounding noise of the multiplication (so 0.30000000000000004 prints as 0.3).
+        ticks.push((t / step).round() * step);
+        k += 1;
+    }
+    (ticks, decimals)
+}
+
+/// Heckbert's nice number near `x`: rounded to the nearest of 1, 2, 5, 10 times a power of
+/// ten when `round`, otherwise the smallest of them not below `x`.
+fn nice_number(x: f64, round: bool) -> f64 {
+    let exponent = x.log10().floor();
+    let fraction = x / 10f64.powf(exponent);
+    let nice = if round {
+        if fraction < 1.5 {
+            1.0
+        } else if fraction < 3.0 {
+            2.0
+        } else if fraction < 7.0 {
+            5.0
+        } else {
+            10.0
+        }
+    } else if fraction <= 1.0 {
+        1.0
+    } else if fraction <= 2.0 {
+        2.0
+    } else if fraction <= 5.0 {
+        5.0
+    } else {
+        10.0
+    };
+    nice * 10f64.powf(exponent)
+}
+
+/// A figure being written: a title, a plot area with two linear axes, and marks in data
+/// coordinates.
+pub struct Plot {
+    body: String,
+    width: f64,
+    height: f64,
+    left: f64,
+    top: f64,
+    right: f64,
+    bottom: f64,
+    x: (f64, f64),
+    y: (f64, f64),
+}
+
+const FONT: &str = "font-family=\"sans-serif\"";
+
+impl Plot {
+    /// A plot of `width` x `height` pixels showing x in [x0, x1] and y in [y0, y1], with the
+    /// title and axis labels (units in the labels).
+    pub fn new(
+        width: u32,
+        height: u32,
+        title: &str,
+        x: (f64, f64, &str),
+        y: (f64, f64, &str),
+    ) -> Plot {
+        let (width, height) = (f64::from(width), f64::from(height));
+        let mut p = Plot {
+            body: String::new(),
+            width,
+            height,
+            left: 72.0,
+            top: 34.0,
+            right: width - 16.0,
+            bottom: height - 48.0,
+            x: (x.0, x.1),
+            y: (y.0, y.1),
+        };
+        p.frame(title, x.2, y.2);
+        p
+    }
+
+    /// Pixel position of a data point.
+    pub fn at(&self, x: f64, y: f64) -> (f64, f64) {
+        let fx = (x - self.x.0) / (self.x.1 - self.x.0);
+        let fy = (y - self.y.0) / (self.y.1 - self.y.0);
+        (
+            self.left + fx * (self.right - self.left),
+            self.bottom - fy * (self.bottom - self.top),
+        )
+    }
+
+    fn frame(&mut self, title: &str, x_label: &str, y_label: &str) {
+        let (l, t, r, b) = (self.left, self.top, self.right, self.bottom);
+        let body = &mut self.body;
+        let _ = write!(
+            body,
+            "<rect width=\"{w}\" height=\"{h}\" fill=\"#ffffff\"/>\
+             <text x=\"{cx:.1}\" y=\"20\" text-anchor=\"middle\" font-size=\"15\" {FONT}>{title}</text>",
+            w = self.width,
+            h = self.height,
+            cx = self.width / 2.0,
+            title = escape(title)
+        );
+        let (xticks, xdec) = nice_ticks(self.x.0, self.x.1, 8);
+        let (yticks, ydec) = nice_ticks(self.y.0, self.y.1, 6);
+        for &v in &xticks {
+            let px = l + (v - self.x.0) / (self.x.1 - self.x.0) * (r - l);
+            let _ = write!(
+                self.body,
+                "<line x1=\"{px:.1}\" y1=\"{t:.1}\" x2=\"{px:.1}\" y2=\"{b:.1}\" stroke=\"#ebebeb\"/>\
+                 <line x1=\"{px:.1}\" y1=\"{b:.1}\" x2=\"{px:.1}\" y2=\"{b5:.1}\" stroke=\"#000000\"/>\
+                 <text x=\"{px:.1}\" y=\"{b18:.1}\" text-anchor=\"middle\" font-size=\"12\" {FONT}>{v:.xdec$}</text>",
+                b5 = b + 5.0,
+                b18 = b + 18.0,
+            );
+        }
+        for &v in &yticks {
+            let py = b - (v - self.y.0) / (self.y.1 - self.y.0) * (b - t);
+            let _ = write!(
+                self.body,
+                "<line x1=\"{l:.1}\" y1=\"{py:.1}\" x2=\"{r:.1}\" y2=\"{py:.1}\" stroke=\"#ebebeb\"/>\
+                 <line x1=\"{l5:.1}\" y1=\"{py:.1}\" x2=\"{l:.1}\" y2=\"{py:.1}\" stroke=\"#000000\"/>\
+                 <text x=\"{l8:.1}\" y=\"{py4:.1}\" text-anchor=\"end\" font-size=\"12\" {FONT}>{v:.ydec$}</text>",
+                l5 = l - 5.0,
+                l8 = l - 8.0,
+                py4 = py + 4.0,
+            );
+        }
+        let _ = write!(
+            self.body,
+            "<rect x=\"{l:.1}\" y=\"{t:.1}\" width=\"{w:.1}\" height=\"{h:.1}\" fill=\"none\" stroke=\"#000000\"/>\
+             <text x=\"{cx:.1}\" y=\"{xy:.1}\" text-anchor=\"middle\" font-size=\"13\" {FONT}>{xl}</text>\
+             <text transform=\"translate(16 {cy:.1}) rotate(-90)\" text-anchor=\"middle\" font-size=\"13\" {FONT}>{yl}</text>",
+            w = r - l,
+            h = b - t,
+            cx = (l + r) / 2.0,
+            xy = self.height - 10.0,
+            cy = (t + b) / 2.0,
+            xl = escape(x_label),
+            yl = escape(y_label),
+        );
+        // Marks are clipped to the plot area.
+        let _ = write!(
+            self.body,
+            "<clipPath id=\"plot-area\"><rect x=\"{l:.1}\" y=\"{t:.1}\" width=\"{w:.1}\" height=\"{h:.1}\"/></clipPath><g clip-path=\"url(#plot-area)\">",
+            w = r - l,
+            h = b - t,
+        );
+    }
+
+    /// A polyline through data points.
+    pub fn polyline(&mut self, points: &[(f64, f64)], colour: Colour, width_px: f64) {
+        if points.len() < 2 {
+            return;
+        }
+        let mut d = String::new();
+        for (k, &(x, y)) in points.iter().enumerate() {
+            let (px, py) = self.at(x, y);
+            let _ = write!(d, "{}{px:.2},{py:.2}", if k == 0 { "" } else { " " });
+        }
+        let _ = write!(
+            self.body,
+            "<polyline points=\"{d}\" fill=\"none\" stroke=\"{}\" stroke-width=\"{width_px}\"/>",
+            colour.hex()
+        );
+    }
+
+    /// A straight segment between two data points.
+    pub fn segment(&mut self, a: (f64, f64), b: (f64, f64), colour: Colour, width_px: f64) {
+        self.polyline(&[a, b], colour, width_px);
+    }
+
+    /// Many vertical ticks of `half_px` above and below each point (a raster row), as one path.
+    pub fn ticks(&mut self, points: impl Iterator<Item = (f64, f64)>, half_px: f64, colour: Colour) {
+        let mut d = String::new();
+        for (x, y) in points {
+            let (px, py) = self.at(x, y);
+            let _ = write!(d, "M{px:.2} {:.2}v{:.2}", py - half_px, 2.0 * half_px);
+        }
+        if !d.is_empty() {
+            let _ = write!(
+                self.body,
+                "<path d=\"{d}\" stroke=\"{}\" stroke-width=\"1\"/>",
+                colour.hex()
+            );
+        }
+    }
+
+    /// A circle of `radius_px` at a data point, filled or as an outline.
+    pub fn circle(&mut self, x: f64, y: f64, radius_px: f64, colour: Colour, filled: bool) {
+        let (px, py) = self.at(x, y);
+        let paint = if filled {
+            format!("fill=\"{}\"", colour.hex())
+        } else {
+            format!("fill=\"#ffffff\" stroke=\"{}\" stroke-width=\"1.5\"", colour.hex())
+        };
+        let _ = write!(
+            self.body,
+            "<circle cx=\"{px:.2}\" cy=\"{py:.2}\" r=\"{radius_px}\" {paint}/>"
+        );
+    }
+
+    /// A triangle pointing up, `size_px` high, at a data point.
+    pub fn triangle(&mut self, x: f64, y: f64, size_px: f64, colour: Colour) {
+        let (px, py) = self.at(x, y);
+        let h = size_px / 2.0;
+        let _ = write!(
+            self.body,
+            "<path d=\"M{:.2} {:.2}L{:.2} {:.2}L{:.2} {:.2}Z\" fill=\"{}\"/>",
+            px,
+            py - h,
+            px - h,
+            py + h,
+            px + h,
+            py + h,
+            colour.hex()
+        );
+    }
+
+    /// A rectangle between two data corners, with an opacity in [0, 1].
+    pub fn rect(&mut self, a: (f64, f64), b: (f64, f64), colour: Colour, opacity: f64) {
+        let (ax, ay) = self.at(a.0, a.1);
+        let (bx, by) = self.at(b.0, b.1);
+        let _ = write!(
+            self.body,
+            "<rect x=\"{:.2}\" y=\"{:.2}\" width=\"{:.2}\" height=\"{:.2}\" fill=\"{}\" fill-opacity=\"{opacity}\"/>",
+            ax.min(bx),
+            ay.min(by),
+            (bx - ax).abs(),
+            (by - ay).abs(),
+            colour.hex()
+        );
+    }
+
+    /// The finished SVG document.
+    pub fn finish(self) -> String {
+        format!(
+            "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\">{body}</g></svg>\n",
+            w = self.width,
+            h = self.height,
+            body = self.body
+        )
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Heckbert's example ranges: ticks are 1, 2 or 5 times a power of ten, evenly spaced,
+    /// inside the range and covering most of it.
+    #[test]
+    fn ticks_are_nice_and_cover_the_range() {
+        assert_eq!(nice_ticks(0.0, 100.0, 6).0, vec![0.0, 20.0, 40.0, 60.0, 80.0, 100.0]);
+        assert_eq!(nice_ticks(0.0, 1.0, 6), (vec![0.0, 0.2, 0.4, 0.6, 0.8, 1.0], 1));
+        for (lo, hi) in [(-3.7, 12.2), (0.001, 0.0173), (1234.0, 98765.0), (-1e-3, 0.0)] {
+            let (t, _) = nice_ticks(lo, hi, 6);
+            assert!(t.len() >= 3, "{lo}..{hi}: {t:?}");
+            let step = t[1] - t[0];
+            let mantissa = step / 10f64.powf(step.log10().floor());
+            assert!(
+                [1.0, 2.0, 5.0].iter().any(|m| (mantissa - m).abs() < 1e-9),
+                "{step}"
+            );
+            assert!(t.iter().all(|&v| v >= lo - 1e-12 && v <= hi + 1e-12));
+            assert!((t[t.len() - 1] - t[0]) >= 0.5 * (hi - lo));
+        }
+    }
+
+    #[test]
+    fn text_is_escaped() {
+        assert_eq!(escape("<a & \"b\">"), "&lt;a &amp; &quot;b&quot;&gt;");
+    }
+}

@@ -1,0 +1,373 @@
+//! The page's working state as plain data: the two input files, the settings of every step,
+//! and each step's result, so that a changed setting re-runs only the steps below it. The
+//! wasm shell holds one [`Workbook`] in the worker; native tests drive the same code.
+//!
+//! Steps, top to bottom: read (files -> recording), track (recording -> track fit and
+//! inspection), analysis (bursts, activations, fronts, summary). Figures and exports read the
+//! results and change nothing.
+
+use super::figures::{self, Figure, FigureError, RasterRow, Size};
+use super::{inspect, AnalysisReport, Inspection};
+use crate::detect::{population_rate, PopulationRate};
+use crate::fronts::AnalysisSettings;
+use crate::geometry::{fit_track, TrackFit, TrackSettings};
+use crate::import::{read_recording, ReadOptions};
+use crate::recording::{Activity, Recording};
+use crate::Error;
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+
+/// Version of the notebook file's layout; bump it when a key changes meaning.
+pub const NOTEBOOK_SCHEMA: u32 = 1;
+
+/// Files larger than this are referred to by name and SHA-256 only, not embedded.
+pub const EMBED_LIMIT_BYTES: usize = 64 << 20;
+
+/// One input file as the notebook keeps it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NotebookFile {
+    /// `activity` or `layout`.
+    pub role: String,
+    pub name: String,
+    pub size_bytes: usize,
+    /// SHA-256 of the bytes, lower-case hex (FIPS 180-4).
+    pub sha256: String,
+    /// The file's text, when it is UTF-8 and at most [`EMBED_LIMIT_BYTES`].
+    pub content: Option<String>,
+}
+
+/// Settings of every step, and what the page shows.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct StepSettings {
+    pub read: ReadOptions,
+    pub track: TrackSettings,
+    pub analysis: AnalysisSettings,
+    pub view: ViewSettings,
+}
+
+/// What the page shows: the selected burst and the raster window.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ViewSettings {
+    /// Selected burst, counted from 1.
+    pub burst: usize,
+    /// Raster and rate window, seconds from the start of the recording; `None` = the first
+    /// 30 s of activity.
+    pub window_s: Option<[f64; 2]>,
+}
+
+impl Default for ViewSettings {
+    fn default() -> Self {
+        ViewSettings {
+            burst: 1,
+            window_s: None,
+        }
+    }
+}
+
+/// The notebook file: inputs, settings and results in one JSON document.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Notebook<'a> {
+    pub schema: u32,
+    pub program: String,
+    pub files: Vec<NotebookFile>,
+    pub settings: &'a StepSettings,
+    pub results: Option<&'a AnalysisReport>,
+}
+
+/// A notebook file as read back: the results are recomputed from the files and settings.
+#[derive(Debug, Clone, PartialEq, Deserialize)]
+pub struct OpenedNotebook {
+    pub schema: u32,
+    pub files: Vec<NotebookFile>,
+    #[serde(default)]
+    pub settings: StepSettings,
+}
+
+/// Why a notebook file cannot be opened.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct NotebookError {
+    pub message: String,
+}
+
+impl std::fmt::Display for NotebookError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+impl std::error::Error for NotebookError {}
+
+/// Lower-case hex SHA-256 of `bytes`.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    Sha256::digest(bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
+/// Reads a notebook file: checks the schema, that both inputs are embedded, and that their
+/// SHA-256 matches.
+pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, NotebookError> {
+    let fail = |message: String| NotebookError {
+        message: format!("{name}: {message}"),
+    };
+    let nb: OpenedNotebook = serde_json::from_slice(bytes).map_err(|e| {
+        fail(format!(
+            "expected a ringline notebook (JSON), found something else at line {}, column {}: {e}",
+            e.line(),
+            e.column()
+        ))
+    })?;
+    if nb.schema != NOTEBOOK_SCHEMA {
+        return Err(fail(format!(
+            "expected notebook schema {NOTEBOOK_SCHEMA}, found schema {}",
+            nb.schema
+        )));
+    }
+    for role in ["activity", "layout"] {
+        let f = nb
+            .files
+            .iter()
+            .find(|f| f.role == role)
+            .ok_or_else(|| fail(format!("expected an {role} file in the notebook, found none")))?;
+        let content = f.content.as_ref().ok_or_else(|| {
+            fail(format!(
+                "the {role} file {} was too large to embed; open it and the layout directly",
+                f.name
+            ))
+        })?;
+        let digest = sha256_hex(content.as_bytes());
+        if digest != f.sha256 {
+            return Err(fail(format!(
+                "the embedded {role} file {} does not match its SHA-256 (expected {}, found {digest})",
+                f.name, f.sha256
+            )));
+        }
+    }
+    Ok(nb)
+}
+
+/// CSV and JSON exports, byte for byte those of `ringline analyze --out`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Exports {
+    pub bursts_csv: String,
+    pub fronts_csv: String,
+    pub activation_csv: String,
+    pub summary_json: String,
+}
+
+/// Which figure to draw.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "figure", rename_all = "snake_case")]
+pub enum FigureRequest {
+    SiteMap,
+    Raster,
+    PopulationRate,
+    IntervalHistogram,
+    Activation,
+    SpeedOverTime,
+    SpeedHistogram,
+    InitiationSites,
+    Reliability,
+}
+
+/// The page's state.
+#[derive(Debug, Clone)]
+pub struct Workbook {
+    activity: (String, Vec<u8>),
+    layout: (String, Vec<u8>),
+    pub settings: StepSettings,
+    recording: Recording,
+    fit: TrackFit,
+    inspection: Inspection,
+    report: Option<AnalysisReport>,
+    rate: Option<PopulationRate>,
+}
+
+impl Workbook {
+    /// Reads the files and fits the track with `settings` (the analysis waits for
+    /// [`Workbook::analyze`]).
+    pub fn open(
+        activity: (&str, &[u8]),
+        layout: (&str, &[u8]),
+        settings: StepSettings,
+    ) -> Result<Workbook, Error> {
+        let recording = read_recording(activity, layout, &settings.read)?;
+        let fit = fit_track(&recording.sites, &settings.track)?;
+        let inspection = inspect(&recording, &fit);
+        Ok(Workbook {
+            activity: (activity.0.to_string(), activity.1.to_vec()),
+            layout: (layout.0.to_string(), layout.1.to_vec()),
+            settings,
+            recording,
+            fit,
+            inspection,
+            report: None,
+            rate: None,
+        })
+    }
+
+    /// Re-fits the track; the analysis must be run again.
+    pub fn set_track(&mut self, track: TrackSettings) -> Result<&Inspection, Error> {
+        let fit = fit_track(&self.recording.sites, &track)?;
+        self.inspection = inspect(&self.recording, &fit);
+        self.fit = fit;
+        self.settings.track = track;
+        self.report = None;
+        self.rate = None;
+        Ok(&self.inspection)
+    }
+
+    pub fn inspection(&self) -> &Inspection {
+        &self.inspection
+    }
+
+    pub fn report(&self) -> Option<&AnalysisReport> {
+        self.report.as_ref()
+    }
+
+    /// Runs the analysis with `settings`; `progress(done, total)` after each burst.
+    pub fn analyze(
+        &mut self,
+        settings: AnalysisSettings,
+        progress: &mut dyn FnMut(usize, usize),
+    ) -> Result<&AnalysisReport, Error> {
+        let analysis = crate::fronts::analyze(&self.recording, &self.fit, &settings, progress)?;
+        let report = AnalysisReport::new(&self.recording, &self.fit, &settings, analysis);
+        self.rate = match &self.recording.activity {
+            Activity::Spikes { trains_s } => {
+                population_rate(trains_s, &settings.bursts.population_rate)
+            }
+            Activity::Traces { .. } => None,
+        };
+        self.settings.analysis = settings;
+        if !report
+            .bursts
+            .iter()
+            .any(|b| b.burst == self.settings.view.burst)
+        {
+            self.settings.view.burst = 1;
+        }
+        Ok(self.report.insert(report))
+    }
+
+    /// The raster window: the user's, or the first 30 s of activity.
+    pub fn window_s(&self) -> [f64; 2] {
+        if let Some(w) = self.settings.view.window_s {
+            return w;
+        }
+        let first = match &self.recording.activity {
+            Activity::Spikes { trains_s } => trains_s
+                .iter()
+                .filter_map(|t| t.first())
+                .copied()
+                .fold(f64::INFINITY, f64::min),
+            Activity::Traces { time_s, .. } => time_s.first().copied().unwrap_or(0.0),
+        };
+        let first = if first.is_finite() { first } else { 0.0 };
+        [first, first + 30.0]
+    }
+
+    /// Draws a figure of the current results.
+    pub fn figure(&self, request: &FigureRequest, size: Size) -> Result<Figure, FigureError> {
+        let need = || {
+            self.report.as_ref().ok_or_else(|| FigureError {
+                message: "run the analysis first".into(),
+            })
+        };
+        let [from_s, to_s] = self.window_s();
+        match request {
+            FigureRequest::SiteMap => figures::site_map(&self.inspection, size),
+            FigureRequest::Raster => {
+                let Activity::Spikes { trains_s } = &self.recording.activity else {
+                    return Err(FigureError {
+                        message: "a raster needs spike times; this recording holds traces".into(),
+                    });
+                };
+                let rows: Vec<RasterRow<'_>> = self
+                    .inspection
+                    .sites
+                    .iter()
+                    .zip(trains_s)
+                    .map(|(s, t)| RasterRow {
+                        site: &s.site,
+                        along_um: s.along_um,
+                        spikes_s: t,
+                    })
+                    .collect();
+                let bursts = self.report.as_ref().map_or(&[][..], |r| &r.bursts[..]);
+                figures::raster(&rows, bursts, from_s, to_s, size)
+            }
+            FigureRequest::PopulationRate => {
+                need()?;
+                let rate = self.rate.as_ref().ok_or_else(|| FigureError {
+                    message: "no population rate (no spikes)".into(),
+                })?;
+                figures::population_rate(rate, from_s, to_s, size)
+            }
+            FigureRequest::IntervalHistogram => figures::interval_histogram(need()?, size),
+            FigureRequest::Activation => {
+                figures::activation_plot(need()?, self.settings.view.burst, size)
+            }
+            FigureRequest::SpeedOverTime => figures::speed_over_time(need()?, size),
+            FigureRequest::SpeedHistogram => figures::speed_histogram(need()?, size),
+            FigureRequest::InitiationSites => figures::initiation_sites(need()?, size),
+            FigureRequest::Reliability => figures::reliability(need()?, size),
+        }
+    }
+
+    /// The exports of `ringline analyze --out`; `None` before the analysis.
+    pub fn exports(&self) -> Option<Exports> {
+        self.report.as_ref().map(|r| Exports {
+            bursts_csv: r.bursts_csv(),
+            fronts_csv: r.fronts_csv(),
+            activation_csv: r.activation_csv(),
+            summary_json: r.summary_json(),
+        })
+    }
+
+    /// The notebook file (JSON): both inputs with their SHA-256 (embedded when small enough),
+    /// every setting and the results.
+    pub fn notebook_json(&self) -> String {
+        let file = |role: &str, (name, bytes): &(String, Vec<u8>)| NotebookFile {
+            role: role.into(),
+            name: name.clone(),
+            size_bytes: bytes.len(),
+            sha256: sha256_hex(bytes),
+            content: (bytes.len() <= EMBED_LIMIT_BYTES)
+                .then(|| String::from_utf8(bytes.clone()).ok())
+                .flatten(),
+        };
+        let nb = Notebook {
+            schema: NOTEBOOK_SCHEMA,
+            program: format!("ringline {}", env!("CARGO_PKG_VERSION")),
+            files: vec![file("activity", &self.activity), file("layout", &self.layout)],
+            settings: &self.settings,
+            results: self.report.as_ref(),
+        };
+        serde_json::to_string_pretty(&nb).unwrap_or_else(|e| {
+            format!("{{\"error\": \"the notebook could not be written: {e}\"}}")
+        })
+    }
+
+    /// Re-opens a notebook: reads its files with its settings and runs the analysis.
+    pub fn from_notebook(
+        nb: &OpenedNotebook,
+        progress: &mut dyn FnMut(usize, usize),
+    ) -> Result<Workbook, Error> {
+        let get = |role: &str| {
+            nb.files
+                .iter()
+                .find(|f| f.role == role)
+                .map(|f| (f.name.as_str(), f.content.as_deref().unwrap_or("").as_bytes()))
+                .unwrap_or(("", b""))
+        };
+        let mut wb = Workbook::open(get("activity"), get("layout"), nb.settings.clone())?;
+        let view = nb.settings.view.clone();
+        wb.analyze(nb.settings.analysis.clone(), progress)?;
+        wb.settings.view = view;
+        Ok(wb)
+    }
+}

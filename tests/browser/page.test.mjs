@@ -1,0 +1,259 @@
+// End-to-end tests of the page in real Chromium (Debian's, driven by playwright-core). The
+// reference for every number is the native command line, `ringline analyze`, on the same
+// files: the page must show and export exactly what it prints and writes.
+// Needs: scripts/build-web done, target/release/ringline built (scripts/test does both).
+import { after, before, test } from 'node:test';
+import assert from 'node:assert/strict';
+import { execFileSync } from 'node:child_process';
+import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { basename, dirname, join, resolve } from 'node:path';
+import { pathToFileURL } from 'node:url';
+import { chromium } from 'playwright-core';
+import { serve } from '../../scripts/web/serve.mjs';
+
+const repo = resolve(import.meta.dirname, '../..');
+const artifacts = join(repo, 'tests/artifacts');
+const cli = join(repo, 'target/release/ringline');
+const demo = {
+  spikes: join(repo, 'demo-data/strip-16/spikes.csv'),
+  layout: join(repo, 'demo-data/strip-16/layout.csv'),
+};
+const CHROMIUM_FLAGS = [
+  '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run',
+  '--disable-background-networking', '--disable-component-update', '--disable-sync',
+];
+
+let browser;
+let server;
+let base;
+
+before(async () => {
+  mkdirSync(artifacts, { recursive: true });
+  server = await serve(join(repo, 'www'), 0);
+  base = `http://127.0.0.1:${server.address().port}/`;
+  browser = await chromium.launch({ executablePath: '/usr/bin/chromium', args: CHROMIUM_FLAGS });
+});
+
+after(async () => {
+  await browser?.close();
+  server?.close();
+});
+
+/** `ringline analyze --json` and `--out` on the given files, run in their folder so that the
+ * file names in the report are the bare names the page sees. */
+function cliAnalysis(spikes, layout, extra = []) {
+  const out = mkdtempSync(join(tmpdir(), 'ringline-cli-'));
+  const json = execFileSync(cli, ['analyze', basename(spikes), '--layout', basename(layout), '--json', '--out', out, ...extra],
+    { encoding: 'utf8', cwd: dirname(spikes), stdio: ['ignore', 'pipe', 'ignore'] });
+  return { report: JSON.parse(json), out };
+}
+
+/** Opens a page, records every request it makes, and waits for the core. */
+async function openPage(url) {
+  const context = await browser.newContext({ acceptDownloads: true, viewport: { width: 1100, height: 900 } });
+  const page = await context.newPage();
+  const requests = [];
+  page.on('request', (r) => requests.push(r.url()));
+  const errors = [];
+  page.on('pageerror', (e) => errors.push(String(e)));
+  await page.goto(url);
+  await page.waitForFunction(() => window.ringlineCoreReadyAt !== undefined, null, { timeout: 20000 });
+  return { page, context, requests, errors };
+}
+
+/** Drops files onto the drop zone as a user would (a real drop event with a DataTransfer). */
+async function dropFiles(page, files) {
+  const payload = files.map((f) => ({ name: f.name, text: f.text ?? readFileSync(f.path, 'utf8') }));
+  await page.evaluate((list) => {
+    const dt = new DataTransfer();
+    for (const f of list) dt.items.add(new File([f.text], f.name, { type: 'text/csv' }));
+    document.getElementById('drop-zone').dispatchEvent(new DragEvent('drop', { dataTransfer: dt, bubbles: true, cancelable: true }));
+  }, payload);
+}
+
+async function analyse(page) {
+  await page.locator('#step-bursts').waitFor({ state: 'visible' });
+  await page.click('#analyze-button');
+  await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
+}
+
+async function summaryValue(page, key) {
+  return Number(await page.locator(`#summary-table td[data-key="${key}"]`).getAttribute('data-value'));
+}
+
+async function downloadText(page, selector) {
+  const [download] = await Promise.all([page.waitForEvent('download'), page.click(selector)]);
+  return readFileSync(await download.path(), 'utf8');
+}
+
+async function shoot(page, name) {
+  await page.screenshot({ path: join(artifacts, `${name}.png`), fullPage: true });
+}
+
+test('the served page analyses the dropped demo files exactly as the command line does', async () => {
+  const { report, out } = cliAnalysis(demo.spikes, demo.layout);
+  const { page, context, requests, errors } = await openPage(base);
+  const loadTimeMs = await page.evaluate(() => window.ringlineCoreReadyAt);
+  console.log(`core ready ${loadTimeMs.toFixed(0)} ms after navigation`);
+  await shoot(page, '0-start');
+  const afterLoad = requests.length;
+
+  await dropFiles(page, [
+    { name: 'spikes.csv', path: demo.spikes },
+    { name: 'layout.csv', path: demo.layout },
+  ]);
+  await page.locator('#fig-site_map').waitFor({ state: 'visible' });
+  await shoot(page, '1-inputs-and-track');
+  const fileRows = await page.locator('#file-table tbody tr').allTextContents();
+  assert.equal(fileRows.length, 2);
+  assert.match(fileRows.join('\n'), /spikes\.csv.*spike list.*imported/);
+  assert.match(fileRows.join('\n'), /layout\.csv.*layout.*imported/);
+  assert.match(await page.textContent('#track-text'), /track: line/);
+
+  await analyse(page);
+  // Median speed (mm/s) and burst count: the same numbers as `ringline analyze --json`.
+  const median = await summaryValue(page, 'median speed');
+  assert.equal(median, report.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
+  assert.equal(await summaryValue(page, 'propagation failures'), report.summary.failure_count);
+  await shoot(page, '2-results');
+
+  // Exports: byte for byte the files of `ringline analyze --out`.
+  for (const [button, file] of [['fronts_csv', 'fronts.csv'], ['bursts_csv', 'bursts.csv'], ['activation_csv', 'activation.csv'], ['summary_json', 'summary.json']]) {
+    const text = await downloadText(page, `[data-export="${button}"]`);
+    assert.equal(text, readFileSync(join(out, file), 'utf8'), `${file} differs from the command line's`);
+  }
+  // An SVG export is a standalone SVG document with the axis units.
+  const svg = await downloadText(page, '.svg-save[data-figure="activation"]');
+  assert.match(svg, /^<svg[^>]*xmlns="http:\/\/www.w3.org\/2000\/svg"/);
+  assert.match(svg, /activation time after [0-9.]+ s \(ms\)/);
+  assert.match(svg, /position along the track \(µm\)/);
+
+  // Stepping through bursts with the keyboard changes the shown front.
+  const firstText = await page.textContent('#front-text');
+  await page.locator('body').click({ position: { x: 5, y: 5 } });
+  await page.keyboard.press('ArrowRight');
+  await page.waitForFunction(() => document.getElementById('burst-number').value === '2');
+  await page.waitForFunction((t) => document.getElementById('front-text').textContent !== t, firstText);
+  const second = report.bursts[1];
+  assert.match(await page.textContent('#front-text'), new RegExp(`^Burst 2 \\(${second.start_s.toFixed(3)} s`));
+
+  // The read-out names the site under the pointer. Find a point through the page's bridge
+  // (figure pixels), then move the real pointer there and wait for the read-out line.
+  const hit = await page.evaluate(async () => {
+    const img = document.getElementById('fig-activation');
+    for (let y = 30; y < img.naturalHeight - 40; y += 3) {
+      for (let x = 70; x < img.naturalWidth - 10; x += 3) {
+        const label = await window.ringline.call('readout', { x, y });
+        if (label) return { x, y, label, width: img.naturalWidth, height: img.naturalHeight };
+      }
+    }
+    return null;
+  });
+  assert.ok(hit, 'no read-out anywhere over the activation figure');
+  await page.locator('#fig-activation').scrollIntoViewIfNeeded();
+  const box = await page.locator('#fig-activation').boundingBox();
+  await page.mouse.move(box.x + hit.x * box.width / hit.width, box.y + hit.y * box.height / hit.height);
+  await page.waitForFunction((t) => document.getElementById('readout').textContent === t, hit.label);
+  const label = hit.label;
+  const [, site, along, ms] = label.match(/^site (\S+): (-?[0-9]+) µm, (-?[0-9.]+) ms/);
+  const activation = second.activations.find((a) => a.site === site);
+  assert.ok(activation, `the read-out names site ${site}, which is not in burst 2`);
+  assert.equal(Number(along), Math.round(activation.along_um));
+  assert.ok(Math.abs(Number(ms) - (activation.time_s - second.start_s) * 1e3) < 0.006);
+  await shoot(page, '3-fronts-burst-2');
+
+  // Nothing but the page's own files was requested, and nothing at all after the load.
+  const network = requests.slice(afterLoad).filter((u) => !u.startsWith('blob:') && !u.startsWith('data:'));
+  assert.deepEqual(network, [], 'the page made requests after load');
+  assert.ok(requests.every((u) => u.startsWith(base) || u.startsWith('blob:') || u.startsWith('data:')), `requests left the page: ${requests}`);
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
+test('the single-file page opened from disk analyses the demo the same way, with no request', async () => {
+  const { report } = cliAnalysis(demo.spikes, demo.layout);
+  const file = pathToFileURL(join(repo, 'www/dist/ringline.html')).href;
+  const { page, context, requests, errors } = await openPage(file);
+  await page.click('#demo-button');
+  await analyse(page);
+  assert.equal(await summaryValue(page, 'median speed'), report.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
+  await shoot(page, '4-single-file');
+  assert.deepEqual(requests.filter((u) => !u.startsWith('blob:') && !u.startsWith('data:') && u !== file), []);
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
+test('a malformed file shows its located message, and a good file still works after it', async () => {
+  const { page, context } = await openPage(base);
+  const bad = 'site,time_s\nE1,0.5\nE2,half a second\n';
+  await dropFiles(page, [{ name: 'bad-spikes.csv', text: bad }, { name: 'layout.csv', path: demo.layout }]);
+  await page.locator('#input-error').waitFor({ state: 'visible' });
+  const message = await page.textContent('#input-error');
+  // The same sentence the command line prints for this file.
+  const dir = mkdtempSync(join(tmpdir(), 'ringline-bad-'));
+  writeFileSync(join(dir, 'bad-spikes.csv'), bad);
+  let cliMessage = '';
+  try {
+    execFileSync(cli, ['analyze', join(dir, 'bad-spikes.csv'), '--layout', demo.layout], { cwd: dir, encoding: 'utf8', stdio: 'pipe' });
+  } catch (e) {
+    cliMessage = e.stderr;
+  }
+  assert.match(message, /bad-spikes\.csv/);
+  assert.match(message, /line 3/);
+  assert.ok(cliMessage.includes(message.replace(/^.*?bad-spikes\.csv/, '')), `page: ${message}\ncli: ${cliMessage}`);
+  assert.match(await page.textContent('#file-table'), /not imported|line 3/);
+  await shoot(page, '5-bad-file');
+
+  await dropFiles(page, [{ name: 'spikes.csv', path: demo.spikes }]);
+  await analyse(page);
+  assert.ok(await page.locator('#input-error').isHidden());
+  assert.ok((await summaryValue(page, 'bursts')) > 0);
+  await context.close();
+});
+
+test('a saved notebook re-opens with the same settings and results', async () => {
+  const { page, context } = await openPage(base);
+  await page.click('#demo-button');
+  await page.locator('#step-bursts').waitFor({ state: 'visible' });
+  await page.fill('#burst-form [name=resamples]', '300');
+  await page.fill('#burst-form [name=seed]', '7');
+  await page.selectOption('#burst-form [name=estimator]', 'huber');
+  await analyse(page);
+  const median = await summaryValue(page, 'median speed');
+  const summaryText = await page.textContent('#summary-table');
+  const notebook = await downloadText(page, '#save-notebook');
+  const parsed = JSON.parse(notebook);
+  assert.equal(parsed.schema, 1);
+  assert.equal(parsed.settings.analysis.fronts.resamples, 300);
+  assert.equal(parsed.results.summary.median_speed_mm_s, median);
+  // The SHA-256 of the embedded file is that of the demo file (FIPS 180-4 digest by node:crypto).
+  const { createHash } = await import('node:crypto');
+  assert.equal(parsed.files[0].sha256, createHash('sha256').update(readFileSync(demo.spikes)).digest('hex'));
+
+  await page.reload();
+  await page.waitForFunction(() => window.ringlineCoreReadyAt !== undefined);
+  await dropFiles(page, [{ name: 'demo.ringline.json', text: notebook }]);
+  await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
+  assert.equal(await page.inputValue('#burst-form [name=resamples]'), '300');
+  assert.equal(await page.inputValue('#burst-form [name=seed]'), '7');
+  assert.equal(await page.inputValue('#burst-form [name=estimator]'), 'huber');
+  assert.equal(await summaryValue(page, 'median speed'), median);
+  assert.equal(await page.textContent('#summary-table'), summaryText);
+  await context.close();
+});
+
+test('a panic in the core is shown as an error, and the page goes on working', async () => {
+  const { page, context, errors } = await openPage(base);
+  await page.click('#demo-button');
+  await page.locator('#step-bursts').waitFor({ state: 'visible' });
+  const failure = await page.evaluate(() => window.ringline.call('panic').then(() => null, (e) => e.message));
+  assert.match(failure, /stopped unexpectedly.*deliberate panic/s);
+  await page.waitForFunction(() => document.getElementById('core-status').textContent.includes('restarted'));
+  await analyse(page);
+  assert.ok((await summaryValue(page, 'bursts')) > 0);
+  assert.deepEqual(errors, []);
+  await context.close();
+});

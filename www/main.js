@@ -1,0 +1,582 @@
+// The page: moves files and settings to the worker that holds ringline's wasm core, and puts
+// what comes back into the DOM. No analysis happens here; text from files only ever goes into
+// the page through textContent, and figures are SVG shown as images.
+
+const $ = (id) => document.getElementById(id);
+
+// ---------------------------------------------------------------- worker bridge
+
+let worker = null;
+let ready = null;
+let nextId = 1;
+const pending = new Map();
+
+function makeWorker() {
+  // The single-file build carries the worker's source (a classic script) in a non-executed
+  // script element.
+  const inline = document.getElementById('ringline-worker-source');
+  if (inline) {
+    const url = URL.createObjectURL(new Blob([inline.textContent], { type: 'text/javascript' }));
+    return new Worker(url);
+  }
+  return new Worker(new URL('./worker.js', import.meta.url), { type: 'module' });
+}
+
+function startWorker() {
+  const started = performance.now();
+  worker = makeWorker();
+  ready = new Promise((resolve, reject) => {
+    worker.onmessage = (event) => {
+      const m = event.data;
+      if ('ready' in m) {
+        if (m.ready) {
+          window.ringlineCoreReadyMs = performance.now() - started;
+          window.ringlineCoreReadyAt = performance.now(); // ms since navigation
+          resolve();
+        } else {
+          reject(m.error);
+        }
+        return;
+      }
+      const p = pending.get(m.id);
+      if (!p) return;
+      if (m.progress) {
+        p.onProgress?.(m.progress[0], m.progress[1]);
+        return;
+      }
+      pending.delete(m.id);
+      if (m.ok) {
+        p.resolve(m.value);
+      } else {
+        p.reject(m.error);
+        if (m.crashed) restartWorker('The analysis core crashed and was restarted.');
+      }
+    };
+    worker.onerror = (event) => {
+      event.preventDefault();
+      reject({ message: `The analysis core failed: ${event.message}` });
+      restartWorker(`The analysis core failed (${event.message}) and was restarted.`);
+    };
+  });
+  ready.then(
+    () => setStatus(`Analysis core ready (${Math.round(window.ringlineCoreReadyMs)} ms).`),
+    (e) => setStatus(e.message, true),
+  );
+}
+
+function call(op, args = {}, onProgress = null) {
+  return ready.then(() => new Promise((resolve, reject) => {
+    const id = nextId++;
+    pending.set(id, { resolve, reject, onProgress });
+    worker.postMessage({ id, op, args });
+  }));
+}
+
+/** Ends the worker (and whatever it was computing) and starts a fresh one with the same files. */
+async function restartWorker(why) {
+  worker?.terminate();
+  for (const p of pending.values()) p.reject({ message: why });
+  pending.clear();
+  startWorker();
+  setStatus(why, true);
+  state.report = null;
+  if (state.activity && state.layout) {
+    try {
+      await openWorkbook({ keepSettings: true });
+    } catch (e) {
+      showError('input-error', e);
+    }
+  }
+}
+
+// ---------------------------------------------------------------- state
+
+const state = {
+  files: [],          // { name, size, bytes, kind, status }
+  activity: null,
+  layout: null,
+  settings: null,     // every step's settings, as the core reports them
+  inspection: null,
+  report: null,
+  svgs: {},           // figure name -> SVG text, for export
+  fileStem: 'ringline',
+};
+
+function setStatus(text, isProblem = false) {
+  const el = $('core-status');
+  el.textContent = text;
+  el.classList.toggle('problem', isProblem);
+}
+
+function errorText(e) {
+  if (e && typeof e === 'object') return e.text ?? e.message ?? JSON.stringify(e);
+  return String(e);
+}
+
+function showError(id, e) {
+  const el = $(id);
+  el.textContent = errorText(e);
+  el.hidden = false;
+}
+
+function clearError(id) {
+  $(id).hidden = true;
+  $(id).textContent = '';
+}
+
+const KIND_NAMES = {
+  spike_list: 'spike list', layout: 'layout', roi_traces: 'ROI traces', notebook: 'ringline notebook',
+};
+
+function formatBytes(n) {
+  if (n < 1024) return `${n} B`;
+  if (n < 1024 * 1024) return `${(n / 1024).toFixed(1)} KiB`;
+  return `${(n / 1024 / 1024).toFixed(1)} MiB`;
+}
+
+function renderFiles() {
+  const body = $('file-table').tBodies[0];
+  body.replaceChildren();
+  for (const f of state.files) {
+    const row = body.insertRow();
+    for (const text of [f.name, formatBytes(f.size), KIND_NAMES[f.kind] ?? 'not recognised', f.status]) {
+      row.insertCell().textContent = text;
+    }
+    if (f.problem) row.classList.add('problem');
+  }
+  $('file-table').hidden = state.files.length === 0;
+}
+
+// ---------------------------------------------------------------- step 1: inputs
+
+async function addFiles(list) {
+  clearError('input-error');
+  for (const file of list) {
+    const bytes = await file.arrayBuffer();
+    const entry = { name: file.name, size: file.size, bytes, kind: null, status: '' };
+    const head = new TextDecoder().decode(new Uint8Array(bytes, 0, Math.min(64, bytes.byteLength))).trimStart();
+    if (head.startsWith('{')) {
+      entry.kind = 'notebook';
+    } else {
+      entry.kind = await call('sniff', { bytes });
+    }
+    entry.status = entry.kind ? 'read' : 'the header names no site, time or position columns';
+    entry.problem = !entry.kind;
+    state.files = state.files.filter((f) => f.name !== entry.name);
+    state.files.push(entry);
+    if (entry.kind === 'notebook') {
+      renderFiles();
+      await openNotebook(entry);
+      return;
+    }
+    if (entry.kind === 'spike_list' || entry.kind === 'roi_traces') state.activity = entry;
+    if (entry.kind === 'layout') state.layout = entry;
+  }
+  renderFiles();
+  if (state.activity && state.layout) {
+    await openWorkbook({ keepSettings: state.settings !== null });
+  } else if (state.activity) {
+    state.activity.status = 'read; now add its layout';
+    renderFiles();
+  } else if (state.layout) {
+    state.layout.status = 'read; now add a spike list';
+    renderFiles();
+  }
+}
+
+async function openWorkbook({ keepSettings }) {
+  clearError('input-error');
+  const payload = (f) => ({ name: f.name, bytes: f.bytes.slice(0) });
+  state.report = null;
+  hideFrom('step-bursts');
+  try {
+    const result = await call('open', {
+      activity: payload(state.activity),
+      layout: payload(state.layout),
+      settings: keepSettings ? state.settings : null,
+    });
+    state.settings = result.settings;
+    state.inspection = result.inspection;
+    state.activity.status = 'imported';
+    state.activity.problem = false;
+    state.layout.status = 'imported';
+    state.layout.problem = false;
+    state.fileStem = state.activity.name.replace(/\.[^.]*$/, '').replace(/[^A-Za-z0-9_-]+/g, '_') || 'ringline';
+    renderFiles();
+    fillForms();
+    await renderTrack();
+    $('step-bursts').hidden = false;
+  } catch (e) {
+    for (const f of [state.activity, state.layout]) {
+      f.status = 'not imported';
+    }
+    const culprit = e?.detail?.detail?.place?.file;
+    for (const f of [state.activity, state.layout]) {
+      if (!culprit || f.name === culprit) {
+        f.status = errorText(e);
+        f.problem = true;
+      }
+    }
+    renderFiles();
+    showError('input-error', e);
+    hideFrom('step-track');
+  }
+}
+
+async function openNotebook(entry) {
+  setBusy(true, 'Re-opening the notebook…');
+  try {
+    const result = await call('openNotebook', { name: entry.name, bytes: entry.bytes.slice(0) }, showProgress);
+    state.settings = result.settings;
+    state.inspection = result.inspection;
+    state.report = result.report;
+    entry.status = 'opened: files and settings restored, analysis re-run';
+    renderFiles();
+    fillForms();
+    await renderTrack();
+    $('step-bursts').hidden = false;
+    await renderResults();
+  } catch (e) {
+    entry.status = errorText(e);
+    entry.problem = true;
+    renderFiles();
+    showError('input-error', e);
+  } finally {
+    setBusy(false);
+  }
+}
+
+async function useDemo() {
+  const demo = await call('demo');
+  const enc = new TextEncoder();
+  const make = (name, text) => ({ name, arrayBuffer: async () => enc.encode(text).buffer, size: enc.encode(text).length });
+  await addFiles([make(demo.activity_name, demo.activity), make(demo.layout_name, demo.layout)]);
+}
+
+function hideFrom(stepId) {
+  const order = ['step-track', 'step-bursts', 'step-fronts', 'step-summary'];
+  for (const id of order.slice(order.indexOf(stepId))) $(id).hidden = true;
+  if (order.indexOf(stepId) <= 1) $('burst-results').hidden = true;
+}
+
+// ---------------------------------------------------------------- settings forms
+
+function fillForms() {
+  const s = state.settings;
+  const track = $('track-form').elements;
+  track.kind.value = s.track.kind;
+  const select = track.start_site;
+  select.replaceChildren(new Option('(default end)', ''));
+  for (const site of state.inspection?.sites ?? []) select.add(new Option(site.site, site.site));
+  select.value = s.track.start_site ?? '';
+  track.reverse.checked = s.track.reverse;
+  const a = s.analysis;
+  const bursts = $('burst-form').elements;
+  bursts.detector.value = a.bursts.detector;
+  bursts.threshold_sd.value = a.bursts.population_rate.threshold_sd;
+  bursts.min_site_fraction.value = a.bursts.min_site_fraction;
+  bursts.estimator.value = a.fronts.estimator;
+  bursts.resamples.value = a.fronts.resamples;
+  bursts.seed.value = a.fronts.seed;
+}
+
+function readTrackForm() {
+  const f = $('track-form').elements;
+  return {
+    ...state.settings.track,
+    kind: f.kind.value,
+    start_site: f.start_site.value || null,
+    reverse: f.reverse.checked,
+  };
+}
+
+function readAnalysisForm() {
+  const f = $('burst-form').elements;
+  const a = structuredClone(state.settings.analysis);
+  a.bursts.detector = f.detector.value;
+  a.bursts.population_rate.threshold_sd = Number(f.threshold_sd.value);
+  a.bursts.min_site_fraction = Number(f.min_site_fraction.value);
+  a.fronts.estimator = f.estimator.value;
+  a.fronts.resamples = Math.round(Number(f.resamples.value));
+  a.fronts.seed = Math.round(Number(f.seed.value));
+  return a;
+}
+
+// ---------------------------------------------------------------- figures
+
+async function drawFigure(name) {
+  const img = $(`fig-${name}`);
+  const width = Math.max(360, Math.min(900, Math.round(img.parentElement.clientWidth || 760)));
+  const height = name === 'raster' ? Math.max(300, Math.min(700, 80 + 14 * (state.inspection?.site_count ?? 16))) : 340;
+  try {
+    const fig = await call('figure', { figure: name, width, height });
+    state.svgs[name] = fig.svg;
+    const old = img.src;
+    img.src = URL.createObjectURL(new Blob([fig.svg], { type: 'image/svg+xml' }));
+    img.width = fig.width_px;
+    img.height = fig.height_px;
+    img.hidden = false;
+    img.parentElement.classList.remove('empty');
+    img.parentElement.dataset.note = '';
+    if (old.startsWith('blob:')) URL.revokeObjectURL(old);
+  } catch (e) {
+    delete state.svgs[name];
+    img.hidden = true;
+    img.parentElement.classList.add('empty');
+    img.parentElement.dataset.note = errorText(e);
+  }
+}
+
+// ---------------------------------------------------------------- step 2: track
+
+function fmt(value, digits = 1, unit = '') {
+  if (value === null || value === undefined || Number.isNaN(value)) return '—';
+  return `${Number(value).toFixed(digits)}${unit ? ` ${unit}` : ''}`;
+}
+
+function fillNotices(listId, notices) {
+  const list = $(listId);
+  list.replaceChildren();
+  for (const n of notices ?? []) {
+    const item = document.createElement('li');
+    const where = [n.place?.file, n.place?.line && `line ${n.place.line}`, n.place?.site && `site ${n.place.site}`]
+      .filter(Boolean).join(', ');
+    item.textContent = where ? `${where}: ${n.message}` : n.message;
+    list.append(item);
+  }
+}
+
+async function renderTrack() {
+  const i = state.inspection;
+  const t = i.track;
+  const parts = [
+    `${i.site_count} sites (${i.silent_sites.length} silent)`,
+    `${i.spike_count ?? 0} spikes over ${fmt(i.duration_s, 1, 's')}`,
+    `track: ${t.kind} (${t.chosen_by === 'auto' ? 'detected' : 'chosen'}; ${t.reason})`,
+  ];
+  if (t.length_um !== null) parts.push(`length ${fmt(t.length_um, 0, 'µm')}`);
+  if (t.radius_um !== null) parts.push(`radius ${fmt(t.radius_um, 0, 'µm')}`);
+  if (t.residual_rms_um !== null) parts.push(`residual ${fmt(t.residual_rms_um, 1, 'µm')} RMS`);
+  if (t.site_spacing_um !== null) parts.push(`site spacing ${fmt(t.site_spacing_um, 0, 'µm')}`);
+  if (t.off_track_sites.length) parts.push(`off the track: ${t.off_track_sites.join(', ')}`);
+  $('track-text').textContent = `${parts.join('; ')}.`;
+  fillNotices('track-notices', i.notices);
+  $('step-track').hidden = false;
+  await drawFigure('site_map');
+}
+
+async function refitTrack(event) {
+  event.preventDefault();
+  try {
+    state.inspection = await call('setTrack', { track: readTrackForm() });
+    state.settings = await call('settings');
+    state.report = null;
+    hideFrom('step-fronts');
+    $('burst-results').hidden = true;
+    await renderTrack();
+  } catch (e) {
+    showError('input-error', e);
+  }
+}
+
+// ---------------------------------------------------------------- step 3 to 5: analysis
+
+function setBusy(busy, text = '') {
+  $('progress').hidden = !busy;
+  $('analyze-button').disabled = busy;
+  $('progress-text').textContent = text;
+  if (busy) $('progress-bar').value = 0;
+}
+
+function showProgress(done, total) {
+  $('progress-bar').max = Math.max(1, total);
+  $('progress-bar').value = done;
+  $('progress-text').textContent = `burst ${done} of ${total}`;
+}
+
+async function runAnalysis(event) {
+  event?.preventDefault();
+  clearError('analysis-error');
+  setBusy(true, 'Finding bursts…');
+  try {
+    state.report = await call('analyze', { analysis: readAnalysisForm() }, showProgress);
+    state.settings = await call('settings');
+    await renderResults();
+  } catch (e) {
+    showError('analysis-error', e);
+  } finally {
+    setBusy(false);
+  }
+}
+
+async function renderResults() {
+  const r = state.report;
+  if (!r) return;
+  const s = r.summary;
+  $('burst-results').hidden = false;
+  $('burst-text').textContent = `${s.burst_count} bursts (${fmt(s.burst_rate_per_min, 2, 'per min')}); `
+    + `median interburst interval ${fmt(s.ibi.median_s, 2, 's')} (IQR ${fmt(s.ibi.iqr_s, 2, 's')}, CV ${fmt(s.ibi.cv, 2)}); `
+    + `${s.front_count} with a front, ${s.no_front_count} without.`;
+  const [from, to] = state.settings.view.window_s ?? [null, null];
+  const w = $('window-form').elements;
+  if (from !== null) { w.from.value = from; w.to.value = to; }
+  for (const name of ['raster', 'population_rate', 'interval_histogram']) await drawFigure(name);
+  $('step-fronts').hidden = false;
+  $('burst-count').textContent = `of ${r.bursts.length}`;
+  await selectBurst(state.settings.view.burst);
+  for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability']) await drawFigure(name);
+  renderSummary();
+}
+
+async function setWindow(event) {
+  event.preventDefault();
+  const w = $('window-form').elements;
+  const from = Number(w.from.value);
+  const to = Number(w.to.value);
+  const view = { ...state.settings.view, window_s: (w.from.value !== '' && w.to.value !== '') ? [from, to] : null };
+  await call('setView', { view });
+  state.settings.view = view;
+  for (const name of ['raster', 'population_rate']) await drawFigure(name);
+}
+
+async function selectBurst(number) {
+  const bursts = state.report?.bursts ?? [];
+  if (bursts.length === 0) {
+    $('front-text').textContent = 'No bursts were found.';
+    await drawFigure('activation');
+    return;
+  }
+  const n = Math.min(Math.max(1, Math.round(number) || 1), bursts.length);
+  const view = { ...state.settings.view, burst: n };
+  await call('setView', { view });
+  state.settings.view = view;
+  $('burst-number').value = n;
+  const b = bursts[n - 1];
+  const f = b.front;
+  $('front-text').textContent = f
+    ? `Burst ${b.burst} (${fmt(b.start_s, 3, 's')} to ${fmt(b.end_s, 3, 's')}): ${f.model.replaceAll('_', ' ')} front at `
+      + `${fmt(f.speed_mm_s, 1, 'mm/s')} (95% interval ${fmt(f.speed_ci95_mm_s[0], 1)} to ${fmt(f.speed_ci95_mm_s[1], 1, 'mm/s')}), `
+      + `from site ${f.origin_site}${f.travel ? `, travelling towards ${f.travel} track coordinate` : ''}${f.rotation ? `, rotation ${f.rotation}` : ''}; `
+      + `${f.sites_used} sites, residual ${fmt(f.residual_rms_ms, 2, 'ms')} RMS${f.failed ? '; stopped short (propagation failure)' : ''}.`
+    : `Burst ${b.burst} (${fmt(b.start_s, 3, 's')} to ${fmt(b.end_s, 3, 's')}): no front: ${b.no_front_reason}.`;
+  $('readout').textContent = 'Point at a site to read its values.';
+  await drawFigure('activation');
+}
+
+function summaryRows(r) {
+  const s = r.summary;
+  const d = s.direction;
+  const rows = [
+    ['bursts', s.burst_count, String(s.burst_count)],
+    ['recording duration', s.duration_s, fmt(s.duration_s, 1, 's')],
+    ['burst rate', s.burst_rate_per_min, fmt(s.burst_rate_per_min, 2, 'per min')],
+    ['median interburst interval', s.ibi.median_s, `${fmt(s.ibi.median_s, 3, 's')} (IQR ${fmt(s.ibi.q25_s, 3)} to ${fmt(s.ibi.q75_s, 3, 's')}, CV ${fmt(s.ibi.cv, 2)})`],
+    ['fronts', s.front_count, `${s.front_count} (no front in ${s.no_front_count})`],
+    ['median speed', s.median_speed_mm_s, `${fmt(s.median_speed_mm_s, 2, 'mm/s')} (95% interval ${fmt(s.median_speed_ci95_mm_s?.[0], 2)} to ${fmt(s.median_speed_ci95_mm_s?.[1], 2, 'mm/s')})`],
+    ['speed IQR', s.speed_iqr_mm_s, `${fmt(s.speed_q25_mm_s, 2)} to ${fmt(s.speed_q75_mm_s, 2, 'mm/s')}`],
+    ['speed drift', s.speed_drift?.slope_mm_s_per_min ?? null, s.speed_drift ? `${fmt(s.speed_drift.slope_mm_s_per_min, 3, 'mm/s per min')} (95% ${fmt(s.speed_drift.ci95_mm_s_per_min[0], 3)} to ${fmt(s.speed_drift.ci95_mm_s_per_min[1], 3)})` : '—'],
+    ['direction', d.first_fraction, d.first_label
+      ? `${d.first_count} ${d.first_label}, ${d.second_count} ${d.second_label}, ${d.two_way_count} two-way; share ${d.first_label} ${fmt(d.first_fraction, 2)} (95% ${fmt(d.first_fraction_ci95?.[0], 2)} to ${fmt(d.first_fraction_ci95?.[1], 2)})`
+      : (d.mean_direction_deg !== null ? `mean direction ${fmt(d.mean_direction_deg, 0, '°')}, resultant length ${fmt(d.mean_resultant_length, 2)}` : '—')],
+    ['models chosen', null, s.model_counts.map(([m, n]) => `${m.replaceAll('_', ' ')}: ${n}`).join(', ') || '—'],
+    ['propagation failures', s.failure_count, String(s.failure_count)],
+  ];
+  return rows;
+}
+
+function renderSummary() {
+  const body = $('summary-table').tBodies[0];
+  body.replaceChildren();
+  for (const [label, value, text] of summaryRows(state.report)) {
+    const row = body.insertRow();
+    row.insertCell().textContent = label;
+    const cell = row.insertCell();
+    cell.textContent = text;
+    if (value !== null && value !== undefined) cell.dataset.value = String(value);
+    cell.dataset.key = label;
+  }
+  const notices = state.report.notices;
+  fillNotices('analysis-notices', notices);
+  $('step-summary').hidden = false;
+}
+
+// ---------------------------------------------------------------- exports
+
+function download(name, text, type) {
+  const a = document.createElement('a');
+  a.href = URL.createObjectURL(new Blob([text], { type }));
+  a.download = name;
+  document.body.append(a);
+  a.click();
+  a.remove();
+  setTimeout(() => URL.revokeObjectURL(a.href), 10000);
+}
+
+async function exportTable(event) {
+  const key = event.currentTarget.dataset.export;
+  const name = event.currentTarget.dataset.name;
+  const exports = await call('exports');
+  if (!exports) return;
+  download(name, exports[key], name.endsWith('.json') ? 'application/json' : 'text/csv');
+}
+
+function exportSvg(event) {
+  const name = event.currentTarget.dataset.figure;
+  const svg = state.svgs[name];
+  if (svg) download(`${state.fileStem}-${name}.svg`, svg, 'image/svg+xml');
+}
+
+async function saveNotebook() {
+  const text = await call('notebook');
+  download(`${state.fileStem}.ringline.json`, text, 'application/json');
+}
+
+// ---------------------------------------------------------------- wiring
+
+function wire() {
+  const drop = $('drop-zone');
+  drop.addEventListener('dragover', (e) => { e.preventDefault(); drop.classList.add('over'); });
+  drop.addEventListener('dragleave', () => drop.classList.remove('over'));
+  drop.addEventListener('drop', (e) => {
+    e.preventDefault();
+    drop.classList.remove('over');
+    addFiles([...e.dataTransfer.files]).catch((err) => showError('input-error', err));
+  });
+  $('file-input').addEventListener('change', (e) => {
+    addFiles([...e.target.files]).catch((err) => showError('input-error', err));
+    e.target.value = '';
+  });
+  $('demo-button').addEventListener('click', () => useDemo().catch((err) => showError('input-error', err)));
+  $('track-form').addEventListener('submit', refitTrack);
+  $('burst-form').addEventListener('submit', runAnalysis);
+  $('window-form').addEventListener('submit', setWindow);
+  $('cancel-button').addEventListener('click', () => {
+    setBusy(false);
+    restartWorker('Cancelled; the files are still open, run the analysis again when ready.');
+  });
+  $('prev-burst').addEventListener('click', () => selectBurst(Number($('burst-number').value) - 1));
+  $('next-burst').addEventListener('click', () => selectBurst(Number($('burst-number').value) + 1));
+  $('burst-number').addEventListener('change', (e) => selectBurst(Number(e.target.value)));
+  document.addEventListener('keydown', (e) => {
+    if (!state.report || ['INPUT', 'SELECT', 'TEXTAREA'].includes(document.activeElement?.tagName)) return;
+    if (e.key === 'ArrowLeft') selectBurst(Number($('burst-number').value) - 1);
+    if (e.key === 'ArrowRight') selectBurst(Number($('burst-number').value) + 1);
+  });
+  const activation = $('fig-activation');
+  activation.addEventListener('pointermove', async (e) => {
+    const box = activation.getBoundingClientRect();
+    const x = (e.clientX - box.left) * (activation.naturalWidth / box.width);
+    const y = (e.clientY - box.top) * (activation.naturalHeight / box.height);
+    const label = await call('readout', { x, y });
+    $('readout').textContent = label ?? 'Point at a site to read its values.';
+  });
+  for (const b of document.querySelectorAll('[data-export]')) b.addEventListener('click', exportTable);
+  for (const b of document.querySelectorAll('.svg-save')) b.addEventListener('click', exportSvg);
+  $('save-notebook').addEventListener('click', saveNotebook);
+}
+
+// For the page's own tests: the bridge, to reach the core the way the page does.
+window.ringline = { call, state, restartWorker };
+
+wire();
+startWorker();

@@ -1,0 +1,97 @@
+// The worker that holds ringline's wasm core. It only passes messages to the core and back:
+// every number, figure and file comes from Rust. One workbook (files, settings, results) lives
+// here; the page replaces the whole worker to cancel a long step or recover from a crash.
+
+// ringline-core-import-begin
+import init, * as core from './pkg/ringline.js';
+const loadCore = () => init({ module_or_path: new URL('./pkg/ringline_bg.wasm', import.meta.url) });
+// ringline-core-import-end
+
+let workbook = null;
+
+function reply(id, value) {
+  postMessage({ id, ok: true, value });
+}
+
+function fail(id, error) {
+  // Errors from the core are { message, place?, ... } objects or strings.
+  let message;
+  if (error instanceof WebAssembly.RuntimeError) {
+    const panic = safe(() => core.lastPanic());
+    message = `The analysis core stopped unexpectedly${panic ? `: ${panic}` : ''}. It will be restarted.`;
+    postMessage({ id, ok: false, error: { message }, crashed: true });
+    return;
+  }
+  if (error && typeof error === 'object' && ('text' in error || 'message' in error)) {
+    // Core errors carry `text`, the located sentence the command line prints.
+    message = String(error.text ?? error.message);
+  } else {
+    message = String(error);
+  }
+  postMessage({ id, ok: false, error: { message, detail: plain(error) } });
+}
+
+function safe(f) {
+  try { return f(); } catch { return ''; }
+}
+
+function plain(value) {
+  try { return JSON.parse(JSON.stringify(value)); } catch { return null; }
+}
+
+function progress(id) {
+  return (done, total) => postMessage({ id, progress: [done, total] });
+}
+
+function need() {
+  if (!workbook) throw { message: 'Open a recording first.' };
+  return workbook;
+}
+
+const ops = {
+  defaults: () => core.defaultSettings(),
+  demo: () => core.demoFiles(),
+  sniff: ({ bytes }) => core.sniffKind(new Uint8Array(bytes)),
+  open: ({ activity, layout, settings }) => {
+    workbook?.free();
+    workbook = null;
+    workbook = new core.Workbook(activity.name, new Uint8Array(activity.bytes),
+      layout.name, new Uint8Array(layout.bytes), settings ?? null);
+    return { inspection: workbook.inspection(), settings: workbook.settings() };
+  },
+  openNotebook: ({ name, bytes }, id) => {
+    workbook?.free();
+    workbook = null;
+    workbook = core.Workbook.fromNotebook(name, new Uint8Array(bytes), progress(id));
+    return { inspection: workbook.inspection(), settings: workbook.settings(), report: workbook.report() };
+  },
+  setTrack: ({ track }) => need().setTrack(track),
+  analyze: ({ analysis }, id) => need().analyze(analysis, progress(id)),
+  setView: ({ view }) => need().setView(view),
+  settings: () => need().settings(),
+  figure: ({ figure, width, height }) => need().figure({ figure }, width, height),
+  readout: ({ x, y }) => need().readout(x, y) ?? null,
+  exports: () => need().exports(),
+  notebook: () => need().notebookJson(),
+  panic: () => core.panicForTest(),
+};
+
+let ready = loadCore().then(
+  () => postMessage({ ready: true }),
+  (error) => postMessage({ ready: false, error: { message: `The analysis core could not start: ${error}` } }),
+);
+
+onmessage = async (event) => {
+  const { id, op, args } = event.data;
+  await ready;
+  const f = ops[op];
+  if (!f) {
+    fail(id, `unknown operation ${op}`);
+    return;
+  }
+  try {
+    reply(id, f(args ?? {}, id));
+  } catch (error) {
+    fail(id, error);
+  }
+};
