@@ -38,3 +38,25 @@ reference_python() {
   fi
   echo "$venv/bin/python"
 }
+
+# Node.js runs the page's build step and its browser tests.
+ensure_node() {
+  if ! command -v node >/dev/null 2>&1 || ! command -v npm >/dev/null 2>&1; then
+    echo "node and npm are not on PATH: install Node.js 18 or newer (Debian: apt-get install nodejs npm)" >&2
+    exit 1
+  fi
+}
+
+# Debian's Chromium for the page's tests (never a browser download). Installs it with apt-get
+# when missing and this user may; otherwise says how.
+ensure_chromium() {
+  [ -x /usr/bin/chromium ] && return 0
+  if [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then
+    say "installing Debian's chromium"
+    DEBIAN_FRONTEND=noninteractive apt-get install -y chromium >/dev/null \
+      || { apt-get update >/dev/null && DEBIAN_FRONTEND=noninteractive apt-get install -y chromium >/dev/null; }
+  else
+    echo "Chromium is not installed at /usr/bin/chromium: run 'sudo apt-get install -y chromium'" >&2
+    exit 1
+  fi
+}

@@ -308,10 +308,7 @@ impl WasmWorkbook {
             width_px: width_px.clamp(200, 4000),
             height_px: height_px.clamp(150, 4000),
         };
-        let figure = self
-            .inner
-            .figure(&request, size)
-            .map_err(|e| message(&e))?;
+        let figure = self.inner.figure(&request, size).map_err(|e| message(&e))?;
         #[derive(Serialize)]
         struct Drawn<'a> {
             svg: &'a str,

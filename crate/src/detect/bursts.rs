@@ -181,7 +181,10 @@ impl PopulationRate {
 /// `smooth_sd_s` (normalised to spikes per second), with the median baseline, the threshold
 /// `median + threshold_sd * MAD / 0.6745` (at least `min_coincident_spikes` single-spike
 /// peaks) and the edge level. `None` when there are no spikes.
-pub fn population_rate(trains_s: &[Vec<f64>], s: &PopulationRateSettings) -> Option<PopulationRate> {
+pub fn population_rate(
+    trains_s: &[Vec<f64>],
+    s: &PopulationRateSettings,
+) -> Option<PopulationRate> {
     let first = trains_s
         .iter()
         .filter_map(|t| t.first())

@@ -4,6 +4,6 @@
 mod bursts;
 
 pub use bursts::{
-    detect_bursts, population_rate, BurstDetector, BurstSettings, IsiNSettings, NetworkBurst, PopulationRate,
-    PopulationRateSettings,
+    detect_bursts, population_rate, BurstDetector, BurstSettings, IsiNSettings, NetworkBurst,
+    PopulationRate, PopulationRateSettings,
 };

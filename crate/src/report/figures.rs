@@ -6,11 +6,11 @@
 //! deficiencies. Figures that offer a read-out return the pixel position and label of every
 //! data point, and [`Figure::nearest`] names the point under the pointer.
 
+use super::svg::{Colour, Plot};
 use super::{AnalysisReport, Inspection};
 use crate::detect::PopulationRate;
 use crate::fronts::{BurstResult, FrontReport};
 use crate::geometry::{Rotation, Track};
-use super::svg::{Colour, Plot};
 use serde::Serialize;
 use std::f64::consts::TAU;
 
@@ -182,8 +182,14 @@ pub fn site_map(inspection: &Inspection, size: Size) -> Result<Figure, FigureErr
         }
         Track::Plane => {}
     }
-    let xs = sites.iter().map(|s| s.x_um).chain(track_path.iter().map(|p| p.0));
-    let ys = sites.iter().map(|s| s.y_um).chain(track_path.iter().map(|p| p.1));
+    let xs = sites
+        .iter()
+        .map(|s| s.x_um)
+        .chain(track_path.iter().map(|p| p.0));
+    let ys = sites
+        .iter()
+        .map(|s| s.y_um)
+        .chain(track_path.iter().map(|p| p.1));
     let (x0, x1) = padded(xs).ok_or_else(|| empty("no finite site positions"))?;
     let (y0, y1) = padded(ys).ok_or_else(|| empty("no finite site positions"))?;
     // Equal scales on both axes, so a ring looks round.
@@ -256,7 +262,11 @@ fn track_start_and_step(track: &Track) -> Option<((f64, f64), (f64, f64))> {
             rotation,
         } => {
             let a = *start_angle_rad;
-            let sense = if *rotation == Rotation::Ccw { 1.0 } else { -1.0 };
+            let sense = if *rotation == Rotation::Ccw {
+                1.0
+            } else {
+                -1.0
+            };
             Some((
                 (
                     centre_um[0] + radius_um * a.cos(),
@@ -301,9 +311,7 @@ pub fn raster(
     let n = rows.len() as f64;
     // Each row's ticks fill 80% of its height.
     let row_half_px = 0.4 * f64::from(size.height_px.saturating_sub(82)) / n;
-    let title = format!(
-        "Spikes by site (ordered along the track), {from_s:.1}-{to_s:.1} s"
-    );
+    let title = format!("Spikes by site (ordered along the track), {from_s:.1}-{to_s:.1} s");
     chart(
         size,
         &title,
@@ -397,7 +405,11 @@ fn histogram(values: &[f64], bins: usize) -> Option<(Vec<f64>, Vec<usize>, f64)>
         let k = (((v - lo) / width) as usize).min(bins - 1);
         counts[k] += 1;
     }
-    Some(((0..bins).map(|k| lo + k as f64 * width).collect(), counts, width))
+    Some((
+        (0..bins).map(|k| lo + k as f64 * width).collect(),
+        counts,
+        width,
+    ))
 }
 
 /// Bin count for a histogram of n values: the square-root choice, between 5 and 40
@@ -418,28 +430,22 @@ fn bars(
         histogram(values, bin_count(values.len())).ok_or_else(|| empty("no values"))?;
     let top = counts.iter().copied().max().unwrap_or(1).max(1) as f64 * 1.1;
     let (x0, x1) = (edges[0], edges[edges.len() - 1] + width);
-    chart(
-        size,
-        title,
-        (x0, x1, x_label),
-        (0.0, top, "count"),
-        |c| {
-            for (&e, &k) in edges.iter().zip(&counts) {
-                c.rect((e, 0.0), (e + width, k as f64), colour, 1.0);
-            }
-            Ok(edges
-                .iter()
-                .zip(&counts)
-                .map(|(&e, &k)| {
-                    (
-                        e + width / 2.0,
-                        k as f64,
-                        format!("{e:.3}-{:.3} {unit}: {k}", e + width),
-                    )
-                })
-                .collect())
-        },
-    )
+    chart(size, title, (x0, x1, x_label), (0.0, top, "count"), |c| {
+        for (&e, &k) in edges.iter().zip(&counts) {
+            c.rect((e, 0.0), (e + width, k as f64), colour, 1.0);
+        }
+        Ok(edges
+            .iter()
+            .zip(&counts)
+            .map(|(&e, &k)| {
+                (
+                    e + width / 2.0,
+                    k as f64,
+                    format!("{e:.3}-{:.3} {unit}: {k}", e + width),
+                )
+            })
+            .collect())
+    })
 }
 
 /// Histogram of interburst intervals (from burst start to next burst start), seconds.
@@ -472,14 +478,7 @@ pub fn speed_histogram(report: &AnalysisReport, size: Size) -> Result<Figure, Fi
     if speeds.is_empty() {
         return Err(empty("no fronts"));
     }
-    bars(
-        &speeds,
-        size,
-        "Front speeds",
-        "speed (mm/s)",
-        "mm/s",
-        GREEN,
-    )
+    bars(&speeds, size, "Front speeds", "speed (mm/s)", "mm/s", GREEN)
 }
 
 /// Speed of every front against its start time with its 95% bootstrap interval.
@@ -492,7 +491,8 @@ pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, Fi
     if fronts.is_empty() {
         return Err(empty("no fronts"));
     }
-    let (t0, t1) = padded(fronts.iter().map(|(_, f)| f.start_s)).ok_or_else(|| empty("no times"))?;
+    let (t0, t1) =
+        padded(fronts.iter().map(|(_, f)| f.start_s)).ok_or_else(|| empty("no times"))?;
     let top = fronts
         .iter()
         .map(|(_, f)| f.speed_ci95_mm_s[1].max(f.speed_mm_s))
@@ -642,45 +642,40 @@ pub fn reliability(report: &AnalysisReport, size: Size) -> Result<Figure, Figure
 }
 
 /// Distance a front has travelled from its origin to an activation, µm, along the path its
-/// model describes (track coordinate `along_um` on a line or ring `track`, layout position
-/// `xy_um` on a plane); `None` when the report lacks what the model needs.
+/// model describes: from the track coordinate `along_um` on a line or ring `track`, from the
+/// layout position `xy_um` on a plane. `None` when the report lacks what the model needs.
 pub fn distance_from_origin_um(
     front: &FrontReport,
     track: &Track,
     along_um: Option<f64>,
     xy_um: [f64; 2],
 ) -> Option<f64> {
-    let ring = match track {
-        Track::Ring {
-            radius_um,
-            rotation,
-            ..
-        } => Some((
-            TAU * radius_um,
-            if *rotation == Rotation::Cw { -1.0 } else { 1.0 },
-        )),
-        _ => None,
-    };
     match front.model.as_str() {
         "line_one_way" | "line_two_way" => Some((along_um? - front.origin_along_um?).abs()),
-        "ring_one_way" => {
-            let (c, coordinate_sense) = ring?;
-            // The front's rotation is in the layout's axes; the coordinate grows in the
-            // track's rotation.
-            let travel_sense = if front.rotation.as_deref() == Some("cw") {
-                -1.0
-            } else {
-                1.0
+        "ring_one_way" | "ring_two_way" => {
+            let Track::Ring {
+                centre_um,
+                radius_um,
+                start_angle_rad,
+                rotation,
+            } = track
+            else {
+                return None;
             };
-            Some(
-                (travel_sense * coordinate_sense * (along_um? - front.origin_along_um?))
-                    .rem_euclid(c),
-            )
-        }
-        "ring_two_way" => {
-            let (c, _) = ring?;
-            let d = (along_um? - front.origin_along_um?).rem_euclid(c);
-            Some(d.min(c - d))
+            // Ring origins are angles in the layout's axes (counter-clockwise positive); the
+            // track coordinate grows in the track's own rotation from its start angle.
+            let sense = if *rotation == Rotation::Cw { -1.0 } else { 1.0 };
+            let angle = match along_um {
+                Some(s) => start_angle_rad + sense * s / radius_um,
+                None => (xy_um[1] - centre_um[1]).atan2(xy_um[0] - centre_um[0]),
+            };
+            let turned = (angle - front.origin_angle_deg?.to_radians()).rem_euclid(TAU);
+            let arc = match (front.model.as_str(), front.rotation.as_deref()) {
+                ("ring_one_way", Some("cw")) => (TAU - turned) % TAU,
+                ("ring_one_way", _) => turned,
+                _ => turned.min(TAU - turned),
+            };
+            Some(radius_um * arc)
         }
         "plane_wave" => {
             let (o, n) = (front.origin_xy_um?, front.direction_xy?);

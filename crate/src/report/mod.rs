@@ -3,9 +3,9 @@
 
 mod analysis;
 pub mod figures;
+mod inspection;
 mod svg;
 pub mod workbook;
-mod inspection;
 
 pub use analysis::{AnalysisReport, ANALYSIS_SCHEMA};
 pub use inspection::{inspect, Inspection, SiteRow, TrackSummary};

@@ -44,18 +44,29 @@ pub fn nice_ticks(lo: f64, hi: f64, target: usize) -> (Vec<f64>, usize) {
     }
     let range = nice_number(hi - lo, false);
     let step = nice_number(range / (target.max(2) - 1) as f64, true);
-    let first = (lo / step).ceil() * step;
-    let decimals = (-step.log10().floor()).max(0.0) as usize;
+    // step = mantissa * 10^exponent with mantissa 1, 2 or 5: ticks are whole multiples
+    // k * mantissa, scaled by an exact power of ten (dividing by 10^-e rounds correctly, so
+    // 3 * 0.2 comes out as 0.6).
+    let exponent = step.log10().floor() as i32;
+    let mantissa = (step / 10f64.powi(exponent)).round();
+    let scale = |k: f64| {
+        if exponent < 0 {
+            k * mantissa / 10f64.powi(-exponent)
+        } else {
+            k * mantissa * 10f64.powi(exponent)
+        }
+    };
+    let first = (lo / step).ceil();
+    let decimals = (-exponent).max(0) as usize;
     let mut ticks = Vec::new();
-    let mut k = 0;
+    let mut k = 0.0;
     loop {
-        let t = first + k as f64 * step;
-        if t > hi + step * 1e-9 || k > 1000 {
+        let t = scale(first + k);
+        if t > hi + step * 1e-9 || k > 1000.0 {
             break;
         }
-        // Clean the rounding noise of the multiplication (so 0.30000000000000004 prints as 0.3).
-        ticks.push((t / step).round() * step);
-        k += 1;
+        ticks.push(t);
+        k += 1.0;
     }
     (ticks, decimals)
 }
@@ -221,7 +232,12 @@ impl Plot {
     }
 
     /// Many vertical ticks of `half_px` above and below each point (a raster row), as one path.
-    pub fn ticks(&mut self, points: impl Iterator<Item = (f64, f64)>, half_px: f64, colour: Colour) {
+    pub fn ticks(
+        &mut self,
+        points: impl Iterator<Item = (f64, f64)>,
+        half_px: f64,
+        colour: Colour,
+    ) {
         let mut d = String::new();
         for (x, y) in points {
             let (px, py) = self.at(x, y);
@@ -242,7 +258,10 @@ impl Plot {
         let paint = if filled {
             format!("fill=\"{}\"", colour.hex())
         } else {
-            format!("fill=\"#ffffff\" stroke=\"{}\" stroke-width=\"1.5\"", colour.hex())
+            format!(
+                "fill=\"#ffffff\" stroke=\"{}\" stroke-width=\"1.5\"",
+                colour.hex()
+            )
         };
         let _ = write!(
             self.body,
@@ -301,9 +320,20 @@ mod tests {
     /// inside the range and covering most of it.
     #[test]
     fn ticks_are_nice_and_cover_the_range() {
-        assert_eq!(nice_ticks(0.0, 100.0, 6).0, vec![0.0, 20.0, 40.0, 60.0, 80.0, 100.0]);
-        assert_eq!(nice_ticks(0.0, 1.0, 6), (vec![0.0, 0.2, 0.4, 0.6, 0.8, 1.0], 1));
-        for (lo, hi) in [(-3.7, 12.2), (0.001, 0.0173), (1234.0, 98765.0), (-1e-3, 0.0)] {
+        assert_eq!(
+            nice_ticks(0.0, 100.0, 6).0,
+            vec![0.0, 20.0, 40.0, 60.0, 80.0, 100.0]
+        );
+        assert_eq!(
+            nice_ticks(0.0, 1.0, 6),
+            (vec![0.0, 0.2, 0.4, 0.6, 0.8, 1.0], 1)
+        );
+        for (lo, hi) in [
+            (-3.7, 12.2),
+            (0.001, 0.0173),
+            (1234.0, 98765.0),
+            (-1e-3, 0.0),
+        ] {
             let (t, _) = nice_ticks(lo, hi, 6);
             assert!(t.len() >= 3, "{lo}..{hi}: {t:?}");
             let step = t[1] - t[0];

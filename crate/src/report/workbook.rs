@@ -127,11 +127,11 @@ pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, Noteboo
         )));
     }
     for role in ["activity", "layout"] {
-        let f = nb
-            .files
-            .iter()
-            .find(|f| f.role == role)
-            .ok_or_else(|| fail(format!("expected an {role} file in the notebook, found none")))?;
+        let f = nb.files.iter().find(|f| f.role == role).ok_or_else(|| {
+            fail(format!(
+                "expected an {role} file in the notebook, found none"
+            ))
+        })?;
         let content = f.content.as_ref().ok_or_else(|| {
             fail(format!(
                 "the {role} file {} was too large to embed; open it and the layout directly",
@@ -343,7 +343,10 @@ impl Workbook {
         let nb = Notebook {
             schema: NOTEBOOK_SCHEMA,
             program: format!("ringline {}", env!("CARGO_PKG_VERSION")),
-            files: vec![file("activity", &self.activity), file("layout", &self.layout)],
+            files: vec![
+                file("activity", &self.activity),
+                file("layout", &self.layout),
+            ],
             settings: &self.settings,
             results: self.report.as_ref(),
         };
@@ -361,7 +364,12 @@ impl Workbook {
             nb.files
                 .iter()
                 .find(|f| f.role == role)
-                .map(|f| (f.name.as_str(), f.content.as_deref().unwrap_or("").as_bytes()))
+                .map(|f| {
+                    (
+                        f.name.as_str(),
+                        f.content.as_deref().unwrap_or("").as_bytes(),
+                    )
+                })
                 .unwrap_or(("", b""))
         };
         let mut wb = Workbook::open(get("activity"), get("layout"), nb.settings.clone())?;

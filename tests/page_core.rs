@@ -1,0 +1,204 @@
+//! The core behind the page, natively: the workbook gives the same results and exports as
+//! `ringline analyze`, notebook files round-trip and are checked by SHA-256 (FIPS 180-4
+//! examples), and the figures show the data they are given (read-out points at the
+//! activations, the drawn model consistent with the fitted front).
+
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
+use ringline::fronts::AnalysisSettings;
+use ringline::geometry::TrackSettings;
+use ringline::import::ReadOptions;
+use ringline::report::figures::{distance_from_origin_um, Size};
+use ringline::report::workbook::{
+    open_notebook, sha256_hex, FigureRequest, StepSettings, Workbook,
+};
+
+fn demo(name: &str) -> (Vec<u8>, Vec<u8>) {
+    let dir = format!("{}/../demo-data/{name}", env!("CARGO_MANIFEST_DIR"));
+    (
+        std::fs::read(format!("{dir}/spikes.csv")).unwrap(),
+        std::fs::read(format!("{dir}/layout.csv")).unwrap(),
+    )
+}
+
+fn analysed(name: &str) -> Workbook {
+    let (spikes, layout) = demo(name);
+    let mut wb = Workbook::open(
+        ("spikes.csv", &spikes),
+        ("layout.csv", &layout),
+        StepSettings::default(),
+    )
+    .unwrap();
+    wb.analyze(AnalysisSettings::default(), &mut |_, _| {})
+        .unwrap();
+    wb
+}
+
+/// FIPS 180-4 (and its predecessor 180-2, appendix B) example digests.
+#[test]
+fn sha256_matches_the_fips_examples() {
+    assert_eq!(
+        sha256_hex(b"abc"),
+        "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+    );
+    assert_eq!(
+        sha256_hex(b"abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq"),
+        "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1"
+    );
+}
+
+/// The page's path (workbook) and the command line's path (`analyze_files`) give the same
+/// report and therefore the same exported bytes.
+#[test]
+fn workbook_matches_the_command_line_path() {
+    let (spikes, layout) = demo("strip-16");
+    let cli = ringline::analyze_files(
+        ("spikes.csv", &spikes),
+        ("layout.csv", &layout),
+        &ReadOptions::default(),
+        &TrackSettings::default(),
+        &AnalysisSettings::default(),
+        &mut |_, _| {},
+    )
+    .unwrap();
+    let wb = analysed("strip-16");
+    assert_eq!(wb.report().unwrap(), &cli);
+    let exports = wb.exports().unwrap();
+    assert_eq!(exports.fronts_csv, cli.fronts_csv());
+    assert_eq!(exports.bursts_csv, cli.bursts_csv());
+    assert_eq!(exports.activation_csv, cli.activation_csv());
+    assert_eq!(exports.summary_json, cli.summary_json());
+}
+
+/// Changing the track re-runs the steps below it: the analysis is dropped until run again.
+#[test]
+fn a_new_track_clears_the_analysis() {
+    let mut wb = analysed("strip-16");
+    let reversed = TrackSettings {
+        reverse: true,
+        ..TrackSettings::default()
+    };
+    wb.set_track(reversed).unwrap();
+    assert!(wb.report().is_none());
+    assert!(wb.exports().is_none());
+    let err = wb.figure(&FigureRequest::SpeedHistogram, Size::default());
+    assert!(err.unwrap_err().message.contains("run the analysis first"));
+}
+
+#[test]
+fn notebook_round_trip_gives_the_same_settings_and_results() {
+    let (spikes, layout) = demo("ring-24");
+    let mut settings = StepSettings::default();
+    settings.analysis.fronts.resamples = 200;
+    settings.analysis.fronts.seed = 11;
+    let mut wb = Workbook::open(
+        ("spikes.csv", &spikes),
+        ("layout.csv", &layout),
+        settings.clone(),
+    )
+    .unwrap();
+    wb.analyze(settings.analysis.clone(), &mut |_, _| {})
+        .unwrap();
+    wb.settings.view.burst = 3;
+    let text = wb.notebook_json();
+    let opened = open_notebook("saved.ringline.json", text.as_bytes()).unwrap();
+    assert_eq!(opened.files[0].sha256, sha256_hex(&spikes));
+    assert_eq!(opened.files[1].sha256, sha256_hex(&layout));
+    let again = Workbook::from_notebook(&opened, &mut |_, _| {}).unwrap();
+    assert_eq!(again.settings, wb.settings);
+    assert_eq!(again.report(), wb.report());
+
+    // A notebook whose embedded file was changed is refused, naming the check.
+    let tampered = text.replacen("site", "sitf", 1);
+    let err = open_notebook("saved.ringline.json", tampered.as_bytes()).unwrap_err();
+    assert!(err.message.contains("SHA-256"), "{}", err.message);
+    // Not a notebook at all: the place of the JSON problem.
+    let err = open_notebook("notes.json", b"{\"schema\": 1,,}").unwrap_err();
+    assert!(err
+        .message
+        .starts_with("notes.json: expected a ringline notebook"));
+    assert!(err.message.contains("line 1, column"));
+}
+
+/// The activation figure puts one read-out point at every activation, labelled with its
+/// site, track coordinate (µm) and time after the burst start (ms); the pointer finds it.
+#[test]
+fn activation_figure_reads_out_every_activation() {
+    let mut wb = analysed("strip-16");
+    wb.settings.view.burst = 2;
+    let report = wb.report().unwrap().clone();
+    let burst = &report.bursts[1];
+    let fig = wb
+        .figure(&FigureRequest::Activation, Size::default())
+        .unwrap();
+    assert!(fig
+        .svg
+        .starts_with("<svg xmlns=\"http://www.w3.org/2000/svg\""));
+    assert!(fig.svg.contains("position along the track (µm)"));
+    assert!(fig.svg.contains("(ms)"));
+    assert_eq!(fig.points.len(), burst.activations.len());
+    for (p, a) in fig.points.iter().zip(&burst.activations) {
+        let expected = format!(
+            "site {}: {:.0} µm, {:.2} ms",
+            a.site,
+            a.along_um.unwrap(),
+            (a.time_s - burst.start_s) * 1e3
+        );
+        assert!(p.label.starts_with(&expected), "{} / {expected}", p.label);
+        assert!(p.x_px > 0.0 && p.x_px < f64::from(fig.width_px));
+        assert!(p.y_px > 0.0 && p.y_px < f64::from(fig.height_px));
+        assert_eq!(fig.nearest(p.x_px + 1.0, p.y_px - 1.0, 3.0), Some(p));
+    }
+    assert_eq!(fig.nearest(-50.0, -50.0, 12.0), None);
+}
+
+/// The drawn model is the fitted one: on every kind of track, t = start + d / v with the
+/// distance the figure uses leaves residuals about as large as the fit's own RMS residual.
+#[test]
+fn drawn_model_matches_the_fitted_front() {
+    for name in ["strip-16", "ring-24", "dish-8x8"] {
+        let wb = analysed(name);
+        let report = wb.report().unwrap();
+        let track = &report.track.track;
+        let mut checked = 0;
+        for b in &report.bursts {
+            let Some(f) = &b.front else { continue };
+            let residuals: Vec<f64> = b
+                .activations
+                .iter()
+                .filter(|a| a.used)
+                .map(|a| {
+                    let d = distance_from_origin_um(f, track, a.along_um, [a.x_um, a.y_um])
+                        .unwrap_or_else(|| panic!("{name}: no distance for {f:?}"));
+                    (a.time_s - f.start_s) * 1e3 - d / f.speed_mm_s
+                })
+                .collect();
+            let rms =
+                (residuals.iter().map(|r| r * r).sum::<f64>() / residuals.len() as f64).sqrt();
+            assert!(
+                rms <= 2.0 * f.residual_rms_ms + 0.05,
+                "{name} burst {} ({}): model residual {rms:.3} ms against the fit's {:.3} ms",
+                b.burst,
+                f.model,
+                f.residual_rms_ms
+            );
+            checked += 1;
+        }
+        assert!(checked >= 5, "{name}: only {checked} fronts");
+        // Every figure draws for this recording.
+        for request in [
+            FigureRequest::SiteMap,
+            FigureRequest::Raster,
+            FigureRequest::PopulationRate,
+            FigureRequest::IntervalHistogram,
+            FigureRequest::Activation,
+            FigureRequest::SpeedOverTime,
+            FigureRequest::SpeedHistogram,
+            FigureRequest::InitiationSites,
+            FigureRequest::Reliability,
+        ] {
+            let fig = wb.figure(&request, Size::default());
+            assert!(fig.is_ok(), "{name} {request:?}: {:?}", fig.err());
+        }
+    }
+}
