@@ -73,6 +73,7 @@ const ops = {
   readout: ({ x, y }) => need().readout(x, y) ?? null,
   exports: () => need().exports(),
   notebook: () => need().notebookJson(),
+  simulate: ({ scenario }, id) => core.simulate(scenario, (stage, done, total) => postMessage({ id, progress: [done, total], stage })),
   panic: () => core.panicForTest(),
 };
 

@@ -366,3 +366,24 @@ pub fn demo_files() -> Result<JsValue, JsValue> {
         layout: include_str!("../../demo-data/strip-16/layout.csv"),
     })
 }
+
+/// `ringline simulate` on a scenario (JSON text): returns `[[file name, content], ...]`, the
+/// files the command line writes. `progress(stage, done_s, total_s)` as the simulation runs.
+#[wasm_bindgen]
+pub fn simulate(scenario_json: &str, progress: Option<js_sys::Function>) -> Result<JsValue, JsValue> {
+    let scenario = crate::simulate::parse_scenario(scenario_json)
+        .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
+    let mut report = |stage: &str, done: f64, total: f64| {
+        if let Some(f) = &progress {
+            let _ = f.call3(
+                &JsValue::NULL,
+                &JsValue::from_str(stage),
+                &JsValue::from(done),
+                &JsValue::from(total),
+            );
+        }
+    };
+    let files = crate::simulate::simulation_files(&scenario, &mut report)
+        .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
+    to_js(&files)
+}

@@ -257,3 +257,16 @@ test('a panic in the core is shown as an error, and the page goes on working', a
   assert.deepEqual(errors, []);
   await context.close();
 });
+
+test('the simulator in the page writes the same bytes as the native command line', async () => {
+  // The committed demo files are the native output (tests/demo_data.rs regenerates them).
+  const scenario = readFileSync(join(repo, 'demo-data/scenarios/network-strip-16.json'), 'utf8');
+  const { page, context } = await openPage(base);
+  const files = await page.evaluate((text) => window.ringline.call('simulate', { scenario: text }), scenario);
+  const names = files.map(([name]) => name).sort();
+  assert.deepEqual(names, ['layout.csv', 'roi_layout.csv', 'spikes.csv', 'traces.csv', 'truth.json']);
+  for (const [name, content] of files) {
+    assert.ok(content === readFileSync(join(repo, 'demo-data/network-strip-16', name), 'utf8'), `${name} differs between wasm and native`);
+  }
+  await context.close();
+});
