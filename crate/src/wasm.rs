@@ -370,7 +370,10 @@ pub fn demo_files() -> Result<JsValue, JsValue> {
 /// `ringline simulate` on a scenario (JSON text): returns `[[file name, content], ...]`, the
 /// files the command line writes. `progress(stage, done_s, total_s)` as the simulation runs.
 #[wasm_bindgen]
-pub fn simulate(scenario_json: &str, progress: Option<js_sys::Function>) -> Result<JsValue, JsValue> {
+pub fn simulate(
+    scenario_json: &str,
+    progress: Option<js_sys::Function>,
+) -> Result<JsValue, JsValue> {
     let scenario = crate::simulate::parse_scenario(scenario_json)
         .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
     let mut report = |stage: &str, done: f64, total: f64| {

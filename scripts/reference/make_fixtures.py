@@ -1,7 +1,8 @@
 #!/usr/bin/env python3
 """Reference fixtures for ringline's tests, computed with numpy and scipy.
 
-Writes tests/fixtures/geometry_reference.json and tests/fixtures/stats_reference.json.
+Writes tests/fixtures/geometry_reference.json, tests/fixtures/stats_reference.json and
+tests/fixtures/filter_reference.json.
 With --check, computes the same fixtures afresh and compares them with the committed files
 (numbers to a relative 1e-9), exiting 1 on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
 
@@ -18,7 +19,10 @@ References used:
 - Huber M-estimation: statsmodels RLM with HuberT() and its defaults;
 - Wilson interval: statsmodels.stats.proportion.proportion_confint(method='wilson');
 - median interval ranks: scipy.stats.binom.ppf(0.025, n, 0.5);
-- quantiles: numpy.percentile (default 'linear').
+- quantiles: numpy.percentile (default 'linear');
+- Butterworth band-pass: scipy.signal.butter(N, [lo, hi], 'bandpass', fs=fs, output='sos'),
+  its response by scipy.signal.sosfreqz, and zero-phase filtering by scipy.signal.sosfiltfilt
+  (defaults: odd extension, steady-state initial conditions).
 """
 import json
 import math
@@ -33,6 +37,7 @@ from scipy.optimize import least_squares
 ROOT = Path(__file__).resolve().parents[2]
 OUT = ROOT / "tests" / "fixtures" / "geometry_reference.json"
 STATS_OUT = ROOT / "tests" / "fixtures" / "stats_reference.json"
+FILTER_OUT = ROOT / "tests" / "fixtures" / "filter_reference.json"
 SEED = 20261201
 
 
@@ -226,6 +231,34 @@ def stats_fixtures(rng):
     }
 
 
+def filter_fixtures(rng):
+    """Butterworth band-passes: sections, response at chosen frequencies, and sosfiltfilt of
+    seeded noise with spike-like troughs."""
+    from scipy import signal
+    cases = []
+    for order, lo, hi, fs, with_signal in [(3, 300.0, 3000.0, 25000.0, True),
+                                          (4, 250.0, 5000.0, 30000.0, True),
+                                          (2, 300.0, 3000.0, 20000.0, False),
+                                          (1, 500.0, 2000.0, 10000.0, False),
+                                          (6, 300.0, 6000.0, 40000.0, False)]:
+        sos = signal.butter(order, [lo, hi], "bandpass", fs=fs, output="sos")
+        freqs = np.array([10.0, lo / 2, lo, math.sqrt(lo * hi), 1000.0, hi, min(2 * hi, 0.45 * fs)])
+        _, h = signal.sosfreqz(sos, worN=freqs, fs=fs)
+        case = {"order": order, "low_hz": lo, "high_hz": hi, "sample_rate_hz": fs,
+                "sos": sos.tolist(), "freqs_hz": freqs.tolist(), "gain": np.abs(h).tolist()}
+        if with_signal:
+            n = 3000
+            x = rng.normal(0.0, 10.0, n) + 5.0  # microvolts, with an offset the filter removes
+            for start in rng.integers(50, n - 100, 12):
+                t = np.arange(40) / fs
+                x[start:start + 40] += -80.0 * np.exp(-0.5 * ((t - 3e-4) / 1.5e-4) ** 2) + 25.0 * np.exp(-0.5 * ((t - 9e-4) / 3e-4) ** 2)
+            case["signal"] = x.tolist()
+            case["sosfiltfilt"] = signal.sosfiltfilt(sos, x).tolist()
+        cases.append(case)
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__,
+                         "scipy": scipy.__version__}, "cases": cases}
+
+
 def compare(a, b, path="$"):
     """Yields differences between two fixture trees; numbers compare to a relative 1e-9."""
     if isinstance(a, dict) and isinstance(b, dict):
@@ -249,7 +282,8 @@ def compare(a, b, path="$"):
 
 
 def main():
-    outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1)))]
+    outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1))),
+               (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2)))]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:

@@ -2,6 +2,8 @@
 //! and events from fluorescence).
 
 mod bursts;
+pub mod filter;
+pub mod voltage;
 
 pub use bursts::{
     detect_bursts, population_rate, BurstDetector, BurstSettings, IsiNSettings, NetworkBurst,
