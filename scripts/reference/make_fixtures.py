@@ -22,7 +22,11 @@ References used:
 - quantiles: numpy.percentile (default 'linear');
 - Butterworth band-pass: scipy.signal.butter(N, [lo, hi], 'bandpass', fs=fs, output='sos'),
   its response by scipy.signal.sosfreqz, and zero-phase filtering by scipy.signal.sosfiltfilt
-  (defaults: odd extension, steady-state initial conditions).
+  (defaults: odd extension, steady-state initial conditions);
+- WAV files: written by Python's standard `wave` module (16-bit PCM), by scipy.io.wavfile.write
+  (32-bit float), and byte by byte after Microsoft's WAVE_FORMAT_EXTENSIBLE layout (16-bit
+  PCM, with an odd-sized LIST chunk before the data); the expected samples are what
+  scipy.io.wavfile.read returns for each file.
 """
 import json
 import math
@@ -38,6 +42,8 @@ ROOT = Path(__file__).resolve().parents[2]
 OUT = ROOT / "tests" / "fixtures" / "geometry_reference.json"
 STATS_OUT = ROOT / "tests" / "fixtures" / "stats_reference.json"
 FILTER_OUT = ROOT / "tests" / "fixtures" / "filter_reference.json"
+WAV_OUT = ROOT / "tests" / "fixtures" / "wav_reference.json"
+WAV_DIR = ROOT / "tests" / "fixtures" / "wav"
 SEED = 20261201
 
 
@@ -259,6 +265,54 @@ def filter_fixtures(rng):
                          "scipy": scipy.__version__}, "cases": cases}
 
 
+def wav_fixtures(rng, write):
+    """Small WAV files from three writers and the samples scipy reads back. `write` is False
+    for --check: the files are made in memory and compared with the committed bytes."""
+    import io
+    import struct
+    import wave
+    from scipy.io import wavfile
+    made = {}
+    # 1. Python's wave module: 3 channels of int16 at 25 kHz.
+    pcm = rng.integers(-32768, 32768, size=(40, 3)).astype("<i2")
+    buf = io.BytesIO()
+    with wave.open(buf, "wb") as w:
+        w.setnchannels(3)
+        w.setsampwidth(2)
+        w.setframerate(25000)
+        w.writeframes(pcm.tobytes())
+    made["pcm16_wave_module.wav"] = buf.getvalue()
+    # 2. scipy.io.wavfile: 4 channels of float32 at 20 kHz.
+    flt = rng.normal(0.0, 50.0, size=(30, 4)).astype("<f4")
+    buf = io.BytesIO()
+    wavfile.write(buf, 20000, flt)
+    made["float32_scipy.wav"] = buf.getvalue()
+    # 3. WAVE_FORMAT_EXTENSIBLE, 5 channels of int16 at 10 kHz, a LIST chunk of odd size first.
+    ext = rng.integers(-32768, 32768, size=(25, 5)).astype("<i2")
+    data = ext.tobytes()
+    pcm_guid = struct.pack("<HHI", 1, 0, 0x00100000) + bytes([0x80, 0x00, 0x00, 0xAA, 0x00, 0x38, 0x9B, 0x71])
+    fmt = struct.pack("<HHIIHHHHI", 0xFFFE, 5, 10000, 10000 * 10, 10, 16, 22, 16, 0) + pcm_guid
+    listing = b"INFOx"  # 5 bytes: padded to 6
+    body = (b"WAVE" + b"fmt " + struct.pack("<I", len(fmt)) + fmt
+            + b"LIST" + struct.pack("<I", len(listing)) + listing + b"\0"
+            + b"data" + struct.pack("<I", len(data)) + data)
+    made["pcm16_extensible.wav"] = b"RIFF" + struct.pack("<I", len(body)) + body
+    cases = []
+    for name, blob in made.items():
+        rate, samples = wavfile.read(io.BytesIO(blob))
+        cases.append({"file": name, "sample_rate_hz": rate, "channels": int(samples.shape[1]),
+                      "sample_type": "float32" if samples.dtype == np.float32 else "int16",
+                      "samples": samples.astype(float).tolist()})
+        path = WAV_DIR / name
+        if write:
+            WAV_DIR.mkdir(parents=True, exist_ok=True)
+            path.write_bytes(blob)
+        elif not path.exists() or path.read_bytes() != blob:
+            cases[-1]["file"] = f"{name} (DIFFERS from the committed file)"
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__,
+                         "scipy": scipy.__version__}, "cases": cases}
+
+
 def compare(a, b, path="$"):
     """Yields differences between two fixture trees; numbers compare to a relative 1e-9."""
     if isinstance(a, dict) and isinstance(b, dict):
@@ -283,7 +337,8 @@ def compare(a, b, path="$"):
 
 def main():
     outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1))),
-               (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2)))]
+               (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2))),
+               (WAV_OUT, wav_fixtures(np.random.default_rng(SEED + 3), "--check" not in sys.argv))]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:

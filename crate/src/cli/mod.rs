@@ -40,7 +40,8 @@ enum Command {
 
 #[derive(Args, Debug)]
 struct AnalyzeArgs {
-    /// Spike list (site, time_s|time_ms|time_us), CSV or TSV.
+    /// Spike list (site, time_s|time_ms|time_us), CSV or TSV; or raw voltage: a WAV file, or
+    /// interleaved int16/float32 samples with a sidecar (RECORDING.json or STEM.json).
     recording: String,
     /// Layout file: site, x_um, y_um (or x_mm, y_mm).
     #[arg(long)]
@@ -70,6 +71,38 @@ struct AnalyzeArgs {
     read: ReadArgs,
     #[command(flatten)]
     track: TrackArgs,
+    #[command(flatten)]
+    voltage: VoltageArgs,
+}
+
+/// Spike detection on raw voltage (ignored for spike lists).
+#[derive(Args, Debug)]
+struct VoltageArgs {
+    /// Band-pass edges in Hz, as LOW,HIGH [default: 300,3000].
+    #[arg(long, value_name = "LOW,HIGH")]
+    band: Option<String>,
+    /// Butterworth order of the band-pass prototype [default: 3].
+    #[arg(long, value_name = "N")]
+    filter_order: Option<usize>,
+    /// Spike threshold in noise SDs (MAD estimate) [default: 5].
+    #[arg(long, value_name = "K")]
+    threshold_sd: Option<f64>,
+    /// Which excursions are spikes [default: negative].
+    #[arg(long, value_enum)]
+    polarity: Option<PolarityArg>,
+    /// Dead time after a spike, ms [default: 1].
+    #[arg(long, value_name = "MS")]
+    dead_time_ms: Option<f64>,
+    /// Microvolts per stored unit of a WAV file (WAV carries no scale) [default: 1].
+    #[arg(long, value_name = "UV")]
+    uv_per_unit: Option<f64>,
+}
+
+#[derive(ValueEnum, Clone, Copy, Debug)]
+enum PolarityArg {
+    Negative,
+    Positive,
+    Both,
 }
 
 #[derive(ValueEnum, Clone, Copy, Debug)]
@@ -302,25 +335,75 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     if let Some(seed) = args.seed {
         settings.fronts.seed = seed;
     }
-    let activity = read_file(&args.recording, &read.limits)?;
     let layout = read_file(&args.layout, &read.limits)?;
     let show_progress = std::io::stderr().is_terminal();
-    let mut progress = |done: usize, total: usize| {
-        if show_progress && (done == total || done % 10 == 0) {
-            eprint!("\ranalysing bursts: {done}/{total}");
-            if done == total {
-                eprintln!();
+    let mut electrodes = None;
+    let report = if let Some(voltage) = open_voltage(&args.recording, &args.voltage)? {
+        let (header, mut file) = voltage;
+        let settings_v = voltage_settings(&args.voltage)?;
+        let path = args.recording.clone();
+        let frame = header.frame_bytes() as u64;
+        let offset = header.data_offset_bytes;
+        let mut read_frames = |from: u64, to: u64| -> Result<Vec<u8>, ImportError> {
+            use std::io::{Read, Seek, SeekFrom};
+            let mut buf = vec![0u8; ((to - from) * frame) as usize];
+            file.seek(SeekFrom::Start(offset + from * frame))
+                .and_then(|_| file.read_exact(&mut buf))
+                .map_err(|e| {
+                    ImportError::new(Place::file(&path), ImportProblem::BadValue, io_words(&e))
+                })?;
+            Ok(buf)
+        };
+        let mut progress = |stage: &str, done: u64, total: u64| {
+            if show_progress {
+                eprint!("\r{stage}: {done}/{total}   ");
+                if done == total {
+                    eprintln!();
+                }
             }
-        }
+        };
+        let (report, found) = crate::analyze_voltage(
+            &header,
+            &mut read_frames,
+            (&args.layout, &layout),
+            &read,
+            &settings_v,
+            &track,
+            &settings,
+            &mut progress,
+        )?;
+        electrodes = Some(found.electrodes);
+        report
+    } else {
+        let activity = read_file(&args.recording, &read.limits)?;
+        let mut progress = |done: usize, total: usize| {
+            if show_progress && (done == total || done % 10 == 0) {
+                eprint!("\ranalysing bursts: {done}/{total}");
+                if done == total {
+                    eprintln!();
+                }
+            }
+        };
+        crate::analyze_files(
+            (&args.recording, &activity),
+            (&args.layout, &layout),
+            &read,
+            &track,
+            &settings,
+            &mut progress,
+        )?
     };
-    let report = crate::analyze_files(
-        (&args.recording, &activity),
-        (&args.layout, &layout),
-        &read,
-        &track,
-        &settings,
-        &mut progress,
-    )?;
+    if let Some(rows) = &electrodes {
+        if let Some(dir) = &args.out {
+            let out = std::path::Path::new(dir);
+            std::fs::create_dir_all(out).map_err(Failure::Output)?;
+            std::fs::write(
+                out.join("electrodes.csv"),
+                crate::report::electrodes_csv(rows),
+            )
+            .map_err(Failure::Output)?;
+        }
+    }
     if let Some(dir) = &args.out {
         let out = std::path::Path::new(dir);
         std::fs::create_dir_all(out).map_err(Failure::Output)?;
@@ -335,11 +418,101 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
         eprintln!("wrote bursts.csv, fronts.csv, activation.csv and summary.json to {dir}");
     }
     let text = if args.json {
-        serde_json::to_string(&report).map_err(|e| Failure::Output(e.into()))? + "\n"
+        let mut value = serde_json::to_value(&report).map_err(|e| Failure::Output(e.into()))?;
+        if let (Some(rows), Some(map)) = (&electrodes, value.as_object_mut()) {
+            map.insert(
+                "electrodes".into(),
+                serde_json::to_value(rows).map_err(|e| Failure::Output(e.into()))?,
+            );
+        }
+        serde_json::to_string(&value).map_err(|e| Failure::Output(e.into()))? + "\n"
     } else {
-        report.to_text()
+        let mut text = String::new();
+        if let Some(rows) = &electrodes {
+            text.push_str(&crate::report::electrodes_text(rows));
+        }
+        text + &report.to_text()
     };
     print(&text)
+}
+
+/// Opens `path` as raw voltage when it is one: a WAV file (by its first bytes), or a data
+/// file with a sidecar `PATH.json` or `STEM.json`. `None` for text recordings.
+fn open_voltage(
+    path: &str,
+    args: &VoltageArgs,
+) -> Result<Option<(crate::import::VoltageHeader, std::fs::File)>, Failure> {
+    use std::io::Read;
+    let place = || Place::file(path);
+    let mut file = std::fs::File::open(path)
+        .map_err(|e| ImportError::new(place(), ImportProblem::BadOption, io_words(&e)))?;
+    let len = file
+        .metadata()
+        .map_err(|e| ImportError::new(place(), ImportProblem::BadOption, io_words(&e)))?
+        .len();
+    let mut head = vec![0u8; 65_536.min(len as usize)];
+    file.read_exact(&mut head)
+        .map_err(|e| ImportError::new(place(), ImportProblem::BadOption, io_words(&e)))?;
+    if crate::import::looks_like_wav(&head) {
+        let scale = args.uv_per_unit.unwrap_or(1.0);
+        let header = crate::import::read_wav_header(path, &head, len, scale)?;
+        return Ok(Some((header, file)));
+    }
+    let p = std::path::Path::new(path);
+    let text_extension = p
+        .extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| ["csv", "tsv", "txt"].contains(&e.to_ascii_lowercase().as_str()));
+    if text_extension {
+        return Ok(None);
+    }
+    let candidates = [
+        format!("{path}.json"),
+        p.with_extension("json").to_string_lossy().into_owned(),
+    ];
+    for sidecar in candidates {
+        if sidecar != path && std::path::Path::new(&sidecar).is_file() {
+            let bytes = read_file(&sidecar, &ImportLimits::default())?;
+            let header = crate::import::read_sidecar(&sidecar, &bytes, path, len)?;
+            return Ok(Some((header, file)));
+        }
+    }
+    Ok(None)
+}
+
+fn voltage_settings(
+    args: &VoltageArgs,
+) -> Result<crate::detect::voltage::VoltageSettings, Failure> {
+    use crate::detect::voltage::{Polarity, VoltageSettings};
+    let mut s = VoltageSettings::default();
+    if let Some(band) = &args.band {
+        let parts: Vec<Option<f64>> = band.split(',').map(|v| v.trim().parse().ok()).collect();
+        match parts.as_slice() {
+            [Some(lo), Some(hi)] => s.band_hz = [*lo, *hi],
+            _ => {
+                return Err(Failure::Input(format!(
+                    "--band: expected two numbers in Hz as LOW,HIGH, found {band}"
+                )))
+            }
+        }
+    }
+    if let Some(n) = args.filter_order {
+        s.filter_order = n;
+    }
+    if let Some(k) = args.threshold_sd {
+        s.threshold_sd = k;
+    }
+    if let Some(p) = args.polarity {
+        s.polarity = match p {
+            PolarityArg::Negative => Polarity::Negative,
+            PolarityArg::Positive => Polarity::Positive,
+            PolarityArg::Both => Polarity::Both,
+        };
+    }
+    if let Some(ms) = args.dead_time_ms {
+        s.dead_time_s = ms / 1000.0;
+    }
+    Ok(s)
 }
 
 fn simulate(args: &SimulateArgs) -> Result<(), Failure> {

@@ -21,6 +21,7 @@ mod layout;
 mod spikes;
 mod table;
 mod traces;
+mod voltage;
 mod write;
 
 pub use error::{ImportError, ImportProblem};
@@ -31,6 +32,10 @@ pub use spikes::{
 pub use table::{ImportLimits, LengthUnit, TimeUnit};
 pub use traces::{
     read_roi_traces, RoiSeries, RoiTraceTable, TraceGap, TraceOptions, FRAME_COLUMN_NAMES,
+};
+pub use voltage::{
+    count_saturated, decode_channel, looks_like_wav, read_sidecar, read_wav_header, SampleType,
+    VoltageHeader,
 };
 pub use write::{write_layout, write_roi_traces, write_spike_list, write_spike_list_as};
 

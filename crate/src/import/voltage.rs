@@ -1,0 +1,345 @@
+//! Raw multichannel voltage: where the samples are in a file and how to turn them into
+//! microvolts. Two containers:
+//!
+//! - **Interleaved samples with a sidecar** (our own format): the data file holds frames of
+//!   `channels` samples each, little-endian `int16` or `float32`, nothing else; the sidecar is
+//!   a small JSON file:
+//!   `{"sample_rate_hz": 20000, "channels": 60, "sample_type": "int16", "scale_uv": 0.195,
+//!   "offset_uv": 0, "channel_sites": ["A1", ...]}` (`offset_uv` and `channel_sites` optional).
+//!   A sample s is `offset_uv + scale_uv * s` microvolts.
+//! - **WAV** (RIFF `WAVE`): 16-bit integer PCM, 32-bit float, or either inside
+//!   `WAVE_FORMAT_EXTENSIBLE` (Microsoft, "Multiple channel audio data and WAVE files", 2007).
+//!   WAV carries no voltage scale; samples are taken as microvolts times `scale_uv` (1 unless
+//!   the user says), and a notice says so.
+//!
+//! Readers look only at headers; the samples are decoded block by block ([`decode_channel`]),
+//! so a file never has to fit in memory.
+
+use super::error::{ImportError, ImportProblem};
+use crate::place::Place;
+use serde::{Deserialize, Serialize};
+
+/// How one sample is stored.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SampleType {
+    Int16,
+    Float32,
+}
+
+impl SampleType {
+    pub fn bytes(self) -> usize {
+        match self {
+            SampleType::Int16 => 2,
+            SampleType::Float32 => 4,
+        }
+    }
+}
+
+/// Where the samples of a raw voltage file are and what they mean.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct VoltageHeader {
+    /// File name as given.
+    pub file: String,
+    pub sample_rate_hz: f64,
+    pub channels: usize,
+    pub sample_type: SampleType,
+    /// Byte offset of the first frame.
+    pub data_offset_bytes: u64,
+    /// Number of whole frames (one sample per channel).
+    pub frames: u64,
+    /// Microvolts per stored unit.
+    pub scale_uv: f64,
+    /// Microvolts added after scaling.
+    pub offset_uv: f64,
+    /// Site of each channel, when the file says; otherwise channel i is row i of the layout.
+    pub channel_sites: Option<Vec<String>>,
+    /// `sidecar` or `wav`.
+    pub container: String,
+}
+
+impl VoltageHeader {
+    /// Bytes per frame.
+    pub fn frame_bytes(&self) -> usize {
+        self.channels * self.sample_type.bytes()
+    }
+
+    /// Duration, seconds.
+    pub fn duration_s(&self) -> f64 {
+        self.frames as f64 / self.sample_rate_hz
+    }
+}
+
+/// The sidecar file's keys.
+#[derive(Debug, Clone, PartialEq, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct Sidecar {
+    sample_rate_hz: f64,
+    channels: usize,
+    sample_type: SampleType,
+    scale_uv: f64,
+    #[serde(default)]
+    offset_uv: f64,
+    #[serde(default)]
+    channel_sites: Option<Vec<String>>,
+}
+
+fn bad(place: Place, problem: ImportProblem, message: impl Into<String>) -> ImportError {
+    ImportError::new(place, problem, message)
+}
+
+/// Reads a sidecar (`sidecar_name`, its bytes) describing the data file `data_name` of
+/// `data_len` bytes.
+pub fn read_sidecar(
+    sidecar_name: &str,
+    sidecar: &[u8],
+    data_name: &str,
+    data_len: u64,
+) -> Result<VoltageHeader, ImportError> {
+    let s: Sidecar = serde_json::from_slice(sidecar).map_err(|e| {
+        bad(
+            Place::file(sidecar_name).at_line(e.line() as u64),
+            ImportProblem::BadValue,
+            format!(
+                "expected the sidecar keys sample_rate_hz, channels, sample_type (int16 or float32), scale_uv and optionally offset_uv and channel_sites; {e}"
+            ),
+        )
+    })?;
+    let place = || Place::file(sidecar_name);
+    if !(s.sample_rate_hz.is_finite() && s.sample_rate_hz > 0.0) {
+        return Err(bad(
+            place(),
+            ImportProblem::BadValue,
+            format!(
+                "sample_rate_hz: expected a rate above 0 Hz, found {}",
+                s.sample_rate_hz
+            ),
+        ));
+    }
+    if s.channels == 0 || s.channels > 4096 {
+        return Err(bad(
+            place(),
+            ImportProblem::BadValue,
+            format!("channels: expected 1 to 4096, found {}", s.channels),
+        ));
+    }
+    if !(s.scale_uv.is_finite() && s.scale_uv != 0.0 && s.offset_uv.is_finite()) {
+        return Err(bad(
+            place(),
+            ImportProblem::BadValue,
+            format!(
+                "scale_uv: expected a finite, non-zero number of microvolts per unit (and a finite offset_uv), found {} and {}",
+                s.scale_uv, s.offset_uv
+            ),
+        ));
+    }
+    if let Some(sites) = &s.channel_sites {
+        if sites.len() != s.channels {
+            return Err(bad(
+                place(),
+                ImportProblem::BadValue,
+                format!(
+                    "channel_sites: expected one site per channel ({}), found {}",
+                    s.channels,
+                    sites.len()
+                ),
+            ));
+        }
+    }
+    let frame = (s.channels * s.sample_type.bytes()) as u64;
+    if data_len % frame != 0 {
+        return Err(bad(
+            Place::file(data_name),
+            ImportProblem::BadValue,
+            format!(
+                "expected whole frames of {} channels x {} bytes ({frame} bytes each) as {sidecar_name} says, found {data_len} bytes: {} bytes left over (a truncated file, or a sidecar that does not match it)",
+                s.channels,
+                s.sample_type.bytes(),
+                data_len % frame
+            ),
+        ));
+    }
+    if data_len == 0 {
+        return Err(bad(
+            Place::file(data_name),
+            ImportProblem::Empty,
+            "expected samples, found an empty file",
+        ));
+    }
+    Ok(VoltageHeader {
+        file: data_name.to_string(),
+        sample_rate_hz: s.sample_rate_hz,
+        channels: s.channels,
+        sample_type: s.sample_type,
+        data_offset_bytes: 0,
+        frames: data_len / frame,
+        scale_uv: s.scale_uv,
+        offset_uv: s.offset_uv,
+        channel_sites: s.channel_sites,
+        container: "sidecar".into(),
+    })
+}
+
+fn u16_at(b: &[u8], at: usize) -> Option<u16> {
+    Some(u16::from_le_bytes(b.get(at..at + 2)?.try_into().ok()?))
+}
+
+fn u32_at(b: &[u8], at: usize) -> Option<u32> {
+    Some(u32::from_le_bytes(b.get(at..at + 4)?.try_into().ok()?))
+}
+
+/// Whether the bytes start like a WAV file.
+pub fn looks_like_wav(head: &[u8]) -> bool {
+    head.len() >= 12 && &head[0..4] == b"RIFF" && &head[8..12] == b"WAVE"
+}
+
+/// Reads a WAV header from the first bytes of the file (`head`; 64 KiB is plenty) of a file
+/// of `file_len` bytes. `scale_uv` is microvolts per stored unit (for float files, per 1.0).
+pub fn read_wav_header(
+    name: &str,
+    head: &[u8],
+    file_len: u64,
+    scale_uv: f64,
+) -> Result<VoltageHeader, ImportError> {
+    let place = || Place::file(name);
+    let truncated = |what: &str| {
+        bad(
+            place(),
+            ImportProblem::BadValue,
+            format!("expected {what}, found the end of the file's first {} bytes (a truncated or damaged WAV file)", head.len()),
+        )
+    };
+    if !looks_like_wav(head) {
+        return Err(bad(
+            place(),
+            ImportProblem::BadValue,
+            "expected a WAV file (RIFF ... WAVE), found other bytes at its start",
+        ));
+    }
+    let mut at = 12usize;
+    let mut format: Option<(u16, usize, u32, u16)> = None; // tag, channels, rate, bits
+    loop {
+        let id = head
+            .get(at..at + 4)
+            .ok_or_else(|| truncated("a data chunk"))?;
+        let size = u32_at(head, at + 4).ok_or_else(|| truncated("a chunk size"))? as usize;
+        let body = at + 8;
+        if id == b"fmt " {
+            let b = head
+                .get(body..body + size.min(40))
+                .ok_or_else(|| truncated("the format chunk"))?;
+            let mut tag = u16_at(b, 0).ok_or_else(|| truncated("the format tag"))?;
+            let channels = u16_at(b, 2).ok_or_else(|| truncated("the channel count"))? as usize;
+            let rate = u32_at(b, 4).ok_or_else(|| truncated("the sample rate"))?;
+            let bits = u16_at(b, 14).ok_or_else(|| truncated("the bits per sample"))?;
+            if tag == 0xFFFE {
+                // WAVE_FORMAT_EXTENSIBLE: the real format is the first two bytes of the
+                // sub-format GUID, 24 bytes into the extension.
+                tag = u16_at(b, 24).ok_or_else(|| truncated("the extensible sub-format"))?;
+            }
+            format = Some((tag, channels, rate, bits));
+        } else if id == b"data" {
+            let (tag, channels, rate, bits) =
+                format.ok_or_else(|| truncated("a format chunk before the data"))?;
+            let sample_type = match (tag, bits) {
+                (1, 16) => SampleType::Int16,
+                (3, 32) => SampleType::Float32,
+                _ => {
+                    return Err(bad(
+                        place(),
+                        ImportProblem::BadValue,
+                        format!(
+                            "expected 16-bit integer PCM or 32-bit float samples, found format tag {tag} with {bits} bits per sample"
+                        ),
+                    ))
+                }
+            };
+            if channels == 0 || rate == 0 {
+                return Err(bad(
+                    place(),
+                    ImportProblem::BadValue,
+                    format!("expected at least one channel and a sample rate above 0, found {channels} channels at {rate} Hz"),
+                ));
+            }
+            let frame = (channels * sample_type.bytes()) as u64;
+            let declared = size as u64;
+            let present = file_len.saturating_sub(body as u64);
+            // Writers that stream set the size to 0 or 0xFFFFFFFF; take what is there.
+            let data_bytes = if declared == 0 || declared == u64::from(u32::MAX) {
+                present
+            } else if declared > present {
+                return Err(bad(
+                    place(),
+                    ImportProblem::BadValue,
+                    format!(
+                        "expected {declared} bytes of samples as the header says, found {present}: the file is truncated"
+                    ),
+                ));
+            } else {
+                declared
+            };
+            if data_bytes < frame {
+                return Err(bad(
+                    place(),
+                    ImportProblem::Empty,
+                    "expected samples, found none",
+                ));
+            }
+            return Ok(VoltageHeader {
+                file: name.to_string(),
+                sample_rate_hz: f64::from(rate),
+                channels,
+                sample_type,
+                data_offset_bytes: body as u64,
+                frames: data_bytes / frame,
+                scale_uv,
+                offset_uv: 0.0,
+                channel_sites: None,
+                container: "wav".into(),
+            });
+        }
+        at = body + size + (size & 1); // chunks are padded to an even length
+    }
+}
+
+/// Decodes one channel of a block of whole frames (raw bytes from the file) into microvolts,
+/// appending to `out`.
+pub fn decode_channel(header: &VoltageHeader, frames: &[u8], channel: usize, out: &mut Vec<f64>) {
+    let (scale, offset) = (header.scale_uv, header.offset_uv);
+    let width = header.sample_type.bytes();
+    let stride = header.frame_bytes();
+    let start = channel * width;
+    match header.sample_type {
+        SampleType::Int16 => out.extend(
+            frames
+                .chunks_exact(stride)
+                .map(|f| offset + scale * f64::from(i16::from_le_bytes([f[start], f[start + 1]]))),
+        ),
+        SampleType::Float32 => out.extend(frames.chunks_exact(stride).map(|f| {
+            offset
+                + scale
+                    * f64::from(f32::from_le_bytes([
+                        f[start],
+                        f[start + 1],
+                        f[start + 2],
+                        f[start + 3],
+                    ]))
+        })),
+    }
+}
+
+/// Whether a stored sample of this channel sits at the type's limit (int16 -32768 or 32767),
+/// counted per channel over a block of frames.
+pub fn count_saturated(header: &VoltageHeader, frames: &[u8], channel: usize) -> usize {
+    if header.sample_type != SampleType::Int16 {
+        return 0;
+    }
+    let start = channel * 2;
+    frames
+        .chunks_exact(header.frame_bytes())
+        .filter(|f| {
+            let v = i16::from_le_bytes([f[start], f[start + 1]]);
+            v == i16::MIN || v == i16::MAX
+        })
+        .count()
+}
