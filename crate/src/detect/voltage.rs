@@ -155,8 +155,10 @@ pub fn detect_voltage_spikes(
     read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError>,
     progress: &mut dyn FnMut(u64, u64),
 ) -> Result<VoltageSpikes, crate::import::ImportError> {
-    use super::filter::{butterworth_bandpass, settling_samples, sosfiltfilt};
-    use crate::import::{count_saturated, decode_channel, ImportError, ImportProblem};
+    use super::filter::{
+        butterworth_bandpass, pad_length, settling_samples, sosfiltfilt_lanes, LANES,
+    };
+    use crate::import::{decode_lanes, ImportError, ImportProblem};
     use crate::place::Place;
     let fs = header.sample_rate_hz;
     let option_error = |message: String| {
@@ -183,63 +185,44 @@ pub fn detect_voltage_spikes(
     let mut noise: Vec<Vec<f64>> = vec![Vec::new(); channels];
     let mut saturated = vec![0usize; channels];
     let mut samples = Vec::new();
+    let mut lanes = Vec::new();
     let mut start = 0u64;
     while start < total {
         let end = (start + block).min(total);
         let from = start.saturating_sub(margin);
         let to = (end + margin).min(total);
         let bytes = read(from, to)?;
-        for c in 0..channels {
-            samples.clear();
-            decode_channel(header, &bytes, c, &mut samples);
-            saturated[c] += count_saturated(
+        // Channels in groups of LANES, filtered side by side.
+        for first in (0..channels).step_by(LANES) {
+            let group = LANES.min(channels - first);
+            decode_lanes(
                 header,
-                &bytes[((start - from) as usize) * header.frame_bytes()
-                    ..((end - from) as usize) * header.frame_bytes()],
-                c,
+                &bytes,
+                first,
+                &mut lanes,
+                &mut saturated[first..first + group],
+                (start - from) as usize..(end - from) as usize,
             );
-            if samples.len() <= super::filter::pad_length(&sos) {
+            if lanes.len() <= pad_length(&sos) {
                 continue; // a tail too short to filter
             }
-            let filtered = sosfiltfilt(&sos, &samples)
+            let padded = sosfiltfilt_lanes(&sos, &lanes)
                 .map_err(|e| option_error(format!("spike filter: {e}")))?;
-            let keep = &filtered[(start - from) as usize..(end - from) as usize];
-            let Some(sigma) = mad_sigma(keep) else {
-                continue;
-            };
-            // A block shorter than a second keeps the previous block's noise estimate.
-            let sigma = if keep.len() as f64 >= fs || noise[c].is_empty() {
-                noise[c].push(sigma);
-                sigma
-            } else {
-                noise[c][noise[c].len() - 1]
-            };
-            if sigma <= 0.0 {
-                continue;
-            }
-            // Look from the block start through the right margin, keep crossings inside the
-            // block, and respect the dead time across the block boundary.
-            let offset = (start - from) as usize;
-            let found = threshold_spikes(
-                &filtered[offset..],
-                fs,
-                settings.threshold_sd * sigma,
-                settings.polarity,
-                settings.dead_time_s,
-            );
-            let block_start_s = start as f64 / fs;
-            let block_len_s = (end - start) as f64 / fs;
-            for t in found {
-                if t >= block_len_s {
-                    break;
-                }
-                let time = block_start_s + t;
-                if trains[c]
-                    .last()
-                    .is_none_or(|&last| time - last >= settings.dead_time_s)
-                {
-                    trains[c].push(time);
-                }
+            let filtered = padded.samples();
+            for l in 0..group {
+                let c = first + l;
+                samples.clear();
+                samples.extend(filtered.iter().map(|v| v[l]));
+                scan_channel(
+                    &samples,
+                    (start - from) as usize,
+                    (end - start) as usize,
+                    start as f64 / fs,
+                    fs,
+                    settings,
+                    &mut noise[c],
+                    &mut trains[c],
+                );
             }
         }
         progress(end, total);
@@ -301,4 +284,54 @@ pub fn detect_voltage_spikes(
         trains_s: trains,
         electrodes: rows,
     })
+}
+
+/// Noise and spikes of one channel's filtered chunk: the block is `len` samples from
+/// `offset` (the chunk carries margins); spikes are looked for from the block start through
+/// the right margin, kept when they start inside the block, and the dead time holds across
+/// block boundaries. A block shorter than a second keeps the previous block's noise estimate.
+#[allow(clippy::too_many_arguments)]
+fn scan_channel(
+    filtered: &[f64],
+    offset: usize,
+    len: usize,
+    block_start_s: f64,
+    fs: f64,
+    settings: &VoltageSettings,
+    noise: &mut Vec<f64>,
+    train: &mut Vec<f64>,
+) {
+    let keep = &filtered[offset..offset + len];
+    let Some(sigma) = mad_sigma(keep) else {
+        return;
+    };
+    let sigma = if keep.len() as f64 >= fs || noise.is_empty() {
+        noise.push(sigma);
+        sigma
+    } else {
+        noise[noise.len() - 1]
+    };
+    if sigma <= 0.0 {
+        return;
+    }
+    let found = threshold_spikes(
+        &filtered[offset..],
+        fs,
+        settings.threshold_sd * sigma,
+        settings.polarity,
+        settings.dead_time_s,
+    );
+    let block_len_s = len as f64 / fs;
+    for t in found {
+        if t >= block_len_s {
+            break;
+        }
+        let time = block_start_s + t;
+        if train
+            .last()
+            .is_none_or(|&last| time - last >= settings.dead_time_s)
+        {
+            train.push(time);
+        }
+    }
 }

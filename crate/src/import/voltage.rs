@@ -328,6 +328,45 @@ pub fn decode_channel(header: &VoltageHeader, frames: &[u8], channel: usize, out
     }
 }
 
+/// Decodes channels `first..first + LANES` of a block of whole frames into microvolts, one
+/// [`crate::detect::filter::Lanes`] per frame (lanes past the last channel are 0), and adds
+/// to `saturated[l]` the samples of lane l at the int16 limits among frames `count_in`.
+pub fn decode_lanes(
+    header: &VoltageHeader,
+    frames: &[u8],
+    first: usize,
+    out: &mut Vec<crate::detect::filter::Lanes>,
+    saturated: &mut [usize],
+    count_in: std::ops::Range<usize>,
+) {
+    use crate::detect::filter::LANES;
+    let (scale, offset) = (header.scale_uv, header.offset_uv);
+    let width = header.sample_type.bytes();
+    let count = LANES.min(header.channels.saturating_sub(first));
+    out.clear();
+    for (k, f) in frames.chunks_exact(header.frame_bytes()).enumerate() {
+        let counting = count_in.contains(&k);
+        let mut lanes = [0.0; LANES];
+        for (l, v) in lanes.iter_mut().enumerate().take(count) {
+            let at = (first + l) * width;
+            let raw = match header.sample_type {
+                SampleType::Int16 => {
+                    let s = i16::from_le_bytes([f[at], f[at + 1]]);
+                    if counting && (s == i16::MIN || s == i16::MAX) {
+                        saturated[l] += 1;
+                    }
+                    f64::from(s)
+                }
+                SampleType::Float32 => {
+                    f64::from(f32::from_le_bytes([f[at], f[at + 1], f[at + 2], f[at + 3]]))
+                }
+            };
+            *v = offset + scale * raw;
+        }
+        out.push(lanes);
+    }
+}
+
 /// Whether a stored sample of this channel sits at the type's limit (int16 -32768 or 32767),
 /// counted per channel over a block of frames.
 pub fn count_saturated(header: &VoltageHeader, frames: &[u8], channel: usize) -> usize {
