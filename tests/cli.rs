@@ -309,7 +309,7 @@ fn analyze_json_keys_and_out_files_agree() {
 }
 
 #[test]
-fn analyze_bad_settings_and_traces_exit_2() {
+fn analyze_bad_settings_exit_2_and_flat_traces_have_no_events() {
     let dir = tempfile::tempdir().unwrap();
     write(dir.path(), "lay.csv", GOOD_LAYOUT);
     write(dir.path(), "act.csv", GOOD_SPIKES);
@@ -345,13 +345,18 @@ fn analyze_bad_settings_and_traces_exit_2() {
     );
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("at least 100"));
+    // Traces are analysed through their events; flat traces have none, and the report says so.
     write(dir.path(), "traces.csv", b"time_s,A,B\n0,1,2\n0.1,1,2\n");
     let out = ringline(
-        &["analyze", "traces.csv", "--layout", "lay.csv"],
+        &["analyze", "traces.csv", "--layout", "lay.csv", "--json"],
         dir.path(),
     );
-    assert_eq!(out.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&out.stderr).contains("fluorescence traces"));
+    assert_eq!(out.status.code(), Some(0));
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(report["summary"]["burst_count"], 0);
+    assert!(report["notices"]
+        .to_string()
+        .contains("fluorescence: 0 events found in 2 ROIs"));
 }
 
 /// `simulate` writes the files of a network scenario, and a shorter duration from the

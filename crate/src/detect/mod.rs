@@ -1,7 +1,8 @@
-//! Detection: network bursts from spike trains (and, in a later issue, spikes from voltage
-//! and events from fluorescence).
+//! Detection: network bursts from spike trains, spikes from raw voltage ([`voltage`], with
+//! the band-pass of [`filter`]), and events from fluorescence ([`calcium`]).
 
 mod bursts;
+pub mod calcium;
 pub mod filter;
 pub mod voltage;
 

@@ -33,6 +33,8 @@ use serde::{Deserialize, Serialize};
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 #[serde(default)]
 pub struct AnalysisSettings {
+    /// Event detection on fluorescence traces (not used for spike lists).
+    pub calcium: crate::detect::calcium::CalciumSettings,
     pub bursts: BurstSettings,
     pub activation: ActivationSettings,
     pub fronts: FrontSettings,
@@ -135,7 +137,10 @@ impl std::error::Error for AnalysisError {}
 /// Runs the analysis: bursts, activation times, front fits, summary. `progress(done, total)`
 /// is called after each burst.
 ///
-/// Spike recordings only for now (traces come with event detection).
+/// Fluorescence traces are first turned into event onsets per ROI
+/// ([`crate::detect::calcium`]); each ROI's activation is then its first event in the burst
+/// (a cluster of one), and a notice says when fronts cross the field of view in under three
+/// frames, too fast for the frame rate to resolve.
 pub fn analyze(
     recording: &Recording,
     track: &TrackFit,
@@ -143,12 +148,57 @@ pub fn analyze(
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<Analysis, AnalysisError> {
     check_settings(settings)?;
-    let Activity::Spikes { trains_s } = &recording.activity else {
-        return Err(AnalysisError {
-            message: "this recording holds fluorescence traces; front analysis needs spike times (event detection from traces is not yet available)".into(),
-        });
-    };
     let mut notices = Vec::new();
+    let event_trains: Vec<Vec<f64>>;
+    let mut settings = std::borrow::Cow::Borrowed(settings);
+    let frame_interval_s = match &recording.activity {
+        Activity::Traces {
+            frame_interval_s, ..
+        } => Some(*frame_interval_s),
+        Activity::Spikes { .. } => None,
+    };
+    let trains_s: &[Vec<f64>] = match &recording.activity {
+        Activity::Spikes { trains_s } => trains_s,
+        Activity::Traces {
+            time_s,
+            frame_interval_s,
+            values,
+        } => {
+            use crate::detect::calcium::{delta_f_over_f, event_onsets};
+            let rate = 1.0 / frame_interval_s;
+            let c = &settings.calcium;
+            event_trains = values
+                .iter()
+                .map(|f| event_onsets(&delta_f_over_f(f, rate, c), time_s, rate, c))
+                .collect();
+            let events: usize = event_trains.iter().map(Vec::len).sum();
+            notices.push(Notice::new(
+                crate::place::Place::default(),
+                format!(
+                    "fluorescence: {events} events found in {} ROIs (dF/F over a running {}th percentile of {} s; events above {} noise SDs, timed at {}); each ROI's activation is its first event in a burst; the population rate is binned by frame and smoothed over at least 5 frames",
+                    values.len(),
+                    c.baseline_percentile,
+                    c.baseline_window_s,
+                    c.high_sd,
+                    match c.onset {
+                        crate::detect::calcium::OnsetRule::HalfMaximum => "the half-maximum crossing",
+                        crate::detect::calcium::OnsetRule::BaselineIntercept => "the rise's baseline intercept",
+                    }
+                ),
+            ));
+            // One event per ROI per burst: the activation is the first event, and the population
+            // rate is binned by frames and smoothed over at least 5 frames, so that a slow front
+            // (a few events per frame interval) still stands out.
+            let s = settings.to_mut();
+            s.activation.rule = activation::ActivationRule::FirstOfCluster;
+            s.activation.cluster_spikes = 1;
+            let p = &mut s.bursts.population_rate;
+            p.bin_s = p.bin_s.max(*frame_interval_s);
+            p.smooth_sd_s = p.smooth_sd_s.max(5.0 * frame_interval_s);
+            &event_trains
+        }
+    };
+    let settings: &AnalysisSettings = &settings;
     let bursts = detect_bursts(trains_s, &settings.bursts);
     let time_step_s = recording
         .metadata
@@ -183,12 +233,55 @@ pub fn analyze(
         ));
         progress(k + 1, bursts.len());
     }
+    if let Some(frame) = frame_interval_s {
+        if let Some(n) = transit_notice(&results, track, frame) {
+            notices.push(n);
+        }
+    }
     let span = recording.observed_span_s();
     let summary = summarise(&results, recording, track, span, settings);
     Ok(Analysis {
         bursts: results,
         summary,
         notices,
+    })
+}
+
+/// Imaging: a notice when fronts cross the recorded sites in under three frames, where the
+/// frame rate cannot resolve their speed (the fastest resolvable speed is then the sites'
+/// extent over three frames).
+fn transit_notice(results: &[BurstResult], track: &TrackFit, frame_s: f64) -> Option<Notice> {
+    let alongs: Vec<f64> = track.placements.iter().map(|p| p.along_um).collect();
+    let extent = match (
+        alongs.iter().copied().reduce(f64::min),
+        alongs.iter().copied().reduce(f64::max),
+    ) {
+        (Some(lo), Some(hi)) if hi > lo => hi - lo,
+        _ => return None,
+    };
+    let fastest = extent / (3.0 * frame_s) / 1000.0; // um/s -> mm/s
+    let with_bursts = results.len();
+    let too_fast = results
+        .iter()
+        .filter(|b| match &b.front {
+            Some(f) => f.available_um / f.speed_mm_s < 3.0 * frame_s * 1000.0,
+            None => {
+                let times: Vec<f64> = b.activations.iter().map(|a| a.time_s).collect();
+                let spread = times.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+                    - times.iter().copied().fold(f64::INFINITY, f64::min);
+                times.len() >= 2 && spread < 3.0 * frame_s
+            }
+        })
+        .count();
+    (with_bursts > 0 && too_fast * 2 >= with_bursts).then(|| {
+        Notice::new(
+            crate::place::Place::default(),
+            format!(
+                "{too_fast} of {with_bursts} bursts crossed the imaged sites ({extent:.0} µm) in under 3 frames ({:.0} ms at {:.1} frames/s): speeds above {fastest:.1} mm/s cannot be resolved at this frame rate; image faster or over a longer stretch of the pattern",
+                3.0 * frame_s * 1000.0,
+                1.0 / frame_s
+            ),
+        )
     })
 }
 
