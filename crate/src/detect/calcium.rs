@@ -144,21 +144,23 @@ pub fn event_onsets(
     let mut onsets = Vec::new();
     let mut k = 0;
     while k < dff.len() {
-        if !(dff[k] > low) {
+        // NaN (a gap) is never above the threshold.
+        let above = |v: f64| v.partial_cmp(&low) == Some(std::cmp::Ordering::Greater);
+        if !above(dff[k]) {
             k += 1;
             continue;
         }
         // A run above the low threshold: [start, end).
         let start = k;
         let mut end = k;
-        while end < dff.len() && dff[end] > low {
+        while end < dff.len() && above(dff[end]) {
             end += 1;
         }
         k = end;
         let peak = (start..end)
             .max_by(|&a, &b| dff[a].total_cmp(&dff[b]))
             .unwrap_or(start);
-        if !(dff[peak] > high) {
+        if dff[peak].partial_cmp(&high) != Some(std::cmp::Ordering::Greater) {
             continue;
         }
         let before: Vec<f64> = dff[start.saturating_sub(lookback)..start]
