@@ -225,22 +225,25 @@ impl Recording {
     /// last frame. `None` for a recording with no spikes at all.
     pub fn observed_span_s(&self) -> Option<(f64, f64)> {
         match &self.activity {
-            Activity::Spikes { trains_s } => {
-                let first = trains_s
-                    .iter()
-                    .filter_map(|t| t.first())
-                    .copied()
-                    .reduce(f64::min)?;
-                let last = trains_s
-                    .iter()
-                    .filter_map(|t| t.last())
-                    .copied()
-                    .reduce(f64::max)?;
-                Some((first, last))
-            }
+            Activity::Spikes { trains_s } => trains_span_s(trains_s),
             Activity::Traces { time_s, .. } => Some((*time_s.first()?, *time_s.last()?)),
         }
     }
+}
+
+/// First and last spike over all trains (each ascending), seconds; `None` with no spikes.
+pub fn trains_span_s(trains_s: &[Vec<f64>]) -> Option<(f64, f64)> {
+    let first = trains_s
+        .iter()
+        .filter_map(|t| t.first())
+        .copied()
+        .reduce(f64::min)?;
+    let last = trains_s
+        .iter()
+        .filter_map(|t| t.last())
+        .copied()
+        .reduce(f64::max)?;
+    Some((first, last))
 }
 
 fn site_index(layout: &Layout) -> HashMap<&str, usize> {

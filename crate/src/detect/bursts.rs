@@ -185,16 +185,7 @@ pub fn population_rate(
     trains_s: &[Vec<f64>],
     s: &PopulationRateSettings,
 ) -> Option<PopulationRate> {
-    let first = trains_s
-        .iter()
-        .filter_map(|t| t.first())
-        .copied()
-        .reduce(f64::min)?;
-    let last = trains_s
-        .iter()
-        .filter_map(|t| t.last())
-        .copied()
-        .reduce(f64::max)?;
+    let (first, last) = crate::recording::trains_span_s(trains_s)?;
     let bin = s.bin_s;
     let pad = 4.0 * s.smooth_sd_s;
     let origin = first - pad;

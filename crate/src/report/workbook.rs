@@ -258,15 +258,7 @@ impl Workbook {
         if let Some(w) = self.settings.view.window_s {
             return w;
         }
-        let first = match &self.recording.activity {
-            Activity::Spikes { trains_s } => trains_s
-                .iter()
-                .filter_map(|t| t.first())
-                .copied()
-                .fold(f64::INFINITY, f64::min),
-            Activity::Traces { time_s, .. } => time_s.first().copied().unwrap_or(0.0),
-        };
-        let first = if first.is_finite() { first } else { 0.0 };
+        let first = self.recording.observed_span_s().map_or(0.0, |span| span.0);
         [first, first + 30.0]
     }
 

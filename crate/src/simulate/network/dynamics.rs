@@ -218,7 +218,14 @@ impl Engine<'_> {
             return;
         }
         self.version[j] = self.version[j].wrapping_add(1) % FORCED;
-        if let Some(t) = crossing_time(m.v, m.last, m.drive, self.net.neuron) {
+        self.schedule_crossing(j, m.v, m.last, m.drive, b);
+    }
+
+    /// Schedules neuron j's next threshold crossing under its drive from `v` mV at `t0`, valid
+    /// for its current state version (none if the drive never reaches threshold, or after the
+    /// end of the run).
+    fn schedule_crossing(&mut self, j: usize, v: f64, t0: f64, drive: f64, b: u64) {
+        if let Some(t) = crossing_time(v, t0, drive, self.net.neuron) {
             if t < self.duration_s {
                 self.q.push_event(
                     b,
@@ -292,18 +299,7 @@ impl Engine<'_> {
             1.0
         };
         self.last_spike[j] = t;
-        if let Some(tc) = crossing_time(p.reset_mv, refractory_until, drive, p) {
-            if tc < self.duration_s {
-                self.q.push_event(
-                    b,
-                    Event {
-                        time: tc,
-                        neuron: j as u32,
-                        version: self.version[j],
-                    },
-                );
-            }
-        }
+        self.schedule_crossing(j, p.reset_mv, refractory_until, drive, b);
         let jump = if self.net.excitatory[j] {
             syn.excitatory_mv * efficacy
         } else {
