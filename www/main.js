@@ -41,7 +41,7 @@ function startWorker() {
       const p = pending.get(m.id);
       if (!p) return;
       if (m.progress) {
-        p.onProgress?.(m.progress[0], m.progress[1]);
+        p.onProgress?.(m.progress[0], m.progress[1], m.stage);
         return;
       }
       pending.delete(m.id);
@@ -80,7 +80,9 @@ async function restartWorker(why) {
   startWorker();
   setStatus(why, true);
   state.report = null;
-  if (state.activity && state.layout) {
+  if (state.voltage && state.layout) {
+    setStatus(`${why} Open the recording again to detect its spikes.`, true);
+  } else if (state.activity && state.layout) {
     try {
       await openWorkbook({ keepSettings: true });
     } catch (e) {
@@ -92,9 +94,12 @@ async function restartWorker(why) {
 // ---------------------------------------------------------------- state
 
 const state = {
-  files: [],          // { name, size, bytes, kind, status }
+  files: [],          // { name, size, bytes, kind, status } (voltage files keep `file`, not bytes)
   activity: null,
   layout: null,
+  voltage: null,      // a raw voltage file (WAV, or samples with a sidecar)
+  sidecar: null,
+  electrodes: null,
   settings: null,     // every step's settings, as the core reports them
   inspection: null,
   report: null,
@@ -126,6 +131,7 @@ function clearError(id) {
 
 const KIND_NAMES = {
   spike_list: 'spike list', layout: 'layout', roi_traces: 'ROI traces', notebook: 'ringline notebook',
+  voltage: 'raw voltage', sidecar: 'voltage sidecar',
 };
 
 function formatBytes(n) {
@@ -149,17 +155,27 @@ function renderFiles() {
 
 // ---------------------------------------------------------------- step 1: inputs
 
+/** What a dropped file holds, from its first bytes and name: a WAV or raw-sample file is
+ * voltage (kept as a File and read in slices later); JSON is a sidecar or a notebook; text goes
+ * to the core's header reader. */
+async function classify(file) {
+  const head = new Uint8Array(await file.slice(0, 65536).arrayBuffer());
+  const text = new TextDecoder().decode(head.subarray(0, 64)).trimStart();
+  if (text.startsWith('RIFF') || /\.(raw|bin|dat)$/i.test(file.name)) return { kind: 'voltage' };
+  const bytes = await file.arrayBuffer();
+  if (text.startsWith('{')) {
+    let parsed = null;
+    try { parsed = JSON.parse(new TextDecoder().decode(bytes)); } catch { /* the notebook reader says why */ }
+    return { kind: parsed && 'sample_rate_hz' in parsed ? 'sidecar' : 'notebook', bytes };
+  }
+  return { kind: await call('sniff', { bytes: bytes.slice(0) }), bytes };
+}
+
 async function addFiles(list) {
   clearError('input-error');
   for (const file of list) {
-    const bytes = await file.arrayBuffer();
-    const entry = { name: file.name, size: file.size, bytes, kind: null, status: '' };
-    const head = new TextDecoder().decode(new Uint8Array(bytes, 0, Math.min(64, bytes.byteLength))).trimStart();
-    if (head.startsWith('{')) {
-      entry.kind = 'notebook';
-    } else {
-      entry.kind = await call('sniff', { bytes });
-    }
+    const { kind, bytes } = await classify(file);
+    const entry = { name: file.name, size: file.size, bytes, file, kind, status: '' };
     entry.status = entry.kind ? 'read' : 'the header names no site, time or position columns';
     entry.problem = !entry.kind;
     state.files = state.files.filter((f) => f.name !== entry.name);
@@ -169,19 +185,76 @@ async function addFiles(list) {
       await openNotebook(entry);
       return;
     }
-    if (entry.kind === 'spike_list' || entry.kind === 'roi_traces') state.activity = entry;
+    if (entry.kind === 'spike_list' || entry.kind === 'roi_traces') { state.activity = entry; state.voltage = null; }
+    if (entry.kind === 'voltage') { state.voltage = entry; state.activity = null; }
+    if (entry.kind === 'sidecar') state.sidecar = entry;
     if (entry.kind === 'layout') state.layout = entry;
   }
   renderFiles();
-  if (state.activity && state.layout) {
+  const wav = state.voltage && (state.voltage.name.toLowerCase().endsWith('.wav'));
+  if (state.voltage && state.layout && (wav || state.sidecar)) {
+    await openVoltage({ keepSettings: state.settings !== null });
+  } else if (state.voltage) {
+    state.voltage.status = state.layout ? 'read; now add its sidecar (JSON)' : 'read; now add its layout';
+    renderFiles();
+  } else if (state.activity && state.layout) {
     await openWorkbook({ keepSettings: state.settings !== null });
   } else if (state.activity) {
     state.activity.status = 'read; now add its layout';
     renderFiles();
   } else if (state.layout) {
-    state.layout.status = 'read; now add a spike list';
+    state.layout.status = 'read; now add a recording';
     renderFiles();
   }
+}
+
+async function openVoltage({ keepSettings }) {
+  clearError('input-error');
+  state.report = null;
+  hideFrom('step-track');
+  setBusy(true, 'Detecting spikes…');
+  try {
+    const result = await call('openVoltage', {
+      file: state.voltage.file,
+      sidecar: state.sidecar && { name: state.sidecar.name, bytes: state.sidecar.bytes.slice(0) },
+      layout: { name: state.layout.name, bytes: state.layout.bytes.slice(0) },
+      settings: keepSettings ? state.settings : null,
+    }, showProgress);
+    state.settings = result.settings;
+    state.inspection = result.inspection;
+    state.electrodes = result.electrodes;
+    state.voltage.status = 'spikes detected';
+    state.voltage.problem = false;
+    state.layout.status = 'imported';
+    if (state.sidecar) state.sidecar.status = 'used';
+    state.fileStem = state.voltage.name.replace(/\.[^.]*$/, '').replace(/[^A-Za-z0-9_-]+/g, '_') || 'ringline';
+    renderFiles();
+    renderElectrodes();
+    fillForms();
+    await renderTrack();
+    $('step-bursts').hidden = false;
+  } catch (e) {
+    state.voltage.status = errorText(e);
+    state.voltage.problem = true;
+    renderFiles();
+    showError('input-error', e);
+  } finally {
+    setBusy(false);
+  }
+}
+
+function renderElectrodes() {
+  const table = $('electrode-table');
+  const body = table.tBodies[0];
+  body.replaceChildren();
+  for (const e of state.electrodes ?? []) {
+    const row = body.insertRow();
+    for (const text of [e.channel, e.site, e.noise_uv.toFixed(2), e.spike_count, e.rate_hz.toFixed(3), e.status.replaceAll('_', ' ')]) {
+      row.insertCell().textContent = String(text);
+    }
+    if (e.status !== 'ok') row.classList.add('problem');
+  }
+  table.hidden = !state.electrodes;
 }
 
 async function openWorkbook({ keepSettings }) {
@@ -197,6 +270,8 @@ async function openWorkbook({ keepSettings }) {
     });
     state.settings = result.settings;
     state.inspection = result.inspection;
+    state.electrodes = null;
+    renderElectrodes();
     state.activity.status = 'imported';
     state.activity.problem = false;
     state.layout.status = 'imported';
@@ -388,10 +463,12 @@ function setBusy(busy, text = '') {
   if (busy) $('progress-bar').value = 0;
 }
 
-function showProgress(done, total) {
+function showProgress(done, total, stage = 'analysing bursts') {
   $('progress-bar').max = Math.max(1, total);
   $('progress-bar').value = done;
-  $('progress-text').textContent = `burst ${done} of ${total}`;
+  $('progress-text').textContent = stage === 'detecting spikes'
+    ? `detecting spikes: ${Math.round((100 * done) / Math.max(1, total))}% of the file`
+    : `burst ${done} of ${total}`;
 }
 
 async function runAnalysis(event) {

@@ -40,7 +40,7 @@ function plain(value) {
 }
 
 function progress(id) {
-  return (done, total) => postMessage({ id, progress: [done, total] });
+  return (done, total) => postMessage({ id, progress: [done, total], stage: 'analysing bursts' });
 }
 
 function need() {
@@ -64,6 +64,25 @@ const ops = {
     workbook = null;
     workbook = core.Workbook.fromNotebook(name, new Uint8Array(bytes), progress(id));
     return { inspection: workbook.inspection(), settings: workbook.settings(), report: workbook.report() };
+  },
+  openVoltage: ({ file, sidecar, layout, settings }, id) => {
+    workbook?.free();
+    workbook = null;
+    // Synchronous slices of the File: the core asks for blocks as it goes, so a file of any
+    // size streams through without being held whole.
+    const reader = new FileReaderSync();
+    const slice = (a, b) => new Uint8Array(reader.readAsArrayBuffer(file.slice(a, b)));
+    const head = slice(0, Math.min(65536, file.size));
+    const opened = core.Workbook.fromVoltage(
+      file.name, head, file.size,
+      sidecar ? sidecar.name : undefined, sidecar ? new Uint8Array(sidecar.bytes) : undefined,
+      layout.name, new Uint8Array(layout.bytes), settings ?? null, slice,
+      (done, total) => postMessage({ id, progress: [done, total], stage: 'detecting spikes' }),
+    );
+    workbook = opened.takeWorkbook();
+    const electrodes = opened.electrodes();
+    opened.free();
+    return { inspection: workbook.inspection(), settings: workbook.settings(), electrodes };
   },
   setTrack: ({ track }) => need().setTrack(track),
   analyze: ({ analysis }, id) => need().analyze(analysis, progress(id)),

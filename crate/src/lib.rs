@@ -118,21 +118,18 @@ pub fn analyze_files(
 }
 
 /// Reads a raw voltage file (its header already read; `read(first_frame, end_frame)` returns
-/// the bytes of those frames), detects spikes on every channel, puts them on the layout and
-/// runs the front analysis: `ringline analyze` on voltage. Channel i is the site in row i of
-/// the layout unless the file names its channels' sites. `progress(done, total)` reports
-/// detection (frames) and then the analysis (bursts).
-#[allow(clippy::too_many_arguments)]
-pub fn analyze_voltage(
+/// the bytes of those frames), detects spikes on every channel and puts them on the layout.
+/// Channel i is the site in row i of the layout unless the file names its channels' sites.
+/// `progress(done, total)` reports frames. Returns the recording (as spikes) and what
+/// detection found, with the electrode report.
+pub fn voltage_recording(
     header: &import::VoltageHeader,
     read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, import::ImportError>,
     layout: (&str, &[u8]),
     options: &import::ReadOptions,
     voltage: &detect::voltage::VoltageSettings,
-    track: &geometry::TrackSettings,
-    settings: &fronts::AnalysisSettings,
-    progress: &mut dyn FnMut(&str, u64, u64),
-) -> Result<(report::AnalysisReport, detect::voltage::VoltageSpikes), Error> {
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<(recording::Recording, detect::voltage::VoltageSpikes), Error> {
     let layout = import::read_layout(
         layout.1,
         layout.0,
@@ -163,13 +160,7 @@ pub fn analyze_voltage(
                 .collect()
         }
     };
-    let found = detect::voltage::detect_voltage_spikes(
-        header,
-        &sites,
-        voltage,
-        read,
-        &mut |done, total| progress("detecting spikes", done, total),
-    )?;
+    let found = detect::voltage::detect_voltage_spikes(header, &sites, voltage, read, progress)?;
     let spikes = import::SpikeList {
         file: header.file.clone(),
         sites: sites
@@ -218,6 +209,26 @@ pub fn analyze_voltage(
             ),
         ));
     }
+    Ok((recording, found))
+}
+
+/// `ringline analyze` on voltage: [`voltage_recording`], then the track and the front
+/// analysis. `progress(stage, done, total)` reports detection (frames), then bursts.
+#[allow(clippy::too_many_arguments)]
+pub fn analyze_voltage(
+    header: &import::VoltageHeader,
+    read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, import::ImportError>,
+    layout: (&str, &[u8]),
+    options: &import::ReadOptions,
+    voltage: &detect::voltage::VoltageSettings,
+    track: &geometry::TrackSettings,
+    settings: &fronts::AnalysisSettings,
+    progress: &mut dyn FnMut(&str, u64, u64),
+) -> Result<(report::AnalysisReport, detect::voltage::VoltageSpikes), Error> {
+    let (recording, found) =
+        voltage_recording(header, read, layout, options, voltage, &mut |d, t| {
+            progress("detecting spikes", d, t)
+        })?;
     let fit = geometry::fit_track(&recording.sites, track)?;
     let analysis = fronts::analyze(&recording, &fit, settings, &mut |done, total| {
         progress("analysing bursts", done as u64, total as u64)

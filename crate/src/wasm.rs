@@ -245,6 +245,93 @@ impl WasmWorkbook {
             .map_err(|e| located(&e))
     }
 
+    /// Opens a raw voltage file held by the page as a `File`: `head` is its first bytes (64 KiB
+    /// is plenty), `file_len` its size; a WAV file needs no sidecar, interleaved samples need
+    /// the sidecar's name and bytes. `read(from_byte, to_byte)` must return those bytes of the
+    /// file (the worker reads `File.slice` with `FileReaderSync`), so the file is never whole
+    /// in memory. Returns the electrode report; the workbook then holds the detected spikes.
+    #[allow(clippy::too_many_arguments)]
+    #[wasm_bindgen(js_name = fromVoltage)]
+    pub fn from_voltage(
+        name: &str,
+        head: &[u8],
+        file_len: f64,
+        sidecar_name: Option<String>,
+        sidecar_bytes: Option<Vec<u8>>,
+        layout_name: &str,
+        layout_bytes: &[u8],
+        settings: JsValue,
+        read: js_sys::Function,
+        progress: Option<js_sys::Function>,
+    ) -> Result<VoltageOpened, JsValue> {
+        let settings: StepSettings = self::settings(settings, "notebook")?;
+        let len = file_len.max(0.0) as u64;
+        let header = if crate::import::looks_like_wav(head) {
+            let scale = settings.voltage_wav_scale_uv();
+            crate::import::read_wav_header(name, head, len, scale)
+        } else {
+            match (&sidecar_name, &sidecar_bytes) {
+                (Some(sn), Some(sb)) => crate::import::read_sidecar(sn, sb, name, len),
+                _ => Err(crate::import::ImportError::new(
+                    crate::place::Place::file(name),
+                    crate::import::ImportProblem::MissingColumn,
+                    "expected a WAV file, or interleaved samples with their sidecar (a JSON file with sample_rate_hz, channels, sample_type and scale_uv); found no sidecar among the dropped files",
+                )),
+            }
+        }
+        .map_err(|e| message(&e))?;
+        let frame = header.frame_bytes() as f64;
+        let offset = header.data_offset_bytes as f64;
+        let file = header.file.clone();
+        let mut read_frames = |from: u64, to: u64| -> Result<Vec<u8>, crate::import::ImportError> {
+            let fail = |what: String| {
+                crate::import::ImportError::new(
+                    crate::place::Place::file(&file),
+                    crate::import::ImportProblem::BadValue,
+                    what,
+                )
+            };
+            let a = offset + from as f64 * frame;
+            let b = offset + to as f64 * frame;
+            let value = read
+                .call2(&JsValue::NULL, &JsValue::from(a), &JsValue::from(b))
+                .map_err(|e| fail(format!("the file could not be read: {e:?}")))?;
+            let bytes = js_sys::Uint8Array::new(&value).to_vec();
+            if bytes.len() as f64 != b - a {
+                return Err(fail(format!(
+                    "expected {} bytes at byte {a}, found {} (the file changed or is truncated)",
+                    b - a,
+                    bytes.len()
+                )));
+            }
+            Ok(bytes)
+        };
+        let mut report = |done: u64, total: u64| {
+            if let Some(f) = &progress {
+                let _ = f.call2(
+                    &JsValue::NULL,
+                    &JsValue::from(done as f64),
+                    &JsValue::from(total as f64),
+                );
+            }
+        };
+        let (inner, found) = Workbook::open_voltage(
+            &header,
+            &mut read_frames,
+            (layout_name, layout_bytes),
+            settings,
+            &mut report,
+        )
+        .map_err(|e| located(&e))?;
+        Ok(VoltageOpened {
+            workbook: Some(WasmWorkbook {
+                inner,
+                activation: None,
+            }),
+            electrodes: to_js(&found.electrodes)?,
+        })
+    }
+
     /// The inspection: sites, track, notices.
     pub fn inspection(&self) -> Result<JsValue, JsValue> {
         to_js(self.inner.inspection())
@@ -389,4 +476,25 @@ pub fn simulate(
     let files = crate::simulate::simulation_files(&scenario, &mut report)
         .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
     to_js(&files)
+}
+
+/// What opening a voltage file gives the page: the workbook and the electrode report.
+#[wasm_bindgen]
+pub struct VoltageOpened {
+    workbook: Option<WasmWorkbook>,
+    electrodes: JsValue,
+}
+
+#[wasm_bindgen]
+impl VoltageOpened {
+    /// The workbook (once; later calls give undefined).
+    #[wasm_bindgen(js_name = takeWorkbook)]
+    pub fn take_workbook(&mut self) -> Option<WasmWorkbook> {
+        self.workbook.take()
+    }
+
+    /// The electrode report: one row per channel.
+    pub fn electrodes(&self) -> JsValue {
+        self.electrodes.clone()
+    }
 }

@@ -270,3 +270,77 @@ test('the simulator in the page writes the same bytes as the native command line
   }
   await context.close();
 });
+
+/** Interleaved int16 voltage: 12 electrodes in a row 250 µm apart, noise SD 20 units, fronts at
+ * 50 mm/s every 2 to 3 s with 3 spikes per electrode (trough -180 units); channel 4 is flat.
+ * Seeded (mulberry32), so the file is the same on every run. */
+function syntheticVoltage(seconds, fs = 20000, channels = 12) {
+  let seed = 12345;
+  const random = () => {
+    seed = (seed + 0x6D2B79F5) | 0;
+    let t = Math.imul(seed ^ (seed >>> 15), 1 | seed);
+    t = (t + Math.imul(t ^ (t >>> 7), 61 | t)) ^ t;
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+  const gauss = () => Math.sqrt(-2 * Math.log(1 - random())) * Math.cos(2 * Math.PI * random());
+  const frames = Math.round(seconds * fs);
+  const v = new Float64Array(frames * channels);
+  for (let i = 0; i < v.length; i++) v[i] = 20 * gauss();
+  const wave = (t) => -Math.exp(-0.5 * (t / 1.5e-4) ** 2) + 0.35 * Math.exp(-0.5 * ((t - 5e-4) / 3e-4) ** 2);
+  for (let t0 = 1; t0 < seconds - 1; t0 += 2 + random()) {
+    for (let c = 0; c < channels; c++) {
+      for (let s = 0; s < 3; s++) {
+        const centre = (t0 + (c * 250) / 50e3 + s * 0.008) * fs;
+        for (let k = Math.floor(centre) - 20; k < Math.floor(centre) + 40; k++) {
+          if (k >= 0 && k < frames) v[k * channels + c] += 180 * wave((k - centre) / fs);
+        }
+      }
+    }
+  }
+  const out = new Int16Array(v.length);
+  for (let i = 0; i < v.length; i++) out[i] = (i % channels === 3) ? 0 : Math.max(-32768, Math.min(32767, Math.round(v[i])));
+  return { samples: out, fs, channels };
+}
+
+function wavBytes({ samples, fs, channels }) {
+  const data = Buffer.from(samples.buffer);
+  const header = Buffer.alloc(44);
+  header.write('RIFF', 0);
+  header.writeUInt32LE(36 + data.length, 4);
+  header.write('WAVEfmt ', 8);
+  header.writeUInt32LE(16, 16);
+  header.writeUInt16LE(1, 20);
+  header.writeUInt16LE(channels, 22);
+  header.writeUInt32LE(fs, 24);
+  header.writeUInt32LE(fs * 2 * channels, 28);
+  header.writeUInt16LE(2 * channels, 32);
+  header.writeUInt16LE(16, 34);
+  header.write('data', 36);
+  header.writeUInt32LE(data.length, 40);
+  return Buffer.concat([header, data]);
+}
+
+test('raw voltage dropped on the page gives the command line\'s electrodes and speeds', async () => {
+  const dir = mkdtempSync(join(tmpdir(), 'ringline-voltage-'));
+  const voltage = syntheticVoltage(30);
+  writeFileSync(join(dir, 'culture.wav'), wavBytes(voltage));
+  writeFileSync(join(dir, 'culture.raw'), Buffer.from(voltage.samples.buffer));
+  writeFileSync(join(dir, 'culture.json'), JSON.stringify({ sample_rate_hz: 20000, channels: 12, sample_type: 'int16', scale_uv: 1 }));
+  writeFileSync(join(dir, 'layout.csv'), `site,x_um,y_um\n${Array.from({ length: 12 }, (_, c) => `E${c + 1},${c * 250},0`).join('\n')}\n`);
+  const { report } = cliAnalysis(join(dir, 'culture.wav'), join(dir, 'layout.csv'));
+  assert.ok(Math.abs(report.summary.median_speed_mm_s / 50 - 1) < 0.05, `CLI speed ${report.summary.median_speed_mm_s}`);
+  for (const files of [['culture.wav', 'layout.csv'], ['culture.raw', 'culture.json', 'layout.csv']]) {
+    const { page, context, errors } = await openPage(base);
+    await page.setInputFiles('#file-input', files.map((f) => join(dir, f)));
+    await page.locator('#electrode-table').waitFor({ state: 'visible', timeout: 60000 });
+    const statuses = await page.locator('#electrode-table tbody tr td:last-child').allTextContents();
+    assert.deepEqual(statuses, report.electrodes.map((e) => e.status.replaceAll('_', ' ')));
+    assert.equal(statuses[3], 'flat');
+    await analyse(page);
+    assert.equal(await summaryValue(page, 'median speed'), report.summary.median_speed_mm_s, files.join(' + '));
+    assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
+    if (files[0].endsWith('.wav')) await shoot(page, '6-voltage');
+    assert.deepEqual(errors, []);
+    await context.close();
+  }
+});

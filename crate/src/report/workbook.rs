@@ -41,9 +41,20 @@ pub struct NotebookFile {
 #[serde(default)]
 pub struct StepSettings {
     pub read: ReadOptions,
+    /// Spike detection on raw voltage (used when the recording is voltage).
+    pub voltage: crate::detect::voltage::VoltageSettings,
+    /// Microvolts per stored unit of a WAV file (1 when absent).
+    pub voltage_wav_uv_per_unit: Option<f64>,
     pub track: TrackSettings,
     pub analysis: AnalysisSettings,
     pub view: ViewSettings,
+}
+
+impl StepSettings {
+    /// Microvolts per stored unit of a WAV file (WAV carries no scale).
+    pub fn voltage_wav_scale_uv(&self) -> f64 {
+        self.voltage_wav_uv_per_unit.unwrap_or(1.0)
+    }
 }
 
 /// What the page shows: the selected burst and the raster window.
@@ -207,6 +218,59 @@ impl Workbook {
             report: None,
             rate: None,
         })
+    }
+
+    /// Opens a raw voltage file: detects spikes on every channel (`read(first, end)` gives the
+    /// bytes of those frames; `progress(done, total)` in frames), then proceeds as with a spike
+    /// list. The workbook keeps the detected spikes as its activity file (a spike list named
+    /// after the voltage file), so exports and notebooks carry them, not the voltage.
+    pub fn open_voltage(
+        header: &crate::import::VoltageHeader,
+        read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError>,
+        layout: (&str, &[u8]),
+        settings: StepSettings,
+        progress: &mut dyn FnMut(u64, u64),
+    ) -> Result<(Workbook, crate::detect::voltage::VoltageSpikes), Error> {
+        let (recording, found) = crate::voltage_recording(
+            header,
+            read,
+            layout,
+            &settings.read,
+            &settings.voltage,
+            progress,
+        )?;
+        let trains_s: &[Vec<f64>] = match &recording.activity {
+            Activity::Spikes { trains_s } => trains_s,
+            Activity::Traces { .. } => &[],
+        };
+        let sites: Vec<crate::import::SiteSpikes> = recording
+            .sites
+            .iter()
+            .zip(trains_s)
+            .map(|(s, t)| crate::import::SiteSpikes {
+                site: s.id.clone(),
+                times_s: t.clone(),
+            })
+            .collect();
+        let spike_text = crate::import::write_spike_list(&sites);
+        let fit = fit_track(&recording.sites, &settings.track)?;
+        let inspection = inspect(&recording, &fit);
+        Ok((
+            Workbook {
+                activity: (
+                    format!("{} (detected spikes).csv", header.file),
+                    spike_text.into_bytes(),
+                ),
+                layout: (layout.0.to_string(), layout.1.to_vec()),
+                settings,
+                recording,
+                fit,
+                inspection,
+                report: None,
+                rate: None,
+            },
+            found,
+        ))
     }
 
     /// Re-fits the track; the analysis must be run again.
