@@ -323,8 +323,7 @@ async function openNotebook(entry) {
 
 async function useDemo() {
   const demo = await call('demo');
-  const enc = new TextEncoder();
-  const make = (name, text) => ({ name, arrayBuffer: async () => enc.encode(text).buffer, size: enc.encode(text).length });
+  const make = (name, text) => new File([text], name.split('/').pop(), { type: 'text/csv' });
   await addFiles([make(demo.activity_name, demo.activity), make(demo.layout_name, demo.layout)]);
 }
 
