@@ -24,8 +24,8 @@ fn demo_recordings_regenerate_byte_for_byte() {
             Scenario::Network(s) => s.name.clone(),
         };
         for (name, content) in simulation_files(&scenario, &mut |_, _, _| {}).unwrap() {
-            let committed = std::fs::read_to_string(demo_dir().join(&folder).join(&name))
-                .unwrap_or_else(|_| {
+            let committed =
+                std::fs::read(demo_dir().join(&folder).join(&name)).unwrap_or_else(|_| {
                     panic!("{folder}/{name} is missing; run scripts/make-demo-data")
                 });
             assert!(

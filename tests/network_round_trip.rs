@@ -16,7 +16,7 @@ fn scenario(file: &str) -> ringline::simulate::network::NetworkScenario {
         env!("CARGO_MANIFEST_DIR")
     );
     match parse_scenario(&std::fs::read_to_string(path).unwrap()).unwrap() {
-        Scenario::Network(s) => s,
+        Scenario::Network(s) => *s,
         Scenario::Fronts(_) => panic!("expected a network scenario"),
     }
 }

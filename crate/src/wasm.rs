@@ -455,7 +455,8 @@ pub fn demo_files() -> Result<JsValue, JsValue> {
 }
 
 /// `ringline simulate` on a scenario (JSON text): returns `[[file name, content], ...]`, the
-/// files the command line writes. `progress(stage, done_s, total_s)` as the simulation runs.
+/// text files the command line writes (binary voltage, when asked for, is left out).
+/// `progress(stage, done_s, total_s)` as the simulation runs.
 #[wasm_bindgen]
 pub fn simulate(
     scenario_json: &str,
@@ -475,7 +476,11 @@ pub fn simulate(
     };
     let files = crate::simulate::simulation_files(&scenario, &mut report)
         .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
-    to_js(&files)
+    let text: Vec<(String, String)> = files
+        .into_iter()
+        .filter_map(|(name, bytes)| String::from_utf8(bytes).ok().map(|t| (name, t)))
+        .collect();
+    to_js(&text)
 }
 
 /// What opening a voltage file gives the page: the workbook and the electrode report.

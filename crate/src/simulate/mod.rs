@@ -11,6 +11,7 @@
 pub mod fronts;
 pub mod network;
 mod sample;
+pub mod voltage;
 
 pub use fronts::{
     simulate_fronts, ElectrodeLayout, FrontPattern, FrontScenario, FrontTruth, SimulatedFronts,
@@ -26,7 +27,7 @@ pub enum Scenario {
     /// Kinematic fronts drawn onto electrodes.
     Fronts(FrontScenario),
     /// A spiking network grown in a pattern (see [`network`]).
-    Network(network::NetworkScenario),
+    Network(Box<network::NetworkScenario>),
 }
 
 /// Reads a scenario from JSON text; the error says what is wrong in the scenario's words.
@@ -48,17 +49,17 @@ pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
 }
 
 /// The files a simulation writes, as (file name, content): `spikes.csv` (times in ms with
-/// two decimals, i.e. a 10 us quantum) and `layout.csv` for electrodes, `traces.csv` and
-/// `roi_layout.csv` for imaging, and `truth.json`. `progress(stage, done, total)` reports
-/// long runs.
+/// two decimals, i.e. a 10 us quantum) and `layout.csv` for electrodes, with `voltage.raw`
+/// and `voltage.json` when the electrodes write voltage; `traces.csv` and `roi_layout.csv`
+/// for imaging; and `truth.json`. `progress(stage, done, total)` reports long runs.
 pub fn simulation_files(
     scenario: &Scenario,
     progress: &mut dyn FnMut(&str, f64, f64),
-) -> Result<Vec<(String, String)>, String> {
+) -> Result<Vec<(String, Vec<u8>)>, String> {
     match scenario {
         Scenario::Network(s) => {
             let rec = network::simulate_network(s, progress)?;
-            let mut files = Vec::new();
+            let mut files: Vec<(String, Vec<u8>)> = Vec::new();
             if let Some((sites, spikes)) = &rec.electrodes {
                 files.push((
                     "spikes.csv".to_string(),
@@ -66,22 +67,42 @@ pub fn simulation_files(
                         spikes,
                         crate::import::TimeUnit::Milliseconds,
                         Some(2),
-                    ),
+                    )
+                    .into_bytes(),
                 ));
-                files.push(("layout.csv".to_string(), crate::import::write_layout(sites)));
+                files.push((
+                    "layout.csv".to_string(),
+                    crate::import::write_layout(sites).into_bytes(),
+                ));
+                if let Some(e) = &s.electrodes {
+                    if let Some(out) = &e.voltage {
+                        progress("writing voltage", 0.0, s.duration_s);
+                        // A stream of its own, so adding voltage leaves the other files as they were.
+                        let (raw, sidecar) = voltage::electrode_voltage(
+                            spikes,
+                            &e.dead,
+                            s.duration_s,
+                            e.sampling_rate_hz,
+                            out,
+                            s.seed ^ 0x766f_6c74,
+                        );
+                        files.push(("voltage.raw".to_string(), raw));
+                        files.push(("voltage.json".to_string(), sidecar.into_bytes()));
+                    }
+                }
             }
             if let Some((sites, time_s, rois)) = &rec.imaging {
                 files.push((
                     "traces.csv".to_string(),
-                    crate::import::write_roi_traces(time_s, rois),
+                    crate::import::write_roi_traces(time_s, rois).into_bytes(),
                 ));
                 files.push((
                     "roi_layout.csv".to_string(),
-                    crate::import::write_layout(sites),
+                    crate::import::write_layout(sites).into_bytes(),
                 ));
             }
             let truth = serde_json::to_string_pretty(&rec.truth).map_err(|e| e.to_string())? + "\n";
-            files.push(("truth.json".to_string(), truth));
+            files.push(("truth.json".to_string(), truth.into_bytes()));
             Ok(files)
         }
         Scenario::Fronts(s) => {
@@ -94,10 +115,14 @@ pub fn simulation_files(
                         &sim.spikes,
                         crate::import::TimeUnit::Milliseconds,
                         Some(2),
-                    ),
+                    )
+                    .into_bytes(),
                 ),
-                ("layout.csv".into(), crate::import::write_layout(&sim.sites)),
-                ("truth.json".into(), truth),
+                (
+                    "layout.csv".into(),
+                    crate::import::write_layout(&sim.sites).into_bytes(),
+                ),
+                ("truth.json".into(), truth.into_bytes()),
             ])
         }
     }

@@ -39,6 +39,9 @@ pub struct Electrodes {
     pub dead: Vec<usize>,
     /// Spike times are rounded to this sampling rate, Hz.
     pub sampling_rate_hz: f64,
+    /// Also write raw voltage at the sampling rate (`voltage.raw` + `voltage.json`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub voltage: Option<crate::simulate::voltage::VoltageOutput>,
 }
 
 /// Virtual calcium imaging.
