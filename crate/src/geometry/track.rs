@@ -13,6 +13,17 @@ pub enum Rotation {
     Cw,
 }
 
+impl Rotation {
+    /// +1 counter-clockwise, -1 clockwise: the sign of the track coordinate's growth in the
+    /// layout's angle atan2(y - cy, x - cx).
+    pub fn sign(self) -> f64 {
+        match self {
+            Rotation::Ccw => 1.0,
+            Rotation::Cw => -1.0,
+        }
+    }
+}
+
 /// The path along which fronts are measured. Positions in micrometres, layout axes.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "kind", rename_all = "snake_case")]
@@ -86,10 +97,7 @@ impl Track {
             } => {
                 let (dx, dy) = (p[0] - centre_um[0], p[1] - centre_um[1]);
                 let angle = dy.atan2(dx);
-                let turned = match rotation {
-                    Rotation::Ccw => angle - start_angle_rad,
-                    Rotation::Cw => start_angle_rad - angle,
-                };
+                let turned = rotation.sign() * (angle - start_angle_rad);
                 Some(Projection {
                     along_um: radius_um * wrap_angle(turned),
                     lateral_um: dx.hypot(dy) - radius_um,

@@ -258,7 +258,7 @@ impl AnalysisReport {
 }
 
 /// Quotes a CSV field when it holds a comma, quote or line break.
-fn csv_text(text: &str) -> String {
+pub(super) fn csv_text(text: &str) -> String {
     if text.contains([',', '"', '\n', '\r']) {
         format!("\"{}\"", text.replace('"', "\"\""))
     } else {

@@ -10,7 +10,7 @@ use super::svg::{Colour, Plot};
 use super::{AnalysisReport, Inspection};
 use crate::detect::PopulationRate;
 use crate::fronts::{BurstResult, FrontReport};
-use crate::geometry::{Rotation, Track};
+use crate::geometry::Track;
 use serde::Serialize;
 use std::f64::consts::TAU;
 
@@ -262,11 +262,7 @@ fn track_start_and_step(track: &Track) -> Option<((f64, f64), (f64, f64))> {
             rotation,
         } => {
             let a = *start_angle_rad;
-            let sense = if *rotation == Rotation::Ccw {
-                1.0
-            } else {
-                -1.0
-            };
+            let sense = rotation.sign();
             Some((
                 (
                     centre_um[0] + radius_um * a.cos(),
@@ -664,9 +660,8 @@ pub fn distance_from_origin_um(
             };
             // Ring origins are angles in the layout's axes (counter-clockwise positive); the
             // track coordinate grows in the track's own rotation from its start angle.
-            let sense = if *rotation == Rotation::Cw { -1.0 } else { 1.0 };
             let angle = match along_um {
-                Some(s) => start_angle_rad + sense * s / radius_um,
+                Some(s) => start_angle_rad + rotation.sign() * s / radius_um,
                 None => (xy_um[1] - centre_um[1]).atan2(xy_um[0] - centre_um[0]),
             };
             let turned = (angle - front.origin_angle_deg?.to_radians()).rem_euclid(TAU);
@@ -707,7 +702,7 @@ pub fn activation_plot(
     }
     let track = &report.track.track;
     let circumference = match track {
-        Track::Ring { radius_um, .. } => Some(TAU * radius_um),
+        Track::Ring { .. } => track.length_um(),
         _ => None,
     };
     let on_track = !matches!(track, Track::Plane);

@@ -18,7 +18,7 @@ pub fn electrodes_csv(rows: &[crate::detect::voltage::ElectrodeRow]) -> String {
         out.push_str(&format!(
             "{},{},{},{},{},{},{}\n",
             r.channel,
-            csv_field(&r.site),
+            analysis::csv_text(&r.site),
             r.noise_uv,
             r.spike_count,
             r.rate_hz,
@@ -48,12 +48,4 @@ pub fn electrodes_text(rows: &[crate::detect::voltage::ElectrodeRow]) -> String 
         ));
     }
     out
-}
-
-fn csv_field(text: &str) -> String {
-    if text.contains([',', '"', '\n']) {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_string()
-    }
 }

@@ -206,10 +206,25 @@ impl Workbook {
         settings: StepSettings,
     ) -> Result<Workbook, Error> {
         let recording = read_recording(activity, layout, &settings.read)?;
+        Workbook::with_track(
+            (activity.0.to_string(), activity.1.to_vec()),
+            layout,
+            settings,
+            recording,
+        )
+    }
+
+    /// The workbook of a read recording: fits the track; no analysis yet.
+    fn with_track(
+        activity: (String, Vec<u8>),
+        layout: (&str, &[u8]),
+        settings: StepSettings,
+        recording: Recording,
+    ) -> Result<Workbook, Error> {
         let fit = fit_track(&recording.sites, &settings.track)?;
         let inspection = inspect(&recording, &fit);
         Ok(Workbook {
-            activity: (activity.0.to_string(), activity.1.to_vec()),
+            activity,
             layout: (layout.0.to_string(), layout.1.to_vec()),
             settings,
             recording,
@@ -252,23 +267,12 @@ impl Workbook {
                 times_s: t.clone(),
             })
             .collect();
-        let spike_text = crate::import::write_spike_list(&sites);
-        let fit = fit_track(&recording.sites, &settings.track)?;
-        let inspection = inspect(&recording, &fit);
+        let activity = (
+            format!("{} (detected spikes).csv", header.file),
+            crate::import::write_spike_list(&sites).into_bytes(),
+        );
         Ok((
-            Workbook {
-                activity: (
-                    format!("{} (detected spikes).csv", header.file),
-                    spike_text.into_bytes(),
-                ),
-                layout: (layout.0.to_string(), layout.1.to_vec()),
-                settings,
-                recording,
-                fit,
-                inspection,
-                report: None,
-                rate: None,
-            },
+            Workbook::with_track(activity, layout, settings, recording)?,
             found,
         ))
     }
