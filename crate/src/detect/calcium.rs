@@ -7,7 +7,6 @@
 //! extrapolates into the noise. For front speeds what matters is that every ROI is timed by
 //! the same marker; the half-rise delay is common to all and drops out of the slope.
 
-use super::voltage::MAD_TO_SD;
 use serde::{Deserialize, Serialize};
 
 /// Which point of the rising edge times an event.
@@ -105,15 +104,8 @@ pub fn delta_f_over_f(f: &[f64], frame_rate_hz: f64, s: &CalciumSettings) -> Vec
 
 /// Robust SD about the median, median(|x - median|) / 0.6745, ignoring NaN.
 pub fn robust_sd(x: &[f64]) -> Option<f64> {
-    let mut v: Vec<f64> = x.iter().copied().filter(|v| !v.is_nan()).collect();
-    if v.is_empty() {
-        return None;
-    }
-    let median = crate::stats::median(&v)?;
-    for a in v.iter_mut() {
-        *a = (*a - median).abs();
-    }
-    crate::stats::median(&v).map(|m| m / MAD_TO_SD)
+    let v: Vec<f64> = x.iter().copied().filter(|v| !v.is_nan()).collect();
+    crate::stats::mad_sd(&v)
 }
 
 /// Onset times (seconds) of the events in one dF/F trace on the time base `time_s`: runs

@@ -3,8 +3,7 @@
 
 use serde::{Deserialize, Serialize};
 
-/// Phi^-1(0.75): the median of |x| for a standard normal x.
-pub const MAD_TO_SD: f64 = 0.674_489_750_196_081_7;
+pub use crate::stats::MAD_TO_SD;
 
 /// Which excursions count as spikes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]

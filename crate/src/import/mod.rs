@@ -34,8 +34,8 @@ pub use traces::{
     read_roi_traces, RoiSeries, RoiTraceTable, TraceGap, TraceOptions, FRAME_COLUMN_NAMES,
 };
 pub use voltage::{
-    count_saturated, decode_channel, decode_lanes, looks_like_wav, read_sidecar, read_wav_header,
-    SampleType, VoltageHeader,
+    decode_channel, decode_lanes, looks_like_wav, read_sidecar, read_wav_header, SampleType,
+    VoltageHeader,
 };
 pub use write::{write_layout, write_roi_traces, write_spike_list, write_spike_list_as};
 

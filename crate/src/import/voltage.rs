@@ -302,30 +302,36 @@ pub fn read_wav_header(
     }
 }
 
+/// One stored sample starting at byte `at` of a frame, as a number of stored units, and whether
+/// it sits at the int16 limits (-32768 or 32767: the amplifier clipped).
+#[inline]
+fn stored_sample(sample_type: SampleType, frame: &[u8], at: usize) -> (f64, bool) {
+    match sample_type {
+        SampleType::Int16 => {
+            let s = i16::from_le_bytes([frame[at], frame[at + 1]]);
+            (f64::from(s), s == i16::MIN || s == i16::MAX)
+        }
+        SampleType::Float32 => (
+            f64::from(f32::from_le_bytes([
+                frame[at],
+                frame[at + 1],
+                frame[at + 2],
+                frame[at + 3],
+            ])),
+            false,
+        ),
+    }
+}
+
 /// Decodes one channel of a block of whole frames (raw bytes from the file) into microvolts,
 /// appending to `out`.
 pub fn decode_channel(header: &VoltageHeader, frames: &[u8], channel: usize, out: &mut Vec<f64>) {
-    let (scale, offset) = (header.scale_uv, header.offset_uv);
-    let width = header.sample_type.bytes();
-    let stride = header.frame_bytes();
-    let start = channel * width;
-    match header.sample_type {
-        SampleType::Int16 => out.extend(
-            frames
-                .chunks_exact(stride)
-                .map(|f| offset + scale * f64::from(i16::from_le_bytes([f[start], f[start + 1]]))),
-        ),
-        SampleType::Float32 => out.extend(frames.chunks_exact(stride).map(|f| {
-            offset
-                + scale
-                    * f64::from(f32::from_le_bytes([
-                        f[start],
-                        f[start + 1],
-                        f[start + 2],
-                        f[start + 3],
-                    ]))
-        })),
-    }
+    let at = channel * header.sample_type.bytes();
+    out.extend(
+        frames.chunks_exact(header.frame_bytes()).map(|f| {
+            header.offset_uv + header.scale_uv * stored_sample(header.sample_type, f, at).0
+        }),
+    );
 }
 
 /// Decodes channels `first..first + LANES` of a block of whole frames into microvolts, one
@@ -348,37 +354,12 @@ pub fn decode_lanes(
         let counting = count_in.contains(&k);
         let mut lanes = [0.0; LANES];
         for (l, v) in lanes.iter_mut().enumerate().take(count) {
-            let at = (first + l) * width;
-            let raw = match header.sample_type {
-                SampleType::Int16 => {
-                    let s = i16::from_le_bytes([f[at], f[at + 1]]);
-                    if counting && (s == i16::MIN || s == i16::MAX) {
-                        saturated[l] += 1;
-                    }
-                    f64::from(s)
-                }
-                SampleType::Float32 => {
-                    f64::from(f32::from_le_bytes([f[at], f[at + 1], f[at + 2], f[at + 3]]))
-                }
-            };
+            let (raw, clipped) = stored_sample(header.sample_type, f, (first + l) * width);
+            if counting && clipped {
+                saturated[l] += 1;
+            }
             *v = offset + scale * raw;
         }
         out.push(lanes);
     }
-}
-
-/// Whether a stored sample of this channel sits at the type's limit (int16 -32768 or 32767),
-/// counted per channel over a block of frames.
-pub fn count_saturated(header: &VoltageHeader, frames: &[u8], channel: usize) -> usize {
-    if header.sample_type != SampleType::Int16 {
-        return 0;
-    }
-    let start = channel * 2;
-    frames
-        .chunks_exact(header.frame_bytes())
-        .filter(|f| {
-            let v = i16::from_le_bytes([f[start], f[start + 1]]);
-            v == i16::MIN || v == i16::MAX
-        })
-        .count()
 }
