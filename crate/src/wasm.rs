@@ -139,15 +139,8 @@ pub fn analyze(
     let read: ReadOptions = settings(read, "reader")?;
     let track: TrackSettings = settings(track, "track")?;
     let analysis: AnalysisSettings = settings(analysis, "analysis")?;
-    let mut report_progress = |done: usize, total: usize| {
-        if let Some(f) = &progress {
-            let _ = f.call2(
-                &JsValue::NULL,
-                &JsValue::from(done as u32),
-                &JsValue::from(total as u32),
-            );
-        }
-    };
+    let mut report = progress_fn(&progress);
+    let mut report_progress = |done: usize, total: usize| report(done as f64, total as f64);
     match crate::analyze_files(
         (activity_name, activity_bytes),
         (layout_name, layout_bytes),
@@ -161,14 +154,11 @@ pub fn analyze(
     }
 }
 
-fn progress_fn(progress: &Option<js_sys::Function>) -> impl FnMut(usize, usize) + '_ {
-    move |done: usize, total: usize| {
+/// Calls the page's `progress(done, total)`, when it gave one (bursts, or frames of a file).
+fn progress_fn(progress: &Option<js_sys::Function>) -> impl FnMut(f64, f64) + '_ {
+    move |done: f64, total: f64| {
         if let Some(f) = progress {
-            let _ = f.call2(
-                &JsValue::NULL,
-                &JsValue::from(done as u32),
-                &JsValue::from(total as u32),
-            );
+            let _ = f.call2(&JsValue::NULL, &JsValue::from(done), &JsValue::from(total));
         }
     }
 }
@@ -237,7 +227,7 @@ impl WasmWorkbook {
     ) -> Result<WasmWorkbook, JsValue> {
         let nb = open_notebook(name, bytes).map_err(|e| message(&e))?;
         let mut report = progress_fn(&progress);
-        Workbook::from_notebook(&nb, &mut report)
+        Workbook::from_notebook(&nb, &mut |done, total| report(done as f64, total as f64))
             .map(|inner| WasmWorkbook {
                 inner,
                 activation: None,
@@ -306,21 +296,13 @@ impl WasmWorkbook {
             }
             Ok(bytes)
         };
-        let mut report = |done: u64, total: u64| {
-            if let Some(f) = &progress {
-                let _ = f.call2(
-                    &JsValue::NULL,
-                    &JsValue::from(done as f64),
-                    &JsValue::from(total as f64),
-                );
-            }
-        };
+        let mut report = progress_fn(&progress);
         let (inner, found) = Workbook::open_voltage(
             &header,
             &mut read_frames,
             (layout_name, layout_bytes),
             settings,
-            &mut report,
+            &mut |done, total| report(done as f64, total as f64),
         )
         .map_err(|e| located(&e))?;
         Ok(VoltageOpened {
@@ -362,7 +344,9 @@ impl WasmWorkbook {
         let analysis: AnalysisSettings = settings(analysis, "analysis")?;
         let mut report = progress_fn(&progress);
         self.activation = None;
-        match self.inner.analyze(analysis, &mut report) {
+        match self.inner.analyze(analysis, &mut |done, total| {
+            report(done as f64, total as f64)
+        }) {
             Ok(r) => to_js(r),
             Err(e) => Err(located(&e)),
         }

@@ -342,7 +342,6 @@ pub fn integrate(
     progress: &mut dyn FnMut(f64),
 ) -> Run {
     let n = net.drive_mv.len();
-    let p = net.neuron;
     let syn = net.synapses;
     let (min_delay, max_delay) = syn.delay_range_s();
     let width = if min_delay.is_finite() {
@@ -396,18 +395,7 @@ pub fn integrate(
         f64::INFINITY
     };
     for j in 0..n {
-        if let Some(t) = crossing_time(0.0, 0.0, net.drive_mv[j], p) {
-            if t < duration_s {
-                e.q.push_event(
-                    0,
-                    Event {
-                        time: t,
-                        neuron: j as u32,
-                        version: 0,
-                    },
-                );
-            }
-        }
+        e.schedule_crossing(j, 0.0, 0.0, net.drive_mv[j], 0);
     }
     for &(j, t) in forced {
         e.q.push_event(
