@@ -95,6 +95,16 @@ fn analyze(recording: &Path, layout: &str, extra: &[&str]) -> serde_json::Value 
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
+/// `ringline analyze` on a file it must refuse: exit code 2; returns the message.
+fn analyze_refused(recording: &Path, layout: &str) -> String {
+    let out = Command::new(env!("CARGO_BIN_EXE_ringline"))
+        .args(["analyze", recording.to_str().unwrap(), "--layout", layout])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    String::from_utf8_lossy(&out.stderr).into_owned()
+}
+
 fn check(report: &serde_json::Value, bursts: usize) {
     let median = report["summary"]["median_speed_mm_s"].as_f64().unwrap();
     let error = (median / SPEED_MM_S - 1.0).abs();
@@ -143,12 +153,7 @@ fn int16_with_sidecar_recovers_the_front_speed() {
     // A truncated file: the sidecar's frame size does not divide it; the message says how much
     // is left over.
     std::fs::write(&data, &bytes[..bytes.len() - 3]).unwrap();
-    let out = Command::new(env!("CARGO_BIN_EXE_ringline"))
-        .args(["analyze", data.to_str().unwrap(), "--layout", &layout])
-        .output()
-        .unwrap();
-    assert_eq!(out.status.code(), Some(2));
-    let message = String::from_utf8_lossy(&out.stderr);
+    let message = analyze_refused(&data, &layout);
     assert!(message.contains("culture.raw"), "{message}");
     assert!(
         message.contains(&format!("{} bytes left over", 2 * CHANNELS - 3)),
@@ -185,12 +190,7 @@ fn wav_recovers_the_front_speed_and_truncation_is_named() {
     assert_eq!(report["files"][0]["kind"], "voltage_wav");
 
     std::fs::write(&path, &wav[..wav.len() / 2]).unwrap();
-    let out = Command::new(env!("CARGO_BIN_EXE_ringline"))
-        .args(["analyze", path.to_str().unwrap(), "--layout", &layout])
-        .output()
-        .unwrap();
-    assert_eq!(out.status.code(), Some(2));
-    let message = String::from_utf8_lossy(&out.stderr);
+    let message = analyze_refused(&path, &layout);
     assert!(
         message.contains("culture.wav") && message.contains("truncated"),
         "{message}"
