@@ -193,3 +193,32 @@ proptest! {
         prop_assert_eq!(err.place.line, Some(bad_line));
     }
 }
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(48))]
+
+    /// The bracketed median of |x| (used for the noise SD of every voltage block) equals the
+    /// plain median of the absolute values (`stats::median`, numpy's rule, checked in
+    /// stats_reference.rs), whatever the signal: Gaussian-like noise with spikes, few distinct
+    /// values (ties across the bracket), NaN gaps, and signals periodic with the sampling
+    /// stride, which send it down the fallback.
+    #[test]
+    fn median_of_absolute_values_is_exact(
+        len in 16_000usize..40_000,
+        shape in 0u8..4,
+        seed in any::<u64>(),
+    ) {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+        let x: Vec<f64> = (0..len)
+            .map(|k| match shape {
+                0 => rng.random_range(-1.0..1.0) + if rng.random_range(0.0..1.0) < 0.01 { -8.0 } else { 0.0 },
+                1 => f64::from(rng.random_range(-3i32..=3)),
+                2 => if k % 97 == 0 { f64::NAN } else { rng.random_range(-5.0..5.0) },
+                _ => if k % (len / 2048).max(1) == 0 { 100.0 } else { rng.random_range(-1.0..1.0) },
+            })
+            .collect();
+        let plain: Vec<f64> = x.iter().filter(|v| !v.is_nan()).map(|v| v.abs()).collect();
+        prop_assert_eq!(ringline::stats::median_abs(&x), ringline::stats::median(&plain));
+    }
+}

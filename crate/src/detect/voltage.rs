@@ -49,18 +49,7 @@ impl Default for VoltageSettings {
 /// Ben-Shaul 2004, Neural Computation 16:1661, eq. 3.1): unlike the plain SD it is hardly
 /// moved by the spikes themselves. `None` for an empty signal; NaN samples are skipped.
 pub fn mad_sigma(x: &[f64]) -> Option<f64> {
-    let mut a: Vec<f64> = x.iter().filter(|v| !v.is_nan()).map(|v| v.abs()).collect();
-    if a.is_empty() {
-        return None;
-    }
-    let mid = a.len() / 2;
-    let (_, m, _) = a.select_nth_unstable_by(mid, f64::total_cmp);
-    let mut median = *m;
-    if a.len() % 2 == 0 {
-        let below = a[..mid].iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        median = 0.5 * (median + below);
-    }
-    Some(median / MAD_TO_SD)
+    crate::stats::median_abs(x).map(|median| median / MAD_TO_SD)
 }
 
 /// Spike times (seconds from the first sample) in a filtered trace sampled at
@@ -76,23 +65,29 @@ pub fn threshold_spikes(
     dead_time_s: f64,
 ) -> Vec<f64> {
     let dead = ((dead_time_s * sample_rate_hz).round() as usize).max(1);
-    // Signed so that a spike is a large positive value.
-    let value = |v: f64| match polarity {
-        Polarity::Negative => -v,
-        Polarity::Positive => v,
-        Polarity::Both => v.abs(),
-    };
+    // Signed so that a spike is a large positive value; one loop per polarity.
+    match polarity {
+        Polarity::Negative => spikes_above(x, sample_rate_hz, threshold, dead, |v| -v),
+        Polarity::Positive => spikes_above(x, sample_rate_hz, threshold, dead, |v| v),
+        Polarity::Both => spikes_above(x, sample_rate_hz, threshold, dead, f64::abs),
+    }
+}
+
+/// [`threshold_spikes`] on `value(x)`, with the dead time in samples.
+fn spikes_above(
+    x: &[f64],
+    sample_rate_hz: f64,
+    threshold: f64,
+    dead: usize,
+    value: impl Fn(f64) -> f64,
+) -> Vec<f64> {
     let mut times = Vec::new();
     let mut i = 0;
-    while i < x.len() {
-        if value(x[i]) <= threshold {
-            i += 1;
-            continue;
-        }
-        let end = (i + dead).min(x.len());
-        let peak = (i..end)
+    while let Some(start) = first_above(x, i, threshold, &value) {
+        let end = (start + dead).min(x.len());
+        let peak = (start..end)
             .max_by(|&a, &b| value(x[a]).total_cmp(&value(x[b])))
-            .unwrap_or(i);
+            .unwrap_or(start);
         let offset = if peak > 0 && peak + 1 < x.len() {
             let (l, c, r) = (value(x[peak - 1]), value(x[peak]), value(x[peak + 1]));
             let curvature = l - 2.0 * c + r;
@@ -108,6 +103,30 @@ pub fn threshold_spikes(
         i = peak + dead;
     }
     times
+}
+
+/// First index from `from` on where `value(x)` exceeds `threshold` (NaN never does); eight
+/// samples are tested at a time without branching, so the quiet stretches go fast.
+fn first_above(
+    x: &[f64],
+    from: usize,
+    threshold: f64,
+    value: impl Fn(f64) -> f64,
+) -> Option<usize> {
+    let mut i = from.min(x.len());
+    for chunk in x[i..].chunks_exact(8) {
+        if chunk
+            .iter()
+            .fold(false, |any, &v| any | (value(v) > threshold))
+        {
+            break;
+        }
+        i += 8;
+    }
+    x[i..]
+        .iter()
+        .position(|&v| value(v) > threshold)
+        .map(|k| i + k)
 }
 
 /// One electrode's health after detection.

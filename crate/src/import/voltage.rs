@@ -345,19 +345,61 @@ pub fn decode_lanes(
     saturated: &mut [usize],
     count_in: std::ops::Range<usize>,
 ) {
+    let frame_bytes = header.frame_bytes();
+    out.clear();
+    out.reserve(frames.len() / frame_bytes.max(1));
+    // One loop per stored type, so the inner loop has no type dispatch.
+    match header.sample_type {
+        SampleType::Int16 => decode_lanes_as(
+            header,
+            frames,
+            first,
+            out,
+            saturated,
+            count_in,
+            |b: [u8; 2]| {
+                let s = i16::from_le_bytes(b);
+                (f64::from(s), s == i16::MIN || s == i16::MAX)
+            },
+        ),
+        SampleType::Float32 => decode_lanes_as(
+            header,
+            frames,
+            first,
+            out,
+            saturated,
+            count_in,
+            |b: [u8; 4]| (f64::from(f32::from_le_bytes(b)), false),
+        ),
+    }
+}
+
+/// [`decode_lanes`] for samples of `W` bytes read by `read` (value in stored units, clipped).
+fn decode_lanes_as<const W: usize>(
+    header: &VoltageHeader,
+    frames: &[u8],
+    first: usize,
+    out: &mut Vec<crate::detect::filter::Lanes>,
+    saturated: &mut [usize],
+    count_in: std::ops::Range<usize>,
+    read: impl Fn([u8; W]) -> (f64, bool),
+) {
     use crate::detect::filter::LANES;
     let (scale, offset) = (header.scale_uv, header.offset_uv);
-    let width = header.sample_type.bytes();
     let count = LANES.min(header.channels.saturating_sub(first));
-    out.clear();
+    let (from, to) = (first * W, (first + count) * W);
     for (k, f) in frames.chunks_exact(header.frame_bytes()).enumerate() {
         let counting = count_in.contains(&k);
         let mut lanes = [0.0; LANES];
-        for (l, v) in lanes.iter_mut().enumerate().take(count) {
-            let (raw, clipped) = stored_sample(header.sample_type, f, (first + l) * width);
-            if counting && clipped {
-                saturated[l] += 1;
-            }
+        for ((v, b), clipped_count) in lanes
+            .iter_mut()
+            .zip(f[from..to].chunks_exact(W))
+            .zip(saturated.iter_mut())
+        {
+            let mut bytes = [0u8; W];
+            bytes.copy_from_slice(b);
+            let (raw, clipped) = read(bytes);
+            *clipped_count += usize::from(counting && clipped);
             *v = offset + scale * raw;
         }
         out.push(lanes);
