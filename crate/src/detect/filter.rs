@@ -363,14 +363,36 @@ pub fn sosfiltfilt_lanes<const L: usize>(
             message: format!("zero-phase filtering: expected more than {pad} samples, found {n}"),
         });
     }
+    let mut ext: Vec<[f64; L]> = Vec::with_capacity(n + 2 * pad);
+    ext.resize(pad, [0.0; L]);
+    ext.extend_from_slice(x);
+    ext.resize(n + 2 * pad, [0.0; L]);
+    filtfilt_padded(sections, ext)
+}
+
+/// [`sosfiltfilt_lanes`] on a buffer that already holds the signal between [`pad_length`]
+/// placeholder samples at each end (so the caller can decode straight into it); the
+/// placeholders are overwritten with the odd extension.
+pub fn filtfilt_padded<const L: usize>(
+    sections: &[Section],
+    mut ext: Vec<[f64; L]>,
+) -> Result<PaddedLanes<L>, FilterError> {
+    let pad = pad_length(sections);
+    let n = ext.len().saturating_sub(2 * pad);
+    if n <= pad {
+        return Err(FilterError {
+            message: format!("zero-phase filtering: expected more than {pad} samples, found {n}"),
+        });
+    }
     // Odd extension: 2 x[0] - x[pad..1], x, 2 x[n-1] - x[n-2..n-pad-1].
     let odd = |edge: &[f64; L], mirror: &[f64; L]| -> [f64; L] {
         std::array::from_fn(|l| 2.0 * edge[l] - mirror[l])
     };
-    let mut ext: Vec<[f64; L]> = Vec::with_capacity(n + 2 * pad);
-    ext.extend((1..=pad).rev().map(|k| odd(&x[0], &x[k])));
-    ext.extend_from_slice(x);
-    ext.extend((1..=pad).map(|k| odd(&x[n - 1], &x[n - 1 - k])));
+    let (first, last) = (pad, pad + n - 1);
+    for k in 1..=pad {
+        ext[first - k] = odd(&ext[first], &ext[first + k]);
+        ext[last + k] = odd(&ext[last], &ext[last - k]);
+    }
     let zi = steady_states(sections);
     let start = |first: &[f64; L]| -> Vec<[[f64; L]; 2]> {
         zi.iter()
@@ -404,5 +426,10 @@ impl<const L: usize> PaddedLanes<L> {
     /// The filtered samples, one per input sample.
     pub fn samples(&self) -> &[[f64; L]] {
         &self.data[self.pad..self.pad + self.len]
+    }
+
+    /// The buffer back, for reuse.
+    pub fn into_buffer(self) -> Vec<[f64; L]> {
+        self.data
     }
 }

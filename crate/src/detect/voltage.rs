@@ -174,7 +174,7 @@ pub fn detect_voltage_spikes(
     progress: &mut dyn FnMut(u64, u64),
 ) -> Result<VoltageSpikes, crate::import::ImportError> {
     use super::filter::{
-        butterworth_bandpass, pad_length, settling_samples, sosfiltfilt_lanes, LANES,
+        butterworth_bandpass, filtfilt_padded, pad_length, settling_samples, LANES,
     };
     use crate::import::{decode_lanes, ImportError, ImportProblem};
     use crate::place::Place;
@@ -202,7 +202,8 @@ pub fn detect_voltage_spikes(
     let mut trains: Vec<Vec<f64>> = vec![Vec::new(); channels];
     let mut noise: Vec<Vec<f64>> = vec![Vec::new(); channels];
     let mut saturated = vec![0usize; channels];
-    let mut samples = Vec::new();
+    let pad = pad_length(&sos);
+    let mut per_channel: [Vec<f64>; LANES] = std::array::from_fn(|_| Vec::new());
     let mut lanes = Vec::new();
     let mut start = 0u64;
     while start < total {
@@ -213,6 +214,9 @@ pub fn detect_voltage_spikes(
         // Channels in groups of LANES, filtered side by side.
         for first in (0..channels).step_by(LANES) {
             let group = LANES.min(channels - first);
+            // Decoded straight between the filter's placeholder ends.
+            lanes.clear();
+            lanes.resize(pad, [0.0; LANES]);
             decode_lanes(
                 header,
                 &bytes,
@@ -221,18 +225,26 @@ pub fn detect_voltage_spikes(
                 &mut saturated[first..first + group],
                 (start - from) as usize..(end - from) as usize,
             );
-            if lanes.len() <= pad_length(&sos) {
+            if lanes.len() <= 2 * pad {
                 continue; // a tail too short to filter
             }
-            let padded = sosfiltfilt_lanes(&sos, &lanes)
+            lanes.resize(lanes.len() + pad, [0.0; LANES]);
+            let padded = filtfilt_padded(&sos, std::mem::take(&mut lanes))
                 .map_err(|e| option_error(format!("spike filter: {e}")))?;
-            let filtered = padded.samples();
-            for l in 0..group {
+            // One pass splits the lanes into channels.
+            for channel in per_channel.iter_mut() {
+                channel.clear();
+            }
+            for v in padded.samples() {
+                for (channel, &x) in per_channel.iter_mut().zip(v) {
+                    channel.push(x);
+                }
+            }
+            lanes = padded.into_buffer();
+            for (l, samples) in per_channel.iter().enumerate().take(group) {
                 let c = first + l;
-                samples.clear();
-                samples.extend(filtered.iter().map(|v| v[l]));
                 scan_channel(
-                    &samples,
+                    samples,
                     (start - from) as usize,
                     (end - start) as usize,
                     start as f64 / fs,

@@ -334,8 +334,9 @@ pub fn decode_channel(header: &VoltageHeader, frames: &[u8], channel: usize, out
     );
 }
 
-/// Decodes channels `first..first + LANES` of a block of whole frames into microvolts, one
-/// [`crate::detect::filter::Lanes`] per frame (lanes past the last channel are 0), and adds
+/// Decodes channels `first..first + LANES` of a block of whole frames into microvolts,
+/// appending one [`crate::detect::filter::Lanes`] per frame to `out` (lanes past the last
+/// channel are 0), and adds
 /// to `saturated[l]` the samples of lane l at the int16 limits among frames `count_in`.
 pub fn decode_lanes(
     header: &VoltageHeader,
@@ -346,7 +347,6 @@ pub fn decode_lanes(
     count_in: std::ops::Range<usize>,
 ) {
     let frame_bytes = header.frame_bytes();
-    out.clear();
     out.reserve(frames.len() / frame_bytes.max(1));
     // One loop per stored type, so the inner loop has no type dispatch.
     match header.sample_type {
