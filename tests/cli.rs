@@ -427,3 +427,103 @@ fn simulate_network_scenario_with_overrides() {
     assert_eq!(out.status.code(), Some(2));
     assert!(stderr.contains("broken.json: line 3, column 3"), "{stderr}");
 }
+
+/// `simulate` without a scenario file builds the culture from options: the electrodes sit
+/// where the options say (a square grid over a dish, pitch = side / columns), the scenario it
+/// writes runs again to the same files byte for byte, and options it cannot honour are
+/// refused with the option's name.
+#[test]
+fn simulate_from_culture_options() {
+    let dir = tempfile::tempdir().unwrap();
+    let args = [
+        "simulate",
+        "--pattern",
+        "dish",
+        "--length-um",
+        "1200",
+        "--electrodes",
+        "16",
+        "--density",
+        "1000",
+        "--duration",
+        "6",
+        "--seed",
+        "4",
+        "--out",
+        "dish",
+    ];
+    let out = ringline(&args, dir.path());
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let layout = std::fs::read_to_string(dir.path().join("dish/layout.csv")).unwrap();
+    let mut xs: Vec<f64> = Vec::new();
+    let mut ys: Vec<f64> = Vec::new();
+    for line in layout.lines().filter(|l| !l.starts_with('#')).skip(1) {
+        let cells: Vec<&str> = line.split(',').collect();
+        xs.push(cells[1].parse().unwrap());
+        ys.push(cells[2].parse().unwrap());
+    }
+    assert_eq!(xs.len(), 16);
+    // 4 x 4 grid over a 1,200 um square: pitch 300 um, first electrode 150 um in.
+    for v in xs.iter().chain(&ys) {
+        let k = (v - 150.0) / 300.0;
+        assert!(
+            (k - k.round()).abs() < 1e-9 && (0.0..=3.0).contains(&k.round()),
+            "{v}"
+        );
+    }
+    let again = ringline(
+        &["simulate", "dish/scenario.json", "--out", "again"],
+        dir.path(),
+    );
+    assert_eq!(
+        again.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&again.stderr)
+    );
+    for f in ["spikes.csv", "layout.csv", "truth.json"] {
+        assert_eq!(
+            std::fs::read(dir.path().join("dish").join(f)).unwrap(),
+            std::fs::read(dir.path().join("again").join(f)).unwrap(),
+            "{f} differs"
+        );
+    }
+    let out = ringline(
+        &[
+            "simulate",
+            "--pattern",
+            "disk",
+            "--electrodes",
+            "10",
+            "--out",
+            "x",
+        ],
+        dir.path(),
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        String::from_utf8_lossy(&out.stderr).contains("--electrodes: a dish takes a square grid")
+    );
+    let out = ringline(&["simulate", "--width-um=-5", "--out", "x"], dir.path());
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr)
+        .contains("--width-um: expected a number above 0, found -5"));
+    let out = ringline(
+        &[
+            "simulate",
+            "dish/scenario.json",
+            "--pattern",
+            "ring",
+            "--out",
+            "x",
+        ],
+        dir.path(),
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("not both"));
+}

@@ -122,8 +122,10 @@ enum EstimatorArg {
 
 #[derive(Args, Debug)]
 struct SimulateArgs {
-    /// Scenario file (JSON), for example one of demo-data/scenarios/.
-    scenario: String,
+    /// Scenario file (JSON), for example one of demo-data/scenarios/. Without it, a spiking
+    /// network culture is built from the culture options below and its scenario is written
+    /// to the output folder as scenario.json.
+    scenario: Option<String>,
     /// Folder to write into (created if missing).
     #[arg(long)]
     out: String,
@@ -133,6 +135,94 @@ struct SimulateArgs {
     /// Replace the scenario's duration, seconds.
     #[arg(long, value_name = "S")]
     duration: Option<f64>,
+    #[command(flatten)]
+    culture: CultureArgs,
+}
+
+/// A network culture from options (used when no scenario file is given).
+#[derive(Args, Debug)]
+struct CultureArgs {
+    /// Culture pattern (default strip).
+    #[arg(long, value_enum, help_heading = "Culture (without a scenario file)")]
+    pattern: Option<PatternArg>,
+    /// Strip length or square dish side, µm [6000 for a strip, 2000 for a dish].
+    #[arg(
+        long,
+        value_name = "UM",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    length_um: Option<f64>,
+    /// Strip or ring width, µm [300].
+    #[arg(
+        long,
+        value_name = "UM",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    width_um: Option<f64>,
+    /// Ring mid-radius or round dish radius, µm [1500 for a ring, 1000 for a disk].
+    #[arg(
+        long,
+        value_name = "UM",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    radius_um: Option<f64>,
+    /// Neurons per mm² [1500].
+    #[arg(
+        long,
+        value_name = "N",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    density: Option<f64>,
+    /// Mean inputs per neuron [100].
+    #[arg(
+        long,
+        value_name = "K",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    in_degree: Option<f64>,
+    /// Length of the Gaussian connection footprint, µm [150].
+    #[arg(
+        long,
+        value_name = "UM",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    sigma_um: Option<f64>,
+    /// Electrodes: a row, a circle or a square grid (a square number) [16, 24, 64]; 0 for none.
+    #[arg(
+        long,
+        value_name = "N",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    electrodes: Option<usize>,
+    /// ROIs of calcium imaging at 20 frames/s [none].
+    #[arg(
+        long,
+        value_name = "N",
+        help_heading = "Culture (without a scenario file)"
+    )]
+    rois: Option<usize>,
+}
+
+impl CultureArgs {
+    fn any(&self) -> bool {
+        self.pattern.is_some()
+            || self.length_um.is_some()
+            || self.width_um.is_some()
+            || self.radius_um.is_some()
+            || self.density.is_some()
+            || self.in_degree.is_some()
+            || self.sigma_um.is_some()
+            || self.electrodes.is_some()
+            || self.rois.is_some()
+    }
+}
+
+#[derive(Clone, Copy, Debug, ValueEnum)]
+enum PatternArg {
+    Strip,
+    Ring,
+    Dish,
+    Disk,
 }
 
 #[derive(Args, Debug)]
@@ -516,21 +606,58 @@ fn voltage_settings(
 }
 
 fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
-    let bytes = read_file(&args.scenario, &ImportLimits::default())?;
-    let text = String::from_utf8(bytes)
-        .map_err(|_| Failure::Input(format!("{}: expected UTF-8 JSON text", args.scenario)))?;
-    let mut scenario = crate::simulate::parse_scenario(&text)
-        .map_err(|e| Failure::Input(format!("{}: {e}", args.scenario)))?;
-    match &mut scenario {
-        crate::simulate::Scenario::Fronts(s) => {
-            s.seed = args.seed.unwrap_or(s.seed);
-            s.duration_s = args.duration.unwrap_or(s.duration_s);
+    let (scenario, source) = match &args.scenario {
+        Some(path) => {
+            if args.culture.any() {
+                return Err(Failure::Input(format!(
+                    "{path}: give a scenario file or culture options (--pattern, --length-um, ...), not both"
+                )));
+            }
+            let bytes = read_file(path, &ImportLimits::default())?;
+            let text = String::from_utf8(bytes)
+                .map_err(|_| Failure::Input(format!("{path}: expected UTF-8 JSON text")))?;
+            let mut scenario = crate::simulate::parse_scenario(&text)
+                .map_err(|e| Failure::Input(format!("{path}: {e}")))?;
+            match &mut scenario {
+                crate::simulate::Scenario::Fronts(s) => {
+                    s.seed = args.seed.unwrap_or(s.seed);
+                    s.duration_s = args.duration.unwrap_or(s.duration_s);
+                }
+                crate::simulate::Scenario::Network(s) => {
+                    s.seed = args.seed.unwrap_or(s.seed);
+                    s.duration_s = args.duration.unwrap_or(s.duration_s);
+                }
+            }
+            (scenario, path.clone())
         }
-        crate::simulate::Scenario::Network(s) => {
-            s.seed = args.seed.unwrap_or(s.seed);
-            s.duration_s = args.duration.unwrap_or(s.duration_s);
+        None => {
+            let c = &args.culture;
+            let options = crate::simulate::network::CultureOptions {
+                shape: match c.pattern.unwrap_or(PatternArg::Strip) {
+                    PatternArg::Strip => crate::simulate::network::CultureShape::Strip,
+                    PatternArg::Ring => crate::simulate::network::CultureShape::Ring,
+                    PatternArg::Dish => crate::simulate::network::CultureShape::Dish,
+                    PatternArg::Disk => crate::simulate::network::CultureShape::Disk,
+                },
+                length_um: c.length_um,
+                width_um: c.width_um,
+                radius_um: c.radius_um,
+                density_per_mm2: c.density,
+                mean_in_degree: c.in_degree,
+                sigma_um: c.sigma_um,
+                electrodes: c.electrodes,
+                rois: c.rois.unwrap_or(0),
+                duration_s: args.duration.unwrap_or(60.0),
+                seed: args.seed.unwrap_or(1),
+            };
+            let scenario = crate::simulate::network::scenario_from_options(&options)
+                .map_err(Failure::Input)?;
+            (
+                crate::simulate::Scenario::Network(Box::new(scenario)),
+                "culture options".to_string(),
+            )
         }
-    }
+    };
     use std::io::IsTerminal;
     let show = std::io::stderr().is_terminal();
     let mut progress = |stage: &str, done: f64, total: f64| {
@@ -538,8 +665,15 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
             eprint!("\r{stage}: {done:.0} of {total:.0} s simulated   ");
         }
     };
-    let files = crate::simulate::simulation_files(&scenario, &mut progress)
-        .map_err(|e| Failure::Input(format!("{}: {e}", args.scenario)))?;
+    let mut files = crate::simulate::simulation_files(&scenario, &mut progress)
+        .map_err(|e| Failure::Input(format!("{source}: {e}")))?;
+    if args.scenario.is_none() {
+        // The culture the options built, to edit and run again as a scenario file.
+        let mut text = serde_json::to_string_pretty(&scenario)
+            .map_err(|e| Failure::Input(format!("culture options: {e}")))?;
+        text.push('\n');
+        files.push(("scenario.json".to_string(), text.into_bytes()));
+    }
     if show {
         eprintln!();
     }

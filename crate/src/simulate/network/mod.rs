@@ -13,6 +13,6 @@ pub use culture::{
 };
 pub use dynamics::{integrate, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams};
 pub use scenario::{
-    simulate_network, DriveParams, Electrodes, Imaging, NetworkRecording, NetworkScenario,
-    NetworkTruth, NetworkTruthBurst,
+    scenario_from_options, simulate_network, CultureOptions, CultureShape, DriveParams, Electrodes,
+    Imaging, NetworkRecording, NetworkScenario, NetworkTruth, NetworkTruthBurst,
 };

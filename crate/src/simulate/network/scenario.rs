@@ -434,3 +434,202 @@ fn record_imaging(
     }
     (sites, time_s, series)
 }
+
+/// The shape of a culture built from options.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CultureShape {
+    /// A straight strip; electrodes in a row along its middle.
+    Strip,
+    /// A ring annulus; electrodes on its mid-circle.
+    Ring,
+    /// A square dish; electrodes in a square grid.
+    Dish,
+    /// A round dish; electrodes in a square grid inside it.
+    Disk,
+}
+
+/// A network culture described by a few numbers (`ringline simulate` without a scenario
+/// file). What is left `None` takes the shape's default; neuron, synapse, drive and noise
+/// parameters are those of the demo cultures. Lengths in micrometres.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CultureOptions {
+    pub shape: CultureShape,
+    /// Strip length (default 6,000) or dish side (default 2,000).
+    pub length_um: Option<f64>,
+    /// Strip or ring width (default 300).
+    pub width_um: Option<f64>,
+    /// Ring mid-radius (default 1,500) or round dish radius (default 1,000).
+    pub radius_um: Option<f64>,
+    /// Neurons per mm^2 (default 1,500).
+    pub density_per_mm2: Option<f64>,
+    /// Mean inputs per neuron (default 100).
+    pub mean_in_degree: Option<f64>,
+    /// Gaussian footprint length (default 150).
+    pub sigma_um: Option<f64>,
+    /// Electrodes: a row (strip), a circle (ring) or a square grid (dish, disk; must be a
+    /// square number). Default 16, 24, 64 and 64; 0 for none.
+    pub electrodes: Option<usize>,
+    /// ROIs of virtual calcium imaging at 20 frames/s (default 0: no imaging).
+    pub rois: usize,
+    pub duration_s: f64,
+    pub seed: u64,
+}
+
+/// Builds the scenario that [`CultureOptions`] describe; the message names the option.
+pub fn scenario_from_options(o: &CultureOptions) -> Result<NetworkScenario, String> {
+    let positive = |name: &str, v: Option<f64>, default: f64| -> Result<f64, String> {
+        let v = v.unwrap_or(default);
+        if v.is_finite() && v > 0.0 {
+            Ok(v)
+        } else {
+            Err(format!("--{name}: expected a number above 0, found {v}"))
+        }
+    };
+    let length = positive(
+        "length-um",
+        o.length_um,
+        if o.shape == CultureShape::Strip {
+            6000.0
+        } else {
+            2000.0
+        },
+    )?;
+    let width = positive("width-um", o.width_um, 300.0)?;
+    let radius = positive(
+        "radius-um",
+        o.radius_um,
+        if o.shape == CultureShape::Ring {
+            1500.0
+        } else {
+            1000.0
+        },
+    )?;
+    let count = o.electrodes.unwrap_or(match o.shape {
+        CultureShape::Strip => 16,
+        CultureShape::Ring => 24,
+        CultureShape::Dish | CultureShape::Disk => 64,
+    });
+    let grid = |side_um: f64, corner: [f64; 2]| -> Result<(ElectrodeLayout, [f64; 2]), String> {
+        let rows = (count as f64).sqrt().round() as usize;
+        if rows * rows != count {
+            return Err(format!(
+                "--electrodes: a dish takes a square grid (16, 36, 64, ...), found {count}"
+            ));
+        }
+        let pitch = side_um / rows as f64;
+        Ok((
+            ElectrodeLayout::Grid {
+                rows,
+                columns: rows,
+                pitch_um: pitch,
+            },
+            [corner[0] + pitch / 2.0, corner[1] + pitch / 2.0],
+        ))
+    };
+    let (pattern, layout) = match o.shape {
+        CultureShape::Strip => (
+            Pattern::Strip {
+                length_um: length,
+                width_um: width,
+            },
+            (
+                ElectrodeLayout::Row {
+                    count,
+                    pitch_um: length / count.max(1) as f64,
+                    angle_deg: 0.0,
+                },
+                [length / count.max(1) as f64 / 2.0, 0.0],
+            ),
+        ),
+        CultureShape::Ring => (
+            Pattern::Annulus {
+                radius_um: radius,
+                width_um: width,
+            },
+            (
+                ElectrodeLayout::Circle {
+                    count,
+                    radius_um: radius,
+                },
+                [0.0, 0.0],
+            ),
+        ),
+        CultureShape::Dish => (
+            Pattern::Rectangle {
+                width_um: length,
+                height_um: length,
+            },
+            grid(length, [0.0, 0.0])?,
+        ),
+        CultureShape::Disk => {
+            // The largest square inside the disk.
+            let side = radius * std::f64::consts::SQRT_2;
+            (
+                Pattern::Disk { radius_um: radius },
+                grid(side, [-side / 2.0, -side / 2.0])?,
+            )
+        }
+    };
+    let shape_name = match o.shape {
+        CultureShape::Strip => "strip",
+        CultureShape::Ring => "ring",
+        CultureShape::Dish => "dish",
+        CultureShape::Disk => "disk",
+    };
+    let s = NetworkScenario {
+        name: format!("{shape_name}-culture"),
+        seed: o.seed,
+        duration_s: o.duration_s,
+        pattern,
+        density_per_mm2: positive("density", o.density_per_mm2, 1500.0)?,
+        excitatory_fraction: default_excitatory(),
+        connectivity: Connectivity {
+            footprint: super::culture::Footprint::Gaussian,
+            sigma_um: positive("sigma-um", o.sigma_um, 150.0)?,
+            mean_in_degree: positive("in-degree", o.mean_in_degree, 100.0)?,
+            weighted: false,
+        },
+        synaptic_delay_s: default_synaptic_delay(),
+        axon_speed_mm_s: default_axon_speed(),
+        neuron: NeuronParams {
+            tau_m_s: 0.02,
+            threshold_mv: 20.0,
+            reset_mv: 10.0,
+            refractory_s: 0.002,
+        },
+        drive: DriveParams {
+            mean_mv: 14.0,
+            sd_mv: 1.5,
+        },
+        noise: NoiseParams {
+            rate_hz: 20.0,
+            amplitude_mv: 1.0,
+        },
+        synapse: SynapseParams {
+            excitatory_mv: 4.0,
+            inhibitory_mv: 2.0,
+            depression_u: 0.5,
+            recovery_s: 3.0,
+        },
+        electrodes: (count > 0).then(|| Electrodes {
+            layout: layout.0,
+            offset_um: layout.1,
+            pickup_radius_um: 60.0,
+            detection_probability: 0.8,
+            dead: Vec::new(),
+            sampling_rate_hz: 25_000.0,
+            voltage: None,
+        }),
+        imaging: (o.rois > 0).then(|| Imaging {
+            rois: o.rois,
+            frame_rate_hz: 20.0,
+            decay_s: 0.5,
+            amplitude: 0.3,
+            noise_sd: 0.02,
+        }),
+    };
+    check_network_scenario(&s)
+        .map_err(|e| format!("the options describe a culture that cannot be run: {e}"))?;
+    Ok(s)
+}
