@@ -621,7 +621,7 @@ pub fn scenario_from_options(o: &CultureOptions) -> Result<NetworkScenario, Stri
             sampling_rate_hz: 25_000.0,
             voltage: None,
         }),
-        imaging: (o.rois > 0).then(|| Imaging {
+        imaging: (o.rois > 0).then_some(Imaging {
             rois: o.rois,
             frame_rate_hz: 20.0,
             decay_s: 0.5,
