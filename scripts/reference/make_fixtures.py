@@ -1,8 +1,8 @@
 #!/usr/bin/env python3
 """Reference fixtures for ringline's tests, computed with numpy and scipy.
 
-Writes tests/fixtures/geometry_reference.json, tests/fixtures/stats_reference.json and
-tests/fixtures/filter_reference.json.
+Writes tests/fixtures/geometry_reference.json, stats_reference.json, filter_reference.json,
+wav_reference.json (with the files in wav/) and siegert_reference.json.
 With --check, computes the same fixtures afresh and compares them with the committed files
 (numbers to a relative 1e-9), exiting 1 on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
 
@@ -26,7 +26,12 @@ References used:
 - WAV files: written by Python's standard `wave` module (16-bit PCM), by scipy.io.wavfile.write
   (32-bit float), and byte by byte after Microsoft's WAVE_FORMAT_EXTENSIBLE layout (16-bit
   PCM, with an odd-sized LIST chunk before the data); the expected samples are what
-  scipy.io.wavfile.read returns for each file.
+  scipy.io.wavfile.read returns for each file;
+- firing rate of a leaky integrate-and-fire neuron under white-noise input (the diffusion
+  limit of Poisson kicks): the Siegert formula as Brunel 2000 (J. Comput. Neurosci. 8:183,
+  eq. 21) writes it, 1/rate = t_ref + tau sqrt(pi) int_{(V_r - mu)/sigma}^{(theta - mu)/sigma}
+  exp(u^2) (1 + erf u) du, integrated by scipy.integrate.quad over scipy.special.erfcx(-u)
+  (= exp(u^2)(1 + erf u) without overflow).
 """
 import json
 import math
@@ -44,6 +49,7 @@ STATS_OUT = ROOT / "tests" / "fixtures" / "stats_reference.json"
 FILTER_OUT = ROOT / "tests" / "fixtures" / "filter_reference.json"
 WAV_OUT = ROOT / "tests" / "fixtures" / "wav_reference.json"
 WAV_DIR = ROOT / "tests" / "fixtures" / "wav"
+SIEGERT_OUT = ROOT / "tests" / "fixtures" / "siegert_reference.json"
 SEED = 20261201
 
 
@@ -265,6 +271,27 @@ def filter_fixtures(rng):
                          "scipy": scipy.__version__}, "cases": cases}
 
 
+def siegert_fixtures():
+    """Siegert rates for isolated LIF neurons kicked by Poisson input of rate nu and size J
+    (mu = drive + tau J nu, sigma = J sqrt(tau nu)): a fluctuation-driven pair with the kick
+    size quartered at the same mu and sigma, and a mean-driven case."""
+    from scipy.integrate import quad
+    from scipy.special import erfcx
+    tau, theta, reset, t_ref = 0.02, 20.0, 10.0, 0.002
+    cases = []
+    for drive, kick, rate in [(15.0, 0.1, 2000.0), (3.0, 0.025, 32000.0), (11.0, 0.025, 32000.0)]:
+        mu = drive + tau * kick * rate
+        sigma = kick * math.sqrt(tau * rate)
+        integral, _ = quad(lambda u: erfcx(-u), (reset - mu) / sigma, (theta - mu) / sigma,
+                           limit=200, epsabs=0.0, epsrel=1e-12)
+        cases.append({"drive_mv": drive, "kick_mv": kick, "kick_rate_hz": rate, "mu_mv": mu,
+                      "sigma_mv": sigma, "rate_hz": 1.0 / (t_ref + tau * math.sqrt(math.pi) * integral)})
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__,
+                         "scipy": scipy.__version__},
+            "tau_m_s": tau, "threshold_mv": theta, "reset_mv": reset, "refractory_s": t_ref,
+            "cases": cases}
+
+
 def wav_fixtures(rng, write):
     """Small WAV files from three writers and the samples scipy reads back. `write` is False
     for --check: the files are made in memory and compared with the committed bytes."""
@@ -338,7 +365,8 @@ def compare(a, b, path="$"):
 def main():
     outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1))),
                (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2))),
-               (WAV_OUT, wav_fixtures(np.random.default_rng(SEED + 3), "--check" not in sys.argv))]
+               (WAV_OUT, wav_fixtures(np.random.default_rng(SEED + 3), "--check" not in sys.argv)),
+               (SIEGERT_OUT, siegert_fixtures())]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:
