@@ -174,9 +174,15 @@ impl Schedule {
     /// Schedules an arrival while bucket `now` is processed; arrivals come at least one
     /// shortest delay (>= one bucket) after their spike and at most the longest delay, which
     /// the ring spans.
+    #[inline]
     fn push_arrival(&mut self, now: u64, a: Arrival) {
-        let b = self.bucket_of(a.time).max(now + 1);
-        self.arrivals[(b & self.mask) as usize].push(a);
+        // Times are never negative and far below 2^63 buckets, so the signed conversion
+        // (cheaper than the unsigned one) gives the same bucket as `bucket_of`.
+        let b = ((a.time * self.rate) as i64 as u64).max(now + 1);
+        let slot = (b & self.mask) as usize;
+        if let Some(bucket) = self.arrivals.get_mut(slot) {
+            bucket.push(a);
+        }
     }
 
     /// Moves heap events whose buckets have come within the ring's reach.
@@ -240,18 +246,19 @@ impl Engine<'_> {
     }
 
     /// Applies an input of `weight` mV to neuron `j` at `t`, and fires it when it reaches
-    /// threshold.
+    /// threshold. Inlined into the loops over arrivals and noise kicks: the common case (a
+    /// neuron below threshold whose drive cannot reach it) is a decay, an addition and a
+    /// comparison.
+    #[inline(always)]
     fn input(&mut self, j: usize, t: f64, weight: f64, b: u64) {
-        if apply_input(
-            &mut self.membrane[j],
-            t,
-            weight,
-            self.net.neuron,
-            &self.decay,
-        ) {
-            let ts = t.max(self.membrane[j].last);
+        let p = self.net.neuron;
+        let Some(m) = self.membrane.get_mut(j) else {
+            return;
+        };
+        if apply_input(m, t, weight, p, &self.decay) {
+            let ts = t.max(m.last);
             self.spike(j, ts, b);
-        } else {
+        } else if m.drive > p.threshold_mv {
             self.moved(j, b);
         }
     }
@@ -307,25 +314,36 @@ impl Engine<'_> {
         };
         let s = self.net.synapses;
         let (a, z) = (s.offsets[j] as usize, s.offsets[j + 1] as usize);
-        for k in a..z {
-            let link = s.links[k];
-            let time = t + f64::from(link.delay_s);
-            if time >= self.duration_s {
-                break; // the row is sorted by delay: the rest arrive later still
+        let row = &s.links[a..z];
+        // The row is sorted by delay: arrivals from `end` on fall after the run.
+        let end = row.partition_point(|l| t + f64::from(l.delay_s) < self.duration_s);
+        self.synaptic_events += end as u64;
+        match &s.weights {
+            None => {
+                let weight_mv = jump as f32;
+                for l in &row[..end] {
+                    self.q.push_arrival(
+                        b,
+                        Arrival {
+                            time: t + f64::from(l.delay_s),
+                            target: l.target,
+                            weight_mv,
+                        },
+                    );
+                }
             }
-            let weight = match &s.weights {
-                Some(w) => jump * f64::from(w[k]),
-                None => jump,
-            };
-            self.q.push_arrival(
-                b,
-                Arrival {
-                    time,
-                    target: link.target,
-                    weight_mv: weight as f32,
-                },
-            );
-            self.synaptic_events += 1;
+            Some(w) => {
+                for (l, &w) in row[..end].iter().zip(&w[a..z]) {
+                    self.q.push_arrival(
+                        b,
+                        Arrival {
+                            time: t + f64::from(l.delay_s),
+                            target: l.target,
+                            weight_mv: (jump * f64::from(w)) as f32,
+                        },
+                    );
+                }
+            }
         }
     }
 }
@@ -455,6 +473,7 @@ pub fn integrate(
 }
 
 /// Applies an input of `weight` mV at time `t`; returns whether the neuron reaches threshold.
+#[inline(always)]
 fn apply_input(
     s: &mut Membrane,
     t: f64,

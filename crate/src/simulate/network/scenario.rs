@@ -286,7 +286,8 @@ fn nearest_neurons(positions: &[[f64; 2]], i: usize, k: usize) -> Vec<usize> {
         by_distance.truncate(k);
     }
     by_distance.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-    by_distance.into_iter().map(|(_, j)| j).collect()
+    // From the slice, not `into_iter`: collecting in place would keep the whole buffer.
+    by_distance.iter().map(|&(_, j)| j).collect()
 }
 
 /// Bursts of the whole population and the front of each, fitted to the activation times of
