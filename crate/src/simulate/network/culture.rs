@@ -274,6 +274,11 @@ impl FootprintTable {
         }
     }
 
+    /// The largest value, at distance 0.
+    fn peak(&self) -> f64 {
+        self.values.iter().copied().fold(0.0, f64::max)
+    }
+
     /// Footprint at squared distance `d2` (0 beyond the cut-off).
     fn at(&self, footprint: Footprint, sigma: f64, d2: f64) -> f64 {
         if d2 > self.cutoff_sq {
@@ -425,6 +430,43 @@ impl CellGrid {
         }
     }
 
+    /// Calls `f(i, j)` once for every unordered pair of distinct points in cells within
+    /// `radius` of each other (a half stencil: each pair of cells is visited from one side).
+    fn for_pairs(&self, radius: f64, mut f: impl FnMut(u32, u32)) {
+        let reach = (radius / self.cell).ceil() as isize;
+        let (nx, ny) = (self.nx as isize, self.ny as isize);
+        let cell = |x: isize, y: isize| {
+            let k = (y * nx + x) as usize;
+            &self.order[self.start[k] as usize..self.start[k + 1] as usize]
+        };
+        for y in 0..ny {
+            for x in 0..nx {
+                let here = cell(x, y);
+                for (a, &i) in here.iter().enumerate() {
+                    for &j in &here[a + 1..] {
+                        f(i, j);
+                    }
+                }
+                // Cells after this one: the rest of this row, then the rows above.
+                for dy in 0..=reach {
+                    let lo = if dy == 0 { 1 } else { -reach };
+                    for dx in lo..=reach {
+                        let (ox, oy) = (x + dx, y + dy);
+                        if ox < 0 || ox >= nx || oy >= ny {
+                            continue;
+                        }
+                        let there = cell(ox, oy);
+                        for &i in here {
+                            for &j in there {
+                                f(i, j);
+                            }
+                        }
+                    }
+                }
+            }
+        }
+    }
+
     /// Calls `f(j)` for every point in cells within `radius` of `p`.
     fn for_near(&self, p: [f64; 2], radius: f64, mut f: impl FnMut(u32)) {
         let reach = (radius / self.cell).ceil() as isize;
@@ -495,20 +537,23 @@ pub fn wire(
         let bins = (cutoff / check.bin_um).ceil() as usize + 1;
         check.expected = vec![0.0; bins];
         check.made = vec![0; bins];
+        // Pass 1 (probabilistic wiring): the sum of footprint values over all pairs within
+        // the cut-off, in total and per distance bin, each pair visited once.
+        let mut sum_by_bin = vec![0.0; bins];
         let scale = if c.weighted {
             1.0
         } else {
-            // Pass 1: sum of footprint values over all pairs within the cut-off.
             let mut total = 0.0;
-            for (j, &pj) in positions.iter().enumerate() {
-                grid.for_near(pj, cutoff, |i| {
-                    let pi = positions[i as usize];
-                    let (dx, dy) = (pi[0] - pj[0], pi[1] - pj[1]);
-                    if i as usize != j {
-                        total += table.at(c.footprint, sigma, dx * dx + dy * dy);
-                    }
-                });
-            }
+            grid.for_pairs(cutoff, |i, j| {
+                let (pi, pj) = (positions[i as usize], positions[j as usize]);
+                let (dx, dy) = (pi[0] - pj[0], pi[1] - pj[1]);
+                let d2 = dx * dx + dy * dy;
+                if d2 <= table.cutoff_sq {
+                    let f = table.at(c.footprint, sigma, d2);
+                    total += 2.0 * f;
+                    sum_by_bin[((libm::sqrt(d2) / check.bin_um) as usize).min(bins - 1)] += 2.0 * f;
+                }
+            });
             if total > 0.0 {
                 c.mean_in_degree * n as f64 / total
             } else {
@@ -516,6 +561,14 @@ pub fn wire(
             }
         };
         check.scale = scale;
+        // Without clipping (scale f <= 1 everywhere) the expected connections per bin follow
+        // from pass 1; with it, each candidate adds its clipped probability below.
+        let clipped = !c.weighted && scale * table.peak() > 1.0;
+        if !c.weighted && !clipped {
+            for (e, s) in check.expected.iter_mut().zip(&sum_by_bin) {
+                *e = scale * s;
+            }
+        }
         for (j, &pj) in positions.iter().enumerate() {
             grid.for_near(pj, cutoff, |i| {
                 if i as usize == j {
@@ -528,19 +581,22 @@ pub fn wire(
                     return;
                 }
                 let f = table.at(c.footprint, sigma, d2);
-                let bin = ((libm::sqrt(d2) / check.bin_um) as usize).min(bins - 1);
+                let bin = |d2: f64| ((libm::sqrt(d2) / check.bin_um) as usize).min(bins - 1);
                 if c.weighted {
                     if f > 0.0 {
                         incoming[j].push((i, f as f32));
-                        check.made[bin] += 1;
-                        check.expected[bin] += 1.0;
+                        let b = bin(d2);
+                        check.made[b] += 1;
+                        check.expected[b] += 1.0;
                     }
                 } else {
                     let p = (scale * f).min(1.0);
-                    check.expected[bin] += p;
+                    if clipped {
+                        check.expected[bin(d2)] += p;
+                    }
                     if uniform(rng) < p {
                         incoming[j].push((i, 1.0));
-                        check.made[bin] += 1;
+                        check.made[bin(d2)] += 1;
                     }
                 }
             });
