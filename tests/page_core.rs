@@ -202,3 +202,89 @@ fn drawn_model_matches_the_fitted_front() {
         }
     }
 }
+
+/// An imaging recording gets a raster and a population rate too, drawn from the calcium
+/// events the analysis found: before the analysis the raster asks for it; after it, the
+/// raster has one tick per event onset in its window, the events being what
+/// `detect::calcium` finds on the traces (checked against known onsets in
+/// tests/calcium.rs), and the rate is labelled in events/s.
+#[test]
+fn imaging_recordings_get_an_event_raster_and_rate() {
+    use ringline::detect::calcium::{delta_f_over_f, event_onsets};
+    use ringline::recording::Activity;
+    let dir = format!(
+        "{}/../demo-data/network-strip-16",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let traces = std::fs::read(format!("{dir}/traces.csv")).unwrap();
+    let layout = std::fs::read(format!("{dir}/roi_layout.csv")).unwrap();
+    let mut wb = Workbook::open(
+        ("traces.csv", &traces),
+        ("roi_layout.csv", &layout),
+        StepSettings::default(),
+    )
+    .unwrap();
+    let size = Size {
+        width_px: 800,
+        height_px: 500,
+    };
+    let before = wb.figure(&FigureRequest::Raster, size).unwrap_err();
+    assert!(
+        before.message.contains("run the analysis first"),
+        "{}",
+        before.message
+    );
+    let settings = AnalysisSettings::default();
+    wb.analyze(settings.clone(), &mut |_, _| {}).unwrap();
+    let raster = wb.figure(&FigureRequest::Raster, size).unwrap();
+    assert!(raster.svg.contains("Calcium event onsets by site"));
+    // The events, found independently on the same traces.
+    let recording = ringline::import::read_recording(
+        ("traces.csv", &traces),
+        ("roi_layout.csv", &layout),
+        &ReadOptions::default(),
+    )
+    .unwrap();
+    let Activity::Traces {
+        time_s,
+        frame_interval_s,
+        values,
+    } = &recording.activity
+    else {
+        panic!("expected traces");
+    };
+    let rate = 1.0 / frame_interval_s;
+    let [from_s, to_s] = wb.window_s();
+    let in_window: usize = values
+        .iter()
+        .map(|f| {
+            event_onsets(
+                &delta_f_over_f(f, rate, &settings.calcium),
+                time_s,
+                rate,
+                &settings.calcium,
+            )
+            .into_iter()
+            .filter(|&t| t >= from_s && t <= to_s)
+            .count()
+        })
+        .sum();
+    // Ticks are `M x y v length` segments, one path per row (paths of nothing else).
+    let ticks: usize = raster
+        .svg
+        .split("<path d=\"")
+        .skip(1)
+        .map(|p| p.split('"').next().unwrap_or(""))
+        .filter(|d| {
+            d.starts_with('M')
+                && d.chars().all(|c| {
+                    c == 'M' || c == 'v' || c == ' ' || c == '.' || c == '-' || c.is_ascii_digit()
+                })
+        })
+        .map(|d| d.matches('M').count())
+        .sum();
+    assert!(in_window > 20, "{in_window} events in the window");
+    assert_eq!(ticks, in_window);
+    let rate_figure = wb.figure(&FigureRequest::PopulationRate, size).unwrap();
+    assert!(rate_figure.svg.contains("rate (events/s)"));
+}

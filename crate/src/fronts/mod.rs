@@ -118,6 +118,12 @@ pub struct Analysis {
     pub bursts: Vec<BurstResult>,
     pub summary: Summary,
     pub notices: Vec<Notice>,
+    /// For fluorescence traces: the event onsets found in each ROI, seconds (what the bursts
+    /// and fronts were measured on); `None` for spike lists.
+    pub event_trains_s: Option<Vec<Vec<f64>>>,
+    /// The population-rate settings the burst detector used (for traces, widened to the
+    /// frame interval).
+    pub population_rate: crate::detect::PopulationRateSettings,
 }
 
 /// The analysis layer's error.
@@ -149,7 +155,7 @@ pub fn analyze(
 ) -> Result<Analysis, AnalysisError> {
     check_settings(settings)?;
     let mut notices = Vec::new();
-    let event_trains: Vec<Vec<f64>>;
+    let mut event_trains: Option<Vec<Vec<f64>>> = None;
     let mut settings = std::borrow::Cow::Borrowed(settings);
     let frame_interval_s = match &recording.activity {
         Activity::Traces {
@@ -167,11 +173,11 @@ pub fn analyze(
             use crate::detect::calcium::{delta_f_over_f, event_onsets};
             let rate = 1.0 / frame_interval_s;
             let c = &settings.calcium;
-            event_trains = values
+            let trains: Vec<Vec<f64>> = values
                 .iter()
                 .map(|f| event_onsets(&delta_f_over_f(f, rate, c), time_s, rate, c))
                 .collect();
-            let events: usize = event_trains.iter().map(Vec::len).sum();
+            let events: usize = trains.iter().map(Vec::len).sum();
             notices.push(Notice::new(
                 crate::place::Place::default(),
                 format!(
@@ -195,7 +201,7 @@ pub fn analyze(
             let p = &mut s.bursts.population_rate;
             p.bin_s = p.bin_s.max(*frame_interval_s);
             p.smooth_sd_s = p.smooth_sd_s.max(5.0 * frame_interval_s);
-            &event_trains
+            event_trains.insert(trains)
         }
     };
     let settings: &AnalysisSettings = &settings;
@@ -244,6 +250,8 @@ pub fn analyze(
         bursts: results,
         summary,
         notices,
+        population_rate: settings.bursts.population_rate.clone(),
+        event_trains_s: event_trains,
     })
 }
 

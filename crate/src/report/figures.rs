@@ -284,10 +284,20 @@ pub struct RasterRow<'a> {
     pub spikes_s: &'a [f64],
 }
 
-/// Raster of spikes between `from_s` and `to_s`, one row per site ordered by track coordinate
-/// (sites without one keep their order, below), with burst windows shaded.
+/// What the trains of a raster or a population rate hold.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum TrainKind {
+    Spikes,
+    /// Calcium event onsets (imaging).
+    Events,
+}
+
+/// Raster of spikes (or calcium event onsets) between `from_s` and `to_s`, one row per site
+/// ordered by track coordinate (sites without one keep their order, below), with burst
+/// windows shaded.
 pub fn raster(
     rows: &[RasterRow<'_>],
+    kind: TrainKind,
     bursts: &[BurstResult],
     from_s: f64,
     to_s: f64,
@@ -307,7 +317,11 @@ pub fn raster(
     let n = rows.len() as f64;
     // Each row's ticks fill 80% of its height.
     let row_half_px = 0.4 * f64::from(size.height_px.saturating_sub(82)) / n;
-    let title = format!("Spikes by site (ordered along the track), {from_s:.1}-{to_s:.1} s");
+    let ticks = match kind {
+        TrainKind::Spikes => "Spikes",
+        TrainKind::Events => "Calcium event onsets",
+    };
+    let title = format!("{ticks} by site (ordered along the track), {from_s:.1}-{to_s:.1} s");
     chart(
         size,
         &title,
@@ -351,6 +365,7 @@ pub fn raster(
 /// edge levels.
 pub fn population_rate(
     rate: &PopulationRate,
+    kind: TrainKind,
     from_s: f64,
     to_s: f64,
     size: Size,
@@ -371,7 +386,14 @@ pub fn population_rate(
         size,
         "Population rate (all sites)",
         (from_s, to_s, "time (s)"),
-        (0.0, top.max(1e-9), "rate (spikes/s)"),
+        (
+            0.0,
+            top.max(1e-9),
+            match kind {
+                TrainKind::Spikes => "rate (spikes/s)",
+                TrainKind::Events => "rate (events/s)",
+            },
+        ),
         |c| {
             c.polyline(&samples, BLUE, 1.0);
             for (level, colour) in [(rate.threshold_hz, VERMILLION), (rate.edge_hz, ORANGE)] {

@@ -13,6 +13,7 @@ use crate::fronts::AnalysisSettings;
 use crate::geometry::{fit_track, TrackFit, TrackSettings};
 use crate::import::{read_recording, ReadOptions};
 use crate::recording::{Activity, Recording};
+use crate::report::figures::TrainKind;
 use crate::Error;
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
@@ -195,6 +196,8 @@ pub struct Workbook {
     inspection: Inspection,
     report: Option<AnalysisReport>,
     rate: Option<PopulationRate>,
+    /// For fluorescence traces, the event onsets per ROI that the last analysis found.
+    events: Option<Vec<Vec<f64>>>,
 }
 
 impl Workbook {
@@ -232,6 +235,7 @@ impl Workbook {
             inspection,
             report: None,
             rate: None,
+            events: None,
         })
     }
 
@@ -302,14 +306,18 @@ impl Workbook {
         settings: AnalysisSettings,
         progress: &mut dyn FnMut(usize, usize),
     ) -> Result<&AnalysisReport, Error> {
-        let analysis = crate::fronts::analyze(&self.recording, &self.fit, &settings, progress)?;
-        let report = AnalysisReport::new(&self.recording, &self.fit, &settings, analysis);
-        self.rate = match &self.recording.activity {
-            Activity::Spikes { trains_s } => {
-                population_rate(trains_s, &settings.bursts.population_rate)
+        let mut analysis = crate::fronts::analyze(&self.recording, &self.fit, &settings, progress)?;
+        self.events = analysis.event_trains_s.take();
+        self.rate = match (&self.recording.activity, &self.events) {
+            (Activity::Spikes { trains_s }, _) => {
+                population_rate(trains_s, &analysis.population_rate)
             }
-            Activity::Traces { .. } => None,
+            (Activity::Traces { .. }, Some(events)) => {
+                population_rate(events, &analysis.population_rate)
+            }
+            (Activity::Traces { .. }, None) => None,
         };
+        let report = AnalysisReport::new(&self.recording, &self.fit, &settings, analysis);
         self.settings.analysis = settings;
         if !report
             .bursts
@@ -341,10 +349,15 @@ impl Workbook {
         match request {
             FigureRequest::SiteMap => figures::site_map(&self.inspection, size),
             FigureRequest::Raster => {
-                let Activity::Spikes { trains_s } = &self.recording.activity else {
-                    return Err(FigureError {
-                        message: "a raster needs spike times; this recording holds traces".into(),
-                    });
+                // Traces: the event onsets the analysis found (none before it runs).
+                let (trains_s, kind) = match (&self.recording.activity, &self.events) {
+                    (Activity::Spikes { trains_s }, _) => (trains_s, TrainKind::Spikes),
+                    (Activity::Traces { .. }, Some(events)) => (events, TrainKind::Events),
+                    (Activity::Traces { .. }, None) => {
+                        return Err(FigureError {
+                            message: "run the analysis first: the raster of an imaging recording shows the calcium events it finds".into(),
+                        })
+                    }
                 };
                 let rows: Vec<RasterRow<'_>> = self
                     .inspection
@@ -358,14 +371,18 @@ impl Workbook {
                     })
                     .collect();
                 let bursts = self.report.as_ref().map_or(&[][..], |r| &r.bursts[..]);
-                figures::raster(&rows, bursts, from_s, to_s, size)
+                figures::raster(&rows, kind, bursts, from_s, to_s, size)
             }
             FigureRequest::PopulationRate => {
                 need()?;
                 let rate = self.rate.as_ref().ok_or_else(|| FigureError {
-                    message: "no population rate (no spikes)".into(),
+                    message: "no population rate (no spikes or events)".into(),
                 })?;
-                figures::population_rate(rate, from_s, to_s, size)
+                let kind = match self.recording.activity {
+                    Activity::Spikes { .. } => TrainKind::Spikes,
+                    Activity::Traces { .. } => TrainKind::Events,
+                };
+                figures::population_rate(rate, kind, from_s, to_s, size)
             }
             FigureRequest::IntervalHistogram => figures::interval_histogram(need()?, size),
             FigureRequest::Activation => {
