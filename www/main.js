@@ -105,6 +105,7 @@ const state = {
   report: null,
   svgs: {},           // figure name -> SVG text, for export
   fileStem: 'ringline',
+  simulated: null,    // file name -> text of the last simulated culture
 };
 
 function setStatus(text, isProblem = false) {
@@ -325,6 +326,41 @@ async function useDemo() {
   const demo = await call('demo');
   const make = (name, text) => new File([text], name.split('/').pop(), { type: 'text/csv' });
   await addFiles([make(demo.activity_name, demo.activity), make(demo.layout_name, demo.layout)]);
+}
+
+/** Runs the culture the simulator form describes in the worker and opens its recording. */
+async function simulateCulture(event) {
+  event.preventDefault();
+  clearError('input-error');
+  const form = $('sim-form');
+  const options = { shape: form.shape.value };
+  for (const name of ['length_um', 'width_um', 'radius_um', 'density_per_mm2', 'mean_in_degree', 'sigma_um', 'electrodes', 'duration_s', 'seed']) {
+    if (form[name].value !== '') options[name] = Number(form[name].value);
+  }
+  $('sim-progress-row').hidden = false;
+  $('sim-result').hidden = true;
+  $('sim-button').disabled = true;
+  $('sim-progress').value = 0;
+  $('sim-progress-text').textContent = 'growing and wiring the culture…';
+  try {
+    const files = await call('simulateCulture', { options }, (done, total, stage) => {
+      if (stage !== 'integrating') return;
+      $('sim-progress').max = Math.max(1, total);
+      $('sim-progress').value = done;
+      $('sim-progress-text').textContent = `simulating: ${Math.round(done)} of ${Math.round(total)} s of culture time`;
+    });
+    state.simulated = Object.fromEntries(files);
+    const truth = JSON.parse(state.simulated['truth.json']);
+    $('sim-result-text').textContent = `Simulated ${truth.neurons} neurons for ${truth.scenario.duration_s} s: ${truth.spikes} spikes, ${truth.bursts.length} bursts.`;
+    $('sim-result').hidden = false;
+    const make = (name) => new File([state.simulated[name]], name, { type: 'text/csv' });
+    await addFiles([make('spikes.csv'), make('layout.csv')]);
+  } catch (e) {
+    showError('input-error', e);
+  } finally {
+    $('sim-progress-row').hidden = true;
+    $('sim-button').disabled = false;
+  }
 }
 
 function hideFrom(stepId) {
@@ -623,6 +659,14 @@ function wire() {
     e.target.value = '';
   });
   $('demo-button').addEventListener('click', () => useDemo().catch((err) => showError('input-error', err)));
+  $('sim-form').addEventListener('submit', simulateCulture);
+  $('sim-cancel').addEventListener('click', () => restartWorker('Simulation cancelled.'));
+  for (const b of document.querySelectorAll('.sim-save')) {
+    b.addEventListener('click', () => {
+      const name = b.dataset.file;
+      if (state.simulated?.[name]) download(name, state.simulated[name], 'application/json');
+    });
+  }
   $('track-form').addEventListener('submit', refitTrack);
   $('burst-form').addEventListener('submit', runAnalysis);
   $('window-form').addEventListener('submit', setWindow);

@@ -93,6 +93,7 @@ const ops = {
   exports: () => need().exports(),
   notebook: () => need().notebookJson(),
   simulate: ({ scenario }, id) => core.simulate(scenario, (stage, done, total) => postMessage({ id, progress: [done, total], stage })),
+  simulateCulture: ({ options }, id) => core.simulateCulture(options, (stage, done, total) => postMessage({ id, progress: [done, total], stage })),
   panic: () => core.panicForTest(),
 };
 

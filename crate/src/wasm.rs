@@ -163,6 +163,20 @@ fn progress_fn(progress: &Option<js_sys::Function>) -> impl FnMut(f64, f64) + '_
     }
 }
 
+/// [`progress_fn`] with the stage's name first: `progress(stage, done, total)`.
+fn staged_progress_fn(progress: &Option<js_sys::Function>) -> impl FnMut(&str, f64, f64) + '_ {
+    move |stage: &str, done: f64, total: f64| {
+        if let Some(f) = progress {
+            let _ = f.call3(
+                &JsValue::NULL,
+                &JsValue::from_str(stage),
+                &JsValue::from(done),
+                &JsValue::from(total),
+            );
+        }
+    }
+}
+
 fn message<E: std::fmt::Display + Serialize>(e: &E) -> JsValue {
     #[derive(Serialize)]
     struct Located<'a, E> {
@@ -448,18 +462,32 @@ pub fn simulate(
 ) -> Result<JsValue, JsValue> {
     let scenario = crate::simulate::parse_scenario(scenario_json)
         .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
-    let mut report = |stage: &str, done: f64, total: f64| {
-        if let Some(f) = &progress {
-            let _ = f.call3(
-                &JsValue::NULL,
-                &JsValue::from_str(stage),
-                &JsValue::from(done),
-                &JsValue::from(total),
-            );
-        }
-    };
+    let mut report = staged_progress_fn(&progress);
     let files = crate::simulate::simulation_files(&scenario, &mut report)
         .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
+    text_files(files)
+}
+
+/// `ringline simulate` with culture options instead of a scenario file (an object with the
+/// fields of `CultureOptions`: `shape` and, all optional, `length_um`, `width_um`,
+/// `radius_um`, `density_per_mm2`, `mean_in_degree`, `sigma_um`, `electrodes`, `rois`,
+/// `duration_s`, `seed`). Returns `[[file name, content], ...]` like [`simulate`], ending
+/// with `scenario.json`.
+#[wasm_bindgen(js_name = simulateCulture)]
+pub fn simulate_culture(
+    options: JsValue,
+    progress: Option<js_sys::Function>,
+) -> Result<JsValue, JsValue> {
+    let options: crate::simulate::network::CultureOptions = serde_wasm_bindgen::from_value(options)
+        .map_err(|e| JsValue::from_str(&format!("culture options: {e}")))?;
+    let mut report = staged_progress_fn(&progress);
+    let files = crate::simulate::culture_files(&options, &mut report)
+        .map_err(|e| JsValue::from_str(&format!("culture options: {e}")))?;
+    text_files(files)
+}
+
+/// The text files among `files`, as `[[name, content], ...]` for JavaScript.
+fn text_files(files: Vec<(String, Vec<u8>)>) -> Result<JsValue, JsValue> {
     let text: Vec<(String, String)> = files
         .into_iter()
         .filter_map(|(name, bytes)| String::from_utf8(bytes).ok().map(|t| (name, t)))

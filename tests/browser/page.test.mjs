@@ -271,6 +271,32 @@ test('the simulator in the page writes the same bytes as the native command line
   await context.close();
 });
 
+test('a culture simulated in the page gives the command line\'s files and analysis', async () => {
+  const out = mkdtempSync(join(tmpdir(), 'ringline-culture-'));
+  execFileSync(cli, ['simulate', '--pattern', 'strip', '--length-um', '3000', '--density', '1000', '--duration', '20', '--seed', '2', '--out', out], { stdio: 'ignore' });
+  const { report } = cliAnalysis(join(out, 'spikes.csv'), join(out, 'layout.csv'));
+  const { page, context, errors } = await openPage(base);
+  await page.click('#simulator summary');
+  await page.selectOption('#sim-form select[name=shape]', 'strip');
+  await page.fill('#sim-form input[name=length_um]', '3000');
+  await page.fill('#sim-form input[name=density_per_mm2]', '1000');
+  await page.fill('#sim-form input[name=duration_s]', '20');
+  await page.fill('#sim-form input[name=seed]', '2');
+  await page.click('#sim-button');
+  await page.locator('#fig-site_map').waitFor({ state: 'visible', timeout: 60000 });
+  for (const name of ['spikes.csv', 'layout.csv', 'truth.json', 'scenario.json']) {
+    const text = await page.evaluate((n) => window.ringline.state.simulated[n], name);
+    assert.ok(text === readFileSync(join(out, name), 'utf8'), `${name} differs between the page and the command line`);
+  }
+  assert.match(await page.textContent('#sim-result-text'), /^Simulated \d+ neurons for 20 s: \d+ spikes, \d+ bursts\.$/);
+  await analyse(page);
+  assert.equal(await summaryValue(page, 'median speed'), report.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
+  await shoot(page, '7-simulated-culture');
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
 /** Interleaved int16 voltage: 12 electrodes in a row 250 µm apart, noise SD 20 units, fronts at
  * 50 mm/s every 2 to 3 s with 3 spikes per electrode (trough -180 units); channel 4 is flat.
  * Seeded (mulberry32), so the file is the same on every run. */

@@ -605,6 +605,12 @@ fn voltage_settings(
     Ok(s)
 }
 
+/// What `simulate` runs: a scenario file, or a culture from options.
+enum Source {
+    File(crate::simulate::Scenario),
+    Options(crate::simulate::network::CultureOptions),
+}
+
 fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     let (scenario, source) = match &args.scenario {
         Some(path) => {
@@ -628,7 +634,7 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
                     s.duration_s = args.duration.unwrap_or(s.duration_s);
                 }
             }
-            (scenario, path.clone())
+            (Source::File(scenario), path.clone())
         }
         None => {
             let c = &args.culture;
@@ -647,15 +653,14 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
                 sigma_um: c.sigma_um,
                 electrodes: c.electrodes,
                 rois: c.rois.unwrap_or(0),
-                duration_s: args.duration.unwrap_or(60.0),
-                seed: args.seed.unwrap_or(1),
+                duration_s: args
+                    .duration
+                    .unwrap_or(crate::simulate::network::CULTURE_DURATION_S),
+                seed: args.seed.unwrap_or(crate::simulate::network::CULTURE_SEED),
             };
-            let scenario = crate::simulate::network::scenario_from_options(&options)
-                .map_err(Failure::Input)?;
-            (
-                crate::simulate::Scenario::Network(Box::new(scenario)),
-                "culture options".to_string(),
-            )
+            // Checked here, so that a bad option is refused before anything runs.
+            crate::simulate::network::scenario_from_options(&options).map_err(Failure::Input)?;
+            (Source::Options(options), "culture options".to_string())
         }
     };
     use std::io::IsTerminal;
@@ -665,15 +670,11 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
             eprint!("\r{stage}: {done:.0} of {total:.0} s simulated   ");
         }
     };
-    let mut files = crate::simulate::simulation_files(&scenario, &mut progress)
-        .map_err(|e| Failure::Input(format!("{source}: {e}")))?;
-    if args.scenario.is_none() {
-        // The culture the options built, to edit and run again as a scenario file.
-        let mut text = serde_json::to_string_pretty(&scenario)
-            .map_err(|e| Failure::Input(format!("culture options: {e}")))?;
-        text.push('\n');
-        files.push(("scenario.json".to_string(), text.into_bytes()));
+    let files = match &scenario {
+        Source::File(s) => crate::simulate::simulation_files(s, &mut progress),
+        Source::Options(o) => crate::simulate::culture_files(o, &mut progress),
     }
+    .map_err(|e| Failure::Input(format!("{source}: {e}")))?;
     if show {
         eprintln!();
     }

@@ -127,3 +127,17 @@ pub fn simulation_files(
         }
     }
 }
+
+/// The files of a network culture built from options ([`network::scenario_from_options`]):
+/// those of [`simulation_files`], then `scenario.json`, the scenario that ran, to edit and
+/// run again.
+pub fn culture_files(
+    options: &network::CultureOptions,
+    progress: &mut dyn FnMut(&str, f64, f64),
+) -> Result<Vec<(String, Vec<u8>)>, String> {
+    let scenario = Scenario::Network(Box::new(network::scenario_from_options(options)?));
+    let mut files = simulation_files(&scenario, progress)?;
+    let text = serde_json::to_string_pretty(&scenario).map_err(|e| e.to_string())? + "\n";
+    files.push(("scenario.json".to_string(), text.into_bytes()));
+    Ok(files)
+}

@@ -15,4 +15,5 @@ pub use dynamics::{integrate, Network, NeuronParams, NoiseParams, Run, Spike, Sy
 pub use scenario::{
     scenario_from_options, simulate_network, CultureOptions, CultureShape, DriveParams, Electrodes,
     Imaging, NetworkRecording, NetworkScenario, NetworkTruth, NetworkTruthBurst,
+    CULTURE_DURATION_S, CULTURE_SEED,
 };

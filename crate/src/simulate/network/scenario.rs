@@ -490,30 +490,54 @@ pub enum CultureShape {
     Disk,
 }
 
+/// Culture time simulated when the options give none, s.
+pub const CULTURE_DURATION_S: f64 = 60.0;
+/// Seed used when the options give none.
+pub const CULTURE_SEED: u64 = 1;
+
+fn culture_duration() -> f64 {
+    CULTURE_DURATION_S
+}
+fn culture_seed() -> u64 {
+    CULTURE_SEED
+}
+
 /// A network culture described by a few numbers (`ringline simulate` without a scenario
-/// file). What is left `None` takes the shape's default; neuron, synapse, drive and noise
-/// parameters are those of the demo cultures. Lengths in micrometres.
-#[derive(Debug, Clone, PartialEq)]
+/// file, and the page's simulator). What is left `None` takes the shape's default; neuron,
+/// synapse, drive and noise parameters are those of the demo cultures. Lengths in
+/// micrometres.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct CultureOptions {
     pub shape: CultureShape,
     /// Strip length (default 6,000) or dish side (default 2,000).
+    #[serde(default)]
     pub length_um: Option<f64>,
     /// Strip or ring width (default 300).
+    #[serde(default)]
     pub width_um: Option<f64>,
     /// Ring mid-radius (default 1,500) or round dish radius (default 1,000).
+    #[serde(default)]
     pub radius_um: Option<f64>,
     /// Neurons per mm^2 (default 1,500).
+    #[serde(default)]
     pub density_per_mm2: Option<f64>,
     /// Mean inputs per neuron (default 100).
+    #[serde(default)]
     pub mean_in_degree: Option<f64>,
     /// Gaussian footprint length (default 150).
+    #[serde(default)]
     pub sigma_um: Option<f64>,
     /// Electrodes: a row (strip), a circle (ring) or a square grid (dish, disk; must be a
     /// square number). Default 16, 24, 64 and 64; 0 for none.
+    #[serde(default)]
     pub electrodes: Option<usize>,
     /// ROIs of virtual calcium imaging at 20 frames/s (default 0: no imaging).
+    #[serde(default)]
     pub rois: usize,
+    #[serde(default = "culture_duration")]
     pub duration_s: f64,
+    #[serde(default = "culture_seed")]
     pub seed: u64,
 }
 
