@@ -106,6 +106,7 @@ const state = {
   svgs: {},           // figure name -> SVG text, for export
   fileStem: 'ringline',
   simulated: null,    // file name -> text of the last simulated culture
+  truthText: null,    // its truth.json while its recording is the one open
 };
 
 function setStatus(text, isProblem = false) {
@@ -355,6 +356,7 @@ async function simulateCulture(event) {
     $('sim-result').hidden = false;
     const make = (name) => new File([state.simulated[name]], name, { type: 'text/csv' });
     await addFiles([make('spikes.csv'), make('layout.csv')]);
+    state.truthText = state.simulated['truth.json'];
   } catch (e) {
     showError('input-error', e);
   } finally {
@@ -538,6 +540,32 @@ async function renderResults() {
   await selectBurst(state.settings.view.burst);
   for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability']) await drawFigure(name);
   renderSummary();
+  await renderTruth();
+}
+
+/** For a culture simulated in this tab: the analysis beside the simulation's truth (the core
+ * matches the fronts and computes every number; this only fills the table). */
+async function renderTruth() {
+  $('truth-block').hidden = true;
+  if (!state.truthText) return;
+  const c = await call('compareTruth', { truth: state.truthText });
+  $('truth-text').textContent = `${c.true_fronts} true fronts, ${c.measured} measured; `
+    + `median speed ${fmt(c.median_speed_mm_s, 1, 'mm/s')} against ${fmt(c.median_true_speed_mm_s, 1, 'mm/s')} true; `
+    + `median |error| ${fmt(c.median_abs_relative_error === null ? null : 100 * c.median_abs_relative_error, 1, '%')}; `
+    + `the 95% interval holds the true speed for ${fmt(c.interval_coverage === null ? null : 100 * c.interval_coverage, 0, '%')} of measured fronts.`;
+  const body = $('truth-table').tBodies[0];
+  body.replaceChildren();
+  for (const r of c.rows) {
+    const row = body.insertRow();
+    const cells = [
+      String(r.truth_burst), fmt(r.true_start_s, 3), fmt(r.true_speed_mm_s, 1),
+      r.burst === null ? '—' : String(r.burst), fmt(r.speed_mm_s, 1),
+      r.speed_ci95_mm_s ? `${fmt(r.speed_ci95_mm_s[0], 1)} to ${fmt(r.speed_ci95_mm_s[1], 1)}` : '—',
+      r.relative_error === null ? '—' : `${r.relative_error >= 0 ? '+' : ''}${fmt(100 * r.relative_error, 1)}%`,
+    ];
+    for (const text of cells) row.insertCell().textContent = text;
+  }
+  $('truth-block').hidden = false;
 }
 
 async function setWindow(event) {
@@ -652,13 +680,18 @@ function wire() {
   drop.addEventListener('drop', (e) => {
     e.preventDefault();
     drop.classList.remove('over');
+    state.truthText = null;
     addFiles([...e.dataTransfer.files]).catch((err) => showError('input-error', err));
   });
   $('file-input').addEventListener('change', (e) => {
+    state.truthText = null;
     addFiles([...e.target.files]).catch((err) => showError('input-error', err));
     e.target.value = '';
   });
-  $('demo-button').addEventListener('click', () => useDemo().catch((err) => showError('input-error', err)));
+  $('demo-button').addEventListener('click', () => {
+    state.truthText = null;
+    useDemo().catch((err) => showError('input-error', err));
+  });
   $('sim-form').addEventListener('submit', simulateCulture);
   $('sim-cancel').addEventListener('click', () => restartWorker('Simulation cancelled.'));
   for (const b of document.querySelectorAll('.sim-save')) {

@@ -92,6 +92,7 @@ const ops = {
   readout: ({ x, y }) => need().readout(x, y) ?? null,
   exports: () => need().exports(),
   notebook: () => need().notebookJson(),
+  compareTruth: ({ truth }) => need().compareTruth(truth),
   simulate: ({ scenario }, id) => core.simulate(scenario, (stage, done, total) => postMessage({ id, progress: [done, total], stage })),
   simulateCulture: ({ options }, id) => core.simulateCulture(options, (stage, done, total) => postMessage({ id, progress: [done, total], stage })),
   panic: () => core.panicForTest(),

@@ -426,6 +426,18 @@ impl WasmWorkbook {
         to_js(&self.inner.exports())
     }
 
+    /// The last analysis beside a simulation's ground truth (the text of its truth.json):
+    /// `{ rows: [...], true_fronts, measured, median_true_speed_mm_s, median_speed_mm_s,
+    /// median_abs_relative_error, interval_coverage }`.
+    #[wasm_bindgen(js_name = compareTruth)]
+    pub fn compare_truth(&self, truth_json: &str) -> Result<JsValue, JsValue> {
+        let comparison = self
+            .inner
+            .compare_with_truth(truth_json)
+            .map_err(|e| message(&e))?;
+        to_js(&comparison)
+    }
+
     /// The notebook file (JSON text).
     #[wasm_bindgen(js_name = notebookJson)]
     pub fn notebook_json(&self) -> String {

@@ -292,6 +292,13 @@ test('a culture simulated in the page gives the command line\'s files and analys
   await analyse(page);
   assert.equal(await summaryValue(page, 'median speed'), report.summary.median_speed_mm_s);
   assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
+  // Beside the truth: the rows and numbers of `ringline analyze --truth`.
+  const withTruth = JSON.parse(execFileSync(cli, ['analyze', 'spikes.csv', '--layout', 'layout.csv', '--truth', 'truth.json', '--json'],
+    { encoding: 'utf8', cwd: out, stdio: ['ignore', 'pipe', 'ignore'] })).truth;
+  await page.locator('#truth-block').waitFor({ state: 'visible' });
+  assert.equal(await page.locator('#truth-table tbody tr').count(), withTruth.rows.length);
+  assert.match(await page.textContent('#truth-text'),
+    new RegExp(`^${withTruth.true_fronts} true fronts, ${withTruth.measured} measured; median speed ${withTruth.median_speed_mm_s.toFixed(1)} mm/s against ${withTruth.median_true_speed_mm_s.toFixed(1)} mm/s true`));
   await shoot(page, '7-simulated-culture');
   assert.deepEqual(errors, []);
   await context.close();

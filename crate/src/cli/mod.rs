@@ -55,6 +55,10 @@ struct AnalyzeArgs {
     /// Analysis settings as JSON (any subset of the keys in the report's "settings").
     #[arg(long, value_name = "FILE")]
     settings: Option<String>,
+    /// Ground truth of a simulated recording (the truth.json of `ringline simulate`): each
+    /// true front is set beside the measured one.
+    #[arg(long, value_name = "FILE")]
+    truth: Option<String>,
     /// Network-burst detector.
     #[arg(long, value_enum)]
     detector: Option<DetectorArg>,
@@ -507,6 +511,18 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
         }
         eprintln!("wrote bursts.csv, fronts.csv, activation.csv and summary.json to {dir}");
     }
+    let truth = match &args.truth {
+        Some(path) => {
+            let bytes = read_file(path, &ImportLimits::default())?;
+            let text = String::from_utf8(bytes)
+                .map_err(|_| Failure::Input(format!("{path}: expected UTF-8 JSON text")))?;
+            Some(
+                crate::report::truth::compare_with_truth(&report, &text)
+                    .map_err(|e| Failure::Input(format!("{path}: {e}")))?,
+            )
+        }
+        None => None,
+    };
     let text = if args.json {
         let mut value = serde_json::to_value(&report).map_err(|e| Failure::Output(e.into()))?;
         if let (Some(rows), Some(map)) = (&electrodes, value.as_object_mut()) {
@@ -515,13 +531,24 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
                 serde_json::to_value(rows).map_err(|e| Failure::Output(e.into()))?,
             );
         }
+        if let (Some(t), Some(map)) = (&truth, value.as_object_mut()) {
+            map.insert(
+                "truth".into(),
+                serde_json::to_value(t).map_err(|e| Failure::Output(e.into()))?,
+            );
+        }
         serde_json::to_string(&value).map_err(|e| Failure::Output(e.into()))? + "\n"
     } else {
         let mut text = String::new();
         if let Some(rows) = &electrodes {
             text.push_str(&crate::report::electrodes_text(rows));
         }
-        text + &report.to_text()
+        text.push_str(&report.to_text());
+        if let Some(t) = &truth {
+            text.push('\n');
+            text.push_str(&t.to_text());
+        }
+        text
     };
     print(&text)
 }

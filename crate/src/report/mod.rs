@@ -5,6 +5,7 @@ mod analysis;
 pub mod figures;
 mod inspection;
 mod svg;
+pub mod truth;
 pub mod workbook;
 
 pub use analysis::{AnalysisReport, ANALYSIS_SCHEMA};

@@ -329,6 +329,20 @@ impl Workbook {
         Ok(self.report.insert(report))
     }
 
+    /// The last analysis beside a simulation's ground truth (`truth.json` text).
+    pub fn compare_with_truth(
+        &self,
+        truth_json: &str,
+    ) -> Result<crate::report::truth::TruthComparison, crate::report::truth::TruthError> {
+        let report = self
+            .report
+            .as_ref()
+            .ok_or_else(|| crate::report::truth::TruthError {
+                message: "run the analysis first".into(),
+            })?;
+        crate::report::truth::compare_with_truth(report, truth_json)
+    }
+
     /// The raster window: the user's, or the first 30 s of activity.
     pub fn window_s(&self) -> [f64; 2] {
         if let Some(w) = self.settings.view.window_s {
