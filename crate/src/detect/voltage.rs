@@ -56,7 +56,7 @@ pub fn mad_sigma(x: &[f64]) -> Option<f64> {
 /// `sample_rate_hz`: a spike starts where the trace passes `threshold` (in the trace's units,
 /// on the side `polarity` says); its time is the extremum within one dead time of the
 /// crossing, refined by a parabola through the extremum and its two neighbours; the next
-/// spike is looked for one dead time after that extremum.
+/// spike is looked for one dead time after that extremum. NaN samples never start a spike.
 pub fn threshold_spikes(
     x: &[f64],
     sample_rate_hz: f64,
