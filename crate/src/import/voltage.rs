@@ -302,24 +302,29 @@ pub fn read_wav_header(
     }
 }
 
-/// One stored sample starting at byte `at` of a frame, as a number of stored units, and whether
-/// it sits at the int16 limits (-32768 or 32767: the amplifier clipped).
+/// An int16 sample as a number of stored units, and whether it sits at the int16 limits
+/// (-32768 or 32767: the amplifier clipped).
+#[inline]
+fn int16_sample(b: [u8; 2]) -> (f64, bool) {
+    let s = i16::from_le_bytes(b);
+    (f64::from(s), s == i16::MIN || s == i16::MAX)
+}
+
+/// A float32 sample as a number of stored units (never counted as clipped).
+#[inline]
+fn float32_sample(b: [u8; 4]) -> (f64, bool) {
+    (f64::from(f32::from_le_bytes(b)), false)
+}
+
+/// One stored sample starting at byte `at` of a frame, as [`int16_sample`] or
+/// [`float32_sample`] read it.
 #[inline]
 fn stored_sample(sample_type: SampleType, frame: &[u8], at: usize) -> (f64, bool) {
     match sample_type {
-        SampleType::Int16 => {
-            let s = i16::from_le_bytes([frame[at], frame[at + 1]]);
-            (f64::from(s), s == i16::MIN || s == i16::MAX)
+        SampleType::Int16 => int16_sample([frame[at], frame[at + 1]]),
+        SampleType::Float32 => {
+            float32_sample([frame[at], frame[at + 1], frame[at + 2], frame[at + 3]])
         }
-        SampleType::Float32 => (
-            f64::from(f32::from_le_bytes([
-                frame[at],
-                frame[at + 1],
-                frame[at + 2],
-                frame[at + 3],
-            ])),
-            false,
-        ),
     }
 }
 
@@ -336,8 +341,8 @@ pub fn decode_channel(header: &VoltageHeader, frames: &[u8], channel: usize, out
 
 /// Decodes channels `first..first + LANES` of a block of whole frames into microvolts,
 /// appending one [`crate::detect::filter::Lanes`] per frame to `out` (lanes past the last
-/// channel are 0), and adds
-/// to `saturated[l]` the samples of lane l at the int16 limits among frames `count_in`.
+/// channel are 0), and adds to `saturated[l]` the samples of lane l at the int16 limits
+/// among frames `count_in`.
 pub fn decode_lanes(
     header: &VoltageHeader,
     frames: &[u8],
@@ -357,10 +362,7 @@ pub fn decode_lanes(
             out,
             saturated,
             count_in,
-            |b: [u8; 2]| {
-                let s = i16::from_le_bytes(b);
-                (f64::from(s), s == i16::MIN || s == i16::MAX)
-            },
+            int16_sample,
         ),
         SampleType::Float32 => decode_lanes_as(
             header,
@@ -369,7 +371,7 @@ pub fn decode_lanes(
             out,
             saturated,
             count_in,
-            |b: [u8; 4]| (f64::from(f32::from_le_bytes(b)), false),
+            float32_sample,
         ),
     }
 }
