@@ -356,13 +356,8 @@ pub fn sosfiltfilt_lanes<const L: usize>(
     sections: &[Section],
     x: &[[f64; L]],
 ) -> Result<PaddedLanes<L>, FilterError> {
-    let pad = pad_length(sections);
-    let n = x.len();
-    if n <= pad {
-        return Err(FilterError {
-            message: format!("zero-phase filtering: expected more than {pad} samples, found {n}"),
-        });
-    }
+    // filtfilt_padded checks the length.
+    let (pad, n) = (pad_length(sections), x.len());
     let mut ext: Vec<[f64; L]> = Vec::with_capacity(n + 2 * pad);
     ext.resize(pad, [0.0; L]);
     ext.extend_from_slice(x);

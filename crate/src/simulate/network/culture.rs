@@ -540,6 +540,8 @@ pub fn wire(
         // Pass 1 (probabilistic wiring): the sum of footprint values over all pairs within
         // the cut-off, in total and per distance bin, each pair visited once.
         let mut sum_by_bin = vec![0.0; bins];
+        let bin_um = check.bin_um;
+        let bin = move |d2: f64| ((libm::sqrt(d2) / bin_um) as usize).min(bins - 1);
         let scale = if c.weighted {
             1.0
         } else {
@@ -551,7 +553,7 @@ pub fn wire(
                 if d2 <= table.cutoff_sq {
                     let f = table.at(c.footprint, sigma, d2);
                     total += 2.0 * f;
-                    sum_by_bin[((libm::sqrt(d2) / check.bin_um) as usize).min(bins - 1)] += 2.0 * f;
+                    sum_by_bin[bin(d2)] += 2.0 * f;
                 }
             });
             if total > 0.0 {
@@ -581,7 +583,6 @@ pub fn wire(
                     return;
                 }
                 let f = table.at(c.footprint, sigma, d2);
-                let bin = |d2: f64| ((libm::sqrt(d2) / check.bin_um) as usize).min(bins - 1);
                 if c.weighted {
                     if f > 0.0 {
                         incoming[j].push((i, f as f32));

@@ -153,9 +153,11 @@ struct Schedule {
 }
 
 impl Schedule {
+    #[inline]
     fn bucket_of(&self, t: f64) -> u64 {
-        // Times are never negative, so truncation is the floor.
-        (t * self.rate) as u64
+        // Times are never negative, so truncation is the floor; they are also far below 2^63
+        // buckets, so the signed conversion (cheaper than the unsigned one) is exact.
+        (t * self.rate) as i64 as u64
     }
 
     /// Schedules `e` while bucket `now` is being processed (events never go before it).
@@ -176,9 +178,7 @@ impl Schedule {
     /// the ring spans.
     #[inline]
     fn push_arrival(&mut self, now: u64, a: Arrival) {
-        // Times are never negative and far below 2^63 buckets, so the signed conversion
-        // (cheaper than the unsigned one) gives the same bucket as `bucket_of`.
-        let b = ((a.time * self.rate) as i64 as u64).max(now + 1);
+        let b = self.bucket_of(a.time).max(now + 1);
         let slot = (b & self.mask) as usize;
         if let Some(bucket) = self.arrivals.get_mut(slot) {
             bucket.push(a);
@@ -216,13 +216,10 @@ struct Engine<'a> {
 }
 
 impl Engine<'_> {
-    /// An input moved neuron j's potential without a spike: a neuron driven above threshold
+    /// An input moved the potential of neuron j, driven above threshold, without a spike: it
     /// now crosses at a new time.
     fn moved(&mut self, j: usize, b: u64) {
         let m = self.membrane[j];
-        if m.drive <= self.net.neuron.threshold_mv {
-            return;
-        }
         self.version[j] = self.version[j].wrapping_add(1) % FORCED;
         self.schedule_crossing(j, m.v, m.last, m.drive, b);
     }
