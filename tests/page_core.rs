@@ -5,6 +5,9 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
+
+use common::{command_line_report, demo_files};
 use ringline::fronts::AnalysisSettings;
 use ringline::geometry::TrackSettings;
 use ringline::import::ReadOptions;
@@ -13,16 +16,8 @@ use ringline::report::workbook::{
     open_notebook, sha256_hex, FigureRequest, StepSettings, Workbook,
 };
 
-fn demo(name: &str) -> (Vec<u8>, Vec<u8>) {
-    let dir = format!("{}/../demo-data/{name}", env!("CARGO_MANIFEST_DIR"));
-    (
-        std::fs::read(format!("{dir}/spikes.csv")).unwrap(),
-        std::fs::read(format!("{dir}/layout.csv")).unwrap(),
-    )
-}
-
 fn analysed(name: &str) -> Workbook {
-    let (spikes, layout) = demo(name);
+    let (spikes, layout) = demo_files(name);
     let mut wb = Workbook::open(
         ("spikes.csv", &spikes),
         ("layout.csv", &layout),
@@ -51,16 +46,7 @@ fn sha256_matches_the_fips_examples() {
 /// report and therefore the same exported bytes.
 #[test]
 fn workbook_matches_the_command_line_path() {
-    let (spikes, layout) = demo("strip-16");
-    let cli = ringline::analyze_files(
-        ("spikes.csv", &spikes),
-        ("layout.csv", &layout),
-        &ReadOptions::default(),
-        &TrackSettings::default(),
-        &AnalysisSettings::default(),
-        &mut |_, _| {},
-    )
-    .unwrap();
+    let cli = command_line_report("strip-16");
     let wb = analysed("strip-16");
     assert_eq!(wb.report().unwrap(), &cli);
     let exports = wb.exports().unwrap();
@@ -87,7 +73,7 @@ fn a_new_track_clears_the_analysis() {
 
 #[test]
 fn notebook_round_trip_gives_the_same_settings_and_results() {
-    let (spikes, layout) = demo("ring-24");
+    let (spikes, layout) = demo_files("ring-24");
     let mut settings = StepSettings::default();
     settings.analysis.fronts.resamples = 200;
     settings.analysis.fronts.seed = 11;

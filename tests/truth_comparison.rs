@@ -4,28 +4,20 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
-use ringline::fronts::AnalysisSettings;
-use ringline::geometry::TrackSettings;
-use ringline::import::ReadOptions;
+mod common;
+
+use common::command_line_report;
 use ringline::report::truth::{compare_with_truth, MATCH_S};
 use ringline::report::AnalysisReport;
 
 fn demo_strip() -> (AnalysisReport, String) {
-    let dir = format!("{}/../demo-data/strip-16", env!("CARGO_MANIFEST_DIR"));
-    let spikes = std::fs::read(format!("{dir}/spikes.csv")).unwrap();
-    let layout = std::fs::read(format!("{dir}/layout.csv")).unwrap();
-    let report = ringline::analyze_files(
-        ("spikes.csv", &spikes),
-        ("layout.csv", &layout),
-        &ReadOptions::default(),
-        &TrackSettings::default(),
-        &AnalysisSettings::default(),
-        &mut |_, _| {},
-    )
-    .unwrap();
+    let truth = format!(
+        "{}/../demo-data/strip-16/truth.json",
+        env!("CARGO_MANIFEST_DIR")
+    );
     (
-        report,
-        std::fs::read_to_string(format!("{dir}/truth.json")).unwrap(),
+        command_line_report("strip-16"),
+        std::fs::read_to_string(truth).unwrap(),
     )
 }
 

@@ -1,5 +1,30 @@
-//! Inputs shared by the import tests and the command-line tests.
+//! Inputs shared by the tests: bad inputs for the import and command-line tests, and the
+//! demo recordings with their command-line analysis.
 #![allow(dead_code)]
+
+/// The spike list and layout of a demo recording in demo-data/.
+pub fn demo_files(name: &str) -> (Vec<u8>, Vec<u8>) {
+    let dir = format!("{}/../demo-data/{name}", env!("CARGO_MANIFEST_DIR"));
+    (
+        std::fs::read(format!("{dir}/spikes.csv")).expect("demo spike list"),
+        std::fs::read(format!("{dir}/layout.csv")).expect("demo layout"),
+    )
+}
+
+/// What `ringline analyze` reports on a demo recording with default settings (its library
+/// path, `analyze_files`).
+pub fn command_line_report(name: &str) -> ringline::report::AnalysisReport {
+    let (spikes, layout) = demo_files(name);
+    ringline::analyze_files(
+        ("spikes.csv", &spikes),
+        ("layout.csv", &layout),
+        &ringline::import::ReadOptions::default(),
+        &ringline::geometry::TrackSettings::default(),
+        &ringline::fronts::AnalysisSettings::default(),
+        &mut |_, _| {},
+    )
+    .expect("the demo analyses")
+}
 
 /// A bad input and where its error must point.
 pub struct BadCase {
