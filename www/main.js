@@ -427,10 +427,16 @@ async function drawFigure(name) {
     img.src = URL.createObjectURL(new Blob([fig.svg], { type: 'image/svg+xml' }));
     img.width = fig.width_px;
     img.height = fig.height_px;
+    // Figure pixels, for pointer read-outs: naturalWidth is 0 while a new picture loads.
+    img.dataset.widthPx = String(fig.width_px);
+    img.dataset.heightPx = String(fig.height_px);
     img.hidden = false;
     img.parentElement.classList.remove('empty');
     img.parentElement.dataset.note = '';
     if (old.startsWith('blob:')) URL.revokeObjectURL(old);
+    await img.decode().catch(() => {});
+    // Which view this picture shows (burst, time window), for anyone waiting on it.
+    img.dataset.view = JSON.stringify(state.settings?.view ?? {});
   } catch (e) {
     delete state.svgs[name];
     img.hidden = true;
@@ -718,8 +724,8 @@ function wire() {
   const activation = $('fig-activation');
   activation.addEventListener('pointermove', async (e) => {
     const box = activation.getBoundingClientRect();
-    const x = (e.clientX - box.left) * (activation.naturalWidth / box.width);
-    const y = (e.clientY - box.top) * (activation.naturalHeight / box.height);
+    const x = (e.clientX - box.left) * (Number(activation.dataset.widthPx) / box.width);
+    const y = (e.clientY - box.top) * (Number(activation.dataset.heightPx) / box.height);
     const label = await call('readout', { x, y });
     $('readout').textContent = label ?? 'Point at a site to read its values.';
   });

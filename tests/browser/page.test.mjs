@@ -141,12 +141,15 @@ test('the served page analyses the dropped demo files exactly as the command lin
 
   // The read-out names the site under the pointer. Find a point through the page's bridge
   // (figure pixels), then move the real pointer there and wait for the read-out line.
+  await page.waitForFunction(() => JSON.parse(document.getElementById('fig-activation').dataset.view ?? '{}').burst === 2);
   const hit = await page.evaluate(async () => {
     const img = document.getElementById('fig-activation');
-    for (let y = 30; y < img.naturalHeight - 40; y += 3) {
-      for (let x = 70; x < img.naturalWidth - 10; x += 3) {
+    const width = Number(img.dataset.widthPx);
+    const height = Number(img.dataset.heightPx);
+    for (let y = 30; y < height - 40; y += 3) {
+      for (let x = 70; x < width - 10; x += 3) {
         const label = await window.ringline.call('readout', { x, y });
-        if (label) return { x, y, label, width: img.naturalWidth, height: img.naturalHeight };
+        if (label) return { x, y, label, width, height };
       }
     }
     return null;
