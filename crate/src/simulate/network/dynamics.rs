@@ -4,12 +4,13 @@
 //! Between events a neuron's potential (mV above rest) follows the exact solution
 //! V(t) = D + (V0 - D) exp(-(t - t0) / tau_m) for its constant drive D; a synaptic arrival
 //! adds its weight at once; a neuron whose drive is above threshold crosses it at the
-//! analytic time t0 + tau_m ln((D - V0) / (D - theta)). When a neuron spikes, its whole
-//! synapse row is read once and each arrival goes into the bucket of its time (buckets
-//! 0.1 ms wide, at most the shortest delay, in a ring that spans the longest delay). Within
-//! one bucket arrivals are applied in the order they were scheduled, each at its own time, so
-//! a spike triggered by an arrival is timed exactly unless an earlier arrival in the same
-//! bucket came later in that order, when it may be up to one bucket (0.1 ms) late. Threshold
+//! analytic time t0 + tau_m ln((D - V0) / (D - theta)). Time is cut into buckets 0.1 ms wide
+//! (at most the shortest delay). A spike's synapse row is sorted by delay, so each bucket
+//! delivers, spike after spike in firing order, the stretch of each row whose arrivals fall
+//! in it; no arrival is ever queued. Within one bucket arrivals are applied in that order,
+//! each at its own time, so a spike triggered by an arrival is timed exactly unless an
+//! earlier arrival in the same bucket came later in that order, when it may be up to one
+//! bucket (0.1 ms) late. Threshold
 //! crossings under the drive alone are always exact. The decay factor comes from a
 //! table-driven exp within 2 ulp of `libm` ([`super::decay`]).
 //!
@@ -74,12 +75,17 @@ pub struct Run {
     pub synaptic_events: u64,
 }
 
-/// A synaptic arrival waiting in the bucket of its time: 16 bytes.
+/// A spike whose synapse row is being delivered: each bucket takes the links whose arrival
+/// falls in it, from `next` on (the row is sorted by delay). 24 bytes.
 #[derive(Clone, Copy)]
-struct Arrival {
+struct Sending {
+    /// Spike time, s.
     time: f64,
-    target: u32,
-    weight_mv: f32,
+    /// The spike's jump, mV (times the synapse's weight when synapses are weighted).
+    jump_mv: f64,
+    /// Next link to deliver and the end of the row, as indices into the synapse table.
+    next: u32,
+    end: u32,
 }
 
 /// A scheduled spike of one neuron: a threshold crossing under its drive (valid while the
@@ -137,15 +143,15 @@ pub struct Network<'a> {
     pub noise: &'a NoiseParams,
 }
 
-/// Buckets of `width` seconds in a ring spanning the longest delay: synaptic arrivals go
-/// straight into the bucket of their time when their spike happens; threshold crossings and
-/// imposed spikes go into the ring when near and into a heap when further ahead.
+/// Buckets of `width` seconds in a ring spanning the longest delay: threshold crossings and
+/// imposed spikes go into the ring when near and into a heap when further ahead. (Synaptic
+/// arrivals are not queued: each bucket reads them from the rows of the spikes still
+/// sending, see [`Sending`].)
 struct Schedule {
     /// Buckets per second (1 / width).
     rate: f64,
     /// Ring length minus one; the ring length is a power of two.
     mask: u64,
-    arrivals: Vec<Vec<Arrival>>,
     events: Vec<Vec<Event>>,
     far: BinaryHeap<Far>,
     /// Events that fall in the bucket being processed.
@@ -170,18 +176,6 @@ impl Schedule {
             self.events[(b & self.mask) as usize].push(e);
         } else {
             self.far.push(Far(e));
-        }
-    }
-
-    /// Schedules an arrival while bucket `now` is processed; arrivals come at least one
-    /// shortest delay (>= one bucket) after their spike and at most the longest delay, which
-    /// the ring spans.
-    #[inline]
-    fn push_arrival(&mut self, now: u64, a: Arrival) {
-        let b = self.bucket_of(a.time).max(now + 1);
-        let slot = (b & self.mask) as usize;
-        if let Some(bucket) = self.arrivals.get_mut(slot) {
-            bucket.push(a);
         }
     }
 
@@ -211,6 +205,8 @@ struct Engine<'a> {
     last_spike: Vec<f64>,
     version: Vec<u32>,
     spikes: Vec<Spike>,
+    /// Spikes whose rows still have links to deliver, in the order they fired.
+    sending: Vec<Sending>,
     synaptic_events: u64,
     decay: DecayTable,
 }
@@ -313,7 +309,7 @@ impl Engine<'_> {
         let (a, z) = (s.offsets[j] as usize, s.offsets[j + 1] as usize);
         let row = &s.links[a..z];
         // The row is sorted by delay: arrivals from `end` on fall after the run. Nearly every
-        // row falls wholly inside it, and then the row is read front to back only once.
+        // row falls wholly inside it.
         let inside = |l: &super::culture::Link| t + f64::from(l.delay_s) < self.duration_s;
         let end = if row.last().is_none_or(inside) {
             row.len()
@@ -321,33 +317,54 @@ impl Engine<'_> {
             row.partition_point(inside)
         };
         self.synaptic_events += end as u64;
-        match &s.weights {
-            None => {
-                let weight_mv = jump as f32;
-                for l in &row[..end] {
-                    self.q.push_arrival(
-                        b,
-                        Arrival {
-                            time: t + f64::from(l.delay_s),
-                            target: l.target,
-                            weight_mv,
-                        },
-                    );
-                }
+        if end > 0 {
+            prefetch(row, 0);
+            self.sending.push(Sending {
+                time: t,
+                jump_mv: jump,
+                next: a as u32,
+                end: (a + end) as u32,
+            });
+        }
+    }
+
+    /// Delivers, in the order the spikes fired, every arrival that falls in bucket `b` (the
+    /// same order in which the arrivals would have been queued), and drops the spikes whose
+    /// rows are done. Spikes fired meanwhile first deliver in the next bucket, because every
+    /// delay is at least one bucket.
+    fn deliver(&mut self, b: u64) {
+        let s = self.net.synapses;
+        let count = self.sending.len();
+        let mut kept = 0;
+        for k in 0..count {
+            let mut sending = self.sending[k];
+            if let Some(ahead) = self.sending.get(k + PREFETCH_AHEAD) {
+                prefetch(&s.links, ahead.next as usize);
             }
-            Some(w) => {
-                for (l, &w) in row[..end].iter().zip(&w[a..z]) {
-                    self.q.push_arrival(
-                        b,
-                        Arrival {
-                            time: t + f64::from(l.delay_s),
-                            target: l.target,
-                            weight_mv: (jump * f64::from(w)) as f32,
-                        },
-                    );
+            while sending.next < sending.end {
+                let at = sending.next as usize;
+                let link = s.links[at];
+                let time = sending.time + f64::from(link.delay_s);
+                if self.q.bucket_of(time) > b {
+                    break;
                 }
+                if let Some(ahead) = s.links.get(at + PREFETCH_AHEAD) {
+                    prefetch(&self.membrane, ahead.target as usize);
+                }
+                let weight_mv = match &s.weights {
+                    None => sending.jump_mv as f32,
+                    Some(w) => (sending.jump_mv * f64::from(w[at])) as f32,
+                };
+                self.input(link.target as usize, time, f64::from(weight_mv), b);
+                sending.next += 1;
+            }
+            if sending.next < sending.end {
+                self.sending[kept] = sending;
+                kept += 1;
             }
         }
+        // Spikes fired during this bucket were pushed after `count`: keep them, in order.
+        self.sending.drain(kept..count);
     }
 }
 
@@ -378,7 +395,6 @@ pub fn integrate(
         q: Schedule {
             rate: 1.0 / width,
             mask: ring as u64 - 1,
-            arrivals: vec![Vec::new(); ring],
             events: vec![Vec::new(); ring],
             far: BinaryHeap::new(),
             due_now: Vec::new(),
@@ -397,6 +413,7 @@ pub fn integrate(
         last_spike: vec![f64::NEG_INFINITY; n],
         version: vec![0; n],
         spikes: Vec::new(),
+        sending: Vec::new(),
         synaptic_events: 0,
         decay: DecayTable::new(),
     };
@@ -434,12 +451,10 @@ pub fn integrate(
     let total_buckets = e.q.bucket_of(duration_s) + 1;
     let mut next_report = 1.0;
     let mut events: Vec<Event> = Vec::new();
-    let mut arrivals: Vec<Arrival> = Vec::new();
     for b in 0..total_buckets {
         e.q.pull_near(b);
         let slot = (b & e.q.mask) as usize;
         std::mem::swap(&mut events, &mut e.q.events[slot]);
-        std::mem::swap(&mut arrivals, &mut e.q.arrivals[slot]);
         let bucket_end = ((b + 1) as f64 * width).min(duration_s);
         while next_noise < bucket_end {
             let t = next_noise;
@@ -460,13 +475,7 @@ pub fn integrate(
         for &ev in &events {
             e.event(ev, b);
         }
-        for (i, a) in arrivals.iter().enumerate() {
-            // The membranes are read in random order: ask for one a few arrivals ahead.
-            if let Some(ahead) = arrivals.get(i + PREFETCH_AHEAD) {
-                prefetch(&e.membrane, ahead.target as usize);
-            }
-            e.input(a.target as usize, a.time, f64::from(a.weight_mv), b);
-        }
+        e.deliver(b);
         // Crossings moved into this very bucket by the inputs above (and any they cause).
         while !e.q.due_now.is_empty() {
             let now: Vec<Event> = std::mem::take(&mut e.q.due_now);
@@ -475,9 +484,6 @@ pub fn integrate(
             }
         }
         events.clear();
-        arrivals.clear();
-        // A bucket that swelled in a burst keeps at most 1 MiB of capacity.
-        arrivals.shrink_to(1 << 16);
         let now = (b + 1) as f64 * width;
         if now >= next_report {
             progress(now.min(duration_s));
@@ -492,16 +498,25 @@ pub fn integrate(
     }
 }
 
-/// How many arrivals ahead the integrator asks for a target's membrane.
+/// How many arrivals (or sending spikes) ahead the integrator asks for what it will read.
 const PREFETCH_AHEAD: usize = 8;
 
-/// Brings `items[i]` into cache ahead of its use by loading one word of it, a load whose
-/// value is dropped but which the optimiser must keep; no effect on results.
+/// Asks the processor to bring `items[i]` into cache (a hint: no effect on results, and
+/// nothing on targets without a prefetch instruction).
 #[inline(always)]
-fn prefetch(items: &[Membrane], i: usize) {
+#[allow(unsafe_code)]
+fn prefetch<T>(items: &[T], i: usize) {
+    #[cfg(target_arch = "x86_64")]
     if let Some(item) = items.get(i) {
-        std::hint::black_box(item.v);
+        // SAFETY: a prefetch reads nothing and cannot fault; the pointer is a valid element.
+        unsafe {
+            std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(
+                (item as *const T).cast::<i8>(),
+            )
+        };
     }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = (items, i);
 }
 
 /// Applies an input of `weight` mV at time `t`; returns whether the neuron reaches threshold.
