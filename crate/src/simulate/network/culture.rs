@@ -379,7 +379,7 @@ pub struct WiringCheck {
 }
 
 /// A uniform grid of cells for neighbour search.
-struct CellGrid {
+pub(crate) struct CellGrid {
     origin: [f64; 2],
     cell: f64,
     nx: usize,
@@ -390,7 +390,8 @@ struct CellGrid {
 }
 
 impl CellGrid {
-    fn new(points: &[[f64; 2]], cell: f64) -> Self {
+    /// A grid over `points` with square cells `cell` micrometres wide.
+    pub(crate) fn new(points: &[[f64; 2]], cell: f64) -> Self {
         let mut lo = [f64::INFINITY; 2];
         let mut hi = [f64::NEG_INFINITY; 2];
         for p in points {
@@ -480,6 +481,34 @@ impl CellGrid {
                 }
             }
         }
+    }
+
+    /// The `k` points nearest to `p` (the points the grid was built on), nearest first and
+    /// ties by index: the squares of cells around `p` grow until `k` points lie within the
+    /// radius they surely cover, so no nearer point can lie outside.
+    pub(crate) fn nearest(&self, points: &[[f64; 2]], p: [f64; 2], k: usize) -> Vec<usize> {
+        let k = k.min(points.len());
+        let whole = self.cell * (self.nx.max(self.ny) as f64 + 1.0);
+        let mut radius = self.cell;
+        let mut found: Vec<(f64, usize)> = Vec::new();
+        loop {
+            // Past the whole grid every point is a candidate, whatever its distance.
+            let everything = radius >= 2.0 * whole;
+            found.clear();
+            self.for_near(p, radius, |j| {
+                let q = points[j as usize];
+                let d2 = (q[0] - p[0]).powi(2) + (q[1] - p[1]).powi(2);
+                if everything || d2 <= radius * radius {
+                    found.push((d2, j as usize));
+                }
+            });
+            if found.len() >= k || everything {
+                break;
+            }
+            radius *= 2.0;
+        }
+        found.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        found.iter().take(k).map(|&(_, j)| j).collect()
     }
 }
 
@@ -707,5 +736,45 @@ pub fn graph_stats(neurons: usize, syn: &Synapses) -> GraphStats {
         out_degree_histogram: histogram(&out_deg),
         components: sizes.len(),
         giant_component_fraction: giant as f64 / neurons.max(1) as f64,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::SeedableRng;
+
+    /// The grid's k nearest points equal a brute-force sort of all distances (ties by index),
+    /// for points inside and at the edge of a culture, with duplicated positions, a lone far
+    /// point, and k above the number of points.
+    #[test]
+    fn nearest_points_match_a_full_sort() {
+        let mut rng = ChaCha8Rng::seed_from_u64(11);
+        let mut points: Vec<[f64; 2]> = (0..3_000)
+            .map(|_| [2_000.0 * uniform(&mut rng), 300.0 * uniform(&mut rng)])
+            .collect();
+        points.extend_from_slice(&[[500.0, 100.0], [500.0, 100.0], [9_000.0, 9_000.0]]);
+        let brute = |p: [f64; 2], k: usize| -> Vec<usize> {
+            let mut all: Vec<(f64, usize)> = points
+                .iter()
+                .enumerate()
+                .map(|(j, q)| ((q[0] - p[0]).powi(2) + (q[1] - p[1]).powi(2), j))
+                .collect();
+            all.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+            all.iter().take(k).map(|&(_, j)| j).collect()
+        };
+        for cell in [5.0, 40.0, 400.0] {
+            let grid = CellGrid::new(&points, cell);
+            for i in (0..points.len()).step_by(97).chain([3_000, 3_001, 3_002]) {
+                for k in [1, 9, 50] {
+                    assert_eq!(grid.nearest(&points, points[i], k), brute(points[i], k));
+                }
+            }
+        }
+        let few = [[0.0, 0.0], [1.0, 0.0]];
+        assert_eq!(
+            CellGrid::new(&few, 1.0).nearest(&few, [0.9, 0.0], 5),
+            vec![1, 0]
+        );
     }
 }

@@ -1,7 +1,7 @@
 //! A network scenario from end to end: grow, wire, integrate, record, and work out the truth.
 
 use super::culture::{
-    graph_stats, place_neurons, sort_spatially, wire, Connectivity, GraphStats, Pattern,
+    graph_stats, place_neurons, sort_spatially, wire, CellGrid, Connectivity, GraphStats, Pattern,
 };
 use super::dynamics::{integrate, Network, NeuronParams, NoiseParams, Spike, SynapseParams};
 use crate::detect::{detect_bursts, BurstSettings};
@@ -272,24 +272,6 @@ pub fn simulate_network(
 /// the ground truth: common practice, no source (a median of 9 outvotes up to 4 stray spikes).
 const TRUTH_NEIGHBOURS: usize = 9;
 
-/// The `k` neurons nearest to neuron `i` (itself first), nearest first.
-fn nearest_neurons(positions: &[[f64; 2]], i: usize, k: usize) -> Vec<usize> {
-    let p = positions[i];
-    let mut by_distance: Vec<(f64, usize)> = positions
-        .iter()
-        .enumerate()
-        .map(|(j, q)| ((q[0] - p[0]).powi(2) + (q[1] - p[1]).powi(2), j))
-        .collect();
-    let k = k.min(by_distance.len());
-    if k < by_distance.len() {
-        by_distance.select_nth_unstable_by(k, |a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-        by_distance.truncate(k);
-    }
-    by_distance.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-    // From the slice, not `into_iter`: collecting in place would keep the whole buffer.
-    by_distance.iter().map(|&(_, j)| j).collect()
-}
-
 /// Bursts of the whole population and the front of each, fitted to the activation times of
 /// about 200 neurons spread over the culture: each the median first spike of the neuron and
 /// its [`TRUTH_NEIGHBOURS`] - 1 nearest neighbours.
@@ -306,10 +288,27 @@ fn truth_bursts(
     // Each sampled neuron's activation is the median first spike of itself and its nearest
     // neighbours: a lone spontaneous spike just before a front (about 1 neuron in 200 in a
     // dish) would otherwise pass for the front's origin and pull the fit.
-    let neighbours: Vec<Vec<usize>> = sample
-        .iter()
-        .map(|&i| nearest_neurons(positions, i, TRUTH_NEIGHBOURS))
-        .collect();
+    let neighbours: Vec<Vec<usize>> = {
+        // Cells holding about TRUTH_NEIGHBOURS neurons each on average.
+        let (lo, hi) = positions.iter().fold(
+            ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]),
+            |(lo, hi), p| {
+                (
+                    [lo[0].min(p[0]), lo[1].min(p[1])],
+                    [hi[0].max(p[0]), hi[1].max(p[1])],
+                )
+            },
+        );
+        let area = ((hi[0] - lo[0]) * (hi[1] - lo[1])).max(1.0);
+        let cell = (area * TRUTH_NEIGHBOURS as f64 / positions.len() as f64)
+            .sqrt()
+            .max(1.0);
+        let grid = CellGrid::new(positions, cell);
+        sample
+            .iter()
+            .map(|&i| grid.nearest(positions, positions[i], TRUTH_NEIGHBOURS))
+            .collect()
+    };
     let front_settings = FrontSettings {
         resamples: 200,
         min_sites: 8,
