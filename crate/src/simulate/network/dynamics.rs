@@ -334,6 +334,8 @@ impl Engine<'_> {
     /// delay is at least one bucket.
     fn deliver(&mut self, b: u64) {
         let s = self.net.synapses;
+        // floor(time * rate) <= b exactly when time * rate < b + 1 (both in floating point).
+        let (rate, next_bucket) = (self.q.rate, (b + 1) as f64);
         let count = self.sending.len();
         let mut kept = 0;
         for k in 0..count {
@@ -345,7 +347,7 @@ impl Engine<'_> {
                 let at = sending.next as usize;
                 let link = s.links[at];
                 let time = sending.time + f64::from(link.delay_s);
-                if self.q.bucket_of(time) > b {
+                if time * rate >= next_bucket {
                     break;
                 }
                 if let Some(ahead) = s.links.get(at + PREFETCH_AHEAD) {
