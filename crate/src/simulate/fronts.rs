@@ -249,8 +249,8 @@ pub fn simulate_fronts(scenario: &FrontScenario) -> Result<SimulatedFronts, Stri
         let origin_site = sites
             .iter()
             .min_by(|a, b| {
-                let da = (a.x_um - front.origin_um[0]).hypot(a.y_um - front.origin_um[1]);
-                let db = (b.x_um - front.origin_um[0]).hypot(b.y_um - front.origin_um[1]);
+                let da = libm::hypot(a.x_um - front.origin_um[0], a.y_um - front.origin_um[1]);
+                let db = libm::hypot(b.x_um - front.origin_um[0], b.y_um - front.origin_um[1]);
                 da.total_cmp(&db)
             })
             .map(|s| s.id.clone())
@@ -483,7 +483,7 @@ fn draw_two_way_front(
                 rotation: None,
                 distances: positions
                     .iter()
-                    .map(|p| (p[0] - o[0]).hypot(p[1] - o[1]))
+                    .map(|p| libm::hypot(p[0] - o[0], p[1] - o[1]))
                     .collect(),
             }
         }

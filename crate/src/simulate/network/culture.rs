@@ -98,7 +98,7 @@ impl Pattern {
             Pattern::Annulus {
                 radius_um,
                 width_um,
-            } => (p[0].hypot(p[1]) - radius_um).abs() <= width_um / 2.0,
+            } => (libm::hypot(p[0], p[1]) - radius_um).abs() <= width_um / 2.0,
             Pattern::PolylineStrip {
                 waypoints_um,
                 width_um,
@@ -112,13 +112,13 @@ impl Pattern {
                     0.0
                 };
                 let q = [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])];
-                (p[0] - q[0]).hypot(p[1] - q[1]) <= width_um / 2.0
+                libm::hypot(p[0] - q[0], p[1] - q[1]) <= width_um / 2.0
             }),
             Pattern::Rectangle {
                 width_um,
                 height_um,
             } => (0.0..=*width_um).contains(&p[0]) && (0.0..=*height_um).contains(&p[1]),
-            Pattern::Disk { radius_um } => p[0].hypot(p[1]) <= *radius_um,
+            Pattern::Disk { radius_um } => libm::hypot(p[0], p[1]) <= *radius_um,
             Pattern::Chain { .. } => true,
         }
     }
@@ -659,7 +659,7 @@ pub fn wire(
             let (pi, pj) = (positions[i as usize], positions[j]);
             links[slot] = Link {
                 target: j as u32,
-                delay_s: delay((pi[0] - pj[0]).hypot(pi[1] - pj[1])),
+                delay_s: delay(libm::hypot(pi[0] - pj[0], pi[1] - pj[1])),
             };
             weights[slot] = w;
         }

@@ -415,7 +415,7 @@ fn record_electrodes(
         let mut times = Vec::new();
         if !e.dead.contains(&k) {
             for (i, q) in positions.iter().enumerate() {
-                if (q[0] - p[0]).hypot(q[1] - p[1]) <= e.pickup_radius_um {
+                if libm::hypot(q[0] - p[0], q[1] - p[1]) <= e.pickup_radius_um {
                     for &t in &trains[i] {
                         if uniform(rng) < e.detection_probability {
                             times.push((t * fs).round() / fs);
