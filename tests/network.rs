@@ -9,8 +9,8 @@
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use ringline::simulate::network::{
-    graph_stats, integrate, place_neurons, wire, Connectivity, Footprint, Network, NeuronParams,
-    NoiseParams, Pattern, SynapseParams, Synapses,
+    graph_stats, integrate, place_neurons, wire, wire_checked, Connectivity, Footprint, Network,
+    NeuronParams, NoiseParams, Pattern, SynapseParams, Synapses,
 };
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
@@ -108,7 +108,7 @@ fn chain_front_speed_matches_the_threshold_condition() {
             mean_in_degree: 0.0,
             weighted: true,
         };
-        let (syn, _) = wire(&positions, &conn, delay, 1e30, &mut rng);
+        let syn = wire(&positions, &conn, delay, 1e30, &mut rng);
         let n = positions.len();
         let neuron = NeuronParams {
             tau_m_s: 1e12,
@@ -188,7 +188,11 @@ fn wiring_matches_in_degree_and_footprint() {
             mean_in_degree: k,
             weighted: false,
         };
-        let (syn, check) = wire(&positions, &conn, 1e-3, 3e5, &mut rng);
+        let mut same_state = rng.clone();
+        let (syn, check) = wire_checked(&positions, &conn, 1e-3, 3e5, &mut rng);
+        // The check describes the network the simulator gets: unchecked wiring from the same
+        // generator state makes the same synapses.
+        assert!(wire(&positions, &conn, 1e-3, 3e5, &mut same_state) == syn);
         let stats = graph_stats(count, &syn);
         let rel = (stats.mean_in_degree / k - 1.0).abs();
         let (mut chi2, mut df) = (0.0, 0usize);
@@ -225,7 +229,7 @@ fn erdos_renyi_giant_component() {
         mean_in_degree: 1.0,
         weighted: false,
     };
-    let (syn, _) = wire(
+    let syn = wire(
         &positions,
         &conn,
         1e-3,

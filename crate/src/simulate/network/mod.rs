@@ -8,8 +8,8 @@ pub mod dynamics;
 pub mod scenario;
 
 pub use culture::{
-    graph_stats, place_neurons, wire, Connectivity, Footprint, GraphStats, Pattern, Synapses,
-    WiringCheck,
+    graph_stats, place_neurons, wire, wire_checked, Connectivity, Footprint, GraphStats, Pattern,
+    Synapses, WiringCheck,
 };
 pub use dynamics::{integrate, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams};
 pub use scenario::{

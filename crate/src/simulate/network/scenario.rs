@@ -214,7 +214,7 @@ pub fn simulate_network(
         .map(|_| (s.drive.mean_mv + s.drive.sd_mv * normal(&mut rng)).max(0.0))
         .collect();
     progress("wiring", 0.0, 1.0);
-    let (synapses, _) = wire(
+    let synapses = wire(
         &positions,
         &s.connectivity,
         s.synaptic_delay_s,
