@@ -527,3 +527,66 @@ fn simulate_from_culture_options() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("not both"));
 }
+
+/// `simulate --in-degree-sweep`: the CSV is the core's sweep of the same culture byte for
+/// byte, the figure is an SVG with its axis units, and a kinematic scenario is refused.
+#[test]
+fn simulate_in_degree_sweep() {
+    let dir = tempfile::tempdir().unwrap();
+    let scenario = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../demo-data/scenarios/network-strip-16.json"
+    );
+    let out = ringline(
+        &[
+            "simulate",
+            scenario,
+            "--in-degree-sweep",
+            "0.5,2,8",
+            "--out",
+            "sweep",
+        ],
+        dir.path(),
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let ringline::simulate::Scenario::Network(network) =
+        ringline::simulate::parse_scenario(&std::fs::read_to_string(scenario).unwrap()).unwrap()
+    else {
+        panic!("a network scenario");
+    };
+    let points =
+        ringline::simulate::network::in_degree_sweep(&network, &[0.5, 2.0, 8.0], &mut |_, _| {})
+            .unwrap();
+    assert_eq!(
+        std::fs::read_to_string(dir.path().join("sweep/connectivity.csv")).unwrap(),
+        ringline::simulate::network::in_degree_sweep_csv(&points)
+    );
+    let svg = std::fs::read_to_string(dir.path().join("sweep/connectivity.svg")).unwrap();
+    assert!(svg.contains("target mean in-degree K (inputs per neuron)"));
+    assert!(svg.contains("giant component (fraction of neurons)"));
+    let table = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(table.lines().count(), 4, "{table}");
+
+    let kinematic = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../demo-data/scenarios/strip-16.json"
+    );
+    let refused = ringline(
+        &[
+            "simulate",
+            kinematic,
+            "--in-degree-sweep",
+            "1",
+            "--out",
+            "no",
+        ],
+        dir.path(),
+    );
+    assert_eq!(refused.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("needs a spiking network scenario"));
+}

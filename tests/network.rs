@@ -9,8 +9,10 @@
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use ringline::simulate::network::{
-    graph_stats, integrate, place_neurons, wire, wire_checked, Connectivity, Footprint, Network,
-    NeuronParams, NoiseParams, Pattern, SynapseParams, Synapses,
+    graph_stats, in_degree_sweep, in_degree_sweep_csv, integrate, place_neurons,
+    scenario_from_options, simulate_network, wire, wire_checked, Connectivity, CultureOptions,
+    CultureShape, Footprint, Network, NetworkScenario, NeuronParams, NoiseParams, Pattern,
+    SynapseParams, Synapses,
 };
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
@@ -237,17 +239,107 @@ fn erdos_renyi_giant_component() {
         &mut ChaCha8Rng::seed_from_u64(11),
     );
     let stats = graph_stats(n, &syn);
-    // Solve S = 1 - exp(-2 S) by fixed-point iteration.
-    let mut s = 0.5f64;
-    for _ in 0..200 {
-        s = 1.0 - (-2.0 * s).exp();
-    }
+    let s = erdos_renyi_giant(2.0);
     eprintln!(
         "giant component {:.4} against {s:.6} (mean in-degree {:.4})",
         stats.giant_component_fraction, stats.mean_in_degree
     );
     assert!((s - 0.796812).abs() < 1e-6);
     assert!((stats.giant_component_fraction - s).abs() < 0.01);
+}
+
+/// The giant component of an Erdos-Renyi graph with mean degree c is the root of
+/// S = 1 - exp(-c S) (Erdos & Renyi 1960; S = 0 below c = 1), solved here by fixed-point
+/// iteration from S = 1.
+fn erdos_renyi_giant(c: f64) -> f64 {
+    let mut s = 1.0f64;
+    for _ in 0..10_000 {
+        s = 1.0 - (-c * s).exp();
+    }
+    s
+}
+
+/// An in-degree sweep of a culture wired without regard to distance (uniform footprint)
+/// follows Erdos & Renyi's giant component at every K (undirected mean degree c = 2K), below
+/// and above the threshold c = 1; the CSV has one row per K with the same numbers.
+#[test]
+fn in_degree_sweep_follows_erdos_renyi() {
+    let mut scenario = scenario_from_options(&CultureOptions {
+        shape: CultureShape::Strip,
+        length_um: Some(6_000.0),
+        width_um: Some(300.0),
+        radius_um: None,
+        density_per_mm2: Some(10_000.0),
+        mean_in_degree: None,
+        sigma_um: None,
+        electrodes: None,
+        rois: 0,
+        duration_s: 1.0,
+        seed: 4,
+    })
+    .unwrap();
+    scenario.connectivity.footprint = Footprint::Uniform;
+    let in_degrees = [0.25, 1.0, 1.5, 2.0];
+    let mut reported = Vec::new();
+    let points = in_degree_sweep(&scenario, &in_degrees, &mut |done, total| {
+        reported.push((done, total))
+    })
+    .unwrap();
+    assert_eq!(reported.last(), Some(&(4, 4)));
+    assert_eq!(points.len(), in_degrees.len());
+    assert_eq!(
+        erdos_renyi_giant(2.0),
+        1.0 - (-2.0 * erdos_renyi_giant(2.0)).exp()
+    );
+    assert!((erdos_renyi_giant(2.0) - 0.796812).abs() < 1e-6); // CHECK-VALUES
+    for (p, &k) in points.iter().zip(&in_degrees) {
+        let expected = erdos_renyi_giant(2.0 * k);
+        eprintln!(
+            "K = {k}: giant component {:.4} of {} neurons against {expected:.4}",
+            p.graph.giant_component_fraction, p.graph.neurons
+        );
+        assert_eq!(p.target_in_degree, k);
+        assert!((p.graph.mean_in_degree / k - 1.0).abs() < 0.03);
+        assert!((p.graph.giant_component_fraction - expected).abs() < 0.015);
+    }
+    let csv = in_degree_sweep_csv(&points);
+    let rows: Vec<Vec<&str>> = csv
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect())
+        .collect();
+    assert_eq!(rows.len(), points.len());
+    for (row, p) in rows.iter().zip(&points) {
+        assert_eq!(row[0].parse::<f64>().unwrap(), p.target_in_degree);
+        assert_eq!(row[2].parse::<usize>().unwrap(), p.graph.synapses);
+        assert!((row[5].parse::<f64>().unwrap() - p.graph.giant_component_fraction).abs() < 1e-6);
+    }
+}
+
+/// The sweep's point at a scenario's own K is the network its simulation runs on; bad
+/// in-degrees are refused with a sentence.
+#[test]
+fn in_degree_sweep_at_the_scenario_k_is_the_simulated_network() {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../demo-data/scenarios/network-ring-24.json"
+    ))
+    .unwrap();
+    let ringline::simulate::Scenario::Network(scenario) =
+        ringline::simulate::parse_scenario(&text).unwrap()
+    else {
+        panic!("the network ring demo is a network scenario");
+    };
+    let mut scenario: NetworkScenario = *scenario;
+    scenario.duration_s = 0.2;
+    let own = scenario.connectivity.mean_in_degree;
+    let simulated = simulate_network(&scenario, &mut |_, _, _| {}).unwrap();
+    let points = in_degree_sweep(&scenario, &[own / 2.0, own], &mut |_, _| {}).unwrap();
+    assert_eq!(points[1].graph, simulated.truth.graph);
+    assert!(points[0].graph.synapses < points[1].graph.synapses);
+    let error = in_degree_sweep(&scenario, &[1.0, -2.0], &mut |_, _| {}).unwrap_err();
+    assert!(error.contains("found -2"), "{error}");
+    assert!(in_degree_sweep(&scenario, &[], &mut |_, _| {}).is_err());
 }
 
 /// Isolated LIF neurons kicked by Poisson input converge to the Siegert rate of the diffusion

@@ -139,6 +139,11 @@ struct SimulateArgs {
     /// Replace the scenario's duration, seconds.
     #[arg(long, value_name = "S")]
     duration: Option<f64>,
+    /// Instead of simulating, wire the culture at each of these mean in-degrees (comma-separated,
+    /// e.g. 0.5,1,2,4,8) and report its connected components; writes connectivity.csv and
+    /// connectivity.svg (giant component against K).
+    #[arg(long, value_name = "K,K,...", value_delimiter = ',')]
+    in_degree_sweep: Option<Vec<f64>>,
     #[command(flatten)]
     culture: CultureArgs,
 }
@@ -692,6 +697,19 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     };
     use std::io::IsTerminal;
     let show = std::io::stderr().is_terminal();
+    if let Some(in_degrees) = &args.in_degree_sweep {
+        let network = match &scenario {
+            Source::File(crate::simulate::Scenario::Network(s)) => (**s).clone(),
+            Source::File(crate::simulate::Scenario::Fronts(_)) => {
+                return Err(Failure::Input(format!(
+                    "{source}: --in-degree-sweep needs a spiking network scenario (\"model\": \"network\"), not a kinematic one"
+                )))
+            }
+            Source::Options(o) => crate::simulate::network::scenario_from_options(o)
+                .map_err(Failure::Input)?,
+        };
+        return in_degree_sweep(&network, in_degrees, &source, &args.out, show);
+    }
     let mut progress = |stage: &str, done: f64, total: f64| {
         if show {
             eprint!("\r{stage}: {done:.0} of {total:.0} s simulated   ");
@@ -709,6 +727,53 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     std::fs::create_dir_all(out).map_err(Failure::Output)?;
     for (name, content) in files {
         let path = out.join(&name);
+        std::fs::write(&path, content).map_err(Failure::Output)?;
+        eprintln!("wrote {}", path.display());
+    }
+    Ok(())
+}
+
+/// `ringline simulate --in-degree-sweep`: prints a table and writes connectivity.csv and
+/// connectivity.svg.
+fn in_degree_sweep(
+    scenario: &crate::simulate::network::NetworkScenario,
+    in_degrees: &[f64],
+    source: &str,
+    out: &str,
+    show: bool,
+) -> Result<(), Failure> {
+    use crate::simulate::network;
+    let points = network::in_degree_sweep(scenario, in_degrees, &mut |done, total| {
+        if show {
+            eprint!("\rwiring: {done} of {total} in-degrees   ");
+        }
+    })
+    .map_err(|e| Failure::Input(format!("{source}: {e}")))?;
+    if show {
+        eprintln!();
+    }
+    println!("target K   mean in-degree   synapses   components   giant component");
+    for p in &points {
+        let g = &p.graph;
+        println!(
+            "{:>8}   {:>14.2}   {:>8}   {:>10}   {:>15.3}",
+            p.target_in_degree,
+            g.mean_in_degree,
+            g.synapses,
+            g.components,
+            g.giant_component_fraction
+        );
+    }
+    let figure =
+        crate::report::figures::in_degree_sweep(&points, crate::report::figures::Size::default())
+            .map_err(|e| Failure::Input(format!("{source}: {e}")))?;
+    let dir = std::path::Path::new(out);
+    std::fs::create_dir_all(dir).map_err(Failure::Output)?;
+    for (name, content) in [
+        ("connectivity.csv", network::in_degree_sweep_csv(&points)),
+        ("connectivity.svg", figure.svg),
+    ] {
+        let path = dir.join(name);
         std::fs::write(&path, content).map_err(Failure::Output)?;
         eprintln!("wrote {}", path.display());
     }

@@ -555,6 +555,69 @@ pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, Fi
     )
 }
 
+/// The giant component's share of the neurons against the target mean in-degree K, from an
+/// in-degree sweep of one culture (`ringline simulate --in-degree-sweep`).
+pub fn in_degree_sweep(
+    points: &[crate::simulate::network::InDegreePoint],
+    size: Size,
+) -> Result<Figure, FigureError> {
+    let mut sorted: Vec<_> = points
+        .iter()
+        .filter(|p| p.target_in_degree.is_finite())
+        .collect();
+    sorted.sort_by(|a, b| a.target_in_degree.total_cmp(&b.target_in_degree));
+    let (k0, k1) =
+        padded(sorted.iter().map(|p| p.target_in_degree)).ok_or_else(|| empty("no in-degrees"))?;
+    chart(
+        size,
+        "Giant component against mean in-degree",
+        (k0, k1, "target mean in-degree K (inputs per neuron)"),
+        (0.0, 1.05, "giant component (fraction of neurons)"),
+        |c| {
+            for pair in sorted.windows(2) {
+                c.segment(
+                    (
+                        pair[0].target_in_degree,
+                        pair[0].graph.giant_component_fraction,
+                    ),
+                    (
+                        pair[1].target_in_degree,
+                        pair[1].graph.giant_component_fraction,
+                    ),
+                    SKY_BLUE,
+                    1.5,
+                );
+            }
+            for p in &sorted {
+                c.circle(
+                    p.target_in_degree,
+                    p.graph.giant_component_fraction,
+                    3.0,
+                    BLUE,
+                    true,
+                );
+            }
+            Ok(sorted
+                .iter()
+                .map(|p| {
+                    (
+                        p.target_in_degree,
+                        p.graph.giant_component_fraction,
+                        format!(
+                            "K = {}: giant component {:.3} of {} neurons, {} components, mean in-degree {:.2}",
+                            p.target_in_degree,
+                            p.graph.giant_component_fraction,
+                            p.graph.neurons,
+                            p.graph.components,
+                            p.graph.mean_in_degree
+                        ),
+                    )
+                })
+                .collect())
+        },
+    )
+}
+
 /// How many fronts started at each site, against the site's track coordinate (or rank on a
 /// plane).
 pub fn initiation_sites(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {

@@ -563,7 +563,8 @@ fn wire_with(
         check.scale = p;
         let total = (n * n) as u64;
         let ln_q = libm::log(1.0 - p);
-        let mut k: u64 = 0;
+        // With p = 0 nothing connects (and ln(1 - p) = 0 would make every gap zero).
+        let mut k: u64 = if p > 0.0 { 0 } else { total };
         loop {
             // Gap to the next success of a Bernoulli(p) sequence: floor(ln U / ln(1 - p)).
             let skip = if p >= 1.0 {

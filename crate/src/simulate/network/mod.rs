@@ -13,7 +13,7 @@ pub use culture::{
 };
 pub use dynamics::{integrate, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams};
 pub use scenario::{
-    scenario_from_options, simulate_network, CultureOptions, CultureShape, DriveParams, Electrodes,
-    Imaging, NetworkRecording, NetworkScenario, NetworkTruth, NetworkTruthBurst,
-    CULTURE_DURATION_S, CULTURE_SEED,
+    in_degree_sweep, in_degree_sweep_csv, scenario_from_options, simulate_network, CultureOptions,
+    CultureShape, DriveParams, Electrodes, Imaging, InDegreePoint, NetworkRecording,
+    NetworkScenario, NetworkTruth, NetworkTruthBurst, CULTURE_DURATION_S, CULTURE_SEED,
 };

@@ -199,20 +199,13 @@ pub fn simulate_network(
     progress: &mut dyn FnMut(&str, f64, f64),
 ) -> Result<NetworkRecording, String> {
     check_network_scenario(s)?;
-    let mut rng = ChaCha8Rng::seed_from_u64(s.seed);
-    let count = (s.density_per_mm2 * s.pattern.area_mm2()).round() as usize;
-    let mut positions = place_neurons(&s.pattern, count, &mut rng);
-    sort_spatially(&mut positions, s.connectivity.sigma_um);
+    let Grown {
+        positions,
+        excitatory,
+        drive,
+        mut rng,
+    } = grow(s)?;
     let n = positions.len();
-    if n < 2 {
-        return Err("the pattern holds fewer than two neurons at this density".into());
-    }
-    let excitatory: Vec<bool> = (0..n)
-        .map(|_| uniform(&mut rng) < s.excitatory_fraction)
-        .collect();
-    let drive: Vec<f64> = (0..n)
-        .map(|_| (s.drive.mean_mv + s.drive.sd_mv * normal(&mut rng)).max(0.0))
-        .collect();
     progress("wiring", 0.0, 1.0);
     let synapses = wire(
         &positions,
@@ -266,6 +259,114 @@ pub fn simulate_network(
             bursts,
         },
     })
+}
+
+/// A culture before wiring, and the generator as wiring finds it.
+struct Grown {
+    positions: Vec<[f64; 2]>,
+    excitatory: Vec<bool>,
+    drive: Vec<f64>,
+    rng: ChaCha8Rng,
+}
+
+/// Places the scenario's neurons (in spatial order) and draws their type and drive.
+fn grow(s: &NetworkScenario) -> Result<Grown, String> {
+    let mut rng = ChaCha8Rng::seed_from_u64(s.seed);
+    let count = (s.density_per_mm2 * s.pattern.area_mm2()).round() as usize;
+    let mut positions = place_neurons(&s.pattern, count, &mut rng);
+    sort_spatially(&mut positions, s.connectivity.sigma_um);
+    let n = positions.len();
+    if n < 2 {
+        return Err("the pattern holds fewer than two neurons at this density".into());
+    }
+    let excitatory: Vec<bool> = (0..n)
+        .map(|_| uniform(&mut rng) < s.excitatory_fraction)
+        .collect();
+    let drive: Vec<f64> = (0..n)
+        .map(|_| (s.drive.mean_mv + s.drive.sd_mv * normal(&mut rng)).max(0.0))
+        .collect();
+    Ok(Grown {
+        positions,
+        excitatory,
+        drive,
+        rng,
+    })
+}
+
+/// The wiring of one culture at one target mean in-degree.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct InDegreePoint {
+    /// The mean in-degree asked for (K).
+    pub target_in_degree: f64,
+    pub graph: GraphStats,
+}
+
+/// The scenario's culture (the same neurons as in its simulation) wired at each target mean
+/// in-degree in turn, with its graph statistics: how connectivity and the giant component grow
+/// with K. Each wiring starts from the generator state the simulation's wiring starts from,
+/// so the point at the scenario's own K is the simulated network. `progress` gets the number
+/// of wirings done.
+pub fn in_degree_sweep(
+    s: &NetworkScenario,
+    in_degrees: &[f64],
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<Vec<InDegreePoint>, String> {
+    if in_degrees.is_empty() {
+        return Err("in-degree sweep: expected at least one mean in-degree".into());
+    }
+    for &k in in_degrees {
+        if !(k.is_finite() && k >= 0.0) {
+            return Err(format!(
+                "in-degree sweep: expected mean in-degrees of 0 or more, found {k}"
+            ));
+        }
+        let mut at_k = s.clone();
+        at_k.connectivity.mean_in_degree = k;
+        check_network_scenario(&at_k).map_err(|e| format!("in-degree sweep at K = {k}: {e}"))?;
+    }
+    let grown = grow(s)?;
+    let n = grown.positions.len();
+    let mut points = Vec::with_capacity(in_degrees.len());
+    for (done, &k) in in_degrees.iter().enumerate() {
+        progress(done, in_degrees.len());
+        let connectivity = Connectivity {
+            mean_in_degree: k,
+            ..s.connectivity.clone()
+        };
+        let synapses = wire(
+            &grown.positions,
+            &connectivity,
+            s.synaptic_delay_s,
+            s.axon_speed_mm_s * 1e3,
+            &mut grown.rng.clone(),
+        );
+        points.push(InDegreePoint {
+            target_in_degree: k,
+            graph: graph_stats(n, &synapses),
+        });
+    }
+    progress(in_degrees.len(), in_degrees.len());
+    Ok(points)
+}
+
+/// An in-degree sweep as CSV, one row per target mean in-degree.
+pub fn in_degree_sweep_csv(points: &[InDegreePoint]) -> String {
+    let mut out = String::from(
+        "target_in_degree,neurons,synapses,mean_in_degree,components,giant_component_fraction\n",
+    );
+    for p in points {
+        let g = &p.graph;
+        out += &format!(
+            "{},{},{},{:.6},{},{:.6}\n",
+            p.target_in_degree,
+            g.neurons,
+            g.synapses,
+            g.mean_in_degree,
+            g.components,
+            g.giant_component_fraction
+        );
+    }
+    out
 }
 
 /// Neurons (the neuron itself included) whose median first spike times a sampled neuron in
