@@ -17,6 +17,16 @@ fn ringline(args: &[&str], dir: &Path) -> Output {
         .expect("the binary runs")
 }
 
+/// Fails the test with the command's own stderr unless it exited with 0.
+fn assert_succeeded(out: &Output) {
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
 fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
     let path = dir.join(name);
     std::fs::write(&path, bytes).expect("temp file");
@@ -152,12 +162,7 @@ fn inspect_json_reports_counts_rates_and_the_track() {
         &["inspect", "act.csv", "--layout", "lay.csv", "--json"],
         dir.path(),
     );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_succeeded(&out);
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).expect("one JSON document");
     assert_eq!(v["site_count"], 4);
     assert_eq!(v["spike_count"], 4);
@@ -237,12 +242,7 @@ fn analyze_json_keys_and_out_files_agree() {
         ],
         dir.path(),
     );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_succeeded(&out);
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["track"]["kind"], "line");
     let bursts = v["bursts"].as_array().unwrap();
@@ -381,12 +381,7 @@ fn simulate_network_scenario_with_overrides() {
         ],
         dir.path(),
     );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_succeeded(&out);
     for f in [
         "spikes.csv",
         "layout.csv",
@@ -453,12 +448,7 @@ fn simulate_from_culture_options() {
         "dish",
     ];
     let out = ringline(&args, dir.path());
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_succeeded(&out);
     let layout = std::fs::read_to_string(dir.path().join("dish/layout.csv")).unwrap();
     let mut xs: Vec<f64> = Vec::new();
     let mut ys: Vec<f64> = Vec::new();
@@ -480,12 +470,7 @@ fn simulate_from_culture_options() {
         &["simulate", "dish/scenario.json", "--out", "again"],
         dir.path(),
     );
-    assert_eq!(
-        again.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&again.stderr)
-    );
+    assert_succeeded(&again);
     for f in ["spikes.csv", "layout.csv", "truth.json"] {
         assert_eq!(
             std::fs::read(dir.path().join("dish").join(f)).unwrap(),
@@ -548,12 +533,7 @@ fn simulate_in_degree_sweep() {
         ],
         dir.path(),
     );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert_succeeded(&out);
     let ringline::simulate::Scenario::Network(network) =
         ringline::simulate::parse_scenario(&std::fs::read_to_string(scenario).unwrap()).unwrap()
     else {
