@@ -5,7 +5,7 @@
 
 mod common;
 
-use common::{bad_cases, GOOD_LAYOUT, GOOD_SPIKES};
+use common::{bad_cases, demo_network_scenario, demo_scenario_path, GOOD_LAYOUT, GOOD_SPIKES};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -364,10 +364,7 @@ fn analyze_bad_settings_exit_2_and_flat_traces_have_no_events() {
 #[test]
 fn simulate_network_scenario_with_overrides() {
     let dir = tempfile::tempdir().unwrap();
-    let scenario = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/../demo-data/scenarios/network-strip-16.json"
-    );
+    let scenario = &demo_scenario_path("network-strip-16.json");
     let out = ringline(
         &[
             "simulate",
@@ -518,10 +515,7 @@ fn simulate_from_culture_options() {
 #[test]
 fn simulate_in_degree_sweep() {
     let dir = tempfile::tempdir().unwrap();
-    let scenario = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/../demo-data/scenarios/network-strip-16.json"
-    );
+    let scenario = &demo_scenario_path("network-strip-16.json");
     let out = ringline(
         &[
             "simulate",
@@ -534,11 +528,7 @@ fn simulate_in_degree_sweep() {
         dir.path(),
     );
     assert_succeeded(&out);
-    let ringline::simulate::Scenario::Network(network) =
-        ringline::simulate::parse_scenario(&std::fs::read_to_string(scenario).unwrap()).unwrap()
-    else {
-        panic!("a network scenario");
-    };
+    let network = demo_network_scenario("network-strip-16.json");
     let points =
         ringline::simulate::network::in_degree_sweep(&network, &[0.5, 2.0, 8.0], &mut |_, _| {})
             .unwrap();
@@ -552,10 +542,7 @@ fn simulate_in_degree_sweep() {
     let table = String::from_utf8_lossy(&out.stdout);
     assert_eq!(table.lines().count(), 4, "{table}");
 
-    let kinematic = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/../demo-data/scenarios/strip-16.json"
-    );
+    let kinematic = &demo_scenario_path("strip-16.json");
     let refused = ringline(
         &[
             "simulate",

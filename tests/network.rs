@@ -6,13 +6,14 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
+
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use ringline::simulate::network::{
     graph_stats, in_degree_sweep, in_degree_sweep_csv, integrate, place_neurons,
     scenario_from_options, simulate_network, wire, wire_checked, Connectivity, CultureOptions,
-    CultureShape, Footprint, Network, NetworkScenario, NeuronParams, NoiseParams, Pattern,
-    SynapseParams, Synapses,
+    CultureShape, Footprint, Network, NeuronParams, NoiseParams, Pattern, SynapseParams, Synapses,
 };
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
@@ -320,17 +321,7 @@ fn in_degree_sweep_follows_erdos_renyi() {
 /// in-degrees are refused with a sentence.
 #[test]
 fn in_degree_sweep_at_the_scenario_k_is_the_simulated_network() {
-    let text = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/../demo-data/scenarios/network-ring-24.json"
-    ))
-    .unwrap();
-    let ringline::simulate::Scenario::Network(scenario) =
-        ringline::simulate::parse_scenario(&text).unwrap()
-    else {
-        panic!("the network ring demo is a network scenario");
-    };
-    let mut scenario: NetworkScenario = *scenario;
+    let mut scenario = common::demo_network_scenario("network-ring-24.json");
     scenario.duration_s = 0.2;
     let own = scenario.connectivity.mean_in_degree;
     let simulated = simulate_network(&scenario, &mut |_, _, _| {}).unwrap();

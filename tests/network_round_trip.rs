@@ -5,24 +5,15 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
+
+use common::demo_network_scenario;
 use ringline::fronts::{analyze, AnalysisSettings};
 use ringline::geometry::{fit_track, TrackSettings};
 use ringline::import::{read_recording, write_layout, write_spike_list, ReadOptions};
-use ringline::simulate::{parse_scenario, Scenario};
-
-fn scenario(file: &str) -> ringline::simulate::network::NetworkScenario {
-    let path = format!(
-        "{}/../demo-data/scenarios/{file}",
-        env!("CARGO_MANIFEST_DIR")
-    );
-    match parse_scenario(&std::fs::read_to_string(path).unwrap()).unwrap() {
-        Scenario::Network(s) => *s,
-        Scenario::Fronts(_) => panic!("expected a network scenario"),
-    }
-}
 
 fn round_trip(file: &str) {
-    round_trip_of(file, scenario(file));
+    round_trip_of(file, demo_network_scenario(file));
 }
 
 fn round_trip_of(file: &str, s: ringline::simulate::network::NetworkScenario) {

@@ -6,6 +6,8 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
+
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
@@ -203,10 +205,7 @@ fn wav_recovers_the_front_speed_and_truncation_is_named() {
 #[test]
 fn simulated_voltage_round_trip_recovers_the_true_speed() {
     let dir = tempfile::tempdir().unwrap();
-    let scenario_path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/../demo-data/scenarios/network-strip-16.json"
-    );
+    let scenario_path = &common::demo_scenario_path("network-strip-16.json");
     let mut scenario: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(scenario_path).unwrap()).unwrap();
     scenario["duration_s"] = serde_json::json!(40);

@@ -11,6 +11,23 @@ pub fn demo_files(name: &str) -> (Vec<u8>, Vec<u8>) {
     )
 }
 
+/// Path of a scenario file in demo-data/scenarios/.
+pub fn demo_scenario_path(file: &str) -> String {
+    format!(
+        "{}/../demo-data/scenarios/{file}",
+        env!("CARGO_MANIFEST_DIR")
+    )
+}
+
+/// A spiking-network scenario from demo-data/scenarios/.
+pub fn demo_network_scenario(file: &str) -> ringline::simulate::network::NetworkScenario {
+    let text = std::fs::read_to_string(demo_scenario_path(file)).expect("demo scenario");
+    match ringline::simulate::parse_scenario(&text).expect("the demo scenario parses") {
+        ringline::simulate::Scenario::Network(s) => *s,
+        ringline::simulate::Scenario::Fronts(_) => panic!("{file}: expected a network scenario"),
+    }
+}
+
 /// What `ringline analyze` reports on a demo recording with default settings (its library
 /// path, `analyze_files`).
 pub fn command_line_report(name: &str) -> ringline::report::AnalysisReport {
