@@ -378,6 +378,19 @@ pub struct WiringCheck {
     pub scale: f64,
 }
 
+/// Lower and upper corners of the smallest axis-aligned box holding `points`.
+fn bounding_box(points: &[[f64; 2]]) -> ([f64; 2], [f64; 2]) {
+    let mut lo = [f64::INFINITY; 2];
+    let mut hi = [f64::NEG_INFINITY; 2];
+    for p in points {
+        for k in 0..2 {
+            lo[k] = lo[k].min(p[k]);
+            hi[k] = hi[k].max(p[k]);
+        }
+    }
+    (lo, hi)
+}
+
 /// A uniform grid of cells for neighbour search.
 pub(crate) struct CellGrid {
     origin: [f64; 2],
@@ -392,14 +405,7 @@ pub(crate) struct CellGrid {
 impl CellGrid {
     /// A grid over `points` with square cells `cell` micrometres wide.
     pub(crate) fn new(points: &[[f64; 2]], cell: f64) -> Self {
-        let mut lo = [f64::INFINITY; 2];
-        let mut hi = [f64::NEG_INFINITY; 2];
-        for p in points {
-            for k in 0..2 {
-                lo[k] = lo[k].min(p[k]);
-                hi[k] = hi[k].max(p[k]);
-            }
-        }
+        let (lo, hi) = bounding_box(points);
         let nx = (((hi[0] - lo[0]) / cell).floor() as usize + 1).max(1);
         let ny = (((hi[1] - lo[1]) / cell).floor() as usize + 1).max(1);
         let key = |p: &[f64; 2]| {
@@ -429,6 +435,17 @@ impl CellGrid {
             start: counts,
             order,
         }
+    }
+
+    /// A grid whose cells hold about `per_cell` points each on average over the points'
+    /// bounding box (cells at least 1 um wide).
+    pub(crate) fn holding(points: &[[f64; 2]], per_cell: usize) -> Self {
+        let (lo, hi) = bounding_box(points);
+        let area = ((hi[0] - lo[0]) * (hi[1] - lo[1])).max(1.0);
+        let cell = (area * per_cell as f64 / points.len().max(1) as f64)
+            .sqrt()
+            .max(1.0);
+        CellGrid::new(points, cell)
     }
 
     /// Calls `f(i, j)` once for every unordered pair of distinct points in cells within

@@ -389,27 +389,11 @@ fn truth_bursts(
     // Each sampled neuron's activation is the median first spike of itself and its nearest
     // neighbours: a lone spontaneous spike just before a front (about 1 neuron in 200 in a
     // dish) would otherwise pass for the front's origin and pull the fit.
-    let neighbours: Vec<Vec<usize>> = {
-        // Cells holding about TRUTH_NEIGHBOURS neurons each on average.
-        let (lo, hi) = positions.iter().fold(
-            ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]),
-            |(lo, hi), p| {
-                (
-                    [lo[0].min(p[0]), lo[1].min(p[1])],
-                    [hi[0].max(p[0]), hi[1].max(p[1])],
-                )
-            },
-        );
-        let area = ((hi[0] - lo[0]) * (hi[1] - lo[1])).max(1.0);
-        let cell = (area * TRUTH_NEIGHBOURS as f64 / positions.len() as f64)
-            .sqrt()
-            .max(1.0);
-        let grid = CellGrid::new(positions, cell);
-        sample
-            .iter()
-            .map(|&i| grid.nearest(positions, positions[i], TRUTH_NEIGHBOURS))
-            .collect()
-    };
+    let grid = CellGrid::holding(positions, TRUTH_NEIGHBOURS);
+    let neighbours: Vec<Vec<usize>> = sample
+        .iter()
+        .map(|&i| grid.nearest(positions, positions[i], TRUTH_NEIGHBOURS))
+        .collect();
     let front_settings = FrontSettings {
         resamples: 200,
         min_sites: 8,
