@@ -257,7 +257,16 @@ fn analyze_json_keys_and_out_files_agree() {
         assert!(b["start_s"].as_f64().unwrap() < b["end_s"].as_f64().unwrap());
         if b["front"].is_null() {
             assert!(b["no_front_reason"].is_string());
+            assert!(b["no_front_kind"].is_string());
             continue;
+        }
+        for a in b["activations"].as_array().unwrap() {
+            let status = a["status"].as_str().unwrap();
+            assert_eq!(
+                a["used"].as_bool().unwrap(),
+                status == "used" || status == "retimed",
+                "{a}"
+            );
         }
         with_front += 1;
         let f = &b["front"];
@@ -287,7 +296,9 @@ fn analyze_json_keys_and_out_files_agree() {
     let bursts_csv = std::fs::read_to_string(out_dir.join("bursts.csv")).unwrap();
     assert_eq!(bursts_csv.lines().count() - 1, bursts.len());
     let activation = std::fs::read_to_string(out_dir.join("activation.csv")).unwrap();
-    assert!(activation.starts_with("burst,site,along_um,x_um,y_um,time_s,used\n"));
+    assert!(
+        activation.starts_with("burst,site,along_um,x_um,y_um,time_s,first_spike_s,used,status\n")
+    );
     let summary: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out_dir.join("summary.json")).unwrap())
             .unwrap();

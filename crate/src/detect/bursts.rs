@@ -96,6 +96,10 @@ pub struct BurstSettings {
     pub min_site_fraction: f64,
     /// ... and at least this many sites.
     pub min_sites: usize,
+    /// A window is a burst only if fewer than this many windows as full of spikes are
+    /// expected by chance over the recording from the background rate alone (see
+    /// [`chance_windows`]); 0 turns the test off.
+    pub max_chance_windows: f64,
 }
 
 impl Default for BurstSettings {
@@ -106,8 +110,44 @@ impl Default for BurstSettings {
             isi_n: IsiNSettings::default(),
             min_site_fraction: 0.3,
             min_sites: 3,
+            max_chance_windows: 0.05,
         }
     }
+}
+
+/// Network bursts and what the detector set aside.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BurstDetection {
+    pub bursts: Vec<NetworkBurst>,
+    /// Candidate windows with enough sites but no more spikes than background firing
+    /// gives by chance ([`chance_windows`] at least `max_chance_windows`).
+    pub chance_windows_rejected: usize,
+    /// Candidate windows with too few sites.
+    pub small_windows_rejected: usize,
+    /// All sites' firing rate outside the candidate windows, spikes/s.
+    pub background_rate_hz: f64,
+}
+
+/// Expected number of windows of `duration_s` holding at least `spikes` spikes, over a
+/// recording of `span_s`, when spikes arrive as a Poisson process of `rate_hz` (all sites
+/// together) and nothing else: rate x span x P(Poisson(rate x duration) >= spikes - 1).
+///
+/// Given a spike at time t, the others of a Poisson process are again Poisson (Slivnyak's
+/// theorem; e.g. Daley & Vere-Jones 2008, vol. II, sec. 13.1), so this counts the spikes
+/// that open a run of `spikes` within `duration_s`; each chance run has at least one such
+/// spike, so it bounds the expected number of chance runs from above (compare Glaz, Naus &
+/// Wallenstein 2001, Scan Statistics, ch. 2). P(X >= k) for X ~ Poisson(m) is the
+/// regularised lower incomplete gamma function P(k, m).
+pub fn chance_windows(rate_hz: f64, span_s: f64, duration_s: f64, spikes: usize) -> f64 {
+    if spikes <= 1 {
+        return rate_hz * span_s;
+    }
+    let mean = rate_hz * duration_s;
+    if mean <= 0.0 {
+        return 0.0;
+    }
+    let tail = statrs::function::gamma::checked_gamma_lr((spikes - 1) as f64, mean).unwrap_or(1.0);
+    rate_hz * span_s * tail
 }
 
 /// Finds network bursts in spike trains (seconds, ascending, one train per site).
@@ -117,10 +157,13 @@ impl Default for BurstSettings {
 /// once), extended to where the rate falls back near baseline, with close runs merged.
 /// ISI_N: per site, runs where N consecutive spikes span at most `max_span_s`; site bursts
 /// that overlap or nearly touch (`merge_gap_s`) form a network burst.
-/// Both keep bursts with at least `min_site_fraction` of the active sites and `min_sites`.
+/// Both keep bursts with at least `min_site_fraction` of the active sites and `min_sites`,
+/// and with more spikes than chance coincidences of the background firing would give
+/// ([`chance_windows`] under `max_chance_windows`; the background rate is all spikes outside
+/// the candidate windows over the time outside them).
 ///
 /// Empty trains are allowed (silent sites); no spikes at all gives no bursts.
-pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> Vec<NetworkBurst> {
+pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> BurstDetection {
     let windows = match settings.detector {
         BurstDetector::PopulationRate => rate_windows(trains_s, &settings.population_rate),
         BurstDetector::IsiN => isi_n_windows(trains_s, &settings.isi_n),
@@ -129,9 +172,9 @@ pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> Vec<Net
     let needed = (settings.min_site_fraction * active as f64)
         .ceil()
         .max(settings.min_sites as f64) as usize;
-    windows
+    let candidates: Vec<NetworkBurst> = windows
         .into_iter()
-        .filter_map(|(start_s, end_s, peak_s)| {
+        .map(|(start_s, end_s, peak_s)| {
             let mut sites = Vec::new();
             let mut spike_count = 0;
             for (i, train) in trains_s.iter().enumerate() {
@@ -142,15 +185,50 @@ pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> Vec<Net
                     spike_count += b - a;
                 }
             }
-            (sites.len() >= needed).then_some(NetworkBurst {
+            NetworkBurst {
                 start_s,
                 end_s,
                 peak_s,
                 sites,
                 spike_count,
-            })
+            }
         })
-        .collect()
+        .collect();
+    let total: usize = trains_s.iter().map(Vec::len).sum();
+    let span_s = crate::recording::trains_span_s(trains_s).map_or(0.0, |(a, b)| b - a);
+    let inside_spikes: usize = candidates.iter().map(|b| b.spike_count).sum();
+    let inside_s: f64 = candidates.iter().map(|b| b.end_s - b.start_s).sum();
+    let outside_s = (span_s - inside_s).max(0.0);
+    // Half a spike when none fell outside: a rate that is small but not zero.
+    let background_rate_hz = if outside_s > 0.0 {
+        (total.saturating_sub(inside_spikes) as f64).max(0.5) / outside_s
+    } else {
+        0.0
+    };
+    let mut detection = BurstDetection {
+        bursts: Vec::with_capacity(candidates.len()),
+        chance_windows_rejected: 0,
+        small_windows_rejected: 0,
+        background_rate_hz,
+    };
+    for b in candidates {
+        if b.sites.len() < needed {
+            detection.small_windows_rejected += 1;
+            continue;
+        }
+        let expected = chance_windows(
+            background_rate_hz,
+            span_s,
+            b.end_s - b.start_s,
+            b.spike_count,
+        );
+        if settings.max_chance_windows > 0.0 && expected >= settings.max_chance_windows {
+            detection.chance_windows_rejected += 1;
+            continue;
+        }
+        detection.bursts.push(b);
+    }
+    detection
 }
 
 /// The smoothed population rate and the levels the rate detector uses.

@@ -7,6 +7,6 @@ pub mod filter;
 pub mod voltage;
 
 pub use bursts::{
-    detect_bursts, population_rate, BurstDetector, BurstSettings, IsiNSettings, NetworkBurst,
-    PopulationRate, PopulationRateSettings,
+    chance_windows, detect_bursts, population_rate, BurstDetection, BurstDetector, BurstSettings,
+    IsiNSettings, NetworkBurst, PopulationRate, PopulationRateSettings,
 };

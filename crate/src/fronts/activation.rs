@@ -7,9 +7,13 @@ use serde::{Deserialize, Serialize};
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum ActivationRule {
-    /// The first spike that opens a cluster of `cluster_spikes` spikes within
-    /// `cluster_window_s`: a lone stray spike before the front is passed over.
+    /// The site's first spike in the burst window; stray early spikes are then found and
+    /// passed over by the other sites' consensus (see `consensus` in [`ActivationSettings`]).
     #[default]
+    FirstSpike,
+    /// The first spike that opens a cluster of `cluster_spikes` spikes within
+    /// `cluster_window_s`: a lone stray spike before the front is passed over (but so is a
+    /// single unit's only spike).
     FirstOfCluster,
     /// The median of the site's first `median_of_first` spikes in the burst.
     MedianOfFirst,
@@ -29,6 +33,16 @@ pub struct ActivationSettings {
     /// The search starts this long before the burst window (the origin fires before the
     /// population rate crosses its threshold), but never before the previous burst ended.
     pub lead_s: f64,
+    /// Check every site against the front the other sites make: a site whose time lies more
+    /// than `outlier_sd` robust residual SDs (and `min_outlier_s`) before the front is
+    /// re-timed to its first spike that fits, or set aside; one that lies as far after it is
+    /// set aside.
+    pub consensus: bool,
+    /// Outlier bound in robust SDs of the front's residuals (the Hampel identifier; Leys et
+    /// al. 2013, J Exp Soc Psychol 49:764, discuss 2.5 to 3; 3.5 sets aside fewer good sites).
+    pub outlier_sd: f64,
+    /// ... and never closer to the front than this, seconds (common practice, no source).
+    pub min_outlier_s: f64,
 }
 
 impl Default for ActivationSettings {
@@ -39,8 +53,24 @@ impl Default for ActivationSettings {
             cluster_window_s: 0.02,
             median_of_first: 3,
             lead_s: 0.1,
+            consensus: true,
+            outlier_sd: 3.5,
+            min_outlier_s: 0.002,
         }
     }
+}
+
+/// The window (seconds) in which a site's activation is sought: from `lead_s` before the
+/// burst (never before the previous burst's end, `not_before_s`) to the burst's end.
+pub fn activation_window(
+    burst: &NetworkBurst,
+    not_before_s: f64,
+    settings: &ActivationSettings,
+) -> (f64, f64) {
+    (
+        (burst.start_s - settings.lead_s).max(not_before_s),
+        burst.end_s,
+    )
 }
 
 /// Activation time of every site (seconds) in `burst`; `None` for sites that do not take
@@ -51,8 +81,7 @@ pub fn activation_times(
     not_before_s: f64,
     settings: &ActivationSettings,
 ) -> Vec<Option<f64>> {
-    let from = (burst.start_s - settings.lead_s).max(not_before_s);
-    let to = burst.end_s;
+    let (from, to) = activation_window(burst, not_before_s, settings);
     trains_s
         .iter()
         .map(|train| {
@@ -62,6 +91,7 @@ pub fn activation_times(
                 return None;
             }
             match settings.rule {
+                ActivationRule::FirstSpike => Some(train[a]),
                 ActivationRule::FirstOfCluster => {
                     let k = settings.cluster_spikes.max(1);
                     (a..b)
@@ -99,12 +129,11 @@ mod tests {
     fn a_stray_spike_before_the_cluster_is_passed_over() {
         // Stray at 0.95 s, the site's own burst from 1.00 s.
         let trains = vec![vec![0.95, 1.0, 1.004, 1.01, 1.2], vec![], vec![1.3]];
-        let t = activation_times(
-            &trains,
-            &burst(1.0, 1.5),
-            f64::NEG_INFINITY,
-            &ActivationSettings::default(),
-        );
+        let settings = ActivationSettings {
+            rule: ActivationRule::FirstOfCluster,
+            ..ActivationSettings::default()
+        };
+        let t = activation_times(&trains, &burst(1.0, 1.5), f64::NEG_INFINITY, &settings);
         assert_eq!(t, vec![Some(1.0), None, None]);
     }
 

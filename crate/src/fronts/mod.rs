@@ -4,14 +4,16 @@
 //! Speeds are in mm/s, distances in micrometres, times in seconds.
 
 mod activation;
+mod consensus;
 mod models;
 pub mod regression;
 mod summary;
 
-pub use activation::{activation_times, ActivationRule, ActivationSettings};
+pub use activation::{activation_times, activation_window, ActivationRule, ActivationSettings};
+pub use consensus::{settle, ActivationStatus, Settled};
 pub use models::{
-    distance_from_origin, fit_front, model_name, Estimator, FittedFront, FrontModel, FrontPoints,
-    FrontSettings, ModelScore, Origin,
+    choose_model, distance_from_origin, fit_chosen, fit_front, model_name, Estimator, FittedFront,
+    FrontModel, FrontPoints, FrontSettings, ModelChoice, ModelScore, NoFront, NoFrontKind, Origin,
 };
 /// Angle of a point seen from a ring track's centre, radians (0 for other tracks).
 pub fn ring_angle_of(track: &Track, p: [f64; 2]) -> f64 {
@@ -50,9 +52,15 @@ pub struct Activation {
     pub along_um: Option<f64>,
     pub x_um: f64,
     pub y_um: f64,
+    /// Activation time, seconds (after any re-timing).
     pub time_s: f64,
-    /// Whether the front fit used it (off-track sites are not used).
+    /// The site's first spike in the burst window, seconds (differs from `time_s` when it
+    /// was re-timed or another activation rule was chosen).
+    pub first_spike_s: f64,
+    /// Whether the front fit used it.
     pub used: bool,
+    /// What became of it: used, re-timed past a stray spike, set aside, or off the track.
+    pub status: ActivationStatus,
 }
 
 /// A front as reported to the user.
@@ -77,6 +85,10 @@ pub struct FrontReport {
     pub sites_used: usize,
     pub r2: f64,
     pub residual_rms_ms: f64,
+    /// Robust SD of the residuals (the sites' timing jitter), ms.
+    pub timing_sd_ms: f64,
+    /// Time the front took from its first to its last used site, ms.
+    pub transit_ms: f64,
     /// Time the front left its origin, seconds.
     pub start_s: f64,
     /// Farthest distance from the origin at which a site activated, micrometres.
@@ -108,7 +120,13 @@ pub struct BurstResult {
     /// Sites with spikes in the window.
     pub site_count: usize,
     pub activations: Vec<Activation>,
+    /// Sites re-timed past an early stray spike.
+    pub retimed_sites: usize,
+    /// Sites set aside as outliers (early or late).
+    pub outlier_sites: usize,
     pub front: Option<FrontReport>,
+    /// Why there is no front: too few sites, synchronous, unresolved or unfitted.
+    pub no_front_kind: Option<NoFrontKind>,
     pub no_front_reason: Option<String>,
 }
 
@@ -196,8 +214,7 @@ pub fn analyze(
             // rate is binned by frames and smoothed over at least 5 frames, so that a slow front
             // (a few events per frame interval) still stands out.
             let s = settings.to_mut();
-            s.activation.rule = activation::ActivationRule::FirstOfCluster;
-            s.activation.cluster_spikes = 1;
+            s.activation.rule = activation::ActivationRule::FirstSpike;
             let p = &mut s.bursts.population_rate;
             p.bin_s = p.bin_s.max(*frame_interval_s);
             p.smooth_sd_s = p.smooth_sd_s.max(5.0 * frame_interval_s);
@@ -205,7 +222,30 @@ pub fn analyze(
         }
     };
     let settings: &AnalysisSettings = &settings;
-    let bursts = detect_bursts(trains_s, &settings.bursts);
+    let detection = detect_bursts(trains_s, &settings.bursts);
+    if detection.chance_windows_rejected > 0 {
+        notices.push(Notice::new(
+            crate::place::Place::default(),
+            format!(
+                "{} candidate bursts were set aside as chance coincidences: they held no more spikes than background firing ({:.2} spikes/s over all sites, outside bursts) puts in a window as long {} times or more per recording by chance",
+                detection.chance_windows_rejected,
+                detection.background_rate_hz,
+                settings.bursts.max_chance_windows
+            ),
+        ));
+    }
+    if detection.small_windows_rejected > 0 {
+        notices.push(Notice::new(
+            crate::place::Place::default(),
+            format!(
+                "{} candidate bursts were set aside because fewer sites fired in them than a burst needs (bursts.min_sites {}, bursts.min_site_fraction {})",
+                detection.small_windows_rejected,
+                settings.bursts.min_sites,
+                settings.bursts.min_site_fraction
+            ),
+        ));
+    }
+    let bursts = detection.bursts;
     let time_step_s = recording
         .metadata
         .sample_interval_s
@@ -225,11 +265,14 @@ pub fn analyze(
     let mut previous_end = f64::NEG_INFINITY;
     for (k, burst) in bursts.iter().enumerate() {
         let times = activation_times(trains_s, burst, previous_end, &settings.activation);
+        let window = activation_window(burst, previous_end, &settings.activation);
         previous_end = burst.end_s;
         results.push(analyse_burst(
             k,
             burst,
             &times,
+            trains_s,
+            window,
             recording,
             track,
             &on_track,
@@ -332,6 +375,8 @@ fn analyse_burst(
     k: usize,
     burst: &NetworkBurst,
     times: &[Option<f64>],
+    trains_s: &[Vec<f64>],
+    window: (f64, f64),
     recording: &Recording,
     track: &TrackFit,
     on_track: &[bool],
@@ -340,55 +385,111 @@ fn analyse_burst(
     time_step_s: Option<f64>,
 ) -> BurstResult {
     let along = |i: usize| track.placements.get(i).map(|p| p.along_um);
-    let activations: Vec<Activation> = times
-        .iter()
-        .enumerate()
-        .filter_map(|(i, t)| {
-            t.map(|time_s| Activation {
-                site: recording.sites[i].id.clone(),
-                along_um: along(i),
-                x_um: recording.sites[i].x_um,
-                y_um: recording.sites[i].y_um,
-                time_s,
-                used: on_track[i],
-            })
-        })
-        .collect();
-    let mut points = FrontPoints {
+    let in_window = |i: usize| -> &[f64] {
+        let train = &trains_s[i];
+        let a = train.partition_point(|&t| t < window.0);
+        let b = train.partition_point(|&t| t <= window.1);
+        &train[a..b]
+    };
+    let mut all = FrontPoints {
         site: Vec::new(),
         along_um: Vec::new(),
         angle_rad: Vec::new(),
         xy_um: Vec::new(),
         t_s: Vec::new(),
     };
+    let mut spikes: Vec<&[f64]> = Vec::new();
     for (i, t) in times.iter().enumerate() {
         if let (Some(t), true) = (t, on_track[i]) {
             let xy = recording.sites[i].position_um();
-            points.site.push(i);
-            points.along_um.push(along(i).unwrap_or(0.0));
-            points.angle_rad.push(models::ring_angle(&track.track, xy));
-            points.xy_um.push(xy);
-            points.t_s.push(*t);
+            all.site.push(i);
+            all.along_um.push(along(i).unwrap_or(0.0));
+            all.angle_rad.push(models::ring_angle(&track.track, xy));
+            all.xy_um.push(xy);
+            all.t_s.push(*t);
+            spikes.push(in_window(i));
         }
     }
+    let settled = settle(
+        &all,
+        &spikes,
+        &track.track,
+        &settings.fronts,
+        &settings.activation,
+        time_step_s,
+    );
+    let mut status_of: Vec<Option<(ActivationStatus, f64)>> = vec![None; times.len()];
+    for (j, &i) in all.site.iter().enumerate() {
+        status_of[i] = Some((settled.status[j], settled.time_s[j]));
+    }
+    let activations: Vec<Activation> = times
+        .iter()
+        .enumerate()
+        .filter_map(|(i, t)| {
+            t.map(|rule_time| {
+                let (status, time_s) =
+                    status_of[i].unwrap_or((ActivationStatus::OffTrack, rule_time));
+                Activation {
+                    site: recording.sites[i].id.clone(),
+                    along_um: along(i),
+                    x_um: recording.sites[i].x_um,
+                    y_um: recording.sites[i].y_um,
+                    time_s,
+                    first_spike_s: in_window(i).first().copied().unwrap_or(rule_time),
+                    used: status.used(),
+                    status,
+                }
+            })
+        })
+        .collect();
+    let retimed_sites = settled
+        .status
+        .iter()
+        .filter(|s| **s == ActivationStatus::Retimed)
+        .count();
+    let outlier_sites = settled
+        .status
+        .iter()
+        .filter(|s| {
+            matches!(
+                s,
+                ActivationStatus::EarlyOutlier | ActivationStatus::LateOutlier
+            )
+        })
+        .count();
+    // Sites that fired in the burst, whatever the fit made of them: a set-aside site was
+    // reached, so it never counts as a failure of propagation.
+    let activated: Vec<usize> = all.site.clone();
+    let points = &settled.points;
     let seed = settings.fronts.seed.wrapping_add(k as u64);
-    let (front, no_front_reason) =
-        match fit_front(&points, &track.track, &settings.fronts, seed, time_step_s) {
-            Ok(f) => (
-                Some(report_front(
-                    &f,
-                    &points,
-                    recording,
-                    track,
-                    on_track,
-                    recording_site,
-                    time_step_s,
-                    settings,
-                )),
-                None,
-            ),
-            Err(reason) => (None, Some(reason)),
-        };
+    let fitted = settled.choice.and_then(|choice| {
+        fit_chosen(
+            points,
+            &track.track,
+            &choice,
+            &settings.fronts,
+            seed,
+            time_step_s,
+        )
+    });
+    let (front, no_front_kind, no_front_reason) = match fitted {
+        Ok(f) => (
+            Some(report_front(
+                &f,
+                points,
+                &activated,
+                recording,
+                track,
+                on_track,
+                recording_site,
+                time_step_s,
+                settings,
+            )),
+            None,
+            None,
+        ),
+        Err(no) => (None, Some(no.kind), Some(no.reason)),
+    };
     BurstResult {
         burst: k + 1,
         start_s: burst.start_s,
@@ -397,7 +498,10 @@ fn analyse_burst(
         spike_count: burst.spike_count,
         site_count: burst.sites.len(),
         activations,
+        retimed_sites,
+        outlier_sites,
         front,
+        no_front_kind,
         no_front_reason,
     }
 }
@@ -406,6 +510,7 @@ fn analyse_burst(
 fn report_front(
     f: &FittedFront,
     points: &FrontPoints,
+    activated: &[usize],
     recording: &Recording,
     track: &TrackFit,
     on_track: &[bool],
@@ -416,7 +521,7 @@ fn report_front(
     let reach_um = f.distance_um.iter().copied().fold(0.0, f64::max);
     let mut available_um: f64 = 0.0;
     let mut missed = 0;
-    let used: std::collections::HashSet<usize> = points.site.iter().copied().collect();
+    let used: std::collections::HashSet<usize> = activated.iter().copied().collect();
     for (i, site) in recording.sites.iter().enumerate() {
         if !(recording_site[i] && on_track[i]) {
             continue;
@@ -460,6 +565,8 @@ fn report_front(
         sites_used: f.sites_used,
         r2: f.r2,
         residual_rms_ms: f.residual_rms_s * 1e3,
+        timing_sd_ms: f.timing_sd_s * 1e3,
+        transit_ms: f.transit_s * 1e3,
         start_s: f.start_s,
         reach_um,
         available_um,

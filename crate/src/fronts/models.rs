@@ -2,7 +2,7 @@
 //! with bootstrap intervals over sites.
 
 use super::regression::{
-    huber, ols, ols_slope_weighted, theil_sen, theil_sen_point, TheilSenResampler,
+    huber, ols, ols_slope_weighted, theil_sen, theil_sen_point, TheilSenResampler, HUBER_T,
 };
 use crate::geometry::{wrap_angle, Rotation, Track};
 use crate::stats::quantile;
@@ -86,6 +86,11 @@ pub struct FrontSettings {
     /// A transit shorter than this many sampling intervals cannot be resolved; speeds are
     /// flagged when the transit is under 3 times this (common practice, no source).
     pub resolution_steps: f64,
+    /// A front whose transit over its sites is under this many robust SDs of its residuals
+    /// is unresolved, not a front. Without propagation, a line fitted to n sites of timing
+    /// SD sigma shows a transit of about sqrt(12 / n) |z| sigma (z standard normal), so 4
+    /// keeps chance fronts below about 1 in 1,000 bursts for n >= 6 (derived).
+    pub min_transit_sd: f64,
 }
 
 impl Default for FrontSettings {
@@ -98,6 +103,7 @@ impl Default for FrontSettings {
             confidence: 0.95,
             seed: 1,
             resolution_steps: 3.0,
+            min_transit_sd: 4.0,
         }
     }
 }
@@ -155,8 +161,9 @@ impl Origin {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ModelScore {
     pub model: FrontModel,
-    /// Bayesian information criterion n ln(RSS / n) + k ln(n) (Schwarz 1978); lower is better.
-    pub bic: f64,
+    /// Robust Schwarz criterion 2 sum rho(r / scale) + k ln n (Machado 1993; Tukey's
+    /// biweight rho, one scale for all models compared); lower is better.
+    pub criterion: f64,
     pub speed_mm_s: f64,
 }
 
@@ -187,6 +194,10 @@ pub struct FittedFront {
     pub r2: f64,
     /// RMS residual, seconds.
     pub residual_rms_s: f64,
+    /// Robust SD of the residuals (median |r| / 0.6745), seconds: the sites' timing jitter.
+    pub timing_sd_s: f64,
+    /// Time the fitted front takes from its first to its last used site, seconds.
+    pub transit_s: f64,
     /// Distance from the origin along the model's path of every used site, micrometres.
     pub distance_um: Vec<f64>,
     /// Every model compared, with its score.
@@ -248,6 +259,13 @@ struct Candidate {
     rotation: Option<Rotation>,
     /// Plane wave only: slowness vector (s/um).
     slowness: Option<[f64; 2]>,
+}
+
+impl Candidate {
+    /// Predicted activation time of point i, seconds.
+    fn predict(&self, i: usize) -> f64 {
+        self.intercept + self.slope * self.u[i]
+    }
 }
 
 struct Line1 {
@@ -402,7 +420,7 @@ fn fit_candidate(
         }
         (FrontModel::LineTwoWay, TrackFrame::Line { .. }) => {
             let eval = |s0: f64| {
-                let u: Vec<f64> = p.along_um.iter().map(|s| (s - s0).abs()).collect();
+                let u = origin_distances(model, frame, p, s0, None);
                 candidate_1d(model, u, t, settings, Origin::Along { along_um: s0 }, None)
             };
             let mut sorted = p.along_um.clone();
@@ -440,21 +458,11 @@ fn fit_candidate(
             }
             best.map(|b| b.0)
         }
-        (FrontModel::RingOneWay, TrackFrame::Ring { radius_um }) => {
+        (FrontModel::RingOneWay, TrackFrame::Ring { .. }) => {
             let mut best = None;
             for rotation in [Rotation::Ccw, Rotation::Cw] {
                 for &theta0 in &p.angle_rad {
-                    let u: Vec<f64> = p
-                        .angle_rad
-                        .iter()
-                        .map(|&a| {
-                            let turn = match rotation {
-                                Rotation::Ccw => a - theta0,
-                                Rotation::Cw => theta0 - a,
-                            };
-                            radius_um * wrap_angle(turn)
-                        })
-                        .collect();
+                    let u = origin_distances(model, frame, p, theta0, Some(rotation));
                     keep_best(
                         &mut best,
                         candidate_1d(
@@ -470,16 +478,9 @@ fn fit_candidate(
             }
             best.map(|b| b.0)
         }
-        (FrontModel::RingTwoWay, TrackFrame::Ring { radius_um }) => {
+        (FrontModel::RingTwoWay, TrackFrame::Ring { .. }) => {
             let eval = |theta0: f64| {
-                let u: Vec<f64> = p
-                    .angle_rad
-                    .iter()
-                    .map(|&a| {
-                        let d = wrap_angle(a - theta0);
-                        radius_um * d.min(TAU - d)
-                    })
-                    .collect();
+                let u = origin_distances(model, frame, p, theta0, None);
                 candidate_1d(
                     model,
                     u,
@@ -616,9 +617,79 @@ fn fit_candidate(
                     step /= 2.0;
                 }
             }
-            best.map(|b| b.0)
+            let scanned = best.map(|b| b.0)?;
+            Some(refine_point_source(scanned, p, time_scale_floor(None)))
         }
         _ => None,
+    }
+}
+
+/// The scanned point source refined jointly (origin, speed, start) by Huber's M-estimator
+/// ([`point_source_huber`]), the estimator its bootstrap repeats; the scan's values stand
+/// when the refinement fails.
+fn refine_point_source(scanned: Candidate, p: &FrontPoints, floor_s: f64) -> Candidate {
+    let Origin::Point { xy_um } = scanned.origin else {
+        return scanned;
+    };
+    let r: Vec<f64> = (0..p.len())
+        .map(|i| p.t_s[i] - scanned.predict(i))
+        .collect();
+    let scale = residual_scale(&r).max(floor_s);
+    let start = [scanned.intercept, scanned.slope, xy_um[0], xy_um[1]];
+    let Some(q) = point_source_huber(&p.xy_um, &p.t_s, None, start, scale) else {
+        return scanned;
+    };
+    let u: Vec<f64> = p
+        .xy_um
+        .iter()
+        .map(|x| (x[0] - q[2]).hypot(x[1] - q[3]))
+        .collect();
+    let rss = (0..p.len())
+        .map(|i| (p.t_s[i] - q[0] - q[1] * u[i]).powi(2))
+        .sum();
+    Candidate {
+        u,
+        slope: q[1],
+        intercept: q[0],
+        rss,
+        origin: Origin::Point {
+            xy_um: [q[2], q[3]],
+        },
+        ..scanned
+    }
+}
+
+/// Distance (um) of every point from an origin given by one number, along the model's path:
+/// a track coordinate (um) for the two-way line, a ring angle (radians) for the ring models
+/// (one-way in the given rotation, or the shorter way round for two-way).
+fn origin_distances(
+    model: FrontModel,
+    frame: TrackFrame,
+    p: &FrontPoints,
+    origin: f64,
+    rotation: Option<Rotation>,
+) -> Vec<f64> {
+    match (model, frame) {
+        (FrontModel::RingOneWay, TrackFrame::Ring { radius_um }) => p
+            .angle_rad
+            .iter()
+            .map(|&a| {
+                let turn = match rotation {
+                    Some(Rotation::Cw) => origin - a,
+                    _ => a - origin,
+                };
+                radius_um * wrap_angle(turn)
+            })
+            .collect(),
+        (FrontModel::RingTwoWay, TrackFrame::Ring { radius_um }) => p
+            .angle_rad
+            .iter()
+            .map(|&a| {
+                let d = wrap_angle(a - origin);
+                radius_um * d.min(TAU - d)
+            })
+            .collect(),
+        _ => p.along_um.iter().map(|s| (s - origin).abs()).collect(),
     }
 }
 
@@ -643,33 +714,156 @@ fn plane_coefficients(
     }
 }
 
-fn bic(rss: f64, n: usize, k: usize, floor: f64) -> f64 {
-    let nf = n as f64;
-    nf * (rss.max(floor) / nf).ln() + k as f64 * nf.ln()
+/// Tukey's biweight tuning constant: 95% efficiency at the Gaussian (Beaton & Tukey 1974,
+/// Technometrics 16:147).
+const BIWEIGHT_C: f64 = 4.685;
+
+/// Tukey's biweight loss, scaled so that it is x^2 / 2 near zero (like the Gaussian
+/// log-likelihood) and bounded by c^2 / 6 beyond c: one site off by any amount costs at most
+/// what a site 4.7 robust SDs off costs.
+fn biweight_rho(x: f64) -> f64 {
+    let c = BIWEIGHT_C;
+    if x.abs() >= c {
+        c * c / 6.0
+    } else {
+        let u = 1.0 - (x / c) * (x / c);
+        c * c / 6.0 * (1.0 - u * u * u)
+    }
 }
 
-/// Why a burst has no front.
-pub type NoFront = String;
+/// Robust Schwarz information criterion (Machado 1993, Econometric Theory 9:478):
+/// 2 sum rho(r_i / scale) + k ln n with Tukey's biweight rho and one scale shared by every
+/// model compared. With Gaussian residuals and no outliers it equals BIC with known variance
+/// (RSS / scale^2 + k ln n); a site off by any amount adds at most c^2 / 3 = 7.3.
+fn robust_criterion(residuals: &[f64], scale_s: f64, parameters: usize) -> f64 {
+    let n = residuals.len() as f64;
+    2.0 * residuals
+        .iter()
+        .map(|r| biweight_rho(r / scale_s))
+        .sum::<f64>()
+        + parameters as f64 * n.ln()
+}
 
-/// Fits every applicable model to one burst's activation pattern, keeps the one with the
-/// lowest BIC, and bootstraps its speed over sites (conditional on the fitted origin).
-///
-/// No front, with a reason, when fewer than `min_sites` sites took part, when no model fits
-/// better (by BIC) than one time for all sites (a synchronous event), or when the slope's
-/// bootstrap interval includes zero. `time_step_s` (the sampling interval or the file's time
-/// quantum) sets the floor of the residual sum of squares, n x step^2 / 12.
-pub fn fit_front(
+/// Robust SD of residuals about zero: median(|r|) / 0.6745 (the MAD of residuals whose
+/// median is zero, as Theil-Sen's intercept makes it).
+fn residual_scale(residuals: &[f64]) -> f64 {
+    let abs: Vec<f64> = residuals.iter().map(|r| r.abs()).collect();
+    crate::stats::median(&abs).unwrap_or(0.0) / crate::stats::MAD_TO_SD
+}
+
+/// Why a burst has no front, as a kind the summary counts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum NoFrontKind {
+    /// Fewer sites took part than a fit needs.
+    TooFewSites,
+    /// The sites fired together: one common time fits as well as any front, or the slope's
+    /// interval includes zero.
+    Synchronous,
+    /// A front fits, but it crosses the sites within their timing jitter or within a few
+    /// sampling steps, so its speed cannot be resolved.
+    Unresolved,
+    /// No model could be fitted (sites too alike, bootstrap failed).
+    Unfitted,
+}
+
+impl NoFrontKind {
+    /// The name used in the JSON and CSV outputs.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            NoFrontKind::TooFewSites => "too_few_sites",
+            NoFrontKind::Synchronous => "synchronous",
+            NoFrontKind::Unresolved => "unresolved",
+            NoFrontKind::Unfitted => "unfitted",
+        }
+    }
+}
+
+/// Why a burst has no front: its kind and a sentence for the user.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct NoFront {
+    pub kind: NoFrontKind,
+    pub reason: String,
+}
+
+impl NoFront {
+    fn new(kind: NoFrontKind, reason: String) -> NoFront {
+        NoFront { kind, reason }
+    }
+}
+
+/// The model comparison for one burst's activation pattern.
+#[derive(Debug, Clone)]
+pub struct ModelChoice {
+    /// `None` when one common time for all sites scores best (no propagation).
+    pub model: Option<FrontModel>,
+    candidate: Option<Candidate>,
+    /// Every front model that could be fitted, best first.
+    pub scores: Vec<ModelScore>,
+    /// The common-time model's criterion.
+    pub constant_criterion: f64,
+    /// The shared robust scale of the criterion, seconds.
+    pub scale_s: f64,
+    /// Each point's predicted activation time under the chosen model (or the common time),
+    /// seconds.
+    pub predicted_s: Vec<f64>,
+    /// Position of the first point (anchors the plane wave's prediction elsewhere), um.
+    first_xy: Option<[f64; 2]>,
+}
+impl ModelChoice {
+    /// Predicted activation time (s) of a site at track coordinate `along_um`, ring angle
+    /// `angle_rad` and position `xy_um` under the chosen model, or the common time.
+    pub fn predict_at(&self, track: &Track, along_um: f64, angle_rad: f64, xy_um: [f64; 2]) -> f64 {
+        let Some(c) = &self.candidate else {
+            return self.predicted_s.first().copied().unwrap_or(0.0);
+        };
+        let frame = TrackFrame::of(track);
+        let u = match (c.model, c.origin) {
+            (FrontModel::LineOneWay, _) => along_um,
+            (FrontModel::PlaneWave, _) => {
+                // intercept + g . x, with the intercept recovered from the first fitted point.
+                let g = c.slowness.unwrap_or([0.0, 0.0]);
+                let base = c.u.first().map_or(0.0, |&u0| c.intercept + c.slope * u0)
+                    - self.first_xy.map_or(0.0, |x| g[0] * x[0] + g[1] * x[1]);
+                return base + g[0] * xy_um[0] + g[1] * xy_um[1];
+            }
+            (FrontModel::PointSource, Origin::Point { xy_um: o }) => {
+                (xy_um[0] - o[0]).hypot(xy_um[1] - o[1])
+            }
+            (_, Origin::Along { along_um: s0 }) => (along_um - s0).abs(),
+            (_, Origin::Angle { angle_rad: a0 }) => {
+                let one = FrontPoints {
+                    site: vec![0],
+                    along_um: vec![along_um],
+                    angle_rad: vec![angle_rad],
+                    xy_um: vec![xy_um],
+                    t_s: vec![0.0],
+                };
+                origin_distances(c.model, frame, &one, a0, c.rotation)[0]
+            }
+            _ => 0.0,
+        };
+        c.intercept + c.slope * u
+    }
+}
+
+/// Fits every applicable model to the activation pattern and compares them, and one common
+/// time for all sites, by the robust Schwarz criterion ([`robust_criterion`]). The shared
+/// scale is the smallest robust residual SD among the fitted models (the model that fits
+/// best stands for the largest one, as Machado prescribes), floored at the quantisation
+/// noise of the time step (step / sqrt 12) and 1 us.
+pub fn choose_model(
     points: &FrontPoints,
     track: &Track,
     settings: &FrontSettings,
-    seed: u64,
     time_step_s: Option<f64>,
-) -> Result<FittedFront, NoFront> {
+) -> Result<ModelChoice, NoFront> {
     let n = points.len();
-    if n < settings.min_sites.max(3) {
-        return Err(format!(
-            "only {n} sites took part; a front fit needs at least {}",
-            settings.min_sites.max(3)
+    let needed = settings.min_sites.max(3);
+    if n < needed {
+        return Err(NoFront::new(
+            NoFrontKind::TooFewSites,
+            format!("only {n} sites took part; a front fit needs at least {needed}"),
         ));
     }
     let frame = TrackFrame::of(track);
@@ -678,37 +872,120 @@ pub fn fit_front(
     } else {
         settings.models.clone()
     };
-    let step = time_step_s.unwrap_or(1e-6).max(1e-9);
-    let floor = n as f64 * step * step / 12.0;
     let t = &points.t_s;
     let centre = match settings.estimator {
         Estimator::Ols => crate::stats::mean(t),
         _ => crate::stats::median(t),
     }
     .unwrap_or(0.0);
-    let constant_rss: f64 = t.iter().map(|v| (v - centre) * (v - centre)).sum();
-    let constant_bic = bic(constant_rss, n, 1, floor);
-
-    let mut scored: Vec<(Candidate, f64)> = models
+    let constant_residuals: Vec<f64> = t.iter().map(|v| v - centre).collect();
+    let fitted: Vec<(Candidate, Vec<f64>)> = models
         .iter()
         .filter_map(|&m| fit_candidate(m, points, frame, settings))
         .filter(|c| c.slope.is_finite() && c.slope != 0.0)
         .map(|c| {
-            let b = bic(c.rss, n, c.model.parameters(), floor);
-            (c, b)
+            let r: Vec<f64> = (0..n).map(|i| t[i] - c.predict(i)).collect();
+            (c, r)
+        })
+        .collect();
+    let floor = time_scale_floor(time_step_s);
+    let scale_s = fitted
+        .iter()
+        .map(|(_, r)| residual_scale(r))
+        .chain(std::iter::once(residual_scale(&constant_residuals)))
+        .fold(f64::INFINITY, f64::min)
+        .max(floor);
+    let constant_criterion = robust_criterion(&constant_residuals, scale_s, 1);
+    let mut scored: Vec<(Candidate, f64)> = fitted
+        .into_iter()
+        .map(|(c, r)| {
+            let score = robust_criterion(&r, scale_s, c.model.parameters());
+            (c, score)
         })
         .collect();
     scored.sort_by(|a, b| a.1.total_cmp(&b.1));
-    let candidates: Vec<ModelScore> = scored
+    let scores: Vec<ModelScore> = scored
         .iter()
         .map(|(c, b)| ModelScore {
             model: c.model,
-            bic: *b,
+            criterion: *b,
             speed_mm_s: 1.0 / (c.slope.abs() * 1e3),
         })
         .collect();
-    let Some((mut best, best_bic)) = scored.into_iter().next() else {
-        return Err("no front model could be fitted to these sites".into());
+    let best = scored
+        .into_iter()
+        .next()
+        .filter(|(_, score)| *score < constant_criterion)
+        .map(|(c, _)| c);
+    let predicted_s = match &best {
+        Some(c) => (0..n).map(|i| c.predict(i)).collect(),
+        None => vec![centre; n],
+    };
+    Ok(ModelChoice {
+        model: best.as_ref().map(|c| c.model),
+        candidate: best,
+        scores,
+        constant_criterion,
+        scale_s,
+        predicted_s,
+        first_xy: points.xy_um.first().copied(),
+    })
+}
+
+/// Smallest timing SD the data can show, seconds: the quantisation noise of the time step
+/// (step / sqrt(12)), and never below 1 us.
+fn time_scale_floor(time_step_s: Option<f64>) -> f64 {
+    (time_step_s.unwrap_or(0.0) / 12f64.sqrt()).max(1e-6)
+}
+
+/// Fits every applicable model to one burst's activation pattern, keeps the best by the
+/// robust Schwarz criterion, and bootstraps its speed over sites, with the origin found
+/// again in every resample.
+///
+/// No front, with its kind and a reason, when fewer than `min_sites` sites took part; when
+/// one common time fits as well as any front, or the slope's interval includes zero
+/// (synchronous); when the front crosses its sites in less than `min_transit_sd` robust
+/// residual SDs or `resolution_steps` time steps (unresolved); or when no model could be
+/// fitted. `time_step_s` is the sampling interval or the file's time quantum.
+pub fn fit_front(
+    points: &FrontPoints,
+    track: &Track,
+    settings: &FrontSettings,
+    seed: u64,
+    time_step_s: Option<f64>,
+) -> Result<FittedFront, NoFront> {
+    let choice = choose_model(points, track, settings, time_step_s)?;
+    fit_chosen(points, track, &choice, settings, seed, time_step_s)
+}
+
+/// The bootstrap and the decisions of [`fit_front`] for a model already chosen.
+pub fn fit_chosen(
+    points: &FrontPoints,
+    track: &Track,
+    choice: &ModelChoice,
+    settings: &FrontSettings,
+    seed: u64,
+    time_step_s: Option<f64>,
+) -> Result<FittedFront, NoFront> {
+    let n = points.len();
+    let frame = TrackFrame::of(track);
+    let t = &points.t_s;
+    let Some(mut best) = choice.candidate.clone() else {
+        return Err(match choice.scores.first() {
+            Some(s) => NoFront::new(
+                NoFrontKind::Synchronous,
+                format!(
+                    "no propagation: one common time for all sites fits as well as any front (robust criterion {:.1} against {:.1} for {})",
+                    choice.constant_criterion,
+                    s.criterion,
+                    model_name(s.model)
+                ),
+            ),
+            None => NoFront::new(
+                NoFrontKind::Unfitted,
+                "no front model could be fitted to these sites".into(),
+            ),
+        });
     };
     if best.slowness.is_none() && best.analytic_ci.is_none() {
         // The origin search fits lines without intervals; the chosen one gets its own.
@@ -716,71 +993,78 @@ pub fn fit_front(
             best.analytic_ci = full.analytic_ci;
         }
     }
-    if best_bic >= constant_bic {
-        return Err(format!(
-            "no propagation: the activation times fit one common time as well as any front (BIC {constant_bic:.1} against {best_bic:.1} for {})",
-            model_name(best.model)
-        ));
-    }
+    let residuals: Vec<f64> = (0..n).map(|i| t[i] - best.predict(i)).collect();
+    let model_scale_s = residual_scale(&residuals).max(time_scale_floor(time_step_s));
 
-    // Bootstrap over sites, origin held at its fitted place.
+    let bootstrap = Bootstrap::new(&best, points, frame, settings, model_scale_s);
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let mut counts = vec![0u32; n];
     let mut slopes: Vec<f64> = Vec::with_capacity(settings.resamples);
-    let resampler = (settings.estimator == Estimator::TheilSen && best.slowness.is_none())
-        .then(|| TheilSenResampler::new(&best.u, t));
-    let design = best.slowness.map(|_| {
-        DMatrix::from_fn(n, 3, |i, j| match j {
-            0 => 1.0,
-            1 => points.xy_um[i][0],
-            _ => points.xy_um[i][1],
-        })
-    });
-    let direction = best.slowness.map(|g| {
-        let norm = g[0].hypot(g[1]);
-        [g[0] / norm, g[1] / norm]
-    });
     for _ in 0..settings.resamples {
         counts.iter_mut().for_each(|c| *c = 0);
         for _ in 0..n {
             counts[rng.random_range(0..n)] += 1;
         }
-        let slope = if let (Some(design), Some(dir)) = (&design, direction) {
-            // Plane wave: slowness projected on the fitted direction of travel.
-            plane_coefficients(design, t, settings.estimator, Some(&counts))
-                .map(|b| b[1] * dir[0] + b[2] * dir[1])
-        } else if let Some(r) = &resampler {
-            r.slope(&counts)
-        } else {
-            match settings.estimator {
-                Estimator::Ols => ols_slope_weighted(&best.u, t, &counts),
-                _ => {
-                    let d = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { best.u[i] });
-                    huber(&d, t, Some(&counts)).map(|f| f.coefficients[1])
-                }
-            }
-        };
-        if let Some(s) = slope.filter(|s| s.is_finite()) {
+        if let Some(s) = bootstrap.slope(&counts).filter(|s| s.is_finite()) {
             slopes.push(s);
         }
     }
     if slopes.len() < settings.resamples / 2 || slopes.len() < 20 {
-        return Err(format!(
-            "only {} of {} bootstrap resamples could be fitted; the sites are too few or too alike",
-            slopes.len(),
-            settings.resamples
+        return Err(NoFront::new(
+            NoFrontKind::Unfitted,
+            format!(
+                "only {} of {} bootstrap resamples could be fitted; the sites are too few or too alike",
+                slopes.len(),
+                settings.resamples
+            ),
         ));
     }
     let alpha = (1.0 - settings.confidence) / 2.0;
     let lo = quantile(&slopes, alpha).unwrap_or(f64::NAN);
     let hi = quantile(&slopes, 1.0 - alpha).unwrap_or(f64::NAN);
     if lo <= 0.0 && hi >= 0.0 {
-        return Err(format!(
-            "no resolvable propagation: the {:.0}% interval of the slope includes zero ({:.4} to {:.4} ms/mm)",
-            settings.confidence * 100.0,
-            lo * 1e6,
-            hi * 1e6
+        return Err(NoFront::new(
+            NoFrontKind::Synchronous,
+            format!(
+                "no resolvable propagation: the {:.0}% interval of the slope includes zero ({:.4} to {:.4} ms/mm)",
+                settings.confidence * 100.0,
+                lo * 1e6,
+                hi * 1e6
+            ),
         ));
+    }
+    // The transit: how long the fitted front takes from its first to its last used site.
+    let (u_lo, u_hi) = best
+        .u
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &u| {
+            (a.min(u), b.max(u))
+        });
+    let transit_s = best.slope.abs() * (u_hi - u_lo);
+    if transit_s < settings.min_transit_sd * model_scale_s {
+        return Err(NoFront::new(
+            NoFrontKind::Unresolved,
+            format!(
+                "unresolved: a {} front would cross the sites in {:.2} ms, within {} times their timing jitter ({:.2} ms robust SD of the residuals)",
+                model_name(best.model),
+                transit_s * 1e3,
+                settings.min_transit_sd,
+                model_scale_s * 1e3
+            ),
+        ));
+    }
+    if let Some(dt) = time_step_s {
+        if transit_s < settings.resolution_steps * dt {
+            return Err(NoFront::new(
+                NoFrontKind::Unresolved,
+                format!(
+                    "unresolved: the front would cross the sites in {:.3} ms, under {} time steps of {:.3} ms",
+                    transit_s * 1e3,
+                    settings.resolution_steps,
+                    dt * 1e3
+                ),
+            ));
+        }
     }
     let to_speed = |slope_ci: [f64; 2]| -> [f64; 2] {
         let (a, b) = (slope_ci[0].abs(), slope_ci[1].abs());
@@ -794,6 +1078,10 @@ pub fn fit_front(
     let mean_t = crate::stats::mean(t).unwrap_or(0.0);
     let tss: f64 = t.iter().map(|v| (v - mean_t) * (v - mean_t)).sum();
     let r2 = if tss > 0.0 { 1.0 - best.rss / tss } else { 0.0 };
+    let direction = best.slowness.map(|g| {
+        let norm = g[0].hypot(g[1]);
+        [g[0] / norm, g[1] / norm]
+    });
 
     let (origin_point, distance_um, direction_xy, towards_increasing) = match (best.model, frame) {
         (FrontModel::LineOneWay, TrackFrame::Line { direction }) => {
@@ -868,11 +1156,336 @@ pub fn fit_front(
         sites_used: n,
         r2,
         residual_rms_s: (best.rss / n as f64).sqrt(),
+        timing_sd_s: model_scale_s,
+        transit_s,
         distance_um,
-        candidates,
+        candidates: choice.scores.clone(),
         resamples_used: slopes.len(),
         slope_ci95_s_per_um: [lo, hi],
     })
+}
+
+/// Most pairwise slopes the origin profile of one bootstrap may hold (16 bytes each), so the
+/// memory stays bounded on large arrays; beyond it fewer origins are profiled.
+const PROFILE_PAIR_BUDGET: usize = 20_000_000;
+
+/// Origins profiled on each side of the fitted one, half a site gap apart.
+const PROFILE_HALF_WIDTH: usize = 4;
+
+/// One bootstrap resample's estimator: the chosen model refitted to the resample, with its
+/// origin found again.
+enum Bootstrap {
+    /// Plane wave: the plane refitted, slowness projected on the fitted direction of travel.
+    Plane {
+        design: DMatrix<f64>,
+        t: Vec<f64>,
+        estimator: Estimator,
+        direction: [f64; 2],
+    },
+    /// Origins on a grid about the fitted one (a single origin for the one-way line, whose
+    /// intercept is free); each resample keeps the origin with the lowest loss.
+    Profile {
+        estimator: Estimator,
+        t: Vec<f64>,
+        /// Predictor of every point for each origin.
+        u: Vec<Vec<f64>>,
+        /// Theil-Sen pairwise slopes sorted once per origin.
+        theil_sen: Vec<TheilSenResampler>,
+    },
+    /// Point source: speed and origin refitted jointly from the fitted values by Huber's
+    /// M-estimator (Gauss-Newton IRLS), the estimator of the point estimate.
+    Point {
+        xy_um: Vec<[f64; 2]>,
+        t: Vec<f64>,
+        start: [f64; 4],
+        scale_s: f64,
+    },
+}
+
+impl Bootstrap {
+    fn new(
+        best: &Candidate,
+        points: &FrontPoints,
+        frame: TrackFrame,
+        settings: &FrontSettings,
+        scale_s: f64,
+    ) -> Bootstrap {
+        let t = points.t_s.clone();
+        let n = points.len();
+        if let Some(g) = best.slowness {
+            let norm = g[0].hypot(g[1]);
+            return Bootstrap::Plane {
+                design: DMatrix::from_fn(n, 3, |i, j| match j {
+                    0 => 1.0,
+                    1 => points.xy_um[i][0],
+                    _ => points.xy_um[i][1],
+                }),
+                t,
+                estimator: settings.estimator,
+                direction: [g[0] / norm, g[1] / norm],
+            };
+        }
+        if let (FrontModel::PointSource, Origin::Point { xy_um }) = (best.model, best.origin) {
+            return Bootstrap::Point {
+                xy_um: points.xy_um.clone(),
+                t,
+                start: [best.intercept, best.slope, xy_um[0], xy_um[1]],
+                scale_s,
+            };
+        }
+        let pairs = n * n.saturating_sub(1) / 2;
+        let width = PROFILE_HALF_WIDTH
+            .min(PROFILE_PAIR_BUDGET / pairs.max(1) / 2)
+            .min(PROFILE_HALF_WIDTH);
+        let origins: Vec<f64> = match (best.model, best.origin) {
+            (FrontModel::LineTwoWay, Origin::Along { along_um }) => {
+                let h = 0.5 * median_gap(points.along_um.clone());
+                (0..=2 * width)
+                    .map(|j| along_um + (j as f64 - width as f64) * h)
+                    .collect()
+            }
+            (FrontModel::RingOneWay | FrontModel::RingTwoWay, Origin::Angle { angle_rad }) => {
+                let angles: Vec<f64> = points.angle_rad.iter().map(|&a| wrap_angle(a)).collect();
+                let h = 0.5 * median_gap_circular(angles);
+                (0..=2 * width)
+                    .map(|j| angle_rad + (j as f64 - width as f64) * h)
+                    .collect()
+            }
+            _ => Vec::new(),
+        };
+        let u: Vec<Vec<f64>> = if origins.is_empty() {
+            vec![best.u.clone()]
+        } else {
+            origins
+                .iter()
+                .map(|&o| origin_distances(best.model, frame, points, o, best.rotation))
+                .collect()
+        };
+        let theil_sen = if settings.estimator == Estimator::TheilSen {
+            u.iter().map(|u| TheilSenResampler::new(u, &t)).collect()
+        } else {
+            Vec::new()
+        };
+        Bootstrap::Profile {
+            estimator: settings.estimator,
+            t,
+            u,
+            theil_sen,
+        }
+    }
+
+    /// The resample's slope (s/um), where point i is drawn `counts[i]` times.
+    fn slope(&self, counts: &[u32]) -> Option<f64> {
+        match self {
+            Bootstrap::Plane {
+                design,
+                t,
+                estimator,
+                direction,
+            } => plane_coefficients(design, t, *estimator, Some(counts))
+                .map(|b| b[1] * direction[0] + b[2] * direction[1]),
+            Bootstrap::Point {
+                xy_um,
+                t,
+                start,
+                scale_s,
+            } => point_source_huber(xy_um, t, Some(counts), *start, *scale_s).map(|p| p[1]),
+            Bootstrap::Profile {
+                estimator,
+                t,
+                u,
+                theil_sen,
+            } => {
+                let single = u.len() == 1;
+                let mut best: Option<(f64, f64)> = None;
+                for (k, u) in u.iter().enumerate() {
+                    let slope = match estimator {
+                        Estimator::TheilSen => theil_sen.get(k).and_then(|r| r.slope(counts)),
+                        Estimator::Ols => ols_slope_weighted(u, t, counts),
+                        Estimator::Huber => {
+                            let d = DMatrix::from_fn(
+                                u.len(),
+                                2,
+                                |i, j| {
+                                    if j == 0 {
+                                        1.0
+                                    } else {
+                                        u[i]
+                                    }
+                                },
+                            );
+                            huber(&d, t, Some(counts)).map(|f| f.coefficients[1])
+                        }
+                    };
+                    let Some(slope) = slope.filter(|s| s.is_finite()) else {
+                        continue;
+                    };
+                    if single {
+                        return Some(slope);
+                    }
+                    // A front spreads out from its origin: only positive slopes qualify.
+                    if slope <= 0.0 {
+                        continue;
+                    }
+                    let l = weighted_line_loss(u, t, counts, slope, *estimator);
+                    if best.is_none_or(|(_, bl)| l < bl) {
+                        best = Some((slope, l));
+                    }
+                }
+                best.map(|b| b.0)
+            }
+        }
+    }
+}
+
+/// Loss of the line with `slope` through the resample (its intercept the weighted median of
+/// t - slope u, or the weighted mean for OLS): summed absolute residuals, or squared ones for
+/// OLS, each counted as often as its point was drawn.
+fn weighted_line_loss(u: &[f64], t: &[f64], counts: &[u32], slope: f64, e: Estimator) -> f64 {
+    let mut shifted: Vec<(f64, u32)> = u
+        .iter()
+        .zip(t)
+        .zip(counts)
+        .filter(|(_, &c)| c > 0)
+        .map(|((u, t), &c)| (t - slope * u, c))
+        .collect();
+    match e {
+        Estimator::Ols => {
+            let w: f64 = shifted.iter().map(|p| f64::from(p.1)).sum();
+            let m = shifted.iter().map(|p| p.0 * f64::from(p.1)).sum::<f64>() / w;
+            shifted
+                .iter()
+                .map(|p| f64::from(p.1) * (p.0 - m) * (p.0 - m))
+                .sum()
+        }
+        _ => {
+            shifted.sort_by(|a, b| a.0.total_cmp(&b.0));
+            let total: u32 = shifted.iter().map(|p| p.1).sum();
+            let mut seen = 0;
+            let mut m = 0.0;
+            for p in &shifted {
+                seen += p.1;
+                if 2 * seen >= total {
+                    m = p.0;
+                    break;
+                }
+            }
+            shifted
+                .iter()
+                .map(|p| f64::from(p.1) * (p.0 - m).abs())
+                .sum()
+        }
+    }
+}
+
+/// Median gap between neighbouring distinct values (sorted here), or 1 when there is none.
+fn median_gap(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    let gaps: Vec<f64> = v
+        .windows(2)
+        .map(|w| w[1] - w[0])
+        .filter(|g| *g > 0.0)
+        .collect();
+    crate::stats::median(&gaps).unwrap_or(1.0)
+}
+
+/// Median gap between neighbouring distinct angles round the circle, radians.
+fn median_gap_circular(mut a: Vec<f64>) -> f64 {
+    a.sort_by(f64::total_cmp);
+    let mut gaps: Vec<f64> = a
+        .windows(2)
+        .map(|w| w[1] - w[0])
+        .filter(|g| *g > 0.0)
+        .collect();
+    if let (Some(first), Some(last)) = (a.first(), a.last()) {
+        let wrap = first + TAU - last;
+        if wrap > 0.0 {
+            gaps.push(wrap);
+        }
+    }
+    crate::stats::median(&gaps).unwrap_or(0.1)
+}
+
+/// Point-source front t_i = t0 + s |x_i - x0| fitted by Huber's M-estimator with a fixed
+/// scale, by Gauss-Newton iteratively reweighted least squares from `start` = [t0 (s),
+/// s (s/um), x0, y0 (um)] (Huber 1981, ch. 7; Holland & Welsch 1977 for IRLS). Distances
+/// are smoothed by 1 um so the model stays differentiable at a site. `counts` weight the
+/// points (bootstrap); `None` when the fit fails or the slope is not positive.
+fn point_source_huber(
+    xy_um: &[[f64; 2]],
+    t: &[f64],
+    counts: Option<&[u32]>,
+    start: [f64; 4],
+    scale_s: f64,
+) -> Option<[f64; 4]> {
+    const SMOOTH_UM2: f64 = 1.0;
+    let n = t.len();
+    let weight = |i: usize| counts.map_or(1.0, |c| f64::from(c[i]));
+    let loss_of = |p: &[f64; 4]| -> f64 {
+        (0..n)
+            .map(|i| {
+                let d = ((xy_um[i][0] - p[2]).powi(2) + (xy_um[i][1] - p[3]).powi(2) + SMOOTH_UM2)
+                    .sqrt();
+                let z = ((t[i] - p[0] - p[1] * d) / scale_s).abs();
+                weight(i)
+                    * if z <= HUBER_T {
+                        0.5 * z * z
+                    } else {
+                        HUBER_T * z - 0.5 * HUBER_T * HUBER_T
+                    }
+            })
+            .sum()
+    };
+    let mut p = start;
+    let mut loss = loss_of(&p);
+    for _ in 0..30 {
+        let mut jtj = nalgebra::Matrix4::<f64>::zeros();
+        let mut jtr = nalgebra::Vector4::<f64>::zeros();
+        for i in 0..n {
+            let w0 = weight(i);
+            if w0 == 0.0 {
+                continue;
+            }
+            let (dx, dy) = (xy_um[i][0] - p[2], xy_um[i][1] - p[3]);
+            let d = (dx * dx + dy * dy + SMOOTH_UM2).sqrt();
+            let r = t[i] - p[0] - p[1] * d;
+            let z = (r / scale_s).abs();
+            let w = w0 * if z <= HUBER_T { 1.0 } else { HUBER_T / z };
+            let j = nalgebra::Vector4::new(1.0, d, -p[1] * dx / d, -p[1] * dy / d);
+            jtj += w * j * j.transpose();
+            jtr += w * r * j;
+        }
+        // A little damping keeps the step finite when the origin is poorly determined.
+        let damping = 1e-9 * jtj.diagonal().max().max(f64::MIN_POSITIVE);
+        for k in 0..4 {
+            jtj[(k, k)] += damping;
+        }
+        let step = jtj.cholesky()?.solve(&jtr);
+        let mut factor = 1.0;
+        let mut moved = false;
+        for _ in 0..12 {
+            let next = [
+                p[0] + factor * step[0],
+                p[1] + factor * step[1],
+                p[2] + factor * step[2],
+                p[3] + factor * step[3],
+            ];
+            let l = loss_of(&next);
+            if l <= loss {
+                let small = (next[2] - p[2]).abs() < 1e-3 && (next[3] - p[3]).abs() < 1e-3;
+                let done = loss - l <= 1e-10 * loss.max(1e-300) || small;
+                p = next;
+                loss = l;
+                moved = !done;
+                break;
+            }
+            factor *= 0.5;
+        }
+        if !moved {
+            break;
+        }
+    }
+    (p.iter().all(|v| v.is_finite()) && p[1] > 0.0).then_some(p)
 }
 
 fn nearest(values: &[f64], target: f64) -> usize {

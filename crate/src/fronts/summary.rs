@@ -1,7 +1,7 @@
 //! Recording-level results: rhythm, speed statistics, direction balance, initiation sites,
 //! propagation reliability.
 
-use super::{AnalysisSettings, BurstResult};
+use super::{AnalysisSettings, BurstResult, NoFrontKind};
 use crate::fronts::regression::theil_sen;
 use crate::geometry::{Track, TrackFit};
 use crate::recording::Recording;
@@ -87,6 +87,17 @@ pub struct Summary {
     pub ibi: IntervalStats,
     pub front_count: usize,
     pub no_front_count: usize,
+    /// Bursts without a front because their sites fired together (no time-position relation).
+    pub synchronous_count: usize,
+    /// Bursts whose front crossed the sites within their timing jitter or a few time steps:
+    /// too fast to measure, never in the speed statistics.
+    pub unresolved_count: usize,
+    /// Bursts in which fewer sites took part than a front fit needs.
+    pub too_few_sites_count: usize,
+    /// Site activations re-timed past an early stray spike, over all bursts.
+    pub retimed_activations: usize,
+    /// Site activations set aside as outliers, over all bursts.
+    pub outlier_activations: usize,
     pub median_speed_mm_s: Option<f64>,
     pub speed_q25_mm_s: Option<f64>,
     pub speed_q75_mm_s: Option<f64>,
@@ -102,6 +113,13 @@ pub struct Summary {
     pub reliability: Vec<ReliabilityPoint>,
     pub failure_count: usize,
     pub failures: Vec<PropagationFailure>,
+}
+
+fn count_kind(bursts: &[BurstResult], kind: NoFrontKind) -> usize {
+    bursts
+        .iter()
+        .filter(|b| b.no_front_kind == Some(kind))
+        .count()
 }
 
 /// Summarises burst results over the recording.
@@ -242,6 +260,11 @@ pub fn summarise(
         ibi,
         front_count: fronts.len(),
         no_front_count: bursts.len() - fronts.len(),
+        synchronous_count: count_kind(bursts, NoFrontKind::Synchronous),
+        unresolved_count: count_kind(bursts, NoFrontKind::Unresolved),
+        too_few_sites_count: count_kind(bursts, NoFrontKind::TooFewSites),
+        retimed_activations: bursts.iter().map(|b| b.retimed_sites).sum(),
+        outlier_activations: bursts.iter().map(|b| b.outlier_sites).sum(),
         median_speed_mm_s: quantile(&speeds, 0.5),
         speed_q25_mm_s: q25,
         speed_q75_mm_s: q75,

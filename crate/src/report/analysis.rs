@@ -48,18 +48,21 @@ impl AnalysisReport {
     /// `bursts.csv`: one row per network burst.
     pub fn bursts_csv(&self) -> String {
         let mut out = String::from(
-            "burst,start_s,end_s,peak_s,spike_count,site_count,front_model,no_front_reason\n",
+            "burst,start_s,end_s,peak_s,spike_count,site_count,retimed_sites,outlier_sites,outcome,front_model,no_front_reason\n",
         );
         for b in &self.bursts {
             let _ = writeln!(
                 out,
-                "{},{},{},{},{},{},{},{}",
+                "{},{},{},{},{},{},{},{},{},{},{}",
                 b.burst,
                 b.start_s,
                 b.end_s,
                 b.peak_s,
                 b.spike_count,
                 b.site_count,
+                b.retimed_sites,
+                b.outlier_sites,
+                b.no_front_kind.map_or("front", |k| k.as_str()),
                 b.front.as_ref().map_or("", |f| f.model.as_str()),
                 csv_text(b.no_front_reason.as_deref().unwrap_or(""))
             );
@@ -70,14 +73,14 @@ impl AnalysisReport {
     /// `fronts.csv`: one row per burst with a front.
     pub fn fronts_csv(&self) -> String {
         let mut out = String::from(
-            "burst,model,speed_mm_s,speed_ci95_low_mm_s,speed_ci95_high_mm_s,origin_site,origin_along_um,direction_x,direction_y,rotation,travel,sites_used,r2,residual_rms_ms,start_s,reach_um,available_um,failed,near_resolution_limit\n",
+            "burst,model,speed_mm_s,speed_ci95_low_mm_s,speed_ci95_high_mm_s,origin_site,origin_along_um,direction_x,direction_y,rotation,travel,sites_used,r2,residual_rms_ms,timing_sd_ms,transit_ms,start_s,reach_um,available_um,failed,near_resolution_limit\n",
         );
         let opt = |v: Option<f64>| v.map_or(String::new(), |x| x.to_string());
         for b in &self.bursts {
             let Some(f) = &b.front else { continue };
             let _ = writeln!(
                 out,
-                "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+                "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
                 b.burst,
                 f.model,
                 f.speed_mm_s,
@@ -92,6 +95,8 @@ impl AnalysisReport {
                 f.sites_used,
                 f.r2,
                 f.residual_rms_ms,
+                f.timing_sd_ms,
+                f.transit_ms,
                 f.start_s,
                 f.reach_um,
                 f.available_um,
@@ -104,19 +109,22 @@ impl AnalysisReport {
 
     /// `activation.csv`: long format, one row per site activation in a burst.
     pub fn activation_csv(&self) -> String {
-        let mut out = String::from("burst,site,along_um,x_um,y_um,time_s,used\n");
+        let mut out =
+            String::from("burst,site,along_um,x_um,y_um,time_s,first_spike_s,used,status\n");
         for b in &self.bursts {
             for a in &b.activations {
                 let _ = writeln!(
                     out,
-                    "{},{},{},{},{},{},{}",
+                    "{},{},{},{},{},{},{},{},{}",
                     b.burst,
                     csv_text(&a.site),
                     a.along_um.map_or(String::new(), |v| v.to_string()),
                     a.x_um,
                     a.y_um,
                     a.time_s,
-                    a.used
+                    a.first_spike_s,
+                    a.used,
+                    a.status.as_str()
                 );
             }
         }
@@ -166,9 +174,16 @@ impl AnalysisReport {
         }
         let _ = writeln!(
             out,
-            "Fronts         {} ({} bursts without a resolvable front)",
-            s.front_count, s.no_front_count
+            "Fronts         {} ({} bursts without a resolvable front: {} synchronous, {} too fast to resolve, {} with too few sites)",
+            s.front_count, s.no_front_count, s.synchronous_count, s.unresolved_count, s.too_few_sites_count
         );
+        if s.retimed_activations + s.outlier_activations > 0 {
+            let _ = writeln!(
+                out,
+                "Site timing    {} activations re-timed past an early stray spike, {} set aside as outliers (see activation.csv)",
+                s.retimed_activations, s.outlier_activations
+            );
+        }
         if let Some(m) = s.median_speed_mm_s {
             let _ = write!(out, "Speed          median {m:.1} mm/s");
             if let Some([a, b]) = s.median_speed_ci95_mm_s {

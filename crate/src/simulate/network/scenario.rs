@@ -383,7 +383,7 @@ fn truth_bursts(
 ) -> Vec<NetworkTruthBurst> {
     let track = s.pattern.track();
     let settings = BurstSettings::default();
-    let bursts = detect_bursts(trains, &settings);
+    let bursts = detect_bursts(trains, &settings).bursts;
     let stride = (positions.len() / 200).max(1);
     let sample: Vec<usize> = (0..positions.len()).step_by(stride).collect();
     // Each sampled neuron's activation is the median first spike of itself and its nearest
@@ -452,7 +452,7 @@ fn truth_bursts(
                     f.rotation,
                     None,
                 ),
-                Err(r) => (None, None, None, None, None, Some(r)),
+                Err(r) => (None, None, None, None, None, Some(r.reason)),
             };
             let (origin_along_um, origin_angle_deg, origin_xy_um) =
                 origin.map_or((None, None, None), |o| o.parts());
