@@ -48,7 +48,7 @@ pub struct ActivationSettings {
 impl Default for ActivationSettings {
     fn default() -> Self {
         ActivationSettings {
-            rule: ActivationRule::FirstOfCluster,
+            rule: ActivationRule::FirstSpike,
             cluster_spikes: 2,
             cluster_window_s: 0.02,
             median_of_first: 3,

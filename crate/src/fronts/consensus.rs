@@ -82,6 +82,9 @@ const MAX_ROUNDS: usize = 4;
 
 /// Checks every point of `all` against the front fitted to the others.
 ///
+/// The model is chosen once, on the activation rule's times; the rounds refit that model
+/// (or, when one common time scored best, choose again among all).
+///
 /// `spikes_s[i]` are point i's spikes in the activation window (ascending, seconds), from
 /// which a re-timed site takes its new time; `all.t_s[i]` is its time by the activation rule.
 pub fn settle(
@@ -97,6 +100,23 @@ pub fn settle(
     let mut time_s = all.t_s.clone();
     let mut points = all.clone();
     let mut choice = choose_model(&points, track, fronts, time_step_s);
+    // The model chosen on the sites' own first spikes (a bounded loss keeps strays from
+    // deciding it) is the one they are checked against; choosing again after re-timing
+    // would let re-timed sites vote for the model that re-timed them.
+    let initial_scores = choice.as_ref().ok().map(|c| c.scores.clone());
+    let restricted;
+    let fronts = match &choice {
+        Ok(ModelChoice {
+            model: Some(m), ..
+        }) => {
+            restricted = FrontSettings {
+                models: vec![*m],
+                ..fronts.clone()
+            };
+            &restricted
+        }
+        _ => fronts,
+    };
     if !activation.consensus {
         return Settled {
             points,
@@ -158,6 +178,10 @@ pub fn settle(
         time_s = next_time;
         points = subset(all, &status, &time_s);
         choice = choose_model(&points, track, fronts, time_step_s);
+    }
+    // Report every model's score on the sites' own first spikes, where all were compared.
+    if let (Ok(final_choice), Some(scores)) = (&mut choice, initial_scores) {
+        final_choice.scores = scores;
     }
     Settled {
         points,

@@ -465,6 +465,7 @@ fn analyse_burst(
     let fitted = settled.choice.and_then(|choice| {
         fit_chosen(
             points,
+            &all,
             &track.track,
             &choice,
             &settings.fronts,

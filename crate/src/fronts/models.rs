@@ -335,7 +335,15 @@ fn candidate_1d(
     origin: Origin,
     rotation: Option<Rotation>,
 ) -> Option<(Candidate, f64)> {
-    let fit = fit_1d(&u, t, settings.estimator, settings.confidence, true)?;
+    let mut fit = fit_1d(&u, t, settings.estimator, settings.confidence, true)?;
+    if settings.estimator != Estimator::Ols {
+        // The robust line passes through the median of t - slope u, so its residuals have
+        // median zero: Conover's Theil-Sen intercept, median(t) - slope median(u), moves with
+        // an outlier in t alone, and the residual scale and the outlier checks read the
+        // residuals about zero.
+        let shifted: Vec<f64> = u.iter().zip(t).map(|(u, t)| t - fit.slope * u).collect();
+        fit.intercept = crate::stats::median(&shifted)?;
+    }
     let r = residuals_1d(&u, t, &fit);
     let l = loss(&r, settings.estimator);
     Some((
@@ -955,12 +963,16 @@ pub fn fit_front(
     time_step_s: Option<f64>,
 ) -> Result<FittedFront, NoFront> {
     let choice = choose_model(points, track, settings, time_step_s)?;
-    fit_chosen(points, track, &choice, settings, seed, time_step_s)
+    fit_chosen(points, points, track, &choice, settings, seed, time_step_s)
 }
 
 /// The bootstrap and the decisions of [`fit_front`] for a model already chosen.
+/// `association_points` are the sites as first timed, before any was re-timed or set aside
+/// against the front: the permutation test for marginal fronts runs on them, so that sites
+/// set aside by a chance front cannot make it look real.
 pub fn fit_chosen(
     points: &FrontPoints,
+    association_points: &FrontPoints,
     track: &Track,
     choice: &ModelChoice,
     settings: &FrontSettings,
@@ -1052,6 +1064,31 @@ pub fn fit_chosen(
                 model_scale_s * 1e3
             ),
         ));
+    }
+    if transit_s < PERMUTATION_BELOW_TRANSIT_SD * model_scale_s
+        && association_points.len() <= PERMUTATION_MAX_SITES
+    {
+        let p = association_p_value(
+            association_points,
+            track,
+            best.model,
+            settings,
+            time_step_s,
+            seed,
+        );
+        if p > PERMUTATION_ALPHA {
+            return Err(NoFront::new(
+                NoFrontKind::Synchronous,
+                format!(
+                    "no propagation: a {} front crossing the sites in {:.2} ms (timing SD {:.2} ms) fits no better than the same model fitted to the times shuffled among the sites (permutation p = {:.3}, {} shuffles)",
+                    model_name(best.model),
+                    transit_s * 1e3,
+                    model_scale_s * 1e3,
+                    p,
+                    PERMUTATIONS
+                ),
+            ));
+        }
     }
     if let Some(dt) = time_step_s {
         if transit_s < settings.resolution_steps * dt {
@@ -1163,6 +1200,70 @@ pub fn fit_chosen(
         resamples_used: slopes.len(),
         slope_ci95_s_per_um: [lo, hi],
     })
+}
+
+/// Fronts whose transit is under this many timing SDs get the permutation test of
+/// [`association_p_value`]; beyond it no shuffle comes near (common practice, no source).
+const PERMUTATION_BELOW_TRANSIT_SD: f64 = 20.0;
+/// Most shuffles of the permutation test (n - 1 in Besag & Clifford's sequential test).
+const PERMUTATIONS: usize = 999;
+/// The sequential test stops once this many shuffles score at least as well (h in Besag &
+/// Clifford 1991): the p-value is then plainly large.
+const PERMUTATION_STOP_AFTER: usize = 10;
+/// Largest p-value of the permutation test that still counts as propagation.
+const PERMUTATION_ALPHA: f64 = 0.001;
+/// Above this many sites the transit bound alone decides: a chance front's transit shrinks
+/// as sqrt(12 / n) timing SDs.
+const PERMUTATION_MAX_SITES: usize = 256;
+
+/// Permutation test of the association between activation time and position (Fisher 1935;
+/// Pitman 1937): under no propagation the times are exchangeable among the sites, so the
+/// improvement of the chosen model over one common time (the robust criterion's gain, origin
+/// searched afresh) is compared with its value after shuffling the times among the sites.
+/// Sequential Monte Carlo p-value (Besag & Clifford 1991, Biometrika 78:301): shuffling
+/// stops once `PERMUTATION_STOP_AFTER` shuffles score at least as well, giving h / l after l
+/// shuffles; otherwise (1 + g) / (1 + shuffles) with g such shuffles (Davison & Hinkley
+/// 1997, eq. 4.11). Bursts without propagation stop after a few dozen shuffles.
+fn association_p_value(
+    points: &FrontPoints,
+    track: &Track,
+    model: FrontModel,
+    settings: &FrontSettings,
+    time_step_s: Option<f64>,
+    seed: u64,
+) -> f64 {
+    let only = FrontSettings {
+        models: vec![model],
+        ..settings.clone()
+    };
+    let gain = |p: &FrontPoints| -> f64 {
+        match choose_model(p, track, &only, time_step_s) {
+            Ok(c) => c
+                .scores
+                .first()
+                .map_or(0.0, |s| c.constant_criterion - s.criterion),
+            Err(_) => 0.0,
+        }
+    };
+    let observed = gain(points);
+    // Its own stream, apart from the bootstrap's.
+    let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0x5045_524d_5554_4531);
+    let mut shuffled = points.clone();
+    let mut at_least = 0usize;
+    for done in 1..=PERMUTATIONS {
+        // Fisher-Yates.
+        for i in (1..shuffled.t_s.len()).rev() {
+            let j = rng.random_range(0..=i);
+            shuffled.t_s.swap(i, j);
+        }
+        if gain(&shuffled) >= observed {
+            at_least += 1;
+            if at_least == PERMUTATION_STOP_AFTER {
+                return at_least as f64 / done as f64;
+            }
+        }
+    }
+    (1 + at_least) as f64 / (1 + PERMUTATIONS) as f64
 }
 
 /// Most pairwise slopes the origin profile of one bootstrap may hold (16 bytes each), so the
