@@ -115,14 +115,20 @@ fn origin_point(f: &FrontReport, track: &TrackFit) -> Option<[f64; 2]> {
             ..
         } => f.origin_angle_deg.map(|a| {
             let a = a.to_radians();
-            [centre_um[0] + radius_um * a.cos(), centre_um[1] + radius_um * a.sin()]
+            [
+                centre_um[0] + radius_um * a.cos(),
+                centre_um[1] + radius_um * a.sin(),
+            ]
         }),
         ringline::geometry::Track::Line {
             start_um,
             direction,
             ..
         } => f.origin_along_um.map(|s| {
-            [start_um[0] + direction[0] * s, start_um[1] + direction[1] * s]
+            [
+                start_um[0] + direction[0] * s,
+                start_um[1] + direction[1] * s,
+            ]
         }),
         _ => None,
     }
@@ -163,6 +169,12 @@ fn measure(recipe: &Recipe) -> Measured {
         m.fronts += 1;
         let Some(v) = t.speed_mm_s else { continue };
         m.speed_errors.push((f.speed_mm_s / v - 1.0).abs());
+        if std::env::var("REGIME_DEBUG").is_ok() {
+            eprintln!(
+                "  front {:.2} s: true {v:.2}, measured {:.2} [{:.2}, {:.2}] ({}), {} sites, sd {:.2} ms",
+                t.start_s, f.speed_mm_s, f.speed_ci95_mm_s[0], f.speed_ci95_mm_s[1], f.model, f.sites_used, f.timing_sd_ms
+            );
+        }
         m.covered += usize::from(f.speed_ci95_mm_s[0] <= v && v <= f.speed_ci95_mm_s[1]);
         m.model_right += usize::from(f.model == model_name(t.fronts));
         if let Some(d) = t.direction {
@@ -198,7 +210,10 @@ fn check(name: &str, recipe: &Recipe) -> Measured {
         m.direction_right as f64 >= 0.95 * m.direction_asked as f64,
         "{line}"
     );
-    assert!(m.origin_right as f64 >= 0.9 * m.origin_asked as f64, "{line}");
+    assert!(
+        m.origin_right as f64 >= 0.9 * m.origin_asked as f64,
+        "{line}"
+    );
     let coverage = m.covered as f64 / m.fronts.max(1) as f64;
     assert!((0.90..=0.98).contains(&coverage), "{line}");
     m

@@ -106,9 +106,7 @@ pub fn settle(
     let initial_scores = choice.as_ref().ok().map(|c| c.scores.clone());
     let restricted;
     let fronts = match &choice {
-        Ok(ModelChoice {
-            model: Some(m), ..
-        }) => {
+        Ok(ModelChoice { model: Some(m), .. }) => {
             restricted = FrontSettings {
                 models: vec![*m],
                 ..fronts.clone()

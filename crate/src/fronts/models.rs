@@ -1556,10 +1556,12 @@ fn point_source_huber(
             jtj += w * j * j.transpose();
             jtr += w * r * j;
         }
-        // A little damping keeps the step finite when the origin is poorly determined.
-        let damping = 1e-9 * jtj.diagonal().max().max(f64::MIN_POSITIVE);
+        // A little Marquardt damping (scaled by each parameter's own curvature, which differ
+        // by 12 orders of magnitude between t0 and the origin) keeps the step finite when
+        // the origin is poorly determined.
         for k in 0..4 {
-            jtj[(k, k)] += damping;
+            jtj[(k, k)] *= 1.0 + 1e-9;
+            jtj[(k, k)] += f64::MIN_POSITIVE;
         }
         let step = jtj.cholesky()?.solve(&jtr);
         let mut factor = 1.0;
