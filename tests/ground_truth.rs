@@ -92,7 +92,12 @@ fn evaluate(s: &FrontScenario) -> Outcome {
             continue;
         };
         matched += 1;
-        let Some(f) = &b.front else { continue };
+        let Some(f) = &b.front else {
+            if std::env::var("REGIME_DEBUG").is_ok() {
+                eprintln!("  no front at {:.2} s: {:?}", b.start_s, b.no_front_reason);
+            }
+            continue;
+        };
         with_front += 1;
         est.push(f.speed_mm_s);
         tru.push(t.speed_mm_s);

@@ -7,9 +7,13 @@ use serde::{Deserialize, Serialize};
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum ActivationRule {
-    /// The site's first spike in the burst window; stray early spikes are then found and
-    /// passed over by the other sites' consensus (see `consensus` in [`ActivationSettings`]).
+    /// The first spike that opens a cluster (as `FirstOfCluster`) when the site fires one in
+    /// the burst, otherwise its first spike: a multi-unit site's lone stray spike is passed
+    /// over, and a single unit's only spike still counts. The other sites' consensus then
+    /// checks every time (see `consensus` in [`ActivationSettings`]).
     #[default]
+    Adaptive,
+    /// The site's first spike in the burst window.
     FirstSpike,
     /// The first spike that opens a cluster of `cluster_spikes` spikes within
     /// `cluster_window_s`: a lone stray spike before the front is passed over (but so is a
@@ -48,7 +52,7 @@ pub struct ActivationSettings {
 impl Default for ActivationSettings {
     fn default() -> Self {
         ActivationSettings {
-            rule: ActivationRule::FirstSpike,
+            rule: ActivationRule::Adaptive,
             cluster_spikes: 2,
             cluster_window_s: 0.02,
             median_of_first: 3,
@@ -90,18 +94,20 @@ pub fn activation_times(
             if a == b {
                 return None;
             }
+            let first_of_cluster = || {
+                let k = settings.cluster_spikes.max(1);
+                (a..b)
+                    .find(|&j| {
+                        let end =
+                            train.partition_point(|&t| t <= train[j] + settings.cluster_window_s);
+                        end - j >= k
+                    })
+                    .map(|j| train[j])
+            };
             match settings.rule {
+                ActivationRule::Adaptive => first_of_cluster().or(Some(train[a])),
                 ActivationRule::FirstSpike => Some(train[a]),
-                ActivationRule::FirstOfCluster => {
-                    let k = settings.cluster_spikes.max(1);
-                    (a..b)
-                        .find(|&j| {
-                            let end = train
-                                .partition_point(|&t| t <= train[j] + settings.cluster_window_s);
-                            end - j >= k
-                        })
-                        .map(|j| train[j])
-                }
+                ActivationRule::FirstOfCluster => first_of_cluster(),
                 ActivationRule::MedianOfFirst => {
                     let k = settings.median_of_first.max(1).min(b - a);
                     crate::stats::median(&train[a..a + k])

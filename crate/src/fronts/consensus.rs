@@ -4,9 +4,9 @@
 //! stray spike can come before the front (background firing, a unit that fires on its own),
 //! a unit can miss the front and fire late, and an electrode can lie. The robust fit of all
 //! sites tells which times are implausible: a site more than `outlier_sd` robust residual SDs
-//! before the fitted front is re-timed to its first later spike that fits (the stray is
-//! passed over), or set aside when none does; a site as far after it is set aside. The fit
-//! is then repeated without them, until the verdicts settle.
+//! from the fitted front is re-timed to its earliest spike within that bound (past a stray,
+//! or back to a single spike the activation rule passed over), or set aside when none lies
+//! there. The fit is then repeated without the set-aside sites, until the verdicts settle.
 //!
 //! Theil-Sen, which times the fit, tolerates up to 29% of points anywhere (Sen 1968); the
 //! model choice uses a bounded loss. When more than a third of the sites would be re-timed or
@@ -23,10 +23,11 @@ use serde::Serialize;
 pub enum ActivationStatus {
     /// Used as timed by the activation rule.
     Used,
-    /// Its first spike came implausibly early (a stray spike before the front) and it was
-    /// re-timed to its first later spike that fits the front; used.
+    /// Its time by the activation rule lay implausibly far from the front the other sites
+    /// make (a stray spike before the front, or a single spike passed over) and it was
+    /// re-timed to its earliest spike that fits the front; used.
     Retimed,
-    /// Set aside: its first spike came implausibly early and no later spike fits the front.
+    /// Set aside: its time came implausibly early and none of its spikes fits the front.
     EarlyOutlier,
     /// Set aside: it activated implausibly late for the front the other sites make.
     LateOutlier,
@@ -55,9 +56,9 @@ impl ActivationStatus {
     pub fn describe(self) -> &'static str {
         match self {
             ActivationStatus::Used => "used",
-            ActivationStatus::Retimed => "re-timed past an early stray spike",
+            ActivationStatus::Retimed => "re-timed to its earliest spike that fits the front",
             ActivationStatus::EarlyOutlier => {
-                "set aside: first spike far before the front and no later spike near it"
+                "set aside: activated far before the front and no spike near it"
             }
             ActivationStatus::LateOutlier => "set aside: activated far after the front",
             ActivationStatus::OffTrack => "off the track: not used",
@@ -141,20 +142,22 @@ pub fn settle(
             let predicted =
                 current.predict_at(track, all.along_um[i], all.angle_rad[i], all.xy_um[i]);
             let r = all.t_s[i] - predicted;
-            if r < -bound {
-                let later = spikes_s[i]
-                    .iter()
-                    .copied()
-                    .find(|&s| s > all.t_s[i] && s - predicted >= -bound);
-                match later {
-                    Some(s) if s - predicted <= bound => {
-                        next_status[i] = ActivationStatus::Retimed;
-                        next_time[i] = s;
-                    }
-                    _ => next_status[i] = ActivationStatus::EarlyOutlier,
+            if r.abs() <= bound {
+                continue;
+            }
+            // The site's earliest spike that fits the front: past a stray that came early,
+            // or back to a single spike that the activation rule passed over.
+            let fitting = spikes_s[i]
+                .iter()
+                .copied()
+                .find(|&s| (s - predicted).abs() <= bound);
+            match fitting {
+                Some(s) => {
+                    next_status[i] = ActivationStatus::Retimed;
+                    next_time[i] = s;
                 }
-            } else if r > bound {
-                next_status[i] = ActivationStatus::LateOutlier;
+                None if r < 0.0 => next_status[i] = ActivationStatus::EarlyOutlier,
+                None => next_status[i] = ActivationStatus::LateOutlier,
             }
         }
         let changed = next_status

@@ -120,7 +120,7 @@ pub struct BurstResult {
     /// Sites with spikes in the window.
     pub site_count: usize,
     pub activations: Vec<Activation>,
-    /// Sites re-timed past an early stray spike.
+    /// Sites re-timed to their earliest spike that fits the front.
     pub retimed_sites: usize,
     /// Sites set aside as outliers (early or late).
     pub outlier_sites: usize,
@@ -215,6 +215,7 @@ pub fn analyze(
             // (a few events per frame interval) still stands out.
             let s = settings.to_mut();
             s.activation.rule = activation::ActivationRule::FirstSpike;
+            // (One event per ROI and burst: its first event is the activation.)
             let p = &mut s.bursts.population_rate;
             p.bin_s = p.bin_s.max(*frame_interval_s);
             p.smooth_sd_s = p.smooth_sd_s.max(5.0 * frame_interval_s);

@@ -439,14 +439,15 @@ fn fit_candidate(
                 grid.push(0.5 * (w[0] + w[1]));
             }
             grid.extend(sorted.last());
-            // A two-way front needs sites on both sides of its origin: at least two beyond
-            // it each way. Nearer an end it is a one-way front with a noisy first site, and
+            // A two-way front needs sites on both sides of its origin: at least three beyond
+            // it each way (two let five sites with one early end site pass for a two-way
+            // front). Nearer an end it is a one-way front with a noisy first site, and
             // letting the origin go there would fit that noise.
             let (lo_bound, hi_bound) = match (
-                sorted.get(1),
-                sorted.len().checked_sub(2).and_then(|i| sorted.get(i)),
+                sorted.get(2),
+                sorted.len().checked_sub(3).and_then(|i| sorted.get(i)),
             ) {
-                (Some(&a), Some(&b)) if n >= 5 => (a, b),
+                (Some(&a), Some(&b)) if n >= 6 => (a, b),
                 _ => return None,
             };
             grid.retain(|&s0| s0 > lo_bound && s0 < hi_bound);
@@ -1039,6 +1040,19 @@ pub fn fit_chosen(
             NoFrontKind::Synchronous,
             format!(
                 "no resolvable propagation: the {:.0}% interval of the slope includes zero ({:.4} to {:.4} ms/mm)",
+                settings.confidence * 100.0,
+                lo * 1e6,
+                hi * 1e6
+            ),
+        ));
+    }
+    if !(lo <= best.slope && best.slope <= hi) {
+        return Err(NoFront::new(
+            NoFrontKind::Unfitted,
+            format!(
+                "unstable: the {} fit's slope ({:.4} ms/mm) lies outside its own {:.0}% bootstrap interval ({:.4} to {:.4} ms/mm); the sites are too few or too irregular for this model",
+                model_name(best.model),
+                best.slope * 1e6,
                 settings.confidence * 100.0,
                 lo * 1e6,
                 hi * 1e6

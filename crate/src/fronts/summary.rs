@@ -94,7 +94,7 @@ pub struct Summary {
     pub unresolved_count: usize,
     /// Bursts in which fewer sites took part than a front fit needs.
     pub too_few_sites_count: usize,
-    /// Site activations re-timed past an early stray spike, over all bursts.
+    /// Site activations re-timed to their earliest spike that fits the front, over all bursts.
     pub retimed_activations: usize,
     /// Site activations set aside as outliers, over all bursts.
     pub outlier_activations: usize,

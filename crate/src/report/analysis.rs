@@ -180,7 +180,7 @@ impl AnalysisReport {
         if s.retimed_activations + s.outlier_activations > 0 {
             let _ = writeln!(
                 out,
-                "Site timing    {} activations re-timed past an early stray spike, {} set aside as outliers (see activation.csv)",
+                "Site timing    {} activations re-timed to their earliest spike that fits the front, {} set aside as outliers (see activation.csv)",
                 s.retimed_activations, s.outlier_activations
             );
         }
