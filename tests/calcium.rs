@@ -220,3 +220,51 @@ fn too_fast_for_the_frame_rate_is_said() {
     assert!(notices.contains("in under 3 frames"), "{notices}");
     assert!(notices.contains("cannot be resolved at this frame rate"));
 }
+
+/// `inspect` on ROI traces counts each ROI's calcium events (as the analysis finds them),
+/// not its frames: the demo imaging's counts equal the onsets of `detect::calcium` run on
+/// each trace, and the frames with data are reported apart.
+#[test]
+fn inspect_counts_calcium_events_not_frames() {
+    use ringline::detect::calcium::{delta_f_over_f, event_onsets, CalciumSettings};
+    let root = format!(
+        "{}/../demo-data/network-strip-16",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let traces = std::fs::read(format!("{root}/traces.csv")).unwrap();
+    let layout = std::fs::read(format!("{root}/roi_layout.csv")).unwrap();
+    let read = ringline::import::ReadOptions::default();
+    let inspection = ringline::inspect_files(
+        ("traces.csv", &traces),
+        ("roi_layout.csv", &layout),
+        &read,
+        &ringline::geometry::TrackSettings::default(),
+    )
+    .unwrap();
+    let rec = ringline::import::read_recording(
+        ("traces.csv", &traces),
+        ("roi_layout.csv", &layout),
+        &read,
+    )
+    .unwrap();
+    let ringline::recording::Activity::Traces {
+        time_s,
+        frame_interval_s,
+        values,
+    } = &rec.activity
+    else {
+        panic!("the demo imaging is traces")
+    };
+    let c = CalciumSettings::default();
+    let rate = 1.0 / frame_interval_s;
+    for (row, f) in inspection.sites.iter().zip(values) {
+        let events = event_onsets(&delta_f_over_f(f, rate, &c), time_s, rate, &c).len();
+        assert_eq!(row.event_count, events, "{}", row.site);
+        assert_eq!(row.frames_with_data, Some(time_s.len()));
+        assert!(
+            events > 0 && events < time_s.len() / 10,
+            "{}: {events}",
+            row.site
+        );
+    }
+}

@@ -12,10 +12,13 @@ pub struct SiteRow {
     pub site: String,
     pub x_um: f64,
     pub y_um: f64,
-    /// Spikes at the site (spike recordings), or frames with data (traces).
+    /// Spikes at the site (spike recordings), or calcium events found in the ROI's trace
+    /// with the default event settings (traces).
     pub event_count: usize,
-    /// Spikes per second over the observed span; `None` for traces.
+    /// Spikes or events per second over the observed span.
     pub rate_hz: Option<f64>,
+    /// Traces: frames with a value (not a gap); `None` for spike recordings.
+    pub frames_with_data: Option<usize>,
     /// Coordinate along the track, micrometres; `None` on a plane.
     pub along_um: Option<f64>,
     /// Signed distance from the track, micrometres; `None` on a plane.
@@ -84,17 +87,34 @@ pub fn inspect(recording: &Recording, track: &TrackFit) -> Inspection {
         .iter()
         .map(|s| s.to_string())
         .collect();
-    let counts: Vec<usize> = match &recording.activity {
-        Activity::Spikes { trains_s } => trains_s.iter().map(Vec::len).collect(),
-        Activity::Traces { values, .. } => values
-            .iter()
-            .map(|v| v.iter().filter(|x| !x.is_nan()).count())
-            .collect(),
+    let (counts, frames): (Vec<usize>, Option<Vec<usize>>) = match &recording.activity {
+        Activity::Spikes { trains_s } => (trains_s.iter().map(Vec::len).collect(), None),
+        Activity::Traces {
+            time_s,
+            frame_interval_s,
+            values,
+        } => {
+            use crate::detect::calcium::{delta_f_over_f, event_onsets, CalciumSettings};
+            let c = CalciumSettings::default();
+            let rate = 1.0 / frame_interval_s;
+            (
+                values
+                    .iter()
+                    .map(|f| event_onsets(&delta_f_over_f(f, rate, &c), time_s, rate, &c).len())
+                    .collect(),
+                Some(
+                    values
+                        .iter()
+                        .map(|v| v.iter().filter(|x| !x.is_nan()).count())
+                        .collect(),
+                ),
+            )
+        }
     };
     let is_spikes = matches!(recording.activity, Activity::Spikes { .. });
     let rate = |count: usize| -> Option<f64> {
         match duration {
-            Some(d) if is_spikes && d > 0.0 => Some(count as f64 / d),
+            Some(d) if d > 0.0 => Some(count as f64 / d),
             _ => None,
         }
     };
@@ -110,6 +130,7 @@ pub fn inspect(recording: &Recording, track: &TrackFit) -> Inspection {
                 y_um: s.y_um,
                 event_count: counts[i],
                 rate_hz: rate(counts[i]),
+                frames_with_data: frames.as_ref().map(|f| f[i]),
                 along_um: placement.map(|p| p.along_um),
                 lateral_um: placement.map(|p| p.lateral_um),
                 off_track: placement.is_some_and(|p| p.off_track),
