@@ -76,6 +76,24 @@ pub struct Settled {
     pub time_s: Vec<f64>,
     /// The model choice on `points`.
     pub choice: Result<ModelChoice, NoFront>,
+    /// More than a third of the sites disagreed with the front the others make, so the
+    /// check gave up and left the times as they came.
+    pub gave_up: bool,
+}
+
+impl Settled {
+    /// Sites re-timed or set aside (all of them when the check gave up): how far the
+    /// activation rule's times were from one consistent front.
+    pub fn disagreements(&self) -> usize {
+        if self.gave_up {
+            self.status.len()
+        } else {
+            self.status
+                .iter()
+                .filter(|s| **s != ActivationStatus::Used)
+                .count()
+        }
+    }
 }
 
 /// Most rounds of re-fitting before the verdicts are taken as they stand.
@@ -116,12 +134,14 @@ pub fn settle(
         }
         _ => fronts,
     };
+    let mut gave_up = false;
     if !activation.consensus {
         return Settled {
             points,
             status,
             time_s,
             choice,
+            gave_up,
         };
     }
     for _ in 0..MAX_ROUNDS {
@@ -170,6 +190,7 @@ pub fn settle(
             time_s = all.t_s.clone();
             points = all.clone();
             choice = choose_model(&points, track, fronts, time_step_s);
+            gave_up = true;
             break;
         }
         if next_status == status && next_time == time_s {
@@ -189,6 +210,7 @@ pub fn settle(
         status,
         time_s,
         choice,
+        gave_up,
     }
 }
 

@@ -411,14 +411,36 @@ fn analyse_burst(
             spikes.push(in_window(i));
         }
     }
-    let settled = settle(
-        &all,
-        &spikes,
-        &track.track,
-        &settings.fronts,
-        &settings.activation,
-        time_step_s,
-    );
+    let settle_from = |points: &FrontPoints| {
+        settle(
+            points,
+            &spikes,
+            &track.track,
+            &settings.fronts,
+            &settings.activation,
+            time_step_s,
+        )
+    };
+    let mut settled = settle_from(&all);
+    // When the rule's times disagree with one front at many sites (a single unit's lone
+    // first spike passed over for a later pair, say), the sites' plain first spikes get the
+    // same check, and the start that leaves fewer sites re-timed or set aside is kept.
+    if settings.activation.consensus
+        && settings.activation.rule != ActivationRule::FirstSpike
+        && 5 * settled.disagreements() > all.len()
+    {
+        let mut firsts = all.clone();
+        firsts.t_s = spikes
+            .iter()
+            .zip(&all.t_s)
+            .map(|(s, t)| s.first().copied().unwrap_or(*t))
+            .collect();
+        let other = settle_from(&firsts);
+        if other.disagreements() < settled.disagreements() {
+            settled = other;
+            all = firsts;
+        }
+    }
     let mut status_of: Vec<Option<(ActivationStatus, f64)>> = vec![None; times.len()];
     for (j, &i) in all.site.iter().enumerate() {
         status_of[i] = Some((settled.status[j], settled.time_s[j]));
