@@ -29,8 +29,13 @@ const DIR: &str = concat!(
 );
 const SPAN_S: f64 = 150.0;
 
-/// (unit, time) pairs and (unit, x, y) rows of the fixture.
-fn real() -> (Vec<(String, f64)>, Vec<(String, f64, f64)>) {
+/// (unit, time in seconds) rows of a spike list.
+type Spikes = Vec<(String, f64)>;
+/// (unit, x, y in micrometres) rows of a layout.
+type Layout = Vec<(String, f64, f64)>;
+
+/// The fixture's spike list and layout.
+fn real() -> (Spikes, Layout) {
     let spikes = std::fs::read_to_string(format!("{DIR}/tc146_d21_first150s.spikes.csv")).unwrap();
     let layout = std::fs::read_to_string(format!("{DIR}/tc146_d21.layout.csv")).unwrap();
     let rows = |text: &str| -> Vec<Vec<String>> {
