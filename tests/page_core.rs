@@ -138,6 +138,38 @@ fn activation_figure_reads_out_every_activation() {
     assert_eq!(fig.nearest(-50.0, -50.0, 12.0), None);
 }
 
+/// Every activation's read-out says what the front check made of it: re-timed sites name
+/// their first spike, set-aside sites their reason, and used sites nothing more (the
+/// statuses themselves are checked against known truth in tests/hard_regimes.rs).
+#[test]
+fn activation_read_out_names_each_sites_status() {
+    use ringline::fronts::ActivationStatus;
+    let mut wb = analysed("strip-16");
+    let report = wb.report().unwrap().clone();
+    let mut seen = std::collections::HashSet::new();
+    for burst in &report.bursts {
+        wb.settings.view.burst = burst.burst;
+        let fig = wb
+            .figure(&FigureRequest::Activation, Size::default())
+            .unwrap();
+        for (p, a) in fig.points.iter().zip(&burst.activations) {
+            seen.insert(a.status.as_str());
+            match a.status {
+                ActivationStatus::Used => assert!(!p.label.contains(';'), "{}", p.label),
+                ActivationStatus::Retimed => assert!(
+                    p.label
+                        .contains(&format!("its first spike: t = {:.4} s", a.first_spike_s)),
+                    "{}",
+                    p.label
+                ),
+                other => assert!(p.label.ends_with(other.describe()), "{}", p.label),
+            }
+        }
+    }
+    // The demo strip has background firing: some sites are re-timed.
+    assert!(seen.contains("retimed"), "{seen:?}");
+}
+
 /// The drawn model is the fitted one: on every kind of track, t = start + d / v with the
 /// distance the figure uses leaves residuals about as large as the fit's own RMS residual.
 #[test]

@@ -536,7 +536,7 @@ async function renderResults() {
   $('burst-results').hidden = false;
   $('burst-text').textContent = `${s.burst_count} bursts (${fmt(s.burst_rate_per_min, 2, 'per min')}); `
     + `median interburst interval ${fmt(s.ibi.median_s, 2, 's')} (IQR ${fmt(s.ibi.iqr_s, 2, 's')}, CV ${fmt(s.ibi.cv, 2)}); `
-    + `${s.front_count} with a front, ${s.no_front_count} without.`;
+    + `${s.front_count} with a front, ${s.no_front_count} without (${s.synchronous_count} synchronous, ${s.unresolved_count} too fast to resolve).`;
   const [from, to] = state.settings.view.window_s ?? [null, null];
   const w = $('window-form').elements;
   if (from !== null) { w.from.value = from; w.to.value = to; }
@@ -617,7 +617,8 @@ function summaryRows(r) {
     ['recording duration', s.duration_s, fmt(s.duration_s, 1, 's')],
     ['burst rate', s.burst_rate_per_min, fmt(s.burst_rate_per_min, 2, 'per min')],
     ['median interburst interval', s.ibi.median_s, `${fmt(s.ibi.median_s, 3, 's')} (IQR ${fmt(s.ibi.q25_s, 3)} to ${fmt(s.ibi.q75_s, 3, 's')}, CV ${fmt(s.ibi.cv, 2)})`],
-    ['fronts', s.front_count, `${s.front_count} (no front in ${s.no_front_count})`],
+    ['fronts', s.front_count, `${s.front_count} (no front in ${s.no_front_count}: ${s.synchronous_count} synchronous, ${s.unresolved_count} too fast to resolve, ${s.too_few_sites_count} with too few sites)`],
+    ['site timing', s.retimed_activations + s.outlier_activations, `${s.retimed_activations} activations re-timed to their earliest spike that fits the front, ${s.outlier_activations} set aside as outliers`],
     ['median speed', s.median_speed_mm_s, `${fmt(s.median_speed_mm_s, 2, 'mm/s')} (95% interval ${fmt(s.median_speed_ci95_mm_s?.[0], 2)} to ${fmt(s.median_speed_ci95_mm_s?.[1], 2, 'mm/s')})`],
     ['speed IQR', s.speed_iqr_mm_s, `${fmt(s.speed_q25_mm_s, 2)} to ${fmt(s.speed_q75_mm_s, 2, 'mm/s')}`],
     ['speed drift', s.speed_drift?.slope_mm_s_per_min ?? null, s.speed_drift ? `${fmt(s.speed_drift.slope_mm_s_per_min, 3, 'mm/s per min')} (95% ${fmt(s.speed_drift.ci95_mm_s_per_min[0], 3)} to ${fmt(s.speed_drift.ci95_mm_s_per_min[1], 3)})` : '—'],

@@ -896,22 +896,40 @@ pub fn activation_plot(
         for piece in &fitted {
             c.polyline(piece, VERMILLION, 2.0);
         }
+        use crate::fronts::ActivationStatus;
         for (x, y, a) in &pts {
-            if a.used {
-                c.circle(*x, *y, 4.0, BLUE, true);
-            } else {
-                c.circle(*x, *y, 4.0, GREY, false);
+            match a.status {
+                ActivationStatus::Used => c.circle(*x, *y, 4.0, BLUE, true),
+                ActivationStatus::Retimed => {
+                    // Where its first spike was, joined to where the check re-timed it.
+                    let first = (a.first_spike_s - t_ref) * 1e3;
+                    c.polyline(&[(*x, first), (*x, *y)], GREY, 1.0);
+                    c.circle(*x, first, 3.0, GREY, false);
+                    c.circle(*x, *y, 4.0, BLUE, true);
+                }
+                ActivationStatus::EarlyOutlier | ActivationStatus::LateOutlier => {
+                    c.circle(*x, *y, 4.0, ORANGE, false)
+                }
+                ActivationStatus::OffTrack => c.circle(*x, *y, 4.0, GREY, false),
             }
         }
         Ok(pts
             .iter()
             .map(|(x, y, a)| {
-                let unused = if a.used { "" } else { " (not used in the fit)" };
+                let status = match a.status {
+                    ActivationStatus::Used => String::new(),
+                    ActivationStatus::Retimed => format!(
+                        "; {} (its first spike: t = {:.4} s)",
+                        a.status.describe(),
+                        a.first_spike_s
+                    ),
+                    other => format!("; {}", other.describe()),
+                };
                 (
                     *x,
                     *y,
                     format!(
-                        "site {}: {:.0} µm, {:.2} ms (t = {:.4} s){unused}",
+                        "site {}: {:.0} µm, {:.2} ms (t = {:.4} s){status}",
                         a.site, x, y, a.time_s
                     ),
                 )
