@@ -420,7 +420,7 @@ impl WasmWorkbook {
             .map(|p| p.label.clone())
     }
 
-    /// `{ bursts_csv, fronts_csv, activation_csv, summary_json }`, as `ringline analyze --out`
+    /// `{ bursts_csv, fronts_csv, activation_csv, leaders_csv, summary_json }`, as `ringline analyze --out`
     /// writes them; null before the analysis.
     pub fn exports(&self) -> Result<JsValue, JsValue> {
         to_js(&self.inner.exports())

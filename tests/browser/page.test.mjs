@@ -120,7 +120,7 @@ test('the served page analyses the dropped demo files exactly as the command lin
   await shoot(page, '2-results');
 
   // Exports: byte for byte the files of `ringline analyze --out`.
-  for (const [button, file] of [['fronts_csv', 'fronts.csv'], ['bursts_csv', 'bursts.csv'], ['activation_csv', 'activation.csv'], ['summary_json', 'summary.json']]) {
+  for (const [button, file] of [['fronts_csv', 'fronts.csv'], ['bursts_csv', 'bursts.csv'], ['activation_csv', 'activation.csv'], ['leaders_csv', 'leaders.csv'], ['summary_json', 'summary.json']]) {
     const text = await downloadText(page, `[data-export="${button}"]`);
     assert.equal(text, readFileSync(join(out, file), 'utf8'), `${file} differs from the command line's`);
   }

@@ -104,6 +104,8 @@ pub struct Recipe {
     pub liar_probability: f64,
     /// Mean interval between bursts beyond a 3 s refractory gap, seconds.
     pub mean_extra_interval_s: f64,
+    /// Point fronts: every burst starts here (um) instead of at a random place.
+    pub fixed_origin_um: Option<[f64; 2]>,
 }
 
 impl Recipe {
@@ -119,6 +121,7 @@ impl Recipe {
             miss_probability: 0.0,
             liar_probability: 0.0,
             mean_extra_interval_s: 3.0,
+            fixed_origin_um: None,
         }
     }
 }
@@ -246,7 +249,9 @@ pub fn generate(r: &Recipe) -> Generated {
             (Fronts::Point, Array::Grid { side, pitch_um }) => {
                 let extent = (side - 1) as f64 * pitch_um;
                 // Half of the sources lie within one pitch of an edge.
-                let (x0, y0) = if rng.random_bool(0.5) {
+                let (x0, y0) = if let Some([x, y]) = r.fixed_origin_um {
+                    (x, y)
+                } else if rng.random_bool(0.5) {
                     let along = rng.random_range(0.0..extent);
                     let inset = rng.random_range(0.0..pitch_um);
                     match rng.random_range(0..4) {

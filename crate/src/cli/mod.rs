@@ -49,7 +49,7 @@ struct AnalyzeArgs {
     /// Print one JSON document on stdout instead of text.
     #[arg(long)]
     json: bool,
-    /// Write bursts.csv, fronts.csv, activation.csv and summary.json into this folder.
+    /// Write bursts.csv, fronts.csv, activation.csv, leaders.csv and summary.json into this folder.
     #[arg(long, value_name = "DIR")]
     out: Option<String>,
     /// Analysis settings as JSON (any subset of the keys in the report's "settings").
@@ -506,15 +506,12 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     if let Some(dir) = &args.out {
         let out = std::path::Path::new(dir);
         std::fs::create_dir_all(out).map_err(Failure::Output)?;
-        for (name, content) in [
-            ("bursts.csv", report.bursts_csv()),
-            ("fronts.csv", report.fronts_csv()),
-            ("activation.csv", report.activation_csv()),
-            ("summary.json", report.summary_json()),
-        ] {
+        let files = report.output_files();
+        for (name, content) in &files {
             std::fs::write(out.join(name), content).map_err(Failure::Output)?;
         }
-        eprintln!("wrote bursts.csv, fronts.csv, activation.csv and summary.json to {dir}");
+        let names: Vec<&str> = files.iter().map(|f| f.0).collect();
+        eprintln!("wrote {} to {dir}", names.join(", "));
     }
     let truth = match &args.truth {
         Some(path) => {

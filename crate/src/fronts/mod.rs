@@ -6,6 +6,7 @@
 mod activation;
 mod consensus;
 mod models;
+pub mod order;
 pub mod regression;
 mod summary;
 
@@ -15,6 +16,7 @@ pub use models::{
     choose_model, distance_from_origin, fit_chosen, fit_front, model_name, Estimator, FittedFront,
     FrontModel, FrontPoints, FrontSettings, ModelChoice, ModelScore, NoFront, NoFrontKind, Origin,
 };
+pub use order::{BurstOrder, LeaderCount, OrderConsistency, OrderSettings};
 /// Angle of a point seen from a ring track's centre, radians (0 for other tracks).
 pub fn ring_angle_of(track: &Track, p: [f64; 2]) -> f64 {
     models::ring_angle(track, p)
@@ -42,6 +44,8 @@ pub struct AnalysisSettings {
     pub fronts: FrontSettings,
     /// Number of equal zones along the track for the initiation counts.
     pub initiation_zones: Option<usize>,
+    /// Leading sites, recruitment and the consistency of the activation order.
+    pub order: OrderSettings,
 }
 
 /// One site's activation in one burst.
@@ -120,6 +124,9 @@ pub struct BurstResult {
     /// Sites with spikes in the window.
     pub site_count: usize,
     pub activations: Vec<Activation>,
+    /// The order in which the sites activated: leading sites and recruitment times, whether
+    /// or not a front fits.
+    pub order: BurstOrder,
     /// Sites re-timed to their earliest spike that fits the front.
     pub retimed_sites: usize,
     /// Sites set aside as outliers (early or late).
@@ -521,6 +528,7 @@ fn analyse_burst(
         peak_s: burst.peak_s,
         spike_count: burst.spike_count,
         site_count: burst.sites.len(),
+        order: order::burst_order(&activations, &settings.order),
         activations,
         retimed_sites,
         outlier_sites,

@@ -588,26 +588,33 @@ fn fit_candidate(
                     hi[k] = hi[k].max(x[k]);
                 }
             }
+            // Coarse search: the earliest sites (a source lies near its first sites unless it
+            // lies off the array) and a 5 x 5 grid over the sites' extent; then a pattern
+            // search down to 1/32 of the extent. The joint Huber fit of origin and speed
+            // finishes the job (`refine_point_source`), so the scan need not be fine.
             let mut best = None;
-            for x in &p.xy_um {
-                keep_best(&mut best, eval(*x));
+            let mut earliest: Vec<usize> = (0..n).collect();
+            earliest.sort_by(|&a, &b| t[a].total_cmp(&t[b]));
+            for &i in earliest.iter().take(POINT_SOURCE_SITE_STARTS) {
+                keep_best(&mut best, eval(p.xy_um[i]));
             }
-            for i in 0..=6 {
-                for j in 0..=6 {
+            for i in 0..=4 {
+                for j in 0..=4 {
                     let x0 = [
-                        lo[0] + (hi[0] - lo[0]) * i as f64 / 6.0,
-                        lo[1] + (hi[1] - lo[1]) * j as f64 / 6.0,
+                        lo[0] + (hi[0] - lo[0]) * i as f64 / 4.0,
+                        lo[1] + (hi[1] - lo[1]) * j as f64 / 4.0,
                     ];
                     keep_best(&mut best, eval(x0));
                 }
             }
-            let mut step = ((hi[0] - lo[0]).max(hi[1] - lo[1]) / 6.0).max(1.0);
+            let extent = (hi[0] - lo[0]).max(hi[1] - lo[1]).max(1.0);
+            let mut step = extent / 8.0;
             let mut centre = match best.as_ref().map(|b| b.0.origin) {
                 Some(Origin::Point { xy_um }) => xy_um,
                 _ => return None,
             };
-            for _ in 0..80 {
-                if step < 0.5 {
+            for _ in 0..40 {
+                if step < extent / 32.0 {
                     break;
                 }
                 let before = best.as_ref().map_or(f64::INFINITY, |b| b.1);
@@ -632,6 +639,9 @@ fn fit_candidate(
         _ => None,
     }
 }
+
+/// Earliest sites tried as a point source's origin before the grid.
+const POINT_SOURCE_SITE_STARTS: usize = 8;
 
 /// The scanned point source refined jointly (origin, speed, start) by Huber's M-estimator
 /// ([`point_source_huber`]), the estimator its bootstrap repeats; the scan's values stand
@@ -1079,7 +1089,11 @@ pub fn fit_chosen(
             ),
         ));
     }
-    if transit_s < PERMUTATION_BELOW_TRANSIT_SD * model_scale_s
+    // Without propagation a fitted line's transit is about sqrt(12 / n) |z| timing SDs: only
+    // a transit within PERMUTATION_BELOW_NULL_SD of those can be chance, and only then are
+    // the times shuffled.
+    let null_sd = (12.0 / association_points.len().max(1) as f64).sqrt() * model_scale_s;
+    if transit_s < PERMUTATION_BELOW_NULL_SD * null_sd
         && association_points.len() <= PERMUTATION_MAX_SITES
     {
         let p = association_p_value(
@@ -1216,9 +1230,11 @@ pub fn fit_chosen(
     })
 }
 
-/// Fronts whose transit is under this many timing SDs get the permutation test of
-/// [`association_p_value`]; beyond it no shuffle comes near (common practice, no source).
-const PERMUTATION_BELOW_TRANSIT_SD: f64 = 20.0;
+/// Fronts whose transit is under this many of its null SDs (sqrt(12 / n) timing SDs, the
+/// transit a line fitted to n sites shows by chance) get the permutation test of
+/// [`association_p_value`]; beyond 8 a chance transit has odds below 1e-15 for one slope,
+/// which leaves room for the freedom of an origin search (common practice, no source).
+const PERMUTATION_BELOW_NULL_SD: f64 = 8.0;
 /// Most shuffles of the permutation test (n - 1 in Besag & Clifford's sequential test).
 const PERMUTATIONS: usize = 999;
 /// The sequential test stops once this many shuffles score at least as well (h in Besag &
@@ -1290,12 +1306,17 @@ const PROFILE_HALF_WIDTH: usize = 4;
 /// One bootstrap resample's estimator: the chosen model refitted to the resample, with its
 /// origin found again.
 enum Bootstrap {
-    /// Plane wave: the plane refitted, slowness projected on the fitted direction of travel.
+    /// Plane wave: the plane refitted, slowness projected on the fitted direction of travel
+    /// (OLS refitted as it is; the robust estimators by Huber's M-estimator with the full
+    /// fit's scale held, from the full fit's plane).
     Plane {
         design: DMatrix<f64>,
+        xy_um: Vec<[f64; 2]>,
         t: Vec<f64>,
         estimator: Estimator,
         direction: [f64; 2],
+        start: [f64; 3],
+        scale_s: f64,
     },
     /// Origins on a grid about the fitted one (a single origin for the one-way line, whose
     /// intercept is free); each resample keeps the origin with the lowest loss.
@@ -1329,15 +1350,19 @@ impl Bootstrap {
         let n = points.len();
         if let Some(g) = best.slowness {
             let norm = g[0].hypot(g[1]);
+            let beta0 = best.predict(0) - g[0] * points.xy_um[0][0] - g[1] * points.xy_um[0][1];
             return Bootstrap::Plane {
                 design: DMatrix::from_fn(n, 3, |i, j| match j {
                     0 => 1.0,
                     1 => points.xy_um[i][0],
                     _ => points.xy_um[i][1],
                 }),
+                xy_um: points.xy_um.clone(),
                 t,
                 estimator: settings.estimator,
                 direction: [g[0] / norm, g[1] / norm],
+                start: [beta0, g[0], g[1]],
+                scale_s,
             };
         }
         if let (FrontModel::PointSource, Origin::Point { xy_um }) = (best.model, best.origin) {
@@ -1394,11 +1419,18 @@ impl Bootstrap {
         match self {
             Bootstrap::Plane {
                 design,
+                xy_um,
                 t,
                 estimator,
                 direction,
-            } => plane_coefficients(design, t, *estimator, Some(counts))
-                .map(|b| b[1] * direction[0] + b[2] * direction[1]),
+                start,
+                scale_s,
+            } => match estimator {
+                Estimator::Ols => plane_coefficients(design, t, *estimator, Some(counts))
+                    .map(|b| b[1] * direction[0] + b[2] * direction[1]),
+                _ => plane_huber(xy_um, t, counts, *start, *scale_s)
+                    .map(|b| b[1] * direction[0] + b[2] * direction[1]),
+            },
             Bootstrap::Point {
                 xy_um,
                 t,
@@ -1451,6 +1483,58 @@ impl Bootstrap {
             }
         }
     }
+}
+
+/// Plane t = b0 + b1 x + b2 y fitted by Huber's M-estimator with a fixed `scale_s`, by
+/// iteratively reweighted least squares from `start` (Holland & Welsch 1977), each point
+/// weighted by how often it was drawn. Coordinates are centred for the 3 x 3 solve. `None`
+/// when the weighted design is singular.
+fn plane_huber(
+    xy_um: &[[f64; 2]],
+    t: &[f64],
+    counts: &[u32],
+    start: [f64; 3],
+    scale_s: f64,
+) -> Option<[f64; 3]> {
+    let n = t.len();
+    let (mut cx, mut cy, mut w_sum) = (0.0, 0.0, 0.0);
+    for i in 0..n {
+        let c = f64::from(counts[i]);
+        cx += c * xy_um[i][0];
+        cy += c * xy_um[i][1];
+        w_sum += c;
+    }
+    if w_sum == 0.0 {
+        return None;
+    }
+    let (cx, cy) = (cx / w_sum, cy / w_sum);
+    // In centred coordinates: t = a + b1 (x - cx) + b2 (y - cy), a = b0 + b1 cx + b2 cy.
+    let mut b =
+        nalgebra::Vector3::new(start[0] + start[1] * cx + start[2] * cy, start[1], start[2]);
+    for _ in 0..50 {
+        let mut m = nalgebra::Matrix3::<f64>::zeros();
+        let mut v = nalgebra::Vector3::<f64>::zeros();
+        for i in 0..n {
+            let c = f64::from(counts[i]);
+            if c == 0.0 {
+                continue;
+            }
+            let row = nalgebra::Vector3::new(1.0, xy_um[i][0] - cx, xy_um[i][1] - cy);
+            let r = t[i] - row.dot(&b);
+            let z = (r / scale_s).abs();
+            let w = c * if z <= HUBER_T { 1.0 } else { HUBER_T / z };
+            m += w * row * row.transpose();
+            v += w * t[i] * row;
+        }
+        let next = m.cholesky()?.solve(&v);
+        let change = (next - b).abs();
+        b = next;
+        // Converged when the plane moves by under a millionth of the scale across 1 mm.
+        if change[0] <= 1e-6 * scale_s && (change[1] + change[2]) * 1e3 <= 1e-6 * scale_s {
+            break;
+        }
+    }
+    Some([b[0] - b[1] * cx - b[2] * cy, b[1], b[2]])
 }
 
 /// Loss of the line with `slope` through the resample (its intercept the weighted median of

@@ -98,6 +98,13 @@ pub struct Summary {
     pub retimed_activations: usize,
     /// Site activations set aside as outliers, over all bursts.
     pub outlier_activations: usize,
+    /// Every site that activated, with how often it was among a burst's leading sites, most
+    /// frequent leader first.
+    pub leaders: Vec<super::LeaderCount>,
+    /// How alike the activation order is from burst to burst.
+    pub order_consistency: super::OrderConsistency,
+    /// Median over bursts of the time to recruit 10%, 50% and 90% of the active sites, ms.
+    pub median_recruitment_ms: Option<[f64; 3]>,
     pub median_speed_mm_s: Option<f64>,
     pub speed_q25_mm_s: Option<f64>,
     pub speed_q75_mm_s: Option<f64>,
@@ -265,6 +272,26 @@ pub fn summarise(
         too_few_sites_count: count_kind(bursts, NoFrontKind::TooFewSites),
         retimed_activations: bursts.iter().map(|b| b.retimed_sites).sum(),
         outlier_activations: bursts.iter().map(|b| b.outlier_sites).sum(),
+        leaders: super::order::leaders(
+            bursts,
+            &recording
+                .sites
+                .iter()
+                .map(|s| (s.id.clone(), s.x_um, s.y_um))
+                .collect::<Vec<_>>(),
+        ),
+        order_consistency: super::order::order_consistency(bursts, &settings.order),
+        median_recruitment_ms: {
+            let r: Vec<[f64; 3]> = bursts
+                .iter()
+                .filter_map(|b| b.order.recruitment_ms)
+                .collect();
+            let m = |k: usize| crate::stats::median(&r.iter().map(|v| v[k]).collect::<Vec<_>>());
+            match (m(0), m(1), m(2)) {
+                (Some(a), Some(b), Some(c)) => Some([a, b, c]),
+                _ => None,
+            }
+        },
         median_speed_mm_s: quantile(&speeds, 0.5),
         speed_q25_mm_s: q25,
         speed_q75_mm_s: q75,

@@ -48,18 +48,28 @@ impl AnalysisReport {
     /// `bursts.csv`: one row per network burst.
     pub fn bursts_csv(&self) -> String {
         let mut out = String::from(
-            "burst,start_s,end_s,peak_s,spike_count,site_count,retimed_sites,outlier_sites,outcome,front_model,no_front_reason\n",
+            "burst,start_s,end_s,peak_s,spike_count,site_count,active_sites,leading_sites,recruit_10_ms,recruit_50_ms,recruit_90_ms,retimed_sites,outlier_sites,outcome,front_model,no_front_reason\n",
         );
         for b in &self.bursts {
+            let recruit = |k: usize| {
+                b.order
+                    .recruitment_ms
+                    .map_or(String::new(), |r| r[k].to_string())
+            };
             let _ = writeln!(
                 out,
-                "{},{},{},{},{},{},{},{},{},{},{}",
+                "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
                 b.burst,
                 b.start_s,
                 b.end_s,
                 b.peak_s,
                 b.spike_count,
                 b.site_count,
+                b.order.active_sites,
+                csv_text(&b.order.leading_sites.join(";")),
+                recruit(0),
+                recruit(1),
+                recruit(2),
                 b.retimed_sites,
                 b.outlier_sites,
                 b.no_front_kind.map_or("front", |k| k.as_str()),
@@ -131,6 +141,42 @@ impl AnalysisReport {
         out
     }
 
+    /// `leaders.csv`: one row per site that activated in some burst, with how often it led.
+    pub fn leaders_csv(&self) -> String {
+        let mut out = String::from(
+            "site,x_um,y_um,bursts_active,bursts_leading,lead_fraction,lead_ci95_low,lead_ci95_high,median_rank_fraction\n",
+        );
+        let opt = |v: Option<f64>| v.map_or(String::new(), |x| x.to_string());
+        for r in &self.summary.leaders {
+            let _ = writeln!(
+                out,
+                "{},{},{},{},{},{},{},{},{}",
+                csv_text(&r.site),
+                r.x_um,
+                r.y_um,
+                r.bursts_active,
+                r.bursts_leading,
+                r.lead_fraction,
+                opt(r.lead_fraction_ci95.map(|c| c[0])),
+                opt(r.lead_fraction_ci95.map(|c| c[1])),
+                opt(r.median_rank_fraction)
+            );
+        }
+        out
+    }
+
+    /// Every file `ringline analyze --out` writes from the analysis (electrodes.csv of raw
+    /// voltage aside), as (name, contents): the command line and the page save these.
+    pub fn output_files(&self) -> Vec<(&'static str, String)> {
+        vec![
+            ("bursts.csv", self.bursts_csv()),
+            ("fronts.csv", self.fronts_csv()),
+            ("activation.csv", self.activation_csv()),
+            ("leaders.csv", self.leaders_csv()),
+            ("summary.json", self.summary_json()),
+        ]
+    }
+
     /// `summary.json`: the summary with the track and the files.
     pub fn summary_json(&self) -> String {
         #[derive(Serialize)]
@@ -177,6 +223,38 @@ impl AnalysisReport {
             "Fronts         {} ({} bursts without a resolvable front: {} synchronous, {} too fast to resolve, {} with too few sites)",
             s.front_count, s.no_front_count, s.synchronous_count, s.unresolved_count, s.too_few_sites_count
         );
+        if let Some(first) = s.leaders.first() {
+            let _ = writeln!(
+                out,
+                "Leaders        {} led {} of {} bursts ({:.0}%; leading = first {:.0}% of active sites), then {}",
+                first.site,
+                first.bursts_leading,
+                s.burst_count,
+                first.lead_fraction * 100.0,
+                self.settings.order.leading_fraction * 100.0,
+                s.leaders
+                    .iter()
+                    .skip(1)
+                    .take(3)
+                    .filter(|r| r.bursts_leading > 0)
+                    .map(|r| format!("{} ({})", r.site, r.bursts_leading))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            );
+        }
+        if let Some(rho) = s.order_consistency.median_spearman {
+            let _ = writeln!(
+                out,
+                "Order          median Spearman correlation of activation order between bursts {rho:.2} ({} pairs; 1 = the same order every time)",
+                s.order_consistency.pairs
+            );
+        }
+        if let Some([a, b, c]) = s.median_recruitment_ms {
+            let _ = writeln!(
+                out,
+                "Recruitment    median time to 10% / 50% / 90% of the active sites {a:.1} / {b:.1} / {c:.1} ms"
+            );
+        }
         if s.retimed_activations + s.outlier_activations > 0 {
             let _ = writeln!(
                 out,

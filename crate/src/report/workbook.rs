@@ -167,6 +167,7 @@ pub struct Exports {
     pub bursts_csv: String,
     pub fronts_csv: String,
     pub activation_csv: String,
+    pub leaders_csv: String,
     pub summary_json: String,
 }
 
@@ -415,6 +416,7 @@ impl Workbook {
             bursts_csv: r.bursts_csv(),
             fronts_csv: r.fronts_csv(),
             activation_csv: r.activation_csv(),
+            leaders_csv: r.leaders_csv(),
             summary_json: r.summary_json(),
         })
     }
