@@ -170,6 +170,41 @@ fn activation_read_out_names_each_sites_status() {
     assert!(seen.contains("retimed"), "{seen:?}");
 }
 
+/// The map of where bursts start has one read-out per site that activated, saying how many
+/// bursts it led, as `summary.leaders`; the recruitment figure's median read-outs at 10%, 50%
+/// and 90% are the summary's median recruitment times (both checked against generator truth
+/// and by hand in tests/burst_order.rs).
+#[test]
+fn leader_map_and_recruitment_figures_carry_the_summary() {
+    let wb = analysed("dish-8x8");
+    let report = wb.report().unwrap().clone();
+    let s = &report.summary;
+    let fig = wb.figure(&FigureRequest::Leaders, Size::default()).unwrap();
+    assert!(fig.svg.contains("x (µm)") && fig.svg.contains("y (µm)"));
+    assert_eq!(fig.points.len(), s.leaders.len());
+    for (p, l) in fig.points.iter().zip(&s.leaders) {
+        let expected = format!(
+            "site {}: led {} of {} bursts",
+            l.site, l.bursts_leading, s.burst_count
+        );
+        assert!(p.label.starts_with(&expected), "{} / {expected}", p.label);
+    }
+    let fig = wb
+        .figure(&FigureRequest::Recruitment, Size::default())
+        .unwrap();
+    assert!(fig.svg.contains("(ms)"));
+    let medians = s.median_recruitment_ms.unwrap();
+    assert_eq!(fig.points.len(), 3);
+    for (p, (share, ms)) in fig.points.iter().zip([10, 50, 90].iter().zip(medians)) {
+        assert!(
+            p.label
+                .starts_with(&format!("{share}% of the active sites within {ms:.1} ms")),
+            "{} / {ms}",
+            p.label
+        );
+    }
+}
+
 /// The drawn model is the fitted one: on every kind of track, t = start + d / v with the
 /// distance the figure uses leaves residuals about as large as the fit's own RMS residual.
 #[test]

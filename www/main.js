@@ -544,7 +544,7 @@ async function renderResults() {
   $('step-fronts').hidden = false;
   $('burst-count').textContent = `of ${r.bursts.length}`;
   await selectBurst(state.settings.view.burst);
-  for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability']) await drawFigure(name);
+  for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability', 'leaders', 'recruitment']) await drawFigure(name);
   renderSummary();
   await renderTruth();
 }

@@ -124,6 +124,12 @@ test('the served page analyses the dropped demo files exactly as the command lin
     const text = await downloadText(page, `[data-export="${button}"]`);
     assert.equal(text, readFileSync(join(out, file), 'utf8'), `${file} differs from the command line's`);
   }
+  // Where bursts start and how fast they recruit: drawn by the core, saved as SVG.
+  for (const [name, title] of [['leaders', 'Where bursts start'], ['recruitment', 'Recruitment of the active sites']]) {
+    await page.locator(`#fig-${name}`).waitFor({ state: 'visible' });
+    const text = await downloadText(page, `.svg-save[data-figure="${name}"]`);
+    assert.ok(text.includes(title), `${name} figure lacks its title`);
+  }
   // An SVG export is a standalone SVG document with the axis units.
   const svg = await downloadText(page, '.svg-save[data-figure="activation"]');
   assert.match(svg, /^<svg[^>]*xmlns="http:\/\/www.w3.org\/2000\/svg"/);

@@ -682,6 +682,144 @@ pub fn initiation_sites(report: &AnalysisReport, size: Size) -> Result<Figure, F
     )
 }
 
+/// One site on the map of where bursts start.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LeaderPoint {
+    pub site: String,
+    pub x_um: f64,
+    pub y_um: f64,
+    /// Bursts in which the site was among the leading sites, and all bursts.
+    pub bursts_leading: usize,
+    pub bursts: usize,
+    /// Wilson 95% interval of the leading share.
+    pub ci95: Option<[f64; 2]>,
+}
+
+/// Map of where bursts start: every site that activated at its layout position, with a disc
+/// whose area is proportional to the share of bursts it led (hollow grey when it never led).
+pub fn leader_map(points: &[LeaderPoint], size: Size) -> Result<Figure, FigureError> {
+    if points.is_empty() {
+        return Err(empty("no site activated in any burst"));
+    }
+    let (x0, x1) = padded(points.iter().map(|p| p.x_um)).ok_or_else(|| empty("no positions"))?;
+    let (y0, y1) = padded(points.iter().map(|p| p.y_um)).ok_or_else(|| empty("no positions"))?;
+    let top = points
+        .iter()
+        .map(|p| p.bursts_leading)
+        .max()
+        .unwrap_or(0)
+        .max(1) as f64;
+    chart(
+        size,
+        "Where bursts start: disc area = share of bursts the site led",
+        (x0, x1, "x (µm)"),
+        (y0, y1, "y (µm)"),
+        |c| {
+            for p in points {
+                if p.bursts_leading == 0 {
+                    c.circle(p.x_um, p.y_um, 2.5, GREY, false);
+                } else {
+                    let r = 3.0 + 11.0 * (p.bursts_leading as f64 / top).sqrt();
+                    c.circle(p.x_um, p.y_um, r, VERMILLION, true);
+                }
+            }
+            Ok(points
+                .iter()
+                .map(|p| {
+                    let share = p.bursts_leading as f64 / p.bursts.max(1) as f64;
+                    let ci = p.ci95.map_or(String::new(), |[a, b]| {
+                        format!(", 95% {:.0}-{:.0}%", 100.0 * a, 100.0 * b)
+                    });
+                    (
+                        p.x_um,
+                        p.y_um,
+                        format!(
+                            "site {}: led {} of {} bursts ({:.0}%{ci})",
+                            p.site,
+                            p.bursts_leading,
+                            p.bursts,
+                            100.0 * share
+                        ),
+                    )
+                })
+                .collect())
+        },
+    )
+}
+
+/// Most bursts drawn as curves in the recruitment figure (the median uses all).
+const RECRUITMENT_CURVES_DRAWN: usize = 200;
+
+/// Recruitment: the fraction of a burst's active sites that had activated against the time
+/// since its first activation (ms), one grey step curve per burst, and the median over bursts
+/// of the time to reach each fraction (blue). `bursts` holds each burst's activation times
+/// after its first, ms, ascending.
+pub fn recruitment(bursts: &[Vec<f64>], size: Size) -> Result<Figure, FigureError> {
+    let usable: Vec<&Vec<f64>> = bursts.iter().filter(|b| b.len() >= 2).collect();
+    if usable.is_empty() {
+        return Err(empty("no burst with two or more active sites"));
+    }
+    let longest = usable
+        .iter()
+        .filter_map(|b| b.last().copied())
+        .fold(0.0, f64::max);
+    let x1 = if longest > 0.0 { longest * 1.05 } else { 1.0 };
+    // Time (ms) at which a burst had reached fraction f of its active sites: its k-th
+    // activation with k = ceil(f n).
+    let reach = |b: &Vec<f64>, f: f64| -> f64 {
+        let k = ((f * b.len() as f64).ceil() as usize).clamp(1, b.len());
+        b[k - 1]
+    };
+    let fractions: Vec<f64> = (1..=50).map(|k| k as f64 / 50.0).collect();
+    let median: Vec<(f64, f64)> = fractions
+        .iter()
+        .filter_map(|&f| {
+            let times: Vec<f64> = usable.iter().map(|b| reach(b, f)).collect();
+            crate::stats::median(&times).map(|t| (t, f))
+        })
+        .collect();
+    chart(
+        size,
+        &format!(
+            "Recruitment of the active sites ({} bursts; blue: median)",
+            usable.len()
+        ),
+        (0.0, x1, "time since the burst's first activation (ms)"),
+        (0.0, 1.05, "fraction of active sites activated"),
+        |c| {
+            for b in usable.iter().take(RECRUITMENT_CURVES_DRAWN) {
+                let n = b.len() as f64;
+                let mut steps = Vec::with_capacity(2 * b.len());
+                for (k, &t) in b.iter().enumerate() {
+                    if k > 0 {
+                        steps.push((t, k as f64 / n));
+                    }
+                    steps.push((t, (k + 1) as f64 / n));
+                }
+                c.polyline(&steps, GREY, 0.6);
+            }
+            c.polyline(&median, BLUE, 2.5);
+            Ok([0.1, 0.5, 0.9]
+                .iter()
+                .filter_map(|&f| {
+                    let times: Vec<f64> = usable.iter().map(|b| reach(b, f)).collect();
+                    crate::stats::median(&times).map(|t| {
+                        (
+                            t,
+                            f,
+                            format!(
+                                "{:.0}% of the active sites within {t:.1} ms (median of {} bursts)",
+                                100.0 * f,
+                                usable.len()
+                            ),
+                        )
+                    })
+                })
+                .collect())
+        },
+    )
+}
+
 /// Fraction of fronts that reached each distance from their origin, among those that could.
 pub fn reliability(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
     let points: Vec<(f64, f64, usize, usize)> = report

@@ -184,6 +184,10 @@ pub enum FigureRequest {
     SpeedHistogram,
     InitiationSites,
     Reliability,
+    /// Where bursts start: how often each site led.
+    Leaders,
+    /// How fast each burst recruited its active sites.
+    Recruitment,
 }
 
 /// The page's state.
@@ -407,6 +411,48 @@ impl Workbook {
             FigureRequest::SpeedHistogram => figures::speed_histogram(need()?, size),
             FigureRequest::InitiationSites => figures::initiation_sites(need()?, size),
             FigureRequest::Reliability => figures::reliability(need()?, size),
+            FigureRequest::Leaders => {
+                let r = need()?;
+                let points: Vec<figures::LeaderPoint> = r
+                    .summary
+                    .leaders
+                    .iter()
+                    .map(|l| figures::LeaderPoint {
+                        site: l.site.clone(),
+                        x_um: l.x_um,
+                        y_um: l.y_um,
+                        bursts_leading: l.bursts_leading,
+                        bursts: r.summary.burst_count,
+                        ci95: l.lead_fraction_ci95,
+                    })
+                    .collect();
+                figures::leader_map(&points, size)
+            }
+            FigureRequest::Recruitment => {
+                let r = need()?;
+                let bursts: Vec<Vec<f64>> = r
+                    .bursts
+                    .iter()
+                    .map(|b| {
+                        let mut t: Vec<f64> = b
+                            .activations
+                            .iter()
+                            .filter(|a| {
+                                !matches!(
+                                    a.status,
+                                    crate::fronts::ActivationStatus::EarlyOutlier
+                                        | crate::fronts::ActivationStatus::LateOutlier
+                                )
+                            })
+                            .map(|a| a.time_s)
+                            .collect();
+                        t.sort_by(f64::total_cmp);
+                        let first = t.first().copied().unwrap_or(0.0);
+                        t.iter().map(|v| (v - first) * 1e3).collect()
+                    })
+                    .collect();
+                figures::recruitment(&bursts, size)
+            }
         }
     }
 
