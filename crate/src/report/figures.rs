@@ -143,6 +143,17 @@ fn chart(
     })
 }
 
+/// Widens the shorter of two axis ranges so that a micrometre is as long on both axes (a
+/// ring looks round, a line of sites stays a line).
+fn equal_scale(x: (f64, f64), y: (f64, f64), size: Size) -> ((f64, f64), (f64, f64)) {
+    let plot_w = f64::from(size.width_px.saturating_sub(100).max(1));
+    let plot_h = f64::from(size.height_px.saturating_sub(80).max(1));
+    let scale = ((x.1 - x.0) / plot_w).max((y.1 - y.0) / plot_h);
+    let (cx, cy) = ((x.0 + x.1) / 2.0, (y.0 + y.1) / 2.0);
+    let (hw, hh) = (scale * plot_w / 2.0, scale * plot_h / 2.0);
+    ((cx - hw, cx + hw), (cy - hh, cy + hh))
+}
+
 /// Map of the sites in the layout's axes with the track drawn over them: active sites filled,
 /// silent sites hollow, off-track sites in vermillion, the track's start marked.
 pub fn site_map(inspection: &Inspection, size: Size) -> Result<Figure, FigureError> {
@@ -193,17 +204,13 @@ pub fn site_map(inspection: &Inspection, size: Size) -> Result<Figure, FigureErr
     let (x0, x1) = padded(xs).ok_or_else(|| empty("no finite site positions"))?;
     let (y0, y1) = padded(ys).ok_or_else(|| empty("no finite site positions"))?;
     // Equal scales on both axes, so a ring looks round.
-    let plot_w = f64::from(size.width_px.saturating_sub(100).max(1));
-    let plot_h = f64::from(size.height_px.saturating_sub(80).max(1));
-    let scale = ((x1 - x0) / plot_w).max((y1 - y0) / plot_h);
-    let (cx, cy) = ((x0 + x1) / 2.0, (y0 + y1) / 2.0);
-    let (hw, hh) = (scale * plot_w / 2.0, scale * plot_h / 2.0);
+    let ((ex0, ex1), (ey0, ey1)) = equal_scale((x0, x1), (y0, y1), size);
     let title = format!("Sites and track ({})", inspection.track.kind);
     chart(
         size,
         &title,
-        (cx - hw, cx + hw, "x (µm)"),
-        (cy - hh, cy + hh, "y (µm)"),
+        (ex0, ex1, "x (µm)"),
+        (ey0, ey1, "y (µm)"),
         |c| {
             if track_path.len() >= 2 {
                 c.polyline(&track_path, SKY_BLUE, 3.0);
@@ -701,8 +708,9 @@ pub fn leader_map(points: &[LeaderPoint], size: Size) -> Result<Figure, FigureEr
     if points.is_empty() {
         return Err(empty("no site activated in any burst"));
     }
-    let (x0, x1) = padded(points.iter().map(|p| p.x_um)).ok_or_else(|| empty("no positions"))?;
-    let (y0, y1) = padded(points.iter().map(|p| p.y_um)).ok_or_else(|| empty("no positions"))?;
+    let x = padded(points.iter().map(|p| p.x_um)).ok_or_else(|| empty("no positions"))?;
+    let y = padded(points.iter().map(|p| p.y_um)).ok_or_else(|| empty("no positions"))?;
+    let ((x0, x1), (y0, y1)) = equal_scale(x, y, size);
     let top = points
         .iter()
         .map(|p| p.bursts_leading)
