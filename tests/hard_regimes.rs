@@ -457,3 +457,66 @@ fn slow_fronts_through_busy_background() {
     }
     assert_meets_criteria("slow line, 2 Hz background, pooled", &pooled.unwrap());
 }
+
+/// Calcium imaging of one-way fronts on a 16-ROI line (5.6 mm) at 20 and 50 frames/s, with
+/// transients rising over 40 ms, ROIs missing bursts and lone transients between them. The
+/// speeds keep the transit at 10 frames or more (20 frames/s: 10 mm/s; 50 frames/s: 25 mm/s).
+#[test]
+fn imaging_at_20_and_50_frames_per_second() {
+    for (fps, speed, seed) in [(20.0, 10.0, 61), (50.0, 25.0, 62)] {
+        let r = Recipe {
+            speed_mm_s: speed,
+            duration_s: 1800.0,
+            ..Recipe::new(seed, line16(), Fronts::OneWay, DENSE)
+        };
+        let g = regimes::image(&r, fps, 0.04);
+        let rec = read_recording(
+            ("traces.csv", g.traces_csv.as_bytes()),
+            ("layout.csv", g.layout_csv.as_bytes()),
+            &ReadOptions::default(),
+        )
+        .unwrap();
+        let track = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
+        let a = analyze(&rec, &track, &AnalysisSettings::default(), &mut |_, _| {}).unwrap();
+        let mut m = Measured {
+            truth: g.truth.len(),
+            found: 0,
+            fronts: 0,
+            speed_errors: Vec::new(),
+            model_right: 0,
+            direction_right: 0,
+            direction_asked: 0,
+            origin_right: 0,
+            origin_asked: 0,
+            covered: 0,
+            bursts_detected: a.bursts.len(),
+            retimed: a.bursts.iter().map(|b| b.retimed_sites).sum(),
+            set_aside: a.bursts.iter().map(|b| b.outlier_sites).sum(),
+        };
+        for t in &g.truth {
+            let Some(b) = a
+                .bursts
+                .iter()
+                .find(|b| b.start_s - 0.5 <= t.start_s && t.start_s <= b.end_s)
+            else {
+                continue;
+            };
+            m.found += 1;
+            let Some(f) = &b.front else { continue };
+            m.fronts += 1;
+            let v = t.speed_mm_s.unwrap();
+            m.speed_errors.push((f.speed_mm_s / v - 1.0).abs());
+            m.covered += usize::from(f.speed_ci95_mm_s[0] <= v && v <= f.speed_ci95_mm_s[1]);
+            m.model_right += usize::from(f.model == "line_one_way");
+            m.direction_asked += 1;
+            let d = t.direction.unwrap();
+            m.direction_right += usize::from(
+                f.direction_xy
+                    .is_some_and(|e| e[0] * d[0] + e[1] * d[1] > 0.9),
+            );
+        }
+        let name = format!("imaging at {fps} frames/s");
+        eprintln!("{}", m.line(&name));
+        assert_meets_criteria(&name, &m);
+    }
+}

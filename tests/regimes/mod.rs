@@ -376,3 +376,90 @@ fn run_after(rng: &mut ChaCha8Rng, first: f64, mean: f64) -> Vec<f64> {
 pub fn angle_deg(d: [f64; 2]) -> f64 {
     d[1].atan2(d[0]) * 180.0 / PI
 }
+
+/// Calcium imaging of the same kind of culture: every ROI's fluorescence at `frame_rate_hz`,
+/// F = 1 + sum of transients (dF/F amplitude 0.4-1.0, exponential rise with time constant
+/// `rise_s` and decay of 0.8 s) + Gaussian noise of SD 0.03. A transient starts when the front
+/// reaches the ROI plus a log-normal latency (median 5 ms); 5% of ROIs miss each burst; a few
+/// ROIs fire a lone transient of their own between bursts (0.02 per second).
+pub struct Imaged {
+    pub traces_csv: String,
+    pub layout_csv: String,
+    pub truth: Vec<TrueBurst>,
+}
+
+pub fn image(r: &Recipe, frame_rate_hz: f64, rise_s: f64) -> Imaged {
+    let mut rng = ChaCha8Rng::seed_from_u64(r.seed);
+    let positions = r.array.positions();
+    let n = positions.len();
+    let speed_spread = LogNormal::new(r.speed_mm_s.ln(), 0.15).unwrap();
+    let extra = Exp::new(1.0 / r.mean_extra_interval_s).unwrap();
+    let latency = LogNormal::new(0.005f64.ln(), 0.5).unwrap();
+    let mut onsets: Vec<Vec<(f64, f64)>> = vec![Vec::new(); n];
+    let mut truth = Vec::new();
+    let mut t = 2.0;
+    while t < r.duration_s - 5.0 {
+        let speed = speed_spread.sample(&mut rng);
+        let forward = rng.random_bool(0.5);
+        let xs: Vec<f64> = positions.iter().map(|p| p[0]).collect();
+        let (lo, hi) = (xs[0], xs[n - 1]);
+        for (i, &x) in xs.iter().enumerate() {
+            if rng.random_bool(0.05) {
+                continue;
+            }
+            let d = if forward { x - lo } else { hi - x };
+            let onset = t + d / (speed * 1e3) + latency.sample(&mut rng);
+            onsets[i].push((onset, rng.random_range(0.4..1.0)));
+        }
+        truth.push(TrueBurst {
+            start_s: t,
+            fronts: Fronts::OneWay,
+            speed_mm_s: Some(speed),
+            direction: Some(if forward { [1.0, 0.0] } else { [-1.0, 0.0] }),
+            rotation: None,
+            origin_xy: None,
+            liars: Vec::new(),
+        });
+        t += (hi - lo) / (speed * 1e3) + 4.0 + extra.sample(&mut rng);
+    }
+    let lone = Exp::new(0.02).unwrap();
+    for o in &mut onsets {
+        let mut s = lone.sample(&mut rng);
+        while s < r.duration_s {
+            o.push((s, rng.random_range(0.3..0.6)));
+            s += lone.sample(&mut rng);
+        }
+    }
+    let noise = Normal::new(0.0, 0.03).unwrap();
+    let frames = (r.duration_s * frame_rate_hz) as usize;
+    let mut traces_csv = String::from("time_s");
+    for i in 0..n {
+        let _ = write!(traces_csv, ",r{:03}", i + 1);
+    }
+    traces_csv.push('\n');
+    for k in 0..frames {
+        let time = k as f64 / frame_rate_hz;
+        let _ = write!(traces_csv, "{time:.4}");
+        for o in &onsets {
+            let f: f64 = o
+                .iter()
+                .filter(|(s, _)| *s < time && time - s < 8.0)
+                .map(|(s, a)| {
+                    let dt = time - s;
+                    a * (1.0 - (-dt / rise_s).exp()) * (-dt / 0.8).exp()
+                })
+                .sum();
+            let _ = write!(traces_csv, ",{:.5}", 1.0 + f + noise.sample(&mut rng));
+        }
+        traces_csv.push('\n');
+    }
+    let mut layout_csv = String::from("site,x_um,y_um\n");
+    for (i, p) in positions.iter().enumerate() {
+        let _ = writeln!(layout_csv, "r{:03},{:.3},{:.3}", i + 1, p[0], p[1]);
+    }
+    Imaged {
+        traces_csv,
+        layout_csv,
+        truth,
+    }
+}
