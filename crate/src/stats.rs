@@ -7,7 +7,22 @@ use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
 
 /// Median (mean of the two middle values for an even count); `None` when empty.
 pub fn median(values: &[f64]) -> Option<f64> {
-    quantile(values, 0.5)
+    // The type-7 quantile at 0.5 by selection instead of sorting (linear time), with the
+    // same arithmetic, so the value is the same to the last bit.
+    let n = values.len();
+    if n == 0 {
+        return None;
+    }
+    let mut v = values.to_vec();
+    let h = (n - 1) as f64 * 0.5;
+    let lo = h.floor() as usize;
+    let (_, &mut a, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
+    let b = if lo + 1 < n {
+        above.iter().copied().min_by(f64::total_cmp).unwrap_or(a)
+    } else {
+        a
+    };
+    Some(a + (h - lo as f64) * (b - a))
 }
 
 /// Quantile `q` in [0, 1] by linear interpolation between order statistics (Hyndman & Fan

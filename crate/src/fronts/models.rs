@@ -573,13 +573,25 @@ fn fit_candidate(
             })
         }
         (FrontModel::PointSource, TrackFrame::Plane) => {
+            // On large arrays the scan only has to land in the right basin (the joint Huber
+            // fit on every site finishes it), so it fits an evenly spread subset of at most
+            // POINT_SOURCE_SCAN_SITES sites: Theil-Sen costs the square of the sites.
+            let stride = n.div_ceil(POINT_SOURCE_SCAN_SITES).max(1);
+            let scan_xy: Vec<[f64; 2]> = p.xy_um.iter().step_by(stride).copied().collect();
+            let scan_t: Vec<f64> = t.iter().step_by(stride).copied().collect();
             let eval = |x0: [f64; 2]| {
-                let u: Vec<f64> = p
-                    .xy_um
+                let u: Vec<f64> = scan_xy
                     .iter()
                     .map(|x| (x[0] - x0[0]).hypot(x[1] - x0[1]))
                     .collect();
-                candidate_1d(model, u, t, settings, Origin::Point { xy_um: x0 }, None)
+                candidate_1d(
+                    model,
+                    u,
+                    &scan_t,
+                    settings,
+                    Origin::Point { xy_um: x0 },
+                    None,
+                )
             };
             let (mut lo, mut hi) = ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]);
             for x in &p.xy_um {
@@ -633,12 +645,26 @@ fn fit_candidate(
                     step /= 2.0;
                 }
             }
-            let scanned = best.map(|b| b.0)?;
+            let mut scanned = best.map(|b| b.0)?;
+            if stride > 1 {
+                // The subset's front carried to every site as the joint fit's start.
+                if let Origin::Point { xy_um: o } = scanned.origin {
+                    scanned.u = p
+                        .xy_um
+                        .iter()
+                        .map(|x| (x[0] - o[0]).hypot(x[1] - o[1]))
+                        .collect();
+                    scanned.rss = (0..n).map(|i| (t[i] - scanned.predict(i)).powi(2)).sum();
+                }
+            }
             Some(refine_point_source(scanned, p, time_scale_floor(None)))
         }
         _ => None,
     }
 }
+
+/// Most sites a point source's origin scan fits (an evenly spread subset beyond).
+const POINT_SOURCE_SCAN_SITES: usize = 128;
 
 /// Earliest sites tried as a point source's origin before the grid.
 const POINT_SOURCE_SITE_STARTS: usize = 8;

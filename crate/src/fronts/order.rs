@@ -116,39 +116,47 @@ pub struct OrderConsistency {
 /// first. `sites` are (id, x, y) of all sites, in the recording's order.
 pub fn leaders(bursts: &[BurstResult], sites: &[(String, f64, f64)]) -> Vec<LeaderCount> {
     let total = bursts.len();
-    let mut rows: Vec<LeaderCount> = sites
+    let index: std::collections::HashMap<&str, usize> = sites
         .iter()
-        .map(|(site, x, y)| {
-            let mut active = 0;
-            let mut leading = 0;
-            let mut ranks = Vec::new();
-            for b in bursts {
-                let (activations, order) = (&b.activations, &b.order);
-                let v = ordered(activations);
-                if let Some(k) = v.iter().position(|a| &a.site == site) {
-                    active += 1;
-                    if v.len() > 1 {
-                        ranks.push(k as f64 / (v.len() - 1) as f64);
-                    }
-                    leading += usize::from(order.leading_sites.iter().any(|s| s == site));
+        .enumerate()
+        .map(|(i, s)| (s.0.as_str(), i))
+        .collect();
+    // One pass over the bursts: (bursts active, bursts leading, rank fractions) per site.
+    let mut tally: Vec<(usize, usize, Vec<f64>)> = vec![(0, 0, Vec::new()); sites.len()];
+    for b in bursts {
+        let v = ordered(&b.activations);
+        for (k, a) in v.iter().enumerate() {
+            if let Some(&i) = index.get(a.site.as_str()) {
+                tally[i].0 += 1;
+                if v.len() > 1 {
+                    tally[i].2.push(k as f64 / (v.len() - 1) as f64);
                 }
             }
-            LeaderCount {
-                site: site.clone(),
-                x_um: *x,
-                y_um: *y,
-                bursts_active: active,
-                bursts_leading: leading,
-                lead_fraction: if total > 0 {
-                    leading as f64 / total as f64
-                } else {
-                    0.0
-                },
-                lead_fraction_ci95: crate::stats::wilson_interval(leading, total, 0.95),
-                median_rank_fraction: crate::stats::median(&ranks),
+        }
+        for site in &b.order.leading_sites {
+            if let Some(&i) = index.get(site.as_str()) {
+                tally[i].1 += 1;
             }
+        }
+    }
+    let mut rows: Vec<LeaderCount> = sites
+        .iter()
+        .zip(tally)
+        .filter(|(_, (active, _, _))| *active > 0)
+        .map(|((site, x, y), (active, leading, ranks))| LeaderCount {
+            site: site.clone(),
+            x_um: *x,
+            y_um: *y,
+            bursts_active: active,
+            bursts_leading: leading,
+            lead_fraction: if total > 0 {
+                leading as f64 / total as f64
+            } else {
+                0.0
+            },
+            lead_fraction_ci95: crate::stats::wilson_interval(leading, total, 0.95),
+            median_rank_fraction: crate::stats::median(&ranks),
         })
-        .filter(|r| r.bursts_active > 0)
         .collect();
     rows.sort_by(|a, b| {
         b.bursts_leading

@@ -81,7 +81,7 @@ pub struct TheilSenFit {
 
 /// Theil-Sen estimator (Theil 1950; Sen 1968, J. Am. Stat. Assoc. 63:1379) with Sen's
 /// interval (his eq. 2.6, with the tie corrections for repeated x and y). Pairs with equal x
-/// are left out. O(n^2 log n). `None` when no pair has distinct x.
+/// are left out. O(n^2) (order statistics by selection). `None` when no pair has distinct x.
 pub fn theil_sen(x: &[f64], y: &[f64], confidence: f64) -> Option<TheilSenFit> {
     let n = x.len();
     if n < 2 || y.len() != n {
@@ -99,8 +99,16 @@ pub fn theil_sen(x: &[f64], y: &[f64], confidence: f64) -> Option<TheilSenFit> {
     if slopes.is_empty() {
         return None;
     }
-    slopes.sort_by(f64::total_cmp);
-    let slope = crate::stats::quantile_sorted(&slopes, 0.5);
+    // The order statistics needed (the median's one or two, and the interval's two) by
+    // selection, each in linear time, rather than sorting all n (n - 1) / 2 slopes; the
+    // values are those of the sorted list.
+    let count = slopes.len();
+    let mut kth = |k: usize| -> f64 { *slopes.select_nth_unstable_by(k, f64::total_cmp).1 };
+    let h = (count - 1) as f64 * 0.5;
+    let lo = h.floor() as usize;
+    let a = kth(lo);
+    let b = kth((lo + 1).min(count - 1));
+    let slope = a + (h - lo as f64) * (b - a);
     let intercept = median(y)? - slope * median(x)?;
     let tie_term = |v: &[f64]| -> f64 {
         let mut s = v.to_vec();
@@ -122,14 +130,14 @@ pub fn theil_sen(x: &[f64], y: &[f64], confidence: f64) -> Option<TheilSenFit> {
     };
     let nf = n as f64;
     let sigma_sq = (nf * (nf - 1.0) * (2.0 * nf + 5.0) - tie_term(x) - tie_term(y)) / 18.0;
-    let nt = slopes.len() as f64;
+    let nt = count as f64;
     let z = normal_quantile((1.0 - confidence) / 2.0); // negative
     let slope_ci = (sigma_sq >= 0.0).then(|| {
         let sigma = sigma_sq.sqrt();
-        let upper = (round_half_even((nt - z * sigma) / 2.0) as i64).min(slopes.len() as i64 - 1);
+        let upper = (round_half_even((nt - z * sigma) / 2.0) as i64).min(count as i64 - 1);
         let lower = (round_half_even((nt + z * sigma) / 2.0) as i64 - 1).max(0);
-        (lower >= 0 && upper >= 0 && (lower as usize) < slopes.len())
-            .then(|| [slopes[lower as usize], slopes[upper as usize]])
+        (lower >= 0 && upper >= 0 && (lower as usize) < count)
+            .then(|| [kth(lower as usize), kth(upper as usize)])
     });
     Some(TheilSenFit {
         slope,
