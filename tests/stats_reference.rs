@@ -241,3 +241,22 @@ fn quantiles_match_numpy_percentile() {
         );
     }
 }
+
+/// The expected number of chance windows, rate x span x P(Poisson(rate x duration) >= N - 1),
+/// against the same expression with `scipy.stats.poisson.sf(N - 2, rate * duration)` (scipy
+/// 1.17.1, run for this test; the values are written here).
+#[test]
+fn chance_windows_match_scipy_poisson_tail() {
+    use ringline::detect::chance_windows;
+    for (rate, span, duration, spikes, scipy) in [
+        (32.0, 600.0, 0.05, 5, 1513.2189548106037),
+        (32.0, 600.0, 0.3, 31, 0.0020746196220541298),
+        (8.0, 300.0, 0.2, 12, 0.002459782786561726),
+        (2.0, 100.0, 1.0, 1, 200.0),
+        (100.0, 60.0, 0.1, 40, 1.7759288745241798e-08),
+    ] {
+        let e = chance_windows(rate, span, duration, spikes);
+        assert_relative_eq!(e, scipy, max_relative = 1e-9);
+    }
+    assert_eq!(chance_windows(0.0, 600.0, 0.1, 5), 0.0);
+}
