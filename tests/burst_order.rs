@@ -5,13 +5,12 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
 mod regimes;
 
 use regimes::{generate, Array, Firing, Fronts, Recipe};
 use ringline::fronts::order::{burst_order, spearman, OrderSettings};
-use ringline::fronts::{analyze, Activation, ActivationStatus, AnalysisSettings};
-use ringline::geometry::{fit_track, TrackSettings};
-use ringline::import::{read_recording, ReadOptions};
+use ringline::fronts::{Activation, ActivationStatus};
 
 fn activation(site: &str, time_s: f64, status: ActivationStatus) -> Activation {
     Activation {
@@ -80,14 +79,7 @@ const REFERENCE_TIED: f64 = 0.901_303_256_942_750_5;
 
 fn analyse(r: &Recipe) -> ringline::fronts::Analysis {
     let g = generate(r);
-    let rec = read_recording(
-        ("spikes.csv", g.spikes_csv.as_bytes()),
-        ("layout.csv", g.layout_csv.as_bytes()),
-        &ReadOptions::default(),
-    )
-    .unwrap();
-    let track = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
-    analyze(&rec, &track, &AnalysisSettings::default(), &mut |_, _| {}).unwrap()
+    common::analyse_csv(&g.spikes_csv, &g.layout_csv)
 }
 
 /// Every burst starts at one place (a point source at (300, 500) um on an 8 x 8 grid of

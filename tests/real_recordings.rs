@@ -15,12 +15,11 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
+
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, LogNormal};
-use ringline::fronts::{analyze, AnalysisSettings};
-use ringline::geometry::{fit_track, TrackSettings};
-use ringline::import::{read_recording, ReadOptions};
 use std::fmt::Write;
 
 const DIR: &str = concat!(
@@ -73,14 +72,7 @@ fn layout_csv(layout: &[(String, f64, f64)]) -> String {
 }
 
 fn run(spikes: &str, layout: &str) -> ringline::fronts::Analysis {
-    let rec = read_recording(
-        ("spikes.csv", spikes.as_bytes()),
-        ("layout.csv", layout.as_bytes()),
-        &ReadOptions::default(),
-    )
-    .unwrap();
-    let track = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
-    analyze(&rec, &track, &AnalysisSettings::default(), &mut |_, _| {}).unwrap()
+    common::analyse_csv(spikes, layout)
 }
 
 #[test]

@@ -349,3 +349,24 @@ pub fn bad_cases_after_comments() -> Vec<BadCase> {
         },
     ]
 }
+
+/// The default analysis of a spike list and layout given as CSV text, as a user's files go
+/// through it: import, track detection, bursts and fronts.
+pub fn analyse_csv(spikes_csv: &str, layout_csv: &str) -> ringline::fronts::Analysis {
+    let rec = ringline::import::read_recording(
+        ("spikes.csv", spikes_csv.as_bytes()),
+        ("layout.csv", layout_csv.as_bytes()),
+        &ringline::import::ReadOptions::default(),
+    )
+    .expect("the recording reads");
+    let track =
+        ringline::geometry::fit_track(&rec.sites, &ringline::geometry::TrackSettings::default())
+            .expect("a track fits");
+    ringline::fronts::analyze(
+        &rec,
+        &track,
+        &ringline::fronts::AnalysisSettings::default(),
+        &mut |_, _| {},
+    )
+    .expect("the analysis runs")
+}
