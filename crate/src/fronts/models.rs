@@ -1400,9 +1400,7 @@ impl Bootstrap {
             };
         }
         let pairs = n * n.saturating_sub(1) / 2;
-        let width = PROFILE_HALF_WIDTH
-            .min(PROFILE_PAIR_BUDGET / pairs.max(1) / 2)
-            .min(PROFILE_HALF_WIDTH);
+        let width = PROFILE_HALF_WIDTH.min(PROFILE_PAIR_BUDGET / pairs.max(1) / 2);
         let origins: Vec<f64> = match (best.model, best.origin) {
             (FrontModel::LineTwoWay, Origin::Along { along_um }) => {
                 let h = 0.5 * median_gap(points.along_um.clone());
