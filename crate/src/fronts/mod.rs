@@ -519,6 +519,20 @@ fn analyse_burst(
             None,
             None,
         ),
+        Err(no) if no.kind == NoFrontKind::TooFewSites => {
+            // Say where the others went: silent in the window, off the track, or set aside.
+            let fired = times.iter().filter(|t| t.is_some()).count();
+            let off_track = fired - all.len();
+            let reason = format!(
+                "{}: {} of the recording's {} sites fired in the burst window ({:.3} to {:.3} s), {off_track} of them off the track, {outlier_sites} set aside as outliers",
+                no.reason,
+                fired,
+                times.len(),
+                window.0,
+                window.1
+            );
+            (None, Some(no.kind), Some(reason))
+        }
         Err(no) => (None, Some(no.kind), Some(no.reason)),
     };
     BurstResult {
