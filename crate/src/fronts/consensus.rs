@@ -13,7 +13,9 @@
 //! set aside, no single front describes the burst and the first spikes stand as they are.
 
 use super::activation::ActivationSettings;
-use super::models::{choose_model, FrontPoints, FrontSettings, ModelChoice, NoFront};
+use super::models::{
+    choose_model, residual_scale, FrontPoints, FrontSettings, ModelChoice, NoFront,
+};
 use crate::geometry::Track;
 use serde::Serialize;
 
@@ -39,6 +41,14 @@ impl ActivationStatus {
     /// Whether the front fit uses the site.
     pub fn used(self) -> bool {
         matches!(self, ActivationStatus::Used | ActivationStatus::Retimed)
+    }
+
+    /// Whether the front check set the site aside as an outlier (early or late).
+    pub fn set_aside(self) -> bool {
+        matches!(
+            self,
+            ActivationStatus::EarlyOutlier | ActivationStatus::LateOutlier
+        )
     }
 
     /// The name used in the JSON and CSV outputs.
@@ -153,9 +163,8 @@ pub fn settle(
             .zip(&current.predicted_s)
             .map(|(t, p)| t - p)
             .collect();
-        let abs: Vec<f64> = residuals.iter().map(|r| r.abs()).collect();
-        let scale = crate::stats::median(&abs).unwrap_or(0.0) / crate::stats::MAD_TO_SD;
-        let bound = (activation.outlier_sd * scale).max(activation.min_outlier_s);
+        let bound =
+            (activation.outlier_sd * residual_scale(&residuals)).max(activation.min_outlier_s);
         let mut next_status = vec![ActivationStatus::Used; n];
         let mut next_time = all.t_s.clone();
         for i in 0..n {

@@ -477,19 +477,7 @@ fn analyse_burst(
         .iter()
         .filter(|s| **s == ActivationStatus::Retimed)
         .count();
-    let outlier_sites = settled
-        .status
-        .iter()
-        .filter(|s| {
-            matches!(
-                s,
-                ActivationStatus::EarlyOutlier | ActivationStatus::LateOutlier
-            )
-        })
-        .count();
-    // Sites that fired in the burst, whatever the fit made of them: a set-aside site was
-    // reached, so it never counts as a failure of propagation.
-    let activated: Vec<usize> = all.site.clone();
+    let outlier_sites = settled.status.iter().filter(|s| s.set_aside()).count();
     let points = &settled.points;
     let seed = settings.fronts.seed.wrapping_add(k as u64);
     let fitted = settled.choice.and_then(|choice| {
@@ -508,7 +496,9 @@ fn analyse_burst(
             Some(report_front(
                 &f,
                 points,
-                &activated,
+                // Sites that fired in the burst, whatever the fit made of them: a set-aside
+                // site was reached, so it never counts as a failure of propagation.
+                &all.site,
                 recording,
                 track,
                 on_track,

@@ -266,6 +266,14 @@ impl Candidate {
     fn predict(&self, i: usize) -> f64 {
         self.intercept + self.slope * self.u[i]
     }
+
+    /// Plane wave: its time at the layout's origin and its slowness (s, s/um), so that
+    /// t = beta0 + g . x anywhere; `first_xy_um` is the position of point 0.
+    fn plane(&self, first_xy_um: [f64; 2]) -> Option<(f64, [f64; 2])> {
+        let g = self.slowness?;
+        let beta0 = self.predict(0) - g[0] * first_xy_um[0] - g[1] * first_xy_um[1];
+        Some((beta0, g))
+    }
 }
 
 struct Line1 {
@@ -580,10 +588,7 @@ fn fit_candidate(
             let scan_xy: Vec<[f64; 2]> = p.xy_um.iter().step_by(stride).copied().collect();
             let scan_t: Vec<f64> = t.iter().step_by(stride).copied().collect();
             let eval = |x0: [f64; 2]| {
-                let u: Vec<f64> = scan_xy
-                    .iter()
-                    .map(|x| (x[0] - x0[0]).hypot(x[1] - x0[1]))
-                    .collect();
+                let u = distances_from(&scan_xy, x0);
                 candidate_1d(
                     model,
                     u,
@@ -649,11 +654,7 @@ fn fit_candidate(
             if stride > 1 {
                 // The subset's front carried to every site as the joint fit's start.
                 if let Origin::Point { xy_um: o } = scanned.origin {
-                    scanned.u = p
-                        .xy_um
-                        .iter()
-                        .map(|x| (x[0] - o[0]).hypot(x[1] - o[1]))
-                        .collect();
+                    scanned.u = distances_from(&p.xy_um, o);
                     scanned.rss = (0..n).map(|i| (t[i] - scanned.predict(i)).powi(2)).sum();
                 }
             }
@@ -684,11 +685,7 @@ fn refine_point_source(scanned: Candidate, p: &FrontPoints, floor_s: f64) -> Can
     let Some(q) = point_source_huber(&p.xy_um, &p.t_s, None, start, scale) else {
         return scanned;
     };
-    let u: Vec<f64> = p
-        .xy_um
-        .iter()
-        .map(|x| (x[0] - q[2]).hypot(x[1] - q[3]))
-        .collect();
+    let u = distances_from(&p.xy_um, [q[2], q[3]]);
     let rss = (0..p.len())
         .map(|i| (p.t_s[i] - q[0] - q[1] * u[i]).powi(2))
         .sum();
@@ -702,6 +699,14 @@ fn refine_point_source(scanned: Candidate, p: &FrontPoints, floor_s: f64) -> Can
         },
         ..scanned
     }
+}
+
+/// Straight-line distance (um) of every position from a point-source origin.
+fn distances_from(xy_um: &[[f64; 2]], origin_um: [f64; 2]) -> Vec<f64> {
+    xy_um
+        .iter()
+        .map(|x| (x[0] - origin_um[0]).hypot(x[1] - origin_um[1]))
+        .collect()
 }
 
 /// Distance (um) of every point from an origin given by one number, along the model's path:
@@ -791,7 +796,7 @@ fn robust_criterion(residuals: &[f64], scale_s: f64, parameters: usize) -> f64 {
 
 /// Robust SD of residuals about zero: median(|r|) / 0.6745 (the MAD of residuals whose
 /// median is zero, as Theil-Sen's intercept makes it).
-fn residual_scale(residuals: &[f64]) -> f64 {
+pub(crate) fn residual_scale(residuals: &[f64]) -> f64 {
     let abs: Vec<f64> = residuals.iter().map(|r| r.abs()).collect();
     crate::stats::median(&abs).unwrap_or(0.0) / crate::stats::MAD_TO_SD
 }
@@ -866,15 +871,13 @@ impl ModelChoice {
         let u = match (c.model, c.origin) {
             (FrontModel::LineOneWay, _) => along_um,
             (FrontModel::PlaneWave, _) => {
-                // intercept + g . x, with the intercept recovered from the first fitted point.
-                let g = c.slowness.unwrap_or([0.0, 0.0]);
-                let base = c.u.first().map_or(0.0, |&u0| c.intercept + c.slope * u0)
-                    - self.first_xy.map_or(0.0, |x| g[0] * x[0] + g[1] * x[1]);
-                return base + g[0] * xy_um[0] + g[1] * xy_um[1];
+                let (beta0, g) = self
+                    .first_xy
+                    .and_then(|x| c.plane(x))
+                    .unwrap_or((c.intercept, [0.0, 0.0]));
+                return beta0 + g[0] * xy_um[0] + g[1] * xy_um[1];
             }
-            (FrontModel::PointSource, Origin::Point { xy_um: o }) => {
-                (xy_um[0] - o[0]).hypot(xy_um[1] - o[1])
-            }
+            (FrontModel::PointSource, Origin::Point { xy_um: o }) => distances_from(&[xy_um], o)[0],
             (_, Origin::Along { along_um: s0 }) => (along_um - s0).abs(),
             (_, Origin::Angle { angle_rad: a0 }) => {
                 let one = FrontPoints {
@@ -1374,9 +1377,8 @@ impl Bootstrap {
     ) -> Bootstrap {
         let t = points.t_s.clone();
         let n = points.len();
-        if let Some(g) = best.slowness {
+        if let Some((beta0, g)) = best.plane(points.xy_um[0]) {
             let norm = g[0].hypot(g[1]);
-            let beta0 = best.predict(0) - g[0] * points.xy_um[0][0] - g[1] * points.xy_um[0][1];
             return Bootstrap::Plane {
                 design: DMatrix::from_fn(n, 3, |i, j| match j {
                     0 => 1.0,

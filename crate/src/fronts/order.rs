@@ -7,7 +7,7 @@
 //! bursts is measured by Spearman's rank correlation of the activation times of the sites
 //! active in both bursts.
 
-use super::{Activation, ActivationStatus, BurstResult};
+use super::{Activation, BurstResult};
 use serde::{Deserialize, Serialize};
 
 /// Settings of the order measures.
@@ -51,15 +51,18 @@ pub struct BurstOrder {
 fn ordered(activations: &[Activation]) -> Vec<&Activation> {
     let mut v: Vec<&Activation> = activations
         .iter()
-        .filter(|a| {
-            !matches!(
-                a.status,
-                ActivationStatus::EarlyOutlier | ActivationStatus::LateOutlier
-            )
-        })
+        .filter(|a| !a.status.set_aside())
         .collect();
     v.sort_by(|a, b| a.time_s.total_cmp(&b.time_s));
     v
+}
+
+/// The burst's activation times after its first, ms, earliest first (set-aside outliers
+/// excluded): what its recruitment curve is drawn from.
+pub fn times_after_first_ms(activations: &[Activation]) -> Vec<f64> {
+    let v = ordered(activations);
+    let first = v.first().map_or(0.0, |a| a.time_s);
+    v.iter().map(|a| (a.time_s - first) * 1e3).collect()
 }
 
 /// The order of one burst's activations.

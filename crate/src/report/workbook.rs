@@ -433,23 +433,7 @@ impl Workbook {
                 let bursts: Vec<Vec<f64>> = r
                     .bursts
                     .iter()
-                    .map(|b| {
-                        let mut t: Vec<f64> = b
-                            .activations
-                            .iter()
-                            .filter(|a| {
-                                !matches!(
-                                    a.status,
-                                    crate::fronts::ActivationStatus::EarlyOutlier
-                                        | crate::fronts::ActivationStatus::LateOutlier
-                                )
-                            })
-                            .map(|a| a.time_s)
-                            .collect();
-                        t.sort_by(f64::total_cmp);
-                        let first = t.first().copied().unwrap_or(0.0);
-                        t.iter().map(|v| (v - first) * 1e3).collect()
-                    })
+                    .map(|b| crate::fronts::order::times_after_first_ms(&b.activations))
                     .collect();
                 figures::recruitment(&bursts, size)
             }
