@@ -29,6 +29,7 @@
 //! - Errors name their place (file, line, column, site) and say what was expected and what
 //!   was found. Nothing in a user's file makes the library panic.
 
+pub mod csv_out;
 pub mod detect;
 pub mod fronts;
 pub mod geometry;
@@ -39,6 +40,7 @@ pub mod report;
 pub mod rhythm;
 pub mod simulate;
 pub mod stats;
+pub mod study;
 
 #[cfg(not(target_arch = "wasm32"))]
 pub mod cli;
@@ -99,8 +101,8 @@ pub fn inspect_files(
     Ok(report::inspect(&recording, &fit))
 }
 
-/// Reads an activity file and a layout, fits the track and runs the front analysis: the whole
-/// of `ringline analyze`. `progress(done, total)` is called after each burst.
+/// [`analyze_recording`] for a spike list or ROI traces with separate settings.
+/// `progress(done, total)` is called after each burst.
 pub fn analyze_files(
     activity: (&str, &[u8]),
     layout: (&str, &[u8]),
@@ -109,12 +111,18 @@ pub fn analyze_files(
     settings: &fronts::AnalysisSettings,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<report::AnalysisReport, Error> {
-    let recording = import::read_recording(activity, layout, read)?;
-    let fit = geometry::fit_track(&recording.sites, track)?;
-    let analysis = fronts::analyze(&recording, &fit, settings, progress)?;
-    Ok(report::AnalysisReport::new(
-        &recording, &fit, settings, analysis,
-    ))
+    let settings = RecordingSettings {
+        read: read.clone(),
+        track: track.clone(),
+        voltage: Default::default(),
+        analysis: settings.clone(),
+    };
+    analyze_recording(
+        ActivityInput::Table(activity.0, activity.1),
+        layout,
+        &settings,
+        &mut |_, done, total| progress(done as usize, total as usize),
+    )
 }
 
 /// Reads a raw voltage file (its header already read; `read(first_frame, end_frame)` returns
@@ -212,27 +220,61 @@ pub fn voltage_recording(
     Ok((recording, found))
 }
 
-/// `ringline analyze` on voltage: [`voltage_recording`], then the track and the front
-/// analysis. `progress(stage, done, total)` reports detection (frames), then bursts.
-#[allow(clippy::too_many_arguments)]
-pub fn analyze_voltage(
-    header: &import::VoltageHeader,
-    read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, import::ImportError>,
+/// The activity file of one recording, as a shell hands it over.
+pub enum ActivityInput<'a> {
+    /// A spike list or ROI traces: (file name, bytes).
+    Table(&'a str, &'a [u8]),
+    /// Raw voltage: its header, and `read(first_frame, end_frame)` giving the bytes of those
+    /// frames (the file is read in blocks, never whole).
+    Voltage(
+        &'a import::VoltageHeader,
+        &'a mut dyn FnMut(u64, u64) -> Result<Vec<u8>, import::ImportError>,
+    ),
+}
+
+/// Every setting of one recording's path from files to results.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(default)]
+pub struct RecordingSettings {
+    pub read: import::ReadOptions,
+    pub track: geometry::TrackSettings,
+    pub voltage: detect::voltage::VoltageSettings,
+    pub analysis: fronts::AnalysisSettings,
+}
+
+/// The one entry point from input files to a recording's results: reads the activity (or
+/// detects spikes in raw voltage), fits the track and runs the front analysis. The command
+/// line, study runs and the page's one-shot path all call it; [`report::AnalysisReport::output_files`]
+/// turns its result into files. `progress(stage, done, total)` reports detection (frames),
+/// then bursts.
+pub fn analyze_recording(
+    activity: ActivityInput<'_>,
     layout: (&str, &[u8]),
-    options: &import::ReadOptions,
-    voltage: &detect::voltage::VoltageSettings,
-    track: &geometry::TrackSettings,
-    settings: &fronts::AnalysisSettings,
+    settings: &RecordingSettings,
     progress: &mut dyn FnMut(&str, u64, u64),
-) -> Result<(report::AnalysisReport, detect::voltage::VoltageSpikes), Error> {
-    let (recording, found) =
-        voltage_recording(header, read, layout, options, voltage, &mut |d, t| {
-            progress("detecting spikes", d, t)
-        })?;
-    let fit = geometry::fit_track(&recording.sites, track)?;
-    let analysis = fronts::analyze(&recording, &fit, settings, &mut |done, total| {
+) -> Result<report::AnalysisReport, Error> {
+    let (recording, electrodes) = match activity {
+        ActivityInput::Table(name, bytes) => (
+            import::read_recording((name, bytes), layout, &settings.read)?,
+            None,
+        ),
+        ActivityInput::Voltage(header, read) => {
+            let (recording, found) = voltage_recording(
+                header,
+                read,
+                layout,
+                &settings.read,
+                &settings.voltage,
+                &mut |d, t| progress("detecting spikes", d, t),
+            )?;
+            (recording, Some(found.electrodes))
+        }
+    };
+    let fit = geometry::fit_track(&recording.sites, &settings.track)?;
+    let analysis = fronts::analyze(&recording, &fit, &settings.analysis, &mut |done, total| {
         progress("analysing bursts", done as u64, total as u64)
     })?;
-    let report = report::AnalysisReport::new(&recording, &fit, settings, analysis);
-    Ok((report, found))
+    let mut report = report::AnalysisReport::new(&recording, &fit, &settings.analysis, analysis);
+    report.electrodes = electrodes;
+    Ok(report)
 }

@@ -9,6 +9,10 @@ use crate::import::{
     FileKind, ImportError, ImportLimits, ImportProblem, LengthUnit, ReadOptions, TimeUnit,
 };
 use crate::place::Place;
+use crate::report::AnalysisReport;
+use crate::{ActivityInput, RecordingSettings};
+mod batch;
+
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use std::ffi::OsString;
 use std::io::Write;
@@ -33,6 +37,11 @@ enum Command {
     Inspect(InspectArgs),
     /// Find network bursts, time each front at every site, and fit its speed and direction.
     Analyze(AnalyzeArgs),
+    /// Analyse every recording of a study manifest (CSV: recording, data, layout and your own
+    /// columns); write each recording's files in its own folder and the study's tables.
+    Batch(BatchArgs),
+    /// Join the output folders of `batch --shard` runs into the study's tables.
+    Combine(CombineArgs),
     /// Simulate a recording with known fronts from a scenario file (JSON); write spikes.csv,
     /// layout.csv and truth.json into a folder.
     Simulate(SimulateArgs),
@@ -52,13 +61,61 @@ struct AnalyzeArgs {
     /// Write bursts.csv, fronts.csv, activation.csv, leaders.csv and summary.json into this folder.
     #[arg(long, value_name = "DIR")]
     out: Option<String>,
-    /// Analysis settings as JSON (any subset of the keys in the report's "settings").
-    #[arg(long, value_name = "FILE")]
-    settings: Option<String>,
     /// Ground truth of a simulated recording (the truth.json of `ringline simulate`): each
     /// true front is set beside the measured one.
     #[arg(long, value_name = "FILE")]
     truth: Option<String>,
+    #[command(flatten)]
+    analysis: AnalysisArgs,
+    #[command(flatten)]
+    read: ReadArgs,
+    #[command(flatten)]
+    track: TrackArgs,
+    #[command(flatten)]
+    voltage: VoltageArgs,
+}
+
+#[derive(Args, Debug)]
+struct BatchArgs {
+    /// Study manifest: one row per recording; paths relative to the manifest's folder.
+    manifest: String,
+    /// Folder to write into: recordings/NAME/ per recording, and status.csv, recordings.csv,
+    /// bursts.csv, fronts.csv for the study.
+    #[arg(long, value_name = "DIR")]
+    out: String,
+    /// Run only the I-th of N equal shares of the manifest (from 1); join the shares'
+    /// folders afterwards with `ringline combine`.
+    #[arg(long, value_name = "I/N")]
+    shard: Option<String>,
+    /// Recordings analysed at once [default: one per core].
+    #[arg(long, value_name = "N")]
+    jobs: Option<usize>,
+    #[command(flatten)]
+    analysis: AnalysisArgs,
+    #[command(flatten)]
+    read: ReadArgs,
+    #[command(flatten)]
+    track: TrackArgs,
+    #[command(flatten)]
+    voltage: VoltageArgs,
+}
+
+#[derive(Args, Debug)]
+struct CombineArgs {
+    /// Output folders of `ringline batch --shard` runs of the same manifest.
+    #[arg(required = true)]
+    dirs: Vec<String>,
+    /// Folder for the study's tables.
+    #[arg(long, value_name = "DIR")]
+    out: String,
+}
+
+/// Settings of the analysis.
+#[derive(Args, Debug)]
+struct AnalysisArgs {
+    /// Analysis settings as JSON (any subset of the keys in the report's "settings").
+    #[arg(long, value_name = "FILE")]
+    settings: Option<String>,
     /// Network-burst detector.
     #[arg(long, value_enum)]
     detector: Option<DetectorArg>,
@@ -71,12 +128,6 @@ struct AnalyzeArgs {
     /// Seed of the bootstrap generator.
     #[arg(long, value_name = "N")]
     seed: Option<u64>,
-    #[command(flatten)]
-    read: ReadArgs,
-    #[command(flatten)]
-    track: TrackArgs,
-    #[command(flatten)]
-    voltage: VoltageArgs,
 }
 
 /// Spike detection on raw voltage (ignored for spike lists).
@@ -335,9 +386,15 @@ pub fn run(args: impl IntoIterator<Item = OsString>) -> i32 {
         Command::Inspect(args) => inspect(&args),
         Command::Analyze(args) => analyze(&args),
         Command::Simulate(args) => simulate(&args),
+        Command::Batch(args) => return finish(run_batch(&args)),
+        Command::Combine(args) => return finish(batch::combine(&args.dirs, &args.out)),
     };
+    finish(result.map(|()| 0))
+}
+
+fn finish(result: Result<i32, Failure>) -> i32 {
     match result {
-        Ok(()) => 0,
+        Ok(code) => code,
         Err(Failure::Input(message)) => {
             eprintln!("ringline: {message}");
             EXIT_BAD_INPUT
@@ -347,6 +404,29 @@ pub fn run(args: impl IntoIterator<Item = OsString>) -> i32 {
             1
         }
     }
+}
+
+fn run_batch(args: &BatchArgs) -> Result<i32, Failure> {
+    let shard = match &args.shard {
+        Some(text) => Some(batch::Shard::parse(text).map_err(Failure::Input)?),
+        None => None,
+    };
+    if args.jobs == Some(0) {
+        return Err(Failure::Input("--jobs: expected at least 1".into()));
+    }
+    batch::batch(&batch::BatchJob {
+        manifest_path: args.manifest.clone(),
+        out: args.out.clone(),
+        settings: RecordingSettings {
+            read: read_options(&args.read),
+            track: track_settings(&args.track)?,
+            voltage: voltage_settings(&args.voltage)?,
+            analysis: analysis_settings(&args.analysis)?,
+        },
+        wav_uv_per_unit: args.voltage.uv_per_unit,
+        shard,
+        jobs: args.jobs,
+    })
 }
 
 enum Failure {
@@ -394,12 +474,9 @@ fn print(text: &str) -> Result<(), Failure> {
         .map_err(Failure::Output)
 }
 
-fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
+fn analysis_settings(args: &AnalysisArgs) -> Result<crate::fronts::AnalysisSettings, Failure> {
     use crate::detect::BurstDetector;
     use crate::fronts::{AnalysisSettings, Estimator};
-    use std::io::IsTerminal;
-    let read = read_options(&args.read);
-    let track = track_settings(&args.track)?;
     let mut settings = match &args.settings {
         Some(path) => {
             let bytes = read_file(path, &ImportLimits::default())?;
@@ -434,83 +511,38 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     if let Some(seed) = args.seed {
         settings.fronts.seed = seed;
     }
-    let layout = read_file(&args.layout, &read.limits)?;
+    Ok(settings)
+}
+
+fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
+    use std::io::IsTerminal;
+    let read = read_options(&args.read);
+    let track = track_settings(&args.track)?;
+    let settings = analysis_settings(&args.analysis)?;
     let show_progress = std::io::stderr().is_terminal();
-    let mut electrodes = None;
-    let report = if let Some(voltage) = open_voltage(&args.recording, &args.voltage)? {
-        let (header, mut file) = voltage;
-        let settings_v = voltage_settings(&args.voltage)?;
-        let path = args.recording.clone();
-        let frame = header.frame_bytes() as u64;
-        let offset = header.data_offset_bytes;
-        let mut read_frames = |from: u64, to: u64| -> Result<Vec<u8>, ImportError> {
-            use std::io::{Read, Seek, SeekFrom};
-            let mut buf = vec![0u8; ((to - from) * frame) as usize];
-            file.seek(SeekFrom::Start(offset + from * frame))
-                .and_then(|_| file.read_exact(&mut buf))
-                .map_err(|e| {
-                    ImportError::new(Place::file(&path), ImportProblem::BadValue, io_words(&e))
-                })?;
-            Ok(buf)
-        };
-        let mut progress = |stage: &str, done: u64, total: u64| {
-            if show_progress {
-                eprint!("\r{stage}: {done}/{total}   ");
-                if done == total {
-                    eprintln!();
-                }
-            }
-        };
-        let (report, found) = crate::analyze_voltage(
-            &header,
-            &mut read_frames,
-            (&args.layout, &layout),
-            &read,
-            &settings_v,
-            &track,
-            &settings,
-            &mut progress,
-        )?;
-        electrodes = Some(found.electrodes);
-        report
-    } else {
-        let activity = read_file(&args.recording, &read.limits)?;
-        let mut progress = |done: usize, total: usize| {
-            if show_progress && (done == total || done % 10 == 0) {
-                eprint!("\ranalysing bursts: {done}/{total}");
-                if done == total {
-                    eprintln!();
-                }
-            }
-        };
-        crate::analyze_files(
-            (&args.recording, &activity),
-            (&args.layout, &layout),
-            &read,
-            &track,
-            &settings,
-            &mut progress,
-        )?
+    let recording = RecordingSettings {
+        read,
+        track,
+        voltage: voltage_settings(&args.voltage)?,
+        analysis: settings,
     };
-    if let Some(rows) = &electrodes {
-        if let Some(dir) = &args.out {
-            let out = std::path::Path::new(dir);
-            std::fs::create_dir_all(out).map_err(Failure::Output)?;
-            std::fs::write(
-                out.join("electrodes.csv"),
-                crate::report::electrodes_csv(rows),
-            )
-            .map_err(Failure::Output)?;
+    let mut progress = |stage: &str, done: u64, total: u64| {
+        if show_progress && (done == total || done % 10 == 0 || stage.starts_with("detect")) {
+            eprint!("\r{stage}: {done}/{total}   ");
+            if done == total {
+                eprintln!();
+            }
         }
-    }
+    };
+    let report = analyze_paths(
+        &args.recording,
+        &args.layout,
+        &recording,
+        args.voltage.uv_per_unit,
+        &mut progress,
+    )?;
     if let Some(dir) = &args.out {
-        let out = std::path::Path::new(dir);
-        std::fs::create_dir_all(out).map_err(Failure::Output)?;
-        let files = report.output_files();
-        for (name, content) in &files {
-            std::fs::write(out.join(name), content).map_err(Failure::Output)?;
-        }
-        let names: Vec<&str> = files.iter().map(|f| f.0).collect();
+        let names = write_outputs(std::path::Path::new(dir), &report)?;
         eprintln!("wrote {} to {dir}", names.join(", "));
     }
     let truth = match &args.truth {
@@ -527,12 +559,6 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     };
     let text = if args.json {
         let mut value = serde_json::to_value(&report).map_err(|e| Failure::Output(e.into()))?;
-        if let (Some(rows), Some(map)) = (&electrodes, value.as_object_mut()) {
-            map.insert(
-                "electrodes".into(),
-                serde_json::to_value(rows).map_err(|e| Failure::Output(e.into()))?,
-            );
-        }
         if let (Some(t), Some(map)) = (&truth, value.as_object_mut()) {
             map.insert(
                 "truth".into(),
@@ -542,7 +568,7 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
         serde_json::to_string(&value).map_err(|e| Failure::Output(e.into()))? + "\n"
     } else {
         let mut text = String::new();
-        if let Some(rows) = &electrodes {
+        if let Some(rows) = &report.electrodes {
             text.push_str(&crate::report::electrodes_text(rows));
         }
         text.push_str(&report.to_text());
@@ -555,12 +581,64 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     print(&text)
 }
 
-/// Opens `path` as raw voltage when it is one: a WAV file (by its first bytes), or a data
-/// file with a sidecar `PATH.json` or `STEM.json`. `None` for text recordings.
+/// Reads a recording from paths: raw voltage in blocks (a WAV file, or raw samples with the
+/// sidecar that [`crate::import::sidecar_names`] finds), anything else whole. The one path of
+/// `analyze` and `batch`.
+fn analyze_paths(
+    data: &str,
+    layout: &str,
+    settings: &RecordingSettings,
+    wav_uv_per_unit: Option<f64>,
+    progress: &mut dyn FnMut(&str, u64, u64),
+) -> Result<AnalysisReport, Failure> {
+    let layout_bytes = read_file(layout, &settings.read.limits)?;
+    let layout = (layout, layout_bytes.as_slice());
+    let report = match open_voltage(data, wav_uv_per_unit)? {
+        Some((header, mut file)) => {
+            let frame = header.frame_bytes() as u64;
+            let offset = header.data_offset_bytes;
+            let mut read_frames = |from: u64, to: u64| -> Result<Vec<u8>, ImportError> {
+                use std::io::{Read, Seek, SeekFrom};
+                let mut buf = vec![0u8; ((to - from) * frame) as usize];
+                file.seek(SeekFrom::Start(offset + from * frame))
+                    .and_then(|_| file.read_exact(&mut buf))
+                    .map_err(|e| {
+                        ImportError::new(Place::file(data), ImportProblem::BadValue, io_words(&e))
+                    })?;
+                Ok(buf)
+            };
+            crate::analyze_recording(
+                ActivityInput::Voltage(&header, &mut read_frames),
+                layout,
+                settings,
+                progress,
+            )
+        }
+        None => {
+            let bytes = read_file(data, &settings.read.limits)?;
+            crate::analyze_recording(ActivityInput::Table(data, &bytes), layout, settings, progress)
+        }
+    };
+    Ok(report?)
+}
+
+/// Writes a report's output files into `dir` (created if missing); returns their names.
+fn write_outputs(dir: &std::path::Path, report: &AnalysisReport) -> Result<Vec<&'static str>, Failure> {
+    std::fs::create_dir_all(dir).map_err(Failure::Output)?;
+    let files = report.output_files();
+    for (name, content) in &files {
+        std::fs::write(dir.join(name), content).map_err(Failure::Output)?;
+    }
+    Ok(files.iter().map(|f| f.0).collect())
+}
+
+/// Opens `path` as raw voltage when [`crate::import::classify_input`] says it is: a WAV file,
+/// or raw samples with a sidecar. `None` for text recordings.
 fn open_voltage(
     path: &str,
-    args: &VoltageArgs,
+    uv_per_unit: Option<f64>,
 ) -> Result<Option<(crate::import::VoltageHeader, std::fs::File)>, Failure> {
+    use crate::import::InputKind;
     use std::io::Read;
     let place = || Place::file(path);
     let mut file = std::fs::File::open(path)
@@ -572,31 +650,31 @@ fn open_voltage(
     let mut head = vec![0u8; 65_536.min(len as usize)];
     file.read_exact(&mut head)
         .map_err(|e| ImportError::new(place(), ImportProblem::BadOption, io_words(&e)))?;
-    if crate::import::looks_like_wav(&head) {
-        let scale = args.uv_per_unit.unwrap_or(1.0);
-        let header = crate::import::read_wav_header(path, &head, len, scale)?;
-        return Ok(Some((header, file)));
-    }
-    let p = std::path::Path::new(path);
-    let text_extension = p
-        .extension()
-        .and_then(|e| e.to_str())
-        .is_some_and(|e| ["csv", "tsv", "txt"].contains(&e.to_ascii_lowercase().as_str()));
-    if text_extension {
-        return Ok(None);
-    }
-    let candidates = [
-        format!("{path}.json"),
-        p.with_extension("json").to_string_lossy().into_owned(),
-    ];
-    for sidecar in candidates {
-        if sidecar != path && std::path::Path::new(&sidecar).is_file() {
-            let bytes = read_file(&sidecar, &ImportLimits::default())?;
-            let header = crate::import::read_sidecar(&sidecar, &bytes, path, len)?;
-            return Ok(Some((header, file)));
+    match crate::import::classify_input(path, &head) {
+        InputKind::Wav => {
+            let header =
+                crate::import::read_wav_header(path, &head, len, uv_per_unit.unwrap_or(1.0))?;
+            Ok(Some((header, file)))
         }
+        InputKind::VoltageSamples => {
+            let names = crate::import::sidecar_names(path);
+            let Some(sidecar) = names.iter().find(|n| std::path::Path::new(n).is_file()) else {
+                return Err(ImportError::new(
+                    place(),
+                    ImportProblem::MissingColumn,
+                    format!(
+                        "this looks like raw samples, which need a JSON sidecar with the sample rate and channel count; expected {}",
+                        names.join(" or ")
+                    ),
+                )
+                .into());
+            };
+            let bytes = read_file(sidecar, &ImportLimits::default())?;
+            let header = crate::import::read_sidecar(sidecar, &bytes, path, len)?;
+            Ok(Some((header, file)))
+        }
+        _ => Ok(None),
     }
-    Ok(None)
 }
 
 fn voltage_settings(

@@ -18,6 +18,7 @@
 
 mod error;
 mod layout;
+mod manifest;
 mod spikes;
 mod table;
 mod traces;
@@ -26,6 +27,7 @@ mod write;
 
 pub use error::{ImportError, ImportProblem};
 pub use layout::{read_layout, Layout, LayoutOptions};
+pub use manifest::{read_manifest, recording_name_ok, Manifest, ManifestRow, MAX_RECORDING_NAME};
 pub use spikes::{
     read_spike_list, SiteSpikes, SpikeList, SpikeListOptions, SITE_COLUMN_NAMES, TIME_COLUMN_BASES,
 };
@@ -143,4 +145,84 @@ pub fn read_recording(
             "this file looks like a layout (site, x, y columns), but a spike list or ROI traces was expected here",
         )),
     }
+}
+
+/// What an input file is, judged from its name and first bytes: the one rule the command
+/// line, the page and study runs use to tell the files of a recording apart.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum InputKind {
+    /// A text table ringline reads: spike list, layout or ROI traces.
+    Table(FileKind),
+    /// A study manifest (recording, data and layout columns).
+    Manifest,
+    /// A WAV file of raw voltage.
+    Wav,
+    /// Raw interleaved samples; needs a JSON sidecar (see [`sidecar_names`]).
+    VoltageSamples,
+    /// The JSON sidecar of raw samples (it has `sample_rate_hz`).
+    Sidecar,
+    /// Another JSON document (the page's notebook files).
+    Json,
+    /// Text whose header names no column ringline knows.
+    Unknown,
+}
+
+/// Extensions of raw sample files (compared without case).
+pub const SAMPLE_EXTENSIONS: [&str; 5] = ["raw", "bin", "dat", "i16", "f32"];
+
+/// Judges a file from its name and its first bytes (the first 64 KiB are plenty; a longer
+/// prefix is fine).
+pub fn classify_input(name: &str, head: &[u8]) -> InputKind {
+    if looks_like_wav(head) {
+        return InputKind::Wav;
+    }
+    let extension = name
+        .rsplit_once('.')
+        .map(|(_, e)| e.to_ascii_lowercase())
+        .unwrap_or_default();
+    if SAMPLE_EXTENSIONS.contains(&extension.as_str()) {
+        return InputKind::VoltageSamples;
+    }
+    // Judge the complete lines only: the prefix may end inside a line or a character.
+    let text = head.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(head);
+    let text = match text.iter().rposition(|&b| b == b'\n') {
+        Some(end) if text.len() >= 65_536 => &text[..=end],
+        _ => text,
+    };
+    let Ok(text) = std::str::from_utf8(text) else {
+        return InputKind::VoltageSamples;
+    };
+    if extension == "json" || text.trim_start().starts_with('{') {
+        return if text.contains("\"sample_rate_hz\"") {
+            InputKind::Sidecar
+        } else {
+            InputKind::Json
+        };
+    }
+    if let Ok(table) = table::Table::open(text.as_bytes(), name, ImportLimits::default()) {
+        let has = |c: &str| table.headers().iter().any(|h| h.eq_ignore_ascii_case(c));
+        if has("recording") && has("data") && has("layout") {
+            return InputKind::Manifest;
+        }
+    }
+    match sniff_file_kind(text.as_bytes()) {
+        Some(kind) => InputKind::Table(kind),
+        None => InputKind::Unknown,
+    }
+}
+
+/// The names a sidecar of the raw sample file `data` may have, in the order they are tried:
+/// `DATA.json`, then the data file's name with its extension replaced by `.json`.
+pub fn sidecar_names(data: &str) -> Vec<String> {
+    let mut names = vec![format!("{data}.json")];
+    let file_start = data.rfind(['/', '\\']).map_or(0, |i| i + 1);
+    if let Some(dot) = data[file_start..].rfind('.') {
+        let stem = &data[..file_start + dot];
+        let other = format!("{stem}.json");
+        if other != data && !names.contains(&other) {
+            names.push(other);
+        }
+    }
+    names
 }

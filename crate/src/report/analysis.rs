@@ -22,6 +22,9 @@ pub struct AnalysisReport {
     pub bursts: Vec<BurstResult>,
     pub summary: Summary,
     pub notices: Vec<Notice>,
+    /// Raw voltage only: each electrode's health after spike detection.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub electrodes: Option<Vec<crate::detect::voltage::ElectrodeRow>>,
 }
 
 impl AnalysisReport {
@@ -42,6 +45,7 @@ impl AnalysisReport {
             bursts: analysis.bursts,
             summary: analysis.summary,
             notices,
+            electrodes: None,
         }
     }
 
@@ -165,16 +169,22 @@ impl AnalysisReport {
         out
     }
 
-    /// Every file `ringline analyze --out` writes from the analysis (electrodes.csv of raw
-    /// voltage aside), as (name, contents): the command line and the page save these.
+    /// Every file `ringline analyze --out` writes, as (name, contents): the command line,
+    /// the page and a study run all save exactly these. `electrodes.csv` comes first, for
+    /// raw voltage only.
     pub fn output_files(&self) -> Vec<(&'static str, String)> {
-        vec![
+        let mut files = Vec::with_capacity(6);
+        if let Some(rows) = &self.electrodes {
+            files.push(("electrodes.csv", super::electrodes_csv(rows)));
+        }
+        files.extend([
             ("bursts.csv", self.bursts_csv()),
             ("fronts.csv", self.fronts_csv()),
             ("activation.csv", self.activation_csv()),
             ("leaders.csv", self.leaders_csv()),
             ("summary.json", self.summary_json()),
-        ]
+        ]);
+        files
     }
 
     /// `summary.json`: the summary with the track and the files.
