@@ -69,10 +69,8 @@ pub fn batch(job: &BatchJob) -> Result<i32, Failure> {
     std::fs::create_dir_all(out.join(RECORDINGS_FOLDER)).map_err(Failure::Output)?;
     let bar = ProgressBar::new(rows.len() as u64);
     bar.set_style(
-        ProgressStyle::with_template(
-            "{bar:30} {pos}/{len} recordings, {eta} left; running: {msg}",
-        )
-        .unwrap_or_else(|_| ProgressStyle::default_bar()),
+        ProgressStyle::with_template("{bar:30} {pos}/{len} recordings, {eta} left; running: {msg}")
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
     );
     let running = std::sync::Mutex::new(Vec::<String>::new());
     let show_running = |name: &str, start: bool| {
@@ -254,7 +252,11 @@ pub fn combine(dirs: &[String], out: &str) -> Result<i32, Failure> {
         tables.failed,
         file_names(&tables)
     );
-    Ok(if tables.failed > 0 { EXIT_SOME_FAILED } else { 0 })
+    Ok(if tables.failed > 0 {
+        EXIT_SOME_FAILED
+    } else {
+        0
+    })
 }
 
 fn file_names(tables: &study::StudyTables) -> String {

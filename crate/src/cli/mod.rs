@@ -616,14 +616,22 @@ fn analyze_paths(
         }
         None => {
             let bytes = read_file(data, &settings.read.limits)?;
-            crate::analyze_recording(ActivityInput::Table(data, &bytes), layout, settings, progress)
+            crate::analyze_recording(
+                ActivityInput::Table(data, &bytes),
+                layout,
+                settings,
+                progress,
+            )
         }
     };
     Ok(report?)
 }
 
 /// Writes a report's output files into `dir` (created if missing); returns their names.
-fn write_outputs(dir: &std::path::Path, report: &AnalysisReport) -> Result<Vec<&'static str>, Failure> {
+fn write_outputs(
+    dir: &std::path::Path,
+    report: &AnalysisReport,
+) -> Result<Vec<&'static str>, Failure> {
     std::fs::create_dir_all(dir).map_err(Failure::Output)?;
     let files = report.output_files();
     for (name, content) in &files {

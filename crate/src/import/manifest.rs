@@ -98,7 +98,10 @@ pub fn read_manifest(
                 ImportError::new(
                     table.place_column(Some(row.line), i),
                     ImportProblem::BadValue,
-                    format!("expected the {} of this recording, found an empty field", describe(KNOWN[slot])),
+                    format!(
+                        "expected the {} of this recording, found an empty field",
+                        describe(KNOWN[slot])
+                    ),
                 )
             })
         };

@@ -228,7 +228,10 @@ pub fn combine(recordings: &[RecordingOutputs]) -> Result<StudyTables, StudyErro
         .count();
     let files = vec![
         ("status.csv".into(), status_table(&entries, columns)),
-        ("recordings.csv".into(), recordings_table(&entries, columns)?),
+        (
+            "recordings.csv".into(),
+            recordings_table(&entries, columns)?,
+        ),
         (
             "bursts.csv".into(),
             long_table(&entries, columns, "bursts.csv", |o| o.bursts_csv.as_deref())?,
@@ -260,7 +263,15 @@ fn key_fields(s: &RecordingStatus) -> Vec<String> {
 fn status_table(entries: &[(RecordingStatus, &RecordingOutputs)], columns: &[String]) -> String {
     let mut header = key_header(columns);
     header.extend(
-        ["manifest_line", "outcome", "bursts", "fronts", "notices", "message"].map(String::from),
+        [
+            "manifest_line",
+            "outcome",
+            "bursts",
+            "fronts",
+            "notices",
+            "message",
+        ]
+        .map(String::from),
     );
     let mut t = CsvOut::new(&header);
     for (s, _) in entries {
@@ -292,21 +303,51 @@ const RECORDING_NUMBERS: [(&str, &str); 27] = [
     ("unresolved_count", "/summary/unresolved_count"),
     ("too_few_sites_count", "/summary/too_few_sites_count"),
     ("median_speed_mm_s", "/summary/median_speed_mm_s"),
-    ("median_speed_ci95_low_mm_s", "/summary/median_speed_ci95_mm_s/0"),
-    ("median_speed_ci95_high_mm_s", "/summary/median_speed_ci95_mm_s/1"),
+    (
+        "median_speed_ci95_low_mm_s",
+        "/summary/median_speed_ci95_mm_s/0",
+    ),
+    (
+        "median_speed_ci95_high_mm_s",
+        "/summary/median_speed_ci95_mm_s/1",
+    ),
     ("speed_q25_mm_s", "/summary/speed_q25_mm_s"),
     ("speed_q75_mm_s", "/summary/speed_q75_mm_s"),
-    ("speed_drift_mm_s_per_min", "/summary/speed_drift/slope_mm_s_per_min"),
-    ("speed_drift_ci95_low_mm_s_per_min", "/summary/speed_drift/ci95_mm_s_per_min/0"),
-    ("speed_drift_ci95_high_mm_s_per_min", "/summary/speed_drift/ci95_mm_s_per_min/1"),
+    (
+        "speed_drift_mm_s_per_min",
+        "/summary/speed_drift/slope_mm_s_per_min",
+    ),
+    (
+        "speed_drift_ci95_low_mm_s_per_min",
+        "/summary/speed_drift/ci95_mm_s_per_min/0",
+    ),
+    (
+        "speed_drift_ci95_high_mm_s_per_min",
+        "/summary/speed_drift/ci95_mm_s_per_min/1",
+    ),
     ("direction_first_label", "/summary/direction/first_label"),
-    ("direction_first_fraction", "/summary/direction/first_fraction"),
-    ("direction_first_ci95_low", "/summary/direction/first_fraction_ci95/0"),
-    ("direction_first_ci95_high", "/summary/direction/first_fraction_ci95/1"),
+    (
+        "direction_first_fraction",
+        "/summary/direction/first_fraction",
+    ),
+    (
+        "direction_first_ci95_low",
+        "/summary/direction/first_fraction_ci95/0",
+    ),
+    (
+        "direction_first_ci95_high",
+        "/summary/direction/first_fraction_ci95/1",
+    ),
     ("two_way_count", "/summary/direction/two_way_count"),
-    ("mean_resultant_length", "/summary/direction/mean_resultant_length"),
+    (
+        "mean_resultant_length",
+        "/summary/direction/mean_resultant_length",
+    ),
     ("failure_count", "/summary/failure_count"),
-    ("order_median_spearman", "/summary/order_consistency/median_spearman"),
+    (
+        "order_median_spearman",
+        "/summary/order_consistency/median_spearman",
+    ),
     ("median_recruit_50_ms", "/summary/median_recruitment_ms/1"),
 ];
 
