@@ -107,6 +107,7 @@ const state = {
   fileStem: 'ringline',
   simulated: null,    // file name -> text of the last simulated culture
   truthText: null,    // its truth.json while its recording is the one open
+  study: null,        // { manifest, files, names, matches, entries, open } when several recordings were dropped
 };
 
 function setStatus(text, isProblem = false) {
@@ -133,7 +134,7 @@ function clearError(id) {
 
 const KIND_NAMES = {
   spike_list: 'spike list', layout: 'layout', roi_traces: 'ROI traces', notebook: 'ringline notebook',
-  voltage: 'raw voltage', sidecar: 'voltage sidecar',
+  voltage: 'raw voltage', sidecar: 'voltage sidecar', manifest: 'study manifest',
 };
 
 function formatBytes(n) {
@@ -157,31 +158,50 @@ function renderFiles() {
 
 // ---------------------------------------------------------------- step 1: inputs
 
-/** What a dropped file holds, from its first bytes and name: a WAV or raw-sample file is
- * voltage (kept as a File and read in slices later); JSON is a sidecar or a notebook; text goes
- * to the core's header reader. */
+/** The page's kinds, from the core's one rule for telling input files apart. */
+const KIND_OF_WORD = {
+  spike_list: 'spike_list', roi_traces: 'roi_traces', layout: 'layout', wav: 'voltage',
+  voltage_samples: 'voltage', sidecar: 'sidecar', json: 'notebook', manifest: 'manifest',
+};
+const ACTIVITY_KINDS = ['spike_list', 'roi_traces', 'voltage'];
+
+/** What a dropped file holds, judged by the core from its name and first 64 KiB. Recordings
+ * stay `File`s (read when opened, so a study never holds every recording at once); small
+ * companions (layouts, sidecars, manifests, notebooks) are read whole. */
 async function classify(file) {
-  const head = new Uint8Array(await file.slice(0, 65536).arrayBuffer());
-  const text = new TextDecoder().decode(head.subarray(0, 64)).trimStart();
-  if (text.startsWith('RIFF') || /\.(raw|bin|dat)$/i.test(file.name)) return { kind: 'voltage' };
-  const bytes = await file.arrayBuffer();
-  if (text.startsWith('{')) {
-    let parsed = null;
-    try { parsed = JSON.parse(new TextDecoder().decode(bytes)); } catch { /* the notebook reader says why */ }
-    return { kind: parsed && 'sample_rate_hz' in parsed ? 'sidecar' : 'notebook', bytes };
-  }
-  return { kind: await call('sniff', { bytes: bytes.slice(0) }), bytes };
+  const head = await file.slice(0, 65536).arrayBuffer();
+  const word = await call('classify', { name: file.name, head });
+  const kind = KIND_OF_WORD[word] ?? null;
+  const bytes = kind && !ACTIVITY_KINDS.includes(kind) ? await file.arrayBuffer() : null;
+  return { kind, word, bytes };
 }
 
-async function addFiles(list) {
+/** The bytes of a file entry (read from its `File` when not kept). */
+async function bytesOf(entry) {
+  return entry.bytes ? entry.bytes.slice(0) : await entry.file.arrayBuffer();
+}
+
+/** Adds files. With `asStudy`, one drop holding a study manifest or several recordings opens
+ * the study table instead of a single recording. */
+async function addFiles(list, { asStudy = false } = {}) {
   clearError('input-error');
+  const added = [];
   for (const file of list) {
-    const { kind, bytes } = await classify(file);
-    const entry = { name: file.name, size: file.size, bytes, file, kind, status: '' };
+    const { kind, word, bytes } = await classify(file);
+    const entry = { name: file.name, size: file.size, bytes, file, kind, word, status: '' };
     entry.status = entry.kind ? 'read' : 'the header names no site, time or position columns';
     entry.problem = !entry.kind;
     state.files = state.files.filter((f) => f.name !== entry.name);
     state.files.push(entry);
+    added.push(entry);
+  }
+  const recordings = added.filter((f) => ACTIVITY_KINDS.includes(f.kind));
+  if (asStudy && (added.some((f) => f.kind === 'manifest') || recordings.length > 1)) {
+    renderFiles();
+    await openStudy(added);
+    return;
+  }
+  for (const entry of added) {
     if (entry.kind === 'notebook') {
       renderFiles();
       await openNotebook(entry);
@@ -193,7 +213,12 @@ async function addFiles(list) {
     if (entry.kind === 'layout') state.layout = entry;
   }
   renderFiles();
-  const wav = state.voltage && (state.voltage.name.toLowerCase().endsWith('.wav'));
+  await openChosen();
+}
+
+/** Opens the recording the chosen files make, or says what is still missing. */
+async function openChosen() {
+  const wav = state.voltage && state.voltage.word === 'wav';
   if (state.voltage && state.layout && (wav || state.sidecar)) {
     await openVoltage({ keepSettings: state.settings !== null });
   } else if (state.voltage) {
@@ -219,7 +244,7 @@ async function openVoltage({ keepSettings }) {
     const result = await call('openVoltage', {
       file: state.voltage.file,
       sidecar: state.sidecar && { name: state.sidecar.name, bytes: state.sidecar.bytes.slice(0) },
-      layout: { name: state.layout.name, bytes: state.layout.bytes.slice(0) },
+      layout: { name: state.layout.name, bytes: await bytesOf(state.layout) },
       settings: keepSettings ? state.settings : null,
     }, showProgress);
     state.settings = result.settings;
@@ -261,13 +286,13 @@ function renderElectrodes() {
 
 async function openWorkbook({ keepSettings }) {
   clearError('input-error');
-  const payload = (f) => ({ name: f.name, bytes: f.bytes.slice(0) });
+  const payload = async (f) => ({ name: f.name, bytes: await bytesOf(f) });
   state.report = null;
   hideFrom('step-bursts');
   try {
     const result = await call('open', {
-      activity: payload(state.activity),
-      layout: payload(state.layout),
+      activity: await payload(state.activity),
+      layout: await payload(state.layout),
       settings: keepSettings ? state.settings : null,
     });
     state.settings = result.settings;
@@ -522,6 +547,7 @@ async function runAnalysis(event) {
     state.report = await call('analyze', { analysis: readAnalysisForm() }, showProgress);
     state.settings = await call('settings');
     await renderResults();
+    await updateOpenStudyRecording();
   } catch (e) {
     showError('analysis-error', e);
   } finally {
@@ -533,6 +559,7 @@ async function renderResults() {
   const r = state.report;
   if (!r) return;
   const s = r.summary;
+  document.querySelector('[data-name="electrodes.csv"]').hidden = !r.electrodes;
   $('burst-results').hidden = false;
   $('burst-text').textContent = `${s.burst_count} bursts (${fmt(s.burst_rate_per_min, 2, 'per min')}); `
     + `median interburst interval ${fmt(s.ibi.median_s, 2, 's')} (IQR ${fmt(s.ibi.iqr_s, 2, 's')}, CV ${fmt(s.ibi.cv, 2)}); `
@@ -647,6 +674,190 @@ function renderSummary() {
   $('step-summary').hidden = false;
 }
 
+
+// ---------------------------------------------------------------- the study
+
+/** Opens the study the dropped files make: their manifest, or one the core writes for
+ * recordings dropped with a single layout. Nothing is analysed yet. */
+async function openStudy(files) {
+  clearError('input-error');
+  try {
+    const given = files.find((f) => f.kind === 'manifest');
+    let manifest;
+    if (given) {
+      manifest = await call('readManifest', { name: given.name, bytes: given.bytes.slice(0) });
+      given.status = `study of ${manifest.rows.length} recordings`;
+    } else {
+      const made = await call('manifestForFiles', { files: files.map((f) => [f.name, f.word]) });
+      manifest = await call('readManifest', { name: made.name, bytes: new TextEncoder().encode(made.text).buffer });
+    }
+    const names = files.map((f) => f.file.webkitRelativePath || f.name);
+    const matches = await call('matchStudy', { manifest, names });
+    state.study = { manifest, files, names, matches, entries: manifest.rows.map(() => null), open: null };
+    renderFiles();
+    renderStudy();
+    $('study-run').focus();
+  } catch (e) {
+    state.study = null;
+    renderStudy();
+    showError('input-error', e);
+  }
+}
+
+/** One number of a summary for the study table. */
+function summaryOf(entry) {
+  const text = entry?.files.find((f) => f[0] === 'summary.json')?.[1];
+  return text ? JSON.parse(text).summary : null;
+}
+
+function renderStudy() {
+  const study = state.study;
+  $('study').hidden = !study;
+  if (!study) return;
+  const { manifest } = study;
+  const done = study.entries.filter(Boolean).length;
+  const failed = study.entries.filter((e) => e?.status.outcome === 'failed').length;
+  $('study-text').textContent = `${manifest.rows.length} recordings from ${manifest.file}; `
+    + `${done} analysed or tried, ${failed} failed. Settings: those of the steps below (defaults until changed), `
+    + 'with each row\'s own track and settings file from the manifest.';
+  const head = $('study-table').tHead;
+  head.replaceChildren();
+  const hr = head.insertRow();
+  for (const h of ['recording', ...manifest.columns, 'status', 'bursts', 'fronts', 'median speed (mm/s) [95% CI]', '']) {
+    const th = document.createElement('th');
+    th.scope = 'col';
+    th.textContent = h;
+    hr.append(th);
+  }
+  const body = $('study-table').tBodies[0];
+  body.replaceChildren();
+  manifest.rows.forEach((row, i) => {
+    const entry = study.entries[i];
+    const status = entry?.status;
+    const s = summaryOf(entry);
+    const tr = body.insertRow();
+    const problem = study.matches[i].problem;
+    const ci = s?.median_speed_ci95_mm_s;
+    const speed = s?.median_speed_mm_s == null ? '' : `${s.median_speed_mm_s.toFixed(1)}${ci ? ` [${ci[0].toFixed(1)}, ${ci[1].toFixed(1)}]` : ''}`;
+    const words = status ? (status.outcome === 'failed' ? `failed: ${status.message}` : 'analysed')
+      : (problem ? `cannot run: ${problem}` : 'not analysed yet');
+    for (const text of [row.recording, ...row.columns, words, status?.burst_count ?? '', status?.front_count ?? '', speed]) {
+      tr.insertCell().textContent = String(text);
+    }
+    if (status?.outcome === 'failed' || problem) tr.classList.add('problem');
+    if (study.open === i) tr.classList.add('open');
+    const cell = tr.insertCell();
+    if (!problem) {
+      const b = document.createElement('button');
+      b.type = 'button';
+      b.textContent = study.open === i ? 'open below' : 'Open';
+      b.setAttribute('aria-label', `Open recording ${row.recording} in the steps below`);
+      b.addEventListener('click', () => openStudyRecording(i).catch((e) => showError('input-error', e)));
+      cell.append(b);
+    }
+  });
+  $('study-save').disabled = done < manifest.rows.length;
+}
+
+/** The files of manifest row `i`, as the worker needs them. */
+async function studyFiles(i) {
+  const { files, matches, manifest } = state.study;
+  const m = matches[i];
+  const row = manifest.rows[i];
+  return {
+    file: files[m.data].file,
+    sidecar: m.sidecar == null ? null : { name: files[m.sidecar].name, bytes: await bytesOf(files[m.sidecar]) },
+    layout: { name: row.layout, bytes: await bytesOf(files[m.layout]) },
+    layer: m.settings == null ? null : { name: row.settings, text: new TextDecoder().decode(await bytesOf(files[m.settings])) },
+  };
+}
+
+/** Analyses every recording of the study in turn, as `ringline batch` does; Cancel stops it. */
+async function runStudy() {
+  const study = state.study;
+  if (!study) return;
+  clearError('input-error');
+  const n = study.manifest.rows.length;
+  setBusy(true, 'Analysing the study…');
+  $('study-run').disabled = true;
+  try {
+    for (let i = 0; i < n; i += 1) {
+      const row = study.manifest.rows[i];
+      const m = study.matches[i];
+      const label = `recording ${i + 1} of ${n} (${row.recording})`;
+      $('progress-text').textContent = label;
+      let entry;
+      if (m.problem) {
+        entry = await call('failedStudyEntry', { manifest: study.manifest, row: i, message: m.problem });
+      } else {
+        entry = await call('studyRecording', {
+          manifest: study.manifest, row: i, name: row.data, settings: state.settings, ...(await studyFiles(i)),
+        }, (done, total, stage) => {
+          $('progress-bar').max = Math.max(1, total);
+          $('progress-bar').value = done;
+          $('progress-text').textContent = `${label}: ${stage === 'detecting spikes' ? 'detecting spikes' : `burst ${done} of ${total}`}`;
+        });
+      }
+      study.entries[i] = { status: JSON.parse(entry.status_json), status_json: entry.status_json, files: entry.files };
+      renderStudy();
+    }
+    setStatus(`Study analysed: ${n} recordings.`);
+  } catch (e) {
+    showError('input-error', e);
+  } finally {
+    setBusy(false);
+    $('study-run').disabled = false;
+  }
+}
+
+/** Opens study recording `i` in the steps below (its own settings can then be changed and
+ * its analysis run again; the study table takes the new result). */
+async function openStudyRecording(i) {
+  const study = state.study;
+  const m = study.matches[i];
+  const row = study.manifest.rows[i];
+  const data = { ...study.files[m.data], name: row.data };
+  const layout = { ...study.files[m.layout], name: row.layout };
+  state.truthText = null;
+  state.layout = layout;
+  state.sidecar = m.sidecar == null ? null : study.files[m.sidecar];
+  if (data.kind === 'voltage') {
+    state.voltage = data;
+    state.activity = null;
+  } else {
+    state.activity = data;
+    state.voltage = null;
+  }
+  study.open = i;
+  renderStudy();
+  await openChosen();
+}
+
+/** After an analysis in the steps below: the open study recording takes its result. */
+async function updateOpenStudyRecording() {
+  const study = state.study;
+  if (!study || study.open === null) return;
+  const entry = await call('studyEntry', { manifest: study.manifest, row: study.open });
+  study.entries[study.open] = { status: JSON.parse(entry.status_json), status_json: entry.status_json, files: entry.files };
+  renderStudy();
+}
+
+/** Saves the study tables (status, recordings, bursts, fronts): the bytes `ringline batch`
+ * writes for the same manifest. */
+async function saveStudy() {
+  const study = state.study;
+  const outputs = study.manifest.rows.map((row, i) => {
+    const e = study.entries[i];
+    const file = (name) => e.files.find((f) => f[0] === name)?.[1] ?? null;
+    return {
+      folder: row.recording, status_json: e.status_json, summary_json: file('summary.json'),
+      bursts_csv: file('bursts.csv'), fronts_csv: file('fronts.csv'),
+    };
+  });
+  const tables = await call('combineStudy', { outputs });
+  for (const [name, text] of tables.files) download(name, text, 'text/csv');
+}
+
 // ---------------------------------------------------------------- exports
 
 function download(name, text, type) {
@@ -660,11 +871,11 @@ function download(name, text, type) {
 }
 
 async function exportTable(event) {
-  const key = event.currentTarget.dataset.export;
   const name = event.currentTarget.dataset.name;
   const exports = await call('exports');
-  if (!exports) return;
-  download(name, exports[key], name.endsWith('.json') ? 'application/json' : 'text/csv');
+  const file = exports?.find((f) => f[0] === name);
+  if (!file) return;
+  download(name, file[1], name.endsWith('.json') ? 'application/json' : 'text/csv');
 }
 
 function exportSvg(event) {
@@ -688,11 +899,11 @@ function wire() {
     e.preventDefault();
     drop.classList.remove('over');
     state.truthText = null;
-    addFiles([...e.dataTransfer.files]).catch((err) => showError('input-error', err));
+    addFiles([...e.dataTransfer.files], { asStudy: true }).catch((err) => showError('input-error', err));
   });
   $('file-input').addEventListener('change', (e) => {
     state.truthText = null;
-    addFiles([...e.target.files]).catch((err) => showError('input-error', err));
+    addFiles([...e.target.files], { asStudy: true }).catch((err) => showError('input-error', err));
     e.target.value = '';
   });
   $('demo-button').addEventListener('click', () => {
@@ -710,6 +921,8 @@ function wire() {
   $('track-form').addEventListener('submit', refitTrack);
   $('burst-form').addEventListener('submit', runAnalysis);
   $('window-form').addEventListener('submit', setWindow);
+  $('study-run').addEventListener('click', () => runStudy());
+  $('study-save').addEventListener('click', () => saveStudy().catch((e) => showError('input-error', e)));
   $('cancel-button').addEventListener('click', () => {
     setBusy(false);
     restartWorker('Cancelled; the files are still open, run the analysis again when ready.');

@@ -51,7 +51,24 @@ function need() {
 const ops = {
   defaults: () => core.defaultSettings(),
   demo: () => core.demoFiles(),
-  sniff: ({ bytes }) => core.sniffKind(new Uint8Array(bytes)),
+  classify: ({ name, head }) => core.classifyInput(name, new Uint8Array(head)),
+  readManifest: ({ name, bytes }) => core.readManifest(name, new Uint8Array(bytes)),
+  manifestForFiles: ({ files }) => core.manifestForFiles(files),
+  matchStudy: ({ manifest, names }) => core.matchStudyFiles(manifest, names),
+  studyRecording: ({ manifest, row, name, file, sidecar, layout, layer, settings }, id) => {
+    // Only this recording is read, and voltage only block by block.
+    const reader = new FileReaderSync();
+    const slice = (a, b) => new Uint8Array(reader.readAsArrayBuffer(file.slice(a, b)));
+    return core.analyzeStudyRecording(
+      manifest, row, name, slice(0, Math.min(65536, file.size)), file.size, slice,
+      sidecar?.name, sidecar ? new Uint8Array(sidecar.bytes) : undefined,
+      layout.name, new Uint8Array(layout.bytes), layer?.name, layer?.text, settings ?? null,
+      (stage, done, total) => postMessage({ id, progress: [done, total], stage }),
+    );
+  },
+  failedStudyEntry: ({ manifest, row, message }) => core.failedStudyEntry(manifest, row, message),
+  studyEntry: ({ manifest, row }) => need().studyEntry(manifest, row),
+  combineStudy: ({ outputs }) => core.combineStudy(outputs),
   open: ({ activity, layout, settings }) => {
     workbook?.free();
     workbook = null;

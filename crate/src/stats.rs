@@ -178,9 +178,9 @@ pub fn median_interval(values: &[f64], confidence: f64) -> Option<[f64; 2]> {
     let mut rank = 0usize; // largest l with P(B <= l - 1) <= alpha_half
     for k in 0..n {
         if k > 0 {
-            ln_choose += ((n - k + 1) as f64).ln() - (k as f64).ln();
+            ln_choose += libm::log((n - k + 1) as f64) - libm::log(k as f64);
         }
-        cdf += (ln_choose - ln_half_n).exp();
+        cdf += libm::exp(ln_choose - ln_half_n);
         if cdf <= alpha_half {
             rank = k + 1;
         } else {

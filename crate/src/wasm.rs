@@ -6,7 +6,7 @@
 
 use crate::fronts::AnalysisSettings;
 use crate::geometry::TrackSettings;
-use crate::import::{sniff_file_kind, FileKind, ReadOptions};
+use crate::import::ReadOptions;
 use crate::report::figures::{Figure, Size};
 use crate::report::workbook::{open_notebook, FigureRequest, StepSettings, ViewSettings, Workbook};
 use serde::Serialize;
@@ -39,19 +39,6 @@ pub fn panic_for_test() {
     {
         panic!("a deliberate panic for the page's recovery test");
     }
-}
-
-/// What a file holds, from its header: `spike_list`, `layout`, `roi_traces`, or `null`.
-#[wasm_bindgen(js_name = sniffKind)]
-pub fn sniff_kind(bytes: &[u8]) -> Option<String> {
-    sniff_file_kind(bytes).map(|k| {
-        match k {
-            FileKind::SpikeList => "spike_list",
-            FileKind::Layout => "layout",
-            FileKind::RoiTraces => "roi_traces",
-        }
-        .to_string()
-    })
 }
 
 fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsValue> {
@@ -269,47 +256,16 @@ impl WasmWorkbook {
         progress: Option<js_sys::Function>,
     ) -> Result<VoltageOpened, JsValue> {
         let settings: StepSettings = self::settings(settings, "notebook")?;
-        let len = file_len.max(0.0) as u64;
-        let header = if crate::import::looks_like_wav(head) {
-            let scale = settings.voltage_wav_scale_uv();
-            crate::import::read_wav_header(name, head, len, scale)
-        } else {
-            match (&sidecar_name, &sidecar_bytes) {
-                (Some(sn), Some(sb)) => crate::import::read_sidecar(sn, sb, name, len),
-                _ => Err(crate::import::ImportError::new(
-                    crate::place::Place::file(name),
-                    crate::import::ImportProblem::MissingColumn,
-                    "expected a WAV file, or interleaved samples with their sidecar (a JSON file with sample_rate_hz, channels, sample_type and scale_uv); found no sidecar among the dropped files",
-                )),
-            }
-        }
+        let sidecar = sidecar_name.as_deref().zip(sidecar_bytes.as_deref());
+        let header = voltage_header(
+            name,
+            head,
+            file_len,
+            sidecar,
+            settings.voltage_wav_scale_uv(),
+        )
         .map_err(|e| message(&e))?;
-        let frame = header.frame_bytes() as f64;
-        let offset = header.data_offset_bytes as f64;
-        let file = header.file.clone();
-        let mut read_frames = |from: u64, to: u64| -> Result<Vec<u8>, crate::import::ImportError> {
-            let fail = |what: String| {
-                crate::import::ImportError::new(
-                    crate::place::Place::file(&file),
-                    crate::import::ImportProblem::BadValue,
-                    what,
-                )
-            };
-            let a = offset + from as f64 * frame;
-            let b = offset + to as f64 * frame;
-            let value = read
-                .call2(&JsValue::NULL, &JsValue::from(a), &JsValue::from(b))
-                .map_err(|e| fail(format!("the file could not be read: {e:?}")))?;
-            let bytes = js_sys::Uint8Array::new(&value).to_vec();
-            if bytes.len() as f64 != b - a {
-                return Err(fail(format!(
-                    "expected {} bytes at byte {a}, found {} (the file changed or is truncated)",
-                    b - a,
-                    bytes.len()
-                )));
-            }
-            Ok(bytes)
-        };
+        let mut read_frames = frame_reader(&header, &read);
         let mut report = progress_fn(&progress);
         let (inner, found) = Workbook::open_voltage(
             &header,
@@ -438,6 +394,22 @@ impl WasmWorkbook {
         to_js(&comparison)
     }
 
+    /// This workbook's analysis as a study recording (`row` of `manifest`), for the study
+    /// table after the recording was analysed on its own: `{ status_json, files }`.
+    #[wasm_bindgen(js_name = studyEntry)]
+    pub fn study_entry(&self, manifest: JsValue, row: usize) -> Result<JsValue, JsValue> {
+        let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
+            .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+        let Some(manifest_row) = manifest.rows.get(row) else {
+            return Err(JsValue::from_str("internal: no such manifest row"));
+        };
+        let result = self
+            .inner
+            .report()
+            .ok_or_else(|| "run the analysis first".to_string());
+        self::study_entry(&manifest, manifest_row, result)
+    }
+
     /// The notebook file (JSON text).
     #[wasm_bindgen(js_name = notebookJson)]
     pub fn notebook_json(&self) -> String {
@@ -505,6 +477,259 @@ fn text_files(files: Vec<(String, Vec<u8>)>) -> Result<JsValue, JsValue> {
         .filter_map(|(name, bytes)| String::from_utf8(bytes).ok().map(|t| (name, t)))
         .collect();
     to_js(&text)
+}
+
+/// The header of a raw voltage file the page holds as a `File`: a WAV file reads its own,
+/// interleaved samples need their sidecar.
+fn voltage_header(
+    name: &str,
+    head: &[u8],
+    file_len: f64,
+    sidecar: Option<(&str, &[u8])>,
+    wav_scale_uv: f64,
+) -> Result<crate::import::VoltageHeader, crate::import::ImportError> {
+    let len = file_len.max(0.0) as u64;
+    if crate::import::looks_like_wav(head) {
+        return crate::import::read_wav_header(name, head, len, wav_scale_uv);
+    }
+    match sidecar {
+        Some((sn, sb)) => crate::import::read_sidecar(sn, sb, name, len),
+        None => Err(crate::import::ImportError::new(
+            crate::place::Place::file(name),
+            crate::import::ImportProblem::MissingColumn,
+            format!(
+                "expected a WAV file, or interleaved samples with their sidecar (a JSON file with sample_rate_hz, channels, sample_type and scale_uv); found no sidecar among the dropped files (it is looked for as {})",
+                crate::import::sidecar_names(name).join(" or ")
+            ),
+        )),
+    }
+}
+
+/// Reads frames of a voltage file through the page's `read(from_byte, to_byte)`.
+fn frame_reader<'a>(
+    header: &crate::import::VoltageHeader,
+    read: &'a js_sys::Function,
+) -> impl FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError> + 'a {
+    let frame = header.frame_bytes() as f64;
+    let offset = header.data_offset_bytes as f64;
+    let file = header.file.clone();
+    move |from: u64, to: u64| {
+        let fail = |what: String| {
+            crate::import::ImportError::new(
+                crate::place::Place::file(&file),
+                crate::import::ImportProblem::BadValue,
+                what,
+            )
+        };
+        let a = offset + from as f64 * frame;
+        let b = offset + to as f64 * frame;
+        let value = read
+            .call2(&JsValue::NULL, &JsValue::from(a), &JsValue::from(b))
+            .map_err(|e| fail(format!("the file could not be read: {e:?}")))?;
+        let bytes = js_sys::Uint8Array::new(&value).to_vec();
+        if bytes.len() as f64 != b - a {
+            return Err(fail(format!(
+                "expected {} bytes at byte {a}, found {} (the file changed or is truncated)",
+                b - a,
+                bytes.len()
+            )));
+        }
+        Ok(bytes)
+    }
+}
+
+// ---------------------------------------------------------------- studies
+
+/// What a file is, from its name and first bytes (see `import::classify_input`): one word.
+#[wasm_bindgen(js_name = classifyInput)]
+pub fn classify_input(name: &str, head: &[u8]) -> String {
+    crate::import::classify_input(name, head)
+        .as_str()
+        .to_string()
+}
+
+/// Reads a study manifest; errors are located.
+#[wasm_bindgen(js_name = readManifest)]
+pub fn read_manifest(name: &str, bytes: &[u8]) -> Result<JsValue, JsValue> {
+    let manifest =
+        crate::import::read_manifest(bytes, name, Default::default()).map_err(|e| message(&e))?;
+    to_js(&manifest)
+}
+
+/// A manifest for recordings dropped without one: `files` is `[[name, kind word], ...]`.
+/// Returns `{ name, text }`.
+#[wasm_bindgen(js_name = manifestForFiles)]
+pub fn manifest_for_files(files: JsValue) -> Result<JsValue, JsValue> {
+    let files: Vec<(String, String)> = settings(files, "files")?;
+    let files: Vec<(String, crate::import::InputKind)> = files
+        .into_iter()
+        .map(|(n, k)| {
+            let kind =
+                crate::import::InputKind::parse(&k).unwrap_or(crate::import::InputKind::Unknown);
+            (n, kind)
+        })
+        .collect();
+    let text = crate::study::manifest_for_files(&files).map_err(|e| message(&e))?;
+    #[derive(Serialize)]
+    struct Made {
+        name: &'static str,
+        text: String,
+    }
+    to_js(&Made {
+        name: "dropped-recordings.csv",
+        text,
+    })
+}
+
+/// Which dropped file each manifest row names (`study::match_files`).
+#[wasm_bindgen(js_name = matchStudyFiles)]
+pub fn match_study_files(manifest: JsValue, names: JsValue) -> Result<JsValue, JsValue> {
+    let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
+        .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+    let names: Vec<String> = settings(names, "file names")?;
+    to_js(&crate::study::match_files(&manifest, &names))
+}
+
+/// Analyses one recording of a study as `ringline batch` does. The data file is read
+/// through `read(from_byte, to_byte)` (a `File` in the worker), so raw voltage streams in
+/// blocks; `head` is its first bytes. Never fails for the recording's own problems: they
+/// become a failed status. Returns `{ status_json, files: [[name, text], ...] }`.
+#[allow(clippy::too_many_arguments)]
+#[wasm_bindgen(js_name = analyzeStudyRecording)]
+pub fn analyze_study_recording(
+    manifest: JsValue,
+    row: usize,
+    data_name: &str,
+    head: &[u8],
+    data_len: f64,
+    read: js_sys::Function,
+    sidecar_name: Option<String>,
+    sidecar_bytes: Option<Vec<u8>>,
+    layout_name: &str,
+    layout_bytes: &[u8],
+    layer_name: Option<String>,
+    layer_text: Option<String>,
+    settings: JsValue,
+    progress: Option<js_sys::Function>,
+) -> Result<JsValue, JsValue> {
+    use crate::import::InputKind;
+    let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
+        .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+    let step: StepSettings = self::settings(settings, "settings")?;
+    let Some(manifest_row) = manifest.rows.get(row) else {
+        return Err(JsValue::from_str("internal: no such manifest row"));
+    };
+    let mut report_progress = staged_progress_fn(&progress);
+    let result = (|| -> Result<crate::report::AnalysisReport, String> {
+        let layer = layer_name.as_deref().zip(layer_text.as_deref());
+        let settings = crate::study::recording_settings(&step.recording(), manifest_row, layer)
+            .map_err(|e| e.to_string())?;
+        let mut progress = |stage: &str, d: u64, t: u64| report_progress(stage, d as f64, t as f64);
+        let layout = (layout_name, layout_bytes);
+        match crate::import::classify_input(data_name, head) {
+            InputKind::Wav | InputKind::VoltageSamples => {
+                let sidecar = sidecar_name.as_deref().zip(sidecar_bytes.as_deref());
+                let header = voltage_header(
+                    data_name,
+                    head,
+                    data_len,
+                    sidecar,
+                    step.voltage_wav_scale_uv(),
+                )
+                .map_err(|e| e.to_string())?;
+                let mut frames = frame_reader(&header, &read);
+                crate::analyze_recording(
+                    crate::ActivityInput::Voltage(&header, &mut frames),
+                    layout,
+                    &settings,
+                    &mut progress,
+                )
+            }
+            _ => {
+                let limit = settings.read.limits.max_bytes as f64;
+                if data_len > limit {
+                    return Err(format!(
+                        "{data_name}: the file is {data_len} bytes, more than the limit of {limit} bytes"
+                    ));
+                }
+                let bytes = read
+                    .call2(&JsValue::NULL, &JsValue::from(0.0), &JsValue::from(data_len))
+                    .map(|v| js_sys::Uint8Array::new(&v).to_vec())
+                    .map_err(|e| format!("{data_name}: the file could not be read: {e:?}"))?;
+                crate::analyze_recording(
+                    crate::ActivityInput::Table(data_name, &bytes),
+                    layout,
+                    &settings,
+                    &mut progress,
+                )
+            }
+        }
+        .map_err(|e| e.to_string())
+    })();
+    study_entry(
+        &manifest,
+        manifest_row,
+        result.as_ref().map_err(Clone::clone),
+    )
+}
+
+/// The entry of a study recording that cannot run (its files were not dropped):
+/// `{ status_json, files: [] }`.
+#[wasm_bindgen(js_name = failedStudyEntry)]
+pub fn failed_study_entry(
+    manifest: JsValue,
+    row: usize,
+    message: String,
+) -> Result<JsValue, JsValue> {
+    let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
+        .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+    let Some(manifest_row) = manifest.rows.get(row) else {
+        return Err(JsValue::from_str("internal: no such manifest row"));
+    };
+    study_entry(&manifest, manifest_row, Err(message))
+}
+
+/// `{ status_json, files }` of a study recording, analysed or failed.
+fn study_entry(
+    manifest: &crate::import::Manifest,
+    row: &crate::import::ManifestRow,
+    result: Result<&crate::report::AnalysisReport, String>,
+) -> Result<JsValue, JsValue> {
+    #[derive(Serialize)]
+    struct Entry {
+        status_json: String,
+        files: Vec<(&'static str, String)>,
+    }
+    let entry = match result {
+        Ok(report) => Entry {
+            status_json: crate::study::RecordingStatus::analysed(manifest, row, report).to_json(),
+            files: report.output_files(),
+        },
+        Err(message) => Entry {
+            status_json: crate::study::RecordingStatus::failed(manifest, row, message).to_json(),
+            files: Vec::new(),
+        },
+    };
+    to_js(&entry)
+}
+
+/// The study's tables from every recording's `{ folder, status_json, summary_json,
+/// bursts_csv, fronts_csv }`: `{ files: [[name, text], ...], recordings, failed }`.
+#[wasm_bindgen(js_name = combineStudy)]
+pub fn combine_study(outputs: JsValue) -> Result<JsValue, JsValue> {
+    let outputs: Vec<crate::study::RecordingOutputs> = settings(outputs, "study outputs")?;
+    let tables = crate::study::combine(&outputs).map_err(|e| message(&e))?;
+    #[derive(Serialize)]
+    struct Tables {
+        files: Vec<(String, String)>,
+        recordings: usize,
+        failed: usize,
+    }
+    to_js(&Tables {
+        files: tables.files,
+        recordings: tables.recordings,
+        failed: tables.failed,
+    })
 }
 
 /// What opening a voltage file gives the page: the workbook and the electrode report.

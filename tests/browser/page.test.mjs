@@ -386,3 +386,55 @@ test('raw voltage dropped on the page gives the command line\'s electrodes and s
     await context.close();
   }
 });
+
+test('a study of 6 recordings dropped with its manifest gives the command line\'s study tables', async () => {
+  // Six simulated recordings (three scenarios, two seeds), one folder, distinct file names.
+  const dir = mkdtempSync(join(tmpdir(), 'ringline-study-'));
+  let manifest = 'recording,data,layout,culture,condition\n';
+  const files = [];
+  for (const scenario of ['strip-16', 'ring-24', 'dish-8x8']) {
+    for (const seed of [1, 2]) {
+      const name = `${scenario}-${seed}`;
+      const sim = join(dir, name);
+      execFileSync(cli, ['simulate', join(repo, `demo-data/scenarios/${scenario}.json`), '--seed', String(seed), '--duration', '60', '--out', sim],
+        { stdio: 'ignore' });
+      for (const kind of ['spikes', 'layout']) {
+        writeFileSync(join(dir, `${name}-${kind}.csv`), readFileSync(join(sim, `${kind}.csv`)));
+        files.push({ name: `${name}-${kind}.csv`, path: join(dir, `${name}-${kind}.csv`) });
+      }
+      manifest += `${name},${name}-spikes.csv,${name}-layout.csv,culture ${seed},"${scenario}, seed ${seed}"\n`;
+    }
+  }
+  writeFileSync(join(dir, 'study.csv'), manifest);
+  execFileSync(cli, ['batch', 'study.csv', '--out', 'batch'], { cwd: dir, stdio: 'ignore' });
+
+  const { page, context, errors } = await openPage(base);
+  await dropFiles(page, [{ name: 'study.csv', text: manifest }, ...files]);
+  await page.locator('#study').waitFor({ state: 'visible' });
+  assert.equal(await page.locator('#study-table tbody tr').count(), 6);
+  assert.match(await page.textContent('#study-table tbody'), /not analysed yet/);
+  await page.click('#study-run');
+  await page.waitForFunction(() => !document.getElementById('study-save').disabled, null, { timeout: 120000 });
+  await shoot(page, '9-study');
+  const rows = await page.locator('#study-table tbody tr').allTextContents();
+  assert.ok(rows.every((r) => r.includes('analysed')), rows.join('\n'));
+
+  const saved = {};
+  page.on('download', async (d) => { saved[d.suggestedFilename()] = readFileSync(await d.path(), 'utf8'); });
+  await page.click('#study-save');
+  await page.waitForFunction(() => true);
+  for (let k = 0; k < 100 && Object.keys(saved).length < 4; k += 1) await page.waitForTimeout(100);
+  for (const table of ['status.csv', 'recordings.csv', 'bursts.csv', 'fronts.csv']) {
+    assert.equal(saved[table], readFileSync(join(dir, 'batch', table), 'utf8'), `${table} differs from ringline batch`);
+  }
+
+  // Opening one recording shows it in the steps below, with the command line's exports.
+  await page.getByRole('button', { name: 'Open recording ring-24-2 in the steps below' }).click();
+  await analyse(page);
+  const summary = JSON.parse(readFileSync(join(dir, 'batch/recordings/ring-24-2/summary.json'), 'utf8'));
+  assert.equal(await summaryValue(page, 'median speed'), summary.summary.median_speed_mm_s);
+  const fronts = await downloadText(page, '[data-export="fronts_csv"]');
+  assert.equal(fronts, readFileSync(join(dir, 'batch/recordings/ring-24-2/fronts.csv'), 'utf8'));
+  assert.deepEqual(errors, []);
+  await context.close();
+});

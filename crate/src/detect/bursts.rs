@@ -281,7 +281,7 @@ pub fn population_rate(
     let kernel: Vec<f64> = (0..=2 * half)
         .map(|k| {
             let d = k as f64 - half as f64;
-            (-0.5 * d * d / (sd_bins * sd_bins)).exp()
+            libm::exp(-0.5 * d * d / (sd_bins * sd_bins))
         })
         .collect();
     let norm: f64 = kernel.iter().sum::<f64>() * bin;

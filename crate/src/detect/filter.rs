@@ -69,7 +69,7 @@ impl Complex {
     }
     fn sqrt(self) -> Complex {
         // Principal square root.
-        let r = self.re.hypot(self.im);
+        let r = libm::hypot(self.re, self.im);
         let re = ((r + self.re) / 2.0).max(0.0).sqrt();
         let im = ((r - self.re) / 2.0).max(0.0).sqrt();
         Complex::new(re, if self.im < 0.0 { -im } else { im })
@@ -103,7 +103,7 @@ pub fn butterworth_bandpass(
     }
     // Prewarped analog edges for the bilinear transform with fs = 2 (scipy's normalisation).
     let fs = 2.0;
-    let warp = |f: f64| 2.0 * fs * (PI * (f / nyquist) / fs).tan();
+    let warp = |f: f64| 2.0 * fs * libm::tan(PI * (f / nyquist) / fs);
     let (w1, w2) = (warp(low_hz), warp(high_hz));
     let (bw, wo) = (w2 - w1, (w1 * w2).sqrt());
     // Analog prototype: p_k = -exp(i pi m / (2N)), m = -N+1, -N+3, ..., N-1; no zeros; gain 1.
@@ -112,7 +112,7 @@ pub fn butterworth_bandpass(
         .map(|k| {
             let m = (-n + 1 + 2 * k) as f64;
             let angle = PI * m / (2.0 * n as f64);
-            Complex::new(-angle.cos(), -angle.sin())
+            Complex::new(-libm::cos(angle), -libm::sin(angle))
         })
         .collect();
     // Low-pass to band-pass: each pole p becomes p bw/2 +- sqrt((p bw/2)^2 - wo^2); the N
@@ -188,7 +188,7 @@ pub fn butterworth_bandpass(
 pub fn gain_at(sections: &[Section], f_hz: f64, sample_rate_hz: f64) -> f64 {
     let w = 2.0 * PI * f_hz / sample_rate_hz;
     // z^-1 and z^-2 on the unit circle.
-    let z1 = Complex::new(w.cos(), -w.sin());
+    let z1 = Complex::new(libm::cos(w), -libm::sin(w));
     let z2 = z1.mul(z1);
     sections
         .iter()
@@ -255,7 +255,7 @@ pub fn settling_samples(sections: &[Section], relative: f64) -> usize {
     if radius >= 1.0 {
         return usize::MAX / 4;
     }
-    (relative.ln() / radius.ln()).ceil() as usize
+    (libm::log(relative) / libm::log(radius)).ceil() as usize
 }
 
 /// Zero-phase filtering block by block: each block of `block` samples is filtered with

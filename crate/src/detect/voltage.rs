@@ -297,14 +297,14 @@ pub fn detect_voltage_spikes(
     let logs: Vec<f64> = rows
         .iter()
         .filter(|r| r.status == "ok")
-        .map(|r| r.rate_hz.log10())
+        .map(|r| libm::log10(r.rate_hz))
         .collect();
     if logs.len() >= 4 {
         let centre = crate::stats::median(&logs).unwrap_or(0.0);
         let spread = crate::stats::mad_sd(&logs).unwrap_or(0.0);
         if spread > 0.0 {
             for r in rows.iter_mut().filter(|r| r.status == "ok") {
-                if (r.rate_hz.log10() - centre).abs() > 3.0 * spread {
+                if (libm::log10(r.rate_hz) - centre).abs() > 3.0 * spread {
                     r.status = "rate_outlier".into();
                 }
             }

@@ -224,7 +224,7 @@ impl TrackFrame {
             },
             Track::Polyline { waypoints_um, .. } => {
                 let (a, b) = (waypoints_um[0], waypoints_um[waypoints_um.len() - 1]);
-                let d = (b[0] - a[0]).hypot(b[1] - a[1]).max(f64::MIN_POSITIVE);
+                let d = libm::hypot(b[0] - a[0], b[1] - a[1]).max(f64::MIN_POSITIVE);
                 TrackFrame::Line {
                     direction: [(b[0] - a[0]) / d, (b[1] - a[1]) / d],
                 }
@@ -240,7 +240,7 @@ impl TrackFrame {
 /// Angle of a point seen from the ring's centre, radians (0 off a ring).
 pub(crate) fn ring_angle(track: &Track, p: [f64; 2]) -> f64 {
     match track {
-        Track::Ring { centre_um, .. } => (p[1] - centre_um[1]).atan2(p[0] - centre_um[0]),
+        Track::Ring { centre_um, .. } => libm::atan2(p[1] - centre_um[1], p[0] - centre_um[0]),
         _ => 0.0,
     }
 }
@@ -554,7 +554,7 @@ fn fit_candidate(
                 .map(|i| t[i] - beta[0] - beta[1] * p.xy_um[i][0] - beta[2] * p.xy_um[i][1])
                 .collect();
             let g = [beta[1], beta[2]];
-            let norm = g[0].hypot(g[1]);
+            let norm = libm::hypot(g[0], g[1]);
             if norm == 0.0 {
                 return None;
             }
@@ -705,7 +705,7 @@ fn refine_point_source(scanned: Candidate, p: &FrontPoints, floor_s: f64) -> Can
 fn distances_from(xy_um: &[[f64; 2]], origin_um: [f64; 2]) -> Vec<f64> {
     xy_um
         .iter()
-        .map(|x| (x[0] - origin_um[0]).hypot(x[1] - origin_um[1]))
+        .map(|x| libm::hypot(x[0] - origin_um[0], x[1] - origin_um[1]))
         .collect()
 }
 
@@ -791,7 +791,7 @@ fn robust_criterion(residuals: &[f64], scale_s: f64, parameters: usize) -> f64 {
         .iter()
         .map(|r| biweight_rho(r / scale_s))
         .sum::<f64>()
-        + parameters as f64 * n.ln()
+        + parameters as f64 * libm::log(n)
 }
 
 /// Robust SD of residuals about zero: median(|r|) / 0.6745 (the MAD of residuals whose
@@ -1173,7 +1173,7 @@ pub fn fit_chosen(
     let tss: f64 = t.iter().map(|v| (v - mean_t) * (v - mean_t)).sum();
     let r2 = if tss > 0.0 { 1.0 - best.rss / tss } else { 0.0 };
     let direction = best.slowness.map(|g| {
-        let norm = g[0].hypot(g[1]);
+        let norm = libm::hypot(g[0], g[1]);
         [g[0] / norm, g[1] / norm]
     });
 
@@ -1378,7 +1378,7 @@ impl Bootstrap {
         let t = points.t_s.clone();
         let n = points.len();
         if let Some((beta0, g)) = best.plane(points.xy_um[0]) {
-            let norm = g[0].hypot(g[1]);
+            let norm = libm::hypot(g[0], g[1]);
             return Bootstrap::Plane {
                 design: DMatrix::from_fn(n, 3, |i, j| match j {
                     0 => 1.0,
@@ -1779,7 +1779,7 @@ pub fn distance_from_origin(
             (xy_um[0] - o[0]) * d[0] + (xy_um[1] - o[1]) * d[1]
         }
         (FrontModel::PointSource, Origin::Point { xy_um: o }) => {
-            (xy_um[0] - o[0]).hypot(xy_um[1] - o[1])
+            libm::hypot(xy_um[0] - o[0], xy_um[1] - o[1])
         }
         _ => 0.0,
     }

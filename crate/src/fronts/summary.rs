@@ -358,7 +358,7 @@ fn direction_balance(
         two_way_count: two_way,
         first_fraction: (one_way > 0).then(|| first as f64 / one_way as f64),
         first_fraction_ci95: wilson_interval(first, one_way, 0.95),
-        mean_direction_deg: (n > 0).then(|| sy.atan2(sx).to_degrees()),
-        mean_resultant_length: (n > 0).then(|| (sx / n as f64).hypot(sy / n as f64)),
+        mean_direction_deg: (n > 0).then(|| libm::atan2(sy, sx).to_degrees()),
+        mean_resultant_length: (n > 0).then(|| libm::hypot(sx / n as f64, sy / n as f64)),
     }
 }

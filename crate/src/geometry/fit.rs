@@ -61,7 +61,8 @@ impl Circle {
         let sum: f64 = points
             .iter()
             .map(|p| {
-                let d = (p[0] - self.centre_um[0]).hypot(p[1] - self.centre_um[1]) - self.radius_um;
+                let d = libm::hypot(p[0] - self.centre_um[0], p[1] - self.centre_um[1])
+                    - self.radius_um;
                 d * d
             })
             .sum();
@@ -221,7 +222,9 @@ impl LeastSquaresProblem<f64, Dyn, U3> for CircleProblem<'_> {
         let (a, b, r) = (self.params[0], self.params[1], self.params[2]);
         Some(DVector::from_iterator(
             self.points.len(),
-            self.points.iter().map(|p| (p[0] - a).hypot(p[1] - b) - r),
+            self.points
+                .iter()
+                .map(|p| libm::hypot(p[0] - a, p[1] - b) - r),
         ))
     }
 
@@ -229,7 +232,7 @@ impl LeastSquaresProblem<f64, Dyn, U3> for CircleProblem<'_> {
         let (a, b) = (self.params[0], self.params[1]);
         let mut j = OMatrix::<f64, Dyn, U3>::zeros(self.points.len());
         for (i, p) in self.points.iter().enumerate() {
-            let d = (p[0] - a).hypot(p[1] - b);
+            let d = libm::hypot(p[0] - a, p[1] - b);
             if d == 0.0 {
                 return None;
             }

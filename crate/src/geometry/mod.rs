@@ -468,7 +468,7 @@ fn detect_kind(
                 hi[k] = hi[k].max(p[k]);
             }
         }
-        (hi[0] - lo[0]).hypot(hi[1] - lo[1])
+        libm::hypot(hi[0] - lo[0], hi[1] - lo[1])
     };
     let ring = ring.filter(|r| points.len() >= 5 && extent >= 0.5 * r.circle.radius_um);
     if let Some(ring) = ring {
@@ -564,7 +564,7 @@ fn orient_line(fit: &LineFit, points: &[[f64; 2]], start: Option<usize>, reverse
 fn orient_ring(circle: Circle, points: &[[f64; 2]], start: Option<usize>, reverse: bool) -> Track {
     let c = circle.centre_um;
     let rotation = if reverse { Rotation::Cw } else { Rotation::Ccw };
-    let angle_of = |p: [f64; 2]| (p[1] - c[1]).atan2(p[0] - c[0]);
+    let angle_of = |p: [f64; 2]| libm::atan2(p[1] - c[1], p[0] - c[0]);
     let start_angle_rad = match start {
         Some(i) => angle_of(points[i]),
         None => {
@@ -646,7 +646,7 @@ fn place_sites(
 fn largest_gap(points: &[[f64; 2]], centre: [f64; 2]) -> (f64, f64, f64) {
     let mut angles: Vec<f64> = points
         .iter()
-        .map(|p| (p[1] - centre[1]).atan2(p[0] - centre[0]))
+        .map(|p| libm::atan2(p[1] - centre[1], p[0] - centre[0]))
         .collect();
     angles.sort_by(f64::total_cmp);
     let n = angles.len();
@@ -675,7 +675,7 @@ pub fn median_nearest_neighbour(points: &[[f64; 2]]) -> Option<f64> {
                 .iter()
                 .enumerate()
                 .filter(|(j, _)| *j != i)
-                .map(|(_, q)| (p[0] - q[0]).hypot(p[1] - q[1]))
+                .map(|(_, q)| libm::hypot(p[0] - q[0], p[1] - q[1]))
                 .filter(|&d| d > 0.0)
                 .reduce(f64::min)
         })
@@ -713,7 +713,7 @@ fn rms(values: &[f64]) -> f64 {
 fn mean_distance(points: &[[f64; 2]], c: [f64; 2]) -> f64 {
     points
         .iter()
-        .map(|p| (p[0] - c[0]).hypot(p[1] - c[1]))
+        .map(|p| libm::hypot(p[0] - c[0], p[1] - c[1]))
         .sum::<f64>()
         / points.len().max(1) as f64
 }

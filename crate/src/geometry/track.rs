@@ -96,11 +96,11 @@ impl Track {
                 rotation,
             } => {
                 let (dx, dy) = (p[0] - centre_um[0], p[1] - centre_um[1]);
-                let angle = dy.atan2(dx);
+                let angle = libm::atan2(dy, dx);
                 let turned = rotation.sign() * (angle - start_angle_rad);
                 Some(Projection {
                     along_um: radius_um * wrap_angle(turned),
-                    lateral_um: dx.hypot(dy) - radius_um,
+                    lateral_um: libm::hypot(dx, dy) - radius_um,
                 })
             }
             Track::Plane => None,
@@ -132,7 +132,7 @@ fn project_on_polyline(waypoints: &[[f64; 2]], p: [f64; 2]) -> Option<Projection
     let mut walked = 0.0;
     for w in waypoints.windows(2) {
         let (a, b) = (w[0], w[1]);
-        let length = (b[0] - a[0]).hypot(b[1] - a[1]);
+        let length = libm::hypot(b[0] - a[0], b[1] - a[1]);
         if length == 0.0 {
             continue;
         }
@@ -140,7 +140,7 @@ fn project_on_polyline(waypoints: &[[f64; 2]], p: [f64; 2]) -> Option<Projection
         let on_line = project_on_line(a, direction, p);
         let t = on_line.along_um.clamp(0.0, length);
         let foot = [a[0] + t * direction[0], a[1] + t * direction[1]];
-        let distance = (p[0] - foot[0]).hypot(p[1] - foot[1]);
+        let distance = libm::hypot(p[0] - foot[0], p[1] - foot[1]);
         let lateral = if on_line.lateral_um < 0.0 {
             -distance
         } else {
@@ -164,6 +164,6 @@ fn project_on_polyline(waypoints: &[[f64; 2]], p: [f64; 2]) -> Option<Projection
 pub(crate) fn polyline_length(waypoints: &[[f64; 2]]) -> f64 {
     waypoints
         .windows(2)
-        .map(|w| (w[1][0] - w[0][0]).hypot(w[1][1] - w[0][1]))
+        .map(|w| libm::hypot(w[1][0] - w[0][0], w[1][1] - w[0][1]))
         .sum()
 }

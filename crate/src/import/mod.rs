@@ -168,6 +168,40 @@ pub enum InputKind {
     Unknown,
 }
 
+impl InputKind {
+    /// One word per kind, as the page shows and passes it.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            InputKind::Table(FileKind::SpikeList) => "spike_list",
+            InputKind::Table(FileKind::Layout) => "layout",
+            InputKind::Table(FileKind::RoiTraces) => "roi_traces",
+            InputKind::Manifest => "manifest",
+            InputKind::Wav => "wav",
+            InputKind::VoltageSamples => "voltage_samples",
+            InputKind::Sidecar => "sidecar",
+            InputKind::Json => "json",
+            InputKind::Unknown => "unknown",
+        }
+    }
+
+    /// The kind [`InputKind::as_str`] names.
+    pub fn parse(word: &str) -> Option<InputKind> {
+        [
+            InputKind::Table(FileKind::SpikeList),
+            InputKind::Table(FileKind::Layout),
+            InputKind::Table(FileKind::RoiTraces),
+            InputKind::Manifest,
+            InputKind::Wav,
+            InputKind::VoltageSamples,
+            InputKind::Sidecar,
+            InputKind::Json,
+            InputKind::Unknown,
+        ]
+        .into_iter()
+        .find(|k| k.as_str() == word)
+    }
+}
+
 /// Extensions of raw sample files (compared without case).
 pub const SAMPLE_EXTENSIONS: [&str; 5] = ["raw", "bin", "dat", "i16", "f32"];
 

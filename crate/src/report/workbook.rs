@@ -52,6 +52,16 @@ pub struct StepSettings {
 }
 
 impl StepSettings {
+    /// The settings of the path from files to results (what a study run applies).
+    pub fn recording(&self) -> crate::RecordingSettings {
+        crate::RecordingSettings {
+            read: self.read.clone(),
+            track: self.track.clone(),
+            voltage: self.voltage.clone(),
+            analysis: self.analysis.clone(),
+        }
+    }
+
     /// Microvolts per stored unit of a WAV file (WAV carries no scale).
     pub fn voltage_wav_scale_uv(&self) -> f64 {
         self.voltage_wav_uv_per_unit.unwrap_or(1.0)
@@ -161,16 +171,6 @@ pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, Noteboo
     Ok(nb)
 }
 
-/// CSV and JSON exports, byte for byte those of `ringline analyze --out`.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Exports {
-    pub bursts_csv: String,
-    pub fronts_csv: String,
-    pub activation_csv: String,
-    pub leaders_csv: String,
-    pub summary_json: String,
-}
-
 /// Which figure to draw.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "figure", rename_all = "snake_case")]
@@ -203,6 +203,8 @@ pub struct Workbook {
     rate: Option<PopulationRate>,
     /// For fluorescence traces, the event onsets per ROI that the last analysis found.
     events: Option<Vec<Vec<f64>>>,
+    /// Raw voltage: the electrode report of spike detection (goes into every analysis report).
+    electrodes: Option<Vec<crate::detect::voltage::ElectrodeRow>>,
 }
 
 impl Workbook {
@@ -241,6 +243,7 @@ impl Workbook {
             report: None,
             rate: None,
             events: None,
+            electrodes: None,
         })
     }
 
@@ -280,10 +283,9 @@ impl Workbook {
             format!("{} (detected spikes).csv", header.file),
             crate::import::write_spike_list(&sites).into_bytes(),
         );
-        Ok((
-            Workbook::with_track(activity, layout, settings, recording)?,
-            found,
-        ))
+        let mut workbook = Workbook::with_track(activity, layout, settings, recording)?;
+        workbook.electrodes = Some(found.electrodes.clone());
+        Ok((workbook, found))
     }
 
     /// Re-fits the track; the analysis must be run again.
@@ -322,7 +324,8 @@ impl Workbook {
             }
             (Activity::Traces { .. }, None) => None,
         };
-        let report = AnalysisReport::new(&self.recording, &self.fit, &settings, analysis);
+        let mut report = AnalysisReport::new(&self.recording, &self.fit, &settings, analysis);
+        report.electrodes = self.electrodes.clone();
         self.settings.analysis = settings;
         if !report
             .bursts
@@ -440,15 +443,9 @@ impl Workbook {
         }
     }
 
-    /// The exports of `ringline analyze --out`; `None` before the analysis.
-    pub fn exports(&self) -> Option<Exports> {
-        self.report.as_ref().map(|r| Exports {
-            bursts_csv: r.bursts_csv(),
-            fronts_csv: r.fronts_csv(),
-            activation_csv: r.activation_csv(),
-            leaders_csv: r.leaders_csv(),
-            summary_json: r.summary_json(),
-        })
+    /// The files of `ringline analyze --out`, as (name, contents); `None` before the analysis.
+    pub fn exports(&self) -> Option<Vec<(&'static str, String)>> {
+        self.report.as_ref().map(AnalysisReport::output_files)
     }
 
     /// The notebook file (JSON): both inputs with their SHA-256 (embedded when small enough),

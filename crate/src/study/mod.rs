@@ -111,7 +111,8 @@ impl RecordingStatus {
 }
 
 /// One recording's status and, when analysed, the output files the study tables draw on.
-#[derive(Debug, Clone, PartialEq, Default)]
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+#[serde(default)]
 pub struct RecordingOutputs {
     /// Where the status was read from, for messages.
     pub folder: String,
@@ -541,4 +542,138 @@ fn lay_over(base: &mut Value, layer: &Value, path: &str, unknown: &mut Vec<Strin
         }
         (b, l) => *b = l.clone(),
     }
+}
+
+/// Which of a set of files (the page's dropped files) each manifest row names, by index
+/// into the names given; `problem` says why a row cannot run.
+#[derive(Debug, Clone, PartialEq, Default, Serialize)]
+pub struct RowFiles {
+    pub data: Option<usize>,
+    pub sidecar: Option<usize>,
+    pub layout: Option<usize>,
+    pub settings: Option<usize>,
+    pub problem: Option<String>,
+}
+
+/// Finds each manifest row's files among `names`. A name matches a manifest path when it is
+/// that path, or else its last component (a browser knows dropped files by name only). A
+/// raw sample file's sidecar is looked for as [`crate::import::sidecar_names`] says.
+pub fn match_files(manifest: &crate::import::Manifest, names: &[String]) -> Vec<RowFiles> {
+    let last = |p: &str| p.rsplit(['/', '\\']).next().unwrap_or(p).to_string();
+    let find = |path: &str| -> Result<Option<usize>, String> {
+        if let Some(i) = names.iter().position(|n| n == path) {
+            return Ok(Some(i));
+        }
+        let wanted = last(path);
+        let hits: Vec<usize> = (0..names.len())
+            .filter(|&i| last(&names[i]) == wanted)
+            .collect();
+        match hits.as_slice() {
+            [] => Ok(None),
+            [one] => Ok(Some(*one)),
+            _ => Err(format!(
+                "{} files are named {wanted}; drop the study's folder so that their paths tell them apart",
+                hits.len()
+            )),
+        }
+    };
+    let need = |path: &str, role: &str| -> Result<usize, String> {
+        find(path)?.ok_or_else(|| {
+            format!(
+                "{}: no such file among the dropped files (the manifest names it as this recording's {role})",
+                path
+            )
+        })
+    };
+    manifest
+        .rows
+        .iter()
+        .map(|row| {
+            let mut files = RowFiles::default();
+            let found = (|| -> Result<(), String> {
+                files.data = Some(need(&row.data, "data")?);
+                files.layout = Some(need(&row.layout, "layout")?);
+                if let Some(s) = &row.settings {
+                    files.settings = Some(need(s, "settings")?);
+                }
+                for candidate in crate::import::sidecar_names(&row.data) {
+                    if let Some(i) = find(&candidate)? {
+                        files.sidecar = Some(i);
+                        break;
+                    }
+                }
+                Ok(())
+            })();
+            files.problem = found.err();
+            files
+        })
+        .collect()
+}
+
+/// A manifest for recordings dropped without one: each activity file is a recording named
+/// after it, all on the one layout given. `files` are (name, kind) in the order dropped.
+/// Returns the manifest's text, which [`crate::import::read_manifest`] reads.
+pub fn manifest_for_files(
+    files: &[(String, crate::import::InputKind)],
+) -> Result<String, StudyError> {
+    use crate::import::{FileKind, InputKind};
+    let place = || Place::file("the dropped files");
+    let layouts: Vec<&str> = files
+        .iter()
+        .filter(|f| f.1 == InputKind::Table(FileKind::Layout))
+        .map(|f| f.0.as_str())
+        .collect();
+    let [layout] = layouts.as_slice() else {
+        return Err(StudyError::new(
+            place(),
+            format!(
+                "expected one layout for several recordings, found {}; to pair recordings with their own layouts, drop a study manifest (CSV with recording, data and layout columns) with them",
+                layouts.len()
+            ),
+        ));
+    };
+    let mut names: Vec<String> = Vec::new();
+    let mut out = CsvOut::new(["recording", "data", "layout"]);
+    for (file, kind) in files {
+        let activity = matches!(
+            kind,
+            InputKind::Table(FileKind::SpikeList | FileKind::RoiTraces)
+                | InputKind::Wav
+                | InputKind::VoltageSamples
+        );
+        if !activity {
+            continue;
+        }
+        let stem = file.rsplit(['/', '\\']).next().unwrap_or(file);
+        let stem = stem.rsplit_once('.').map_or(stem, |(s, _)| s);
+        let mut name: String = stem
+            .chars()
+            .map(|c| {
+                if c.is_ascii_alphanumeric() || "._-".contains(c) {
+                    c
+                } else {
+                    '_'
+                }
+            })
+            .take(crate::import::MAX_RECORDING_NAME - 4)
+            .collect();
+        if name.is_empty() || name.starts_with('.') {
+            name = format!("r{name}");
+        }
+        let base = name.clone();
+        let mut k = 2;
+        while names.contains(&name) {
+            name = format!("{base}-{k}");
+            k += 1;
+        }
+        out.row([name.as_str(), file.as_str(), layout]);
+        names.push(name);
+    }
+    if names.is_empty() {
+        return Err(StudyError::new(
+            place(),
+            "expected recordings (spike lists, ROI traces or voltage) among the dropped files, found none",
+        ));
+    }
+    Ok(out.finish())
 }
