@@ -82,7 +82,7 @@ fn notebook_round_trip_gives_the_same_settings_and_results() {
     wb.analyze(settings.analysis.clone(), &mut |_, _| {})
         .unwrap();
     wb.settings.view.burst = 3;
-    let text = wb.notebook_json();
+    let text = wb.notebook_json(None);
     let opened = open_notebook("saved.ringline.json", text.as_bytes()).unwrap();
     assert_eq!(opened.files[0].sha256, sha256_hex(&spikes));
     assert_eq!(opened.files[1].sha256, sha256_hex(&layout));
@@ -100,6 +100,72 @@ fn notebook_round_trip_gives_the_same_settings_and_results() {
         .message
         .starts_with("notes.json: expected a ringline notebook"));
     assert!(err.message.contains("line 1, column"));
+}
+
+/// A schema-1 notebook (written by the previous version, committed as a fixture) opens as
+/// schema 2 without a study and gives the same results as its files analysed afresh; a
+/// schema-2 notebook keeps the study it was given.
+#[test]
+fn schema_1_notebooks_migrate_and_schema_2_keeps_the_study() {
+    use ringline::report::workbook::{StudyNotebook, StudyRecording};
+    let old = std::fs::read("../tests/fixtures/notebook-schema-1.ringline.json").unwrap();
+    let old_json: serde_json::Value = serde_json::from_slice(&old).unwrap();
+    assert_eq!(old_json["schema"], 1);
+    let opened = open_notebook("old.ringline.json", &old).unwrap();
+    assert_eq!((opened.schema, opened.study.is_none()), (2, true));
+    assert_eq!(opened.settings.analysis.fronts.resamples, 200);
+    let wb = Workbook::from_notebook(&opened, &mut |_, _| {}).unwrap();
+    // The results it carried are the ones its files and settings give today (both read back
+    // from text by the same parser, so the numbers compare digit for digit).
+    let report: serde_json::Value =
+        serde_json::from_str(&serde_json::to_string(wb.report().unwrap()).unwrap()).unwrap();
+    assert_eq!(report["summary"], old_json["results"]["summary"]);
+
+    let manifest = ringline::import::read_manifest(
+        b"recording,data,layout,condition\nr1,spikes.csv,layout.csv,control\nr2,b.csv,layout.csv,drug\n",
+        "study.csv",
+        Default::default(),
+    )
+    .unwrap();
+    let status = ringline::study::RecordingStatus::analysed(
+        &manifest,
+        &manifest.rows[0],
+        wb.report().unwrap(),
+    );
+    let study = StudyNotebook {
+        manifest: manifest.clone(),
+        recordings: vec![
+            Some(StudyRecording {
+                status_json: status.to_json(),
+                files: wb
+                    .exports()
+                    .unwrap()
+                    .into_iter()
+                    .map(|(n, t)| (n.to_string(), t))
+                    .collect(),
+            }),
+            None,
+        ],
+        open: Some(0),
+    };
+    let text = wb.notebook_json(Some(&study));
+    let again = open_notebook("new.ringline.json", text.as_bytes()).unwrap();
+    assert_eq!(again.schema, 2);
+    assert_eq!(again.study.as_ref(), Some(&study));
+    // A study whose entries do not match its manifest is refused.
+    let mut broken = study.clone();
+    broken.recordings.pop();
+    let text = wb.notebook_json(Some(&broken));
+    let err = open_notebook("bad.ringline.json", text.as_bytes()).unwrap_err();
+    assert!(
+        err.message.contains("one study entry per manifest row"),
+        "{}",
+        err.message
+    );
+    // A newer schema is refused with words, not a parse error.
+    let newer = text.replacen("\"schema\": 2", "\"schema\": 3", 1);
+    let err = open_notebook("newer.ringline.json", newer.as_bytes()).unwrap_err();
+    assert!(err.message.contains("newer ringline"), "{}", err.message);
 }
 
 /// The activation figure puts one read-out point at every activation, labelled with its

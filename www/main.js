@@ -329,6 +329,16 @@ async function openNotebook(entry) {
   setBusy(true, 'Re-opening the notebook…');
   try {
     const result = await call('openNotebook', { name: entry.name, bytes: entry.bytes.slice(0) }, showProgress);
+    const study = await call('notebookStudy', { name: entry.name, bytes: entry.bytes.slice(0) });
+    state.study = study && {
+      manifest: study.manifest,
+      files: [],
+      names: [],
+      matches: study.manifest.rows.map(() => ({ problem: 'its files are not open: drop the study\'s files again to analyse or open it' })),
+      entries: study.recordings.map((e) => e && { status: JSON.parse(e.status_json), status_json: e.status_json, files: e.files }),
+      open: null,
+    };
+    renderStudy();
     state.settings = result.settings;
     state.inspection = result.inspection;
     state.report = result.report;
@@ -884,8 +894,19 @@ function exportSvg(event) {
   if (svg) download(`${state.fileStem}-${name}.svg`, svg, 'image/svg+xml');
 }
 
+/** The study as a notebook keeps it: manifest, each recording's status and output files. */
+function studyForNotebook() {
+  const study = state.study;
+  if (!study) return null;
+  return {
+    manifest: study.manifest,
+    recordings: study.entries.map((e) => (e ? { status_json: e.status_json, files: e.files } : null)),
+    open: study.open,
+  };
+}
+
 async function saveNotebook() {
-  const text = await call('notebook');
+  const text = await call('notebook', { study: studyForNotebook() });
   download(`${state.fileStem}.ringline.json`, text, 'application/json');
 }
 

@@ -410,10 +410,20 @@ impl WasmWorkbook {
         self::study_entry(&manifest, manifest_row, result)
     }
 
-    /// The notebook file (JSON text).
+    /// The notebook file (JSON text), holding `study` (a `StudyNotebook` object) when the
+    /// page has one.
     #[wasm_bindgen(js_name = notebookJson)]
-    pub fn notebook_json(&self) -> String {
-        self.inner.notebook_json()
+    pub fn notebook_json(&self, study: JsValue) -> Result<String, JsValue> {
+        let study: Option<crate::report::workbook::StudyNotebook> =
+            if study.is_null() || study.is_undefined() {
+                None
+            } else {
+                Some(
+                    serde_wasm_bindgen::from_value(study)
+                        .map_err(|e| JsValue::from_str(&format!("study: {e}")))?,
+                )
+            };
+        Ok(self.inner.notebook_json(study.as_ref()))
     }
 }
 
@@ -671,6 +681,13 @@ pub fn analyze_study_recording(
         manifest_row,
         result.as_ref().map_err(Clone::clone),
     )
+}
+
+/// The study a notebook file holds (schema 2), or null.
+#[wasm_bindgen(js_name = notebookStudy)]
+pub fn notebook_study(name: &str, bytes: &[u8]) -> Result<JsValue, JsValue> {
+    let nb = open_notebook(name, bytes).map_err(|e| message(&e))?;
+    to_js(&nb.study)
 }
 
 /// The entry of a study recording that cannot run (its files were not dropped):

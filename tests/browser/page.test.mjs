@@ -235,7 +235,7 @@ test('a saved notebook re-opens with the same settings and results', async () =>
   const summaryText = await page.textContent('#summary-table');
   const notebook = await downloadText(page, '#save-notebook');
   const parsed = JSON.parse(notebook);
-  assert.equal(parsed.schema, 1);
+  assert.equal(parsed.schema, 2);
   assert.equal(parsed.settings.analysis.fronts.resamples, 300);
   assert.equal(parsed.results.summary.median_speed_mm_s, median);
   // The SHA-256 of the embedded file is that of the demo file (FIPS 180-4 digest by node:crypto).
@@ -422,11 +422,27 @@ test('a study of 6 recordings dropped with its manifest gives the command line\'
   const saved = {};
   page.on('download', async (d) => { saved[d.suggestedFilename()] = readFileSync(await d.path(), 'utf8'); });
   await page.click('#study-save');
-  await page.waitForFunction(() => true);
   for (let k = 0; k < 100 && Object.keys(saved).length < 4; k += 1) await page.waitForTimeout(100);
   for (const table of ['status.csv', 'recordings.csv', 'bursts.csv', 'fronts.csv']) {
     assert.equal(saved[table], readFileSync(join(dir, 'batch', table), 'utf8'), `${table} differs from ringline batch`);
   }
+
+  // The notebook keeps the study: re-opened in a fresh page, the study table and its saved
+  // tables come back without the recordings.
+  await page.getByRole('button', { name: 'Open recording strip-16-1 in the steps below' }).click();
+  await analyse(page);
+  const notebook = await downloadText(page, '#save-notebook');
+  assert.equal(JSON.parse(notebook).study.recordings.length, 6);
+  const second = await openPage(base);
+  await dropFiles(second.page, [{ name: 'study.ringline.json', text: notebook }]);
+  await second.page.locator('#study').waitFor({ state: 'visible' });
+  await second.page.waitForFunction(() => !document.getElementById('study-save').disabled);
+  const again = {};
+  second.page.on('download', async (d) => { again[d.suggestedFilename()] = readFileSync(await d.path(), 'utf8'); });
+  await second.page.click('#study-save');
+  for (let k = 0; k < 100 && Object.keys(again).length < 4; k += 1) await second.page.waitForTimeout(100);
+  assert.equal(again['recordings.csv'], saved['recordings.csv']);
+  await second.context.close();
 
   // Opening one recording shows it in the steps below, with the command line's exports.
   await page.getByRole('button', { name: 'Open recording ring-24-2 in the steps below' }).click();
@@ -435,6 +451,20 @@ test('a study of 6 recordings dropped with its manifest gives the command line\'
   assert.equal(await summaryValue(page, 'median speed'), summary.summary.median_speed_mm_s);
   const fronts = await downloadText(page, '[data-export="fronts_csv"]');
   assert.equal(fronts, readFileSync(join(dir, 'batch/recordings/ring-24-2/fronts.csv'), 'utf8'));
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
+test('a notebook of schema 1 (the previous version) opens with its settings and results', async () => {
+  const fixture = join(repo, 'tests/fixtures/notebook-schema-1.ringline.json');
+  const old = JSON.parse(readFileSync(fixture, 'utf8'));
+  const { page, context, errors } = await openPage(base);
+  await dropFiles(page, [{ name: 'old.ringline.json', path: fixture }]);
+  await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
+  assert.equal(await page.inputValue('#burst-form [name=resamples]'), String(old.settings.analysis.fronts.resamples));
+  assert.equal(await summaryValue(page, 'median speed'), old.results.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'bursts'), old.results.summary.burst_count);
+  assert.ok(await page.locator('#study').isHidden());
   assert.deepEqual(errors, []);
   await context.close();
 });

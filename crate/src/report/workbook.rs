@@ -19,7 +19,8 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
 /// Version of the notebook file's layout; bump it when a key changes meaning.
-pub const NOTEBOOK_SCHEMA: u32 = 1;
+/// Schema 2 added `study`; schema-1 files are read as schema 2 without a study.
+pub const NOTEBOOK_SCHEMA: u32 = 2;
 
 /// Files larger than this are referred to by name and SHA-256 only, not embedded.
 pub const EMBED_LIMIT_BYTES: usize = 64 << 20;
@@ -88,6 +89,27 @@ impl Default for ViewSettings {
     }
 }
 
+/// The study a notebook holds: the manifest, and each recording's status and output files
+/// (not its recording: re-analysing one needs its files dropped again, and a study of many
+/// large recordings still makes a small notebook).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StudyNotebook {
+    pub manifest: crate::import::Manifest,
+    /// One per manifest row, in order; `None` for a recording not analysed yet.
+    pub recordings: Vec<Option<StudyRecording>>,
+    /// The manifest row open in the steps, if any.
+    pub open: Option<usize>,
+}
+
+/// One study recording's result as the notebook keeps it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StudyRecording {
+    /// Text of its `status.json` ([`crate::study::RecordingStatus`]).
+    pub status_json: String,
+    /// Its output files, (name, text), as `ringline analyze --out` writes them.
+    pub files: Vec<(String, String)>,
+}
+
 /// The notebook file: inputs, settings and results in one JSON document.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Notebook<'a> {
@@ -96,6 +118,7 @@ pub struct Notebook<'a> {
     pub files: Vec<NotebookFile>,
     pub settings: &'a StepSettings,
     pub results: Option<&'a AnalysisReport>,
+    pub study: Option<&'a StudyNotebook>,
 }
 
 /// A notebook file as read back: the results are recomputed from the files and settings.
@@ -105,6 +128,9 @@ pub struct OpenedNotebook {
     pub files: Vec<NotebookFile>,
     #[serde(default)]
     pub settings: StepSettings,
+    /// Schema 2: the study, when the page held one.
+    #[serde(default)]
+    pub study: Option<StudyNotebook>,
 }
 
 /// Why a notebook file cannot be opened.
@@ -142,11 +168,25 @@ pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, Noteboo
             e.column()
         ))
     })?;
-    if nb.schema != NOTEBOOK_SCHEMA {
-        return Err(fail(format!(
-            "expected notebook schema {NOTEBOOK_SCHEMA}, found schema {}",
-            nb.schema
-        )));
+    let mut nb = nb;
+    match nb.schema {
+        // Schema 1 differs only in having no study: migrate by reading it as schema 2.
+        1 => nb.schema = NOTEBOOK_SCHEMA,
+        NOTEBOOK_SCHEMA => {}
+        other => {
+            return Err(fail(format!(
+                "expected a notebook of schema 1 or {NOTEBOOK_SCHEMA}, found schema {other}: it was written by a newer ringline"
+            )))
+        }
+    }
+    if let Some(study) = &nb.study {
+        if study.recordings.len() != study.manifest.rows.len() {
+            return Err(fail(format!(
+                "expected one study entry per manifest row ({}), found {}",
+                study.manifest.rows.len(),
+                study.recordings.len()
+            )));
+        }
     }
     for role in ["activity", "layout"] {
         let f = nb.files.iter().find(|f| f.role == role).ok_or_else(|| {
@@ -449,8 +489,8 @@ impl Workbook {
     }
 
     /// The notebook file (JSON): both inputs with their SHA-256 (embedded when small enough),
-    /// every setting and the results.
-    pub fn notebook_json(&self) -> String {
+    /// every setting, the results, and the study the page holds, if any.
+    pub fn notebook_json(&self, study: Option<&StudyNotebook>) -> String {
         let file = |role: &str, (name, bytes): &(String, Vec<u8>)| NotebookFile {
             role: role.into(),
             name: name.clone(),
@@ -469,6 +509,7 @@ impl Workbook {
             ],
             settings: &self.settings,
             results: self.report.as_ref(),
+            study,
         };
         serde_json::to_string_pretty(&nb).unwrap_or_else(|e| {
             format!("{{\"error\": \"the notebook could not be written: {e}\"}}")
