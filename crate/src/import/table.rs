@@ -478,8 +478,20 @@ fn first_content_line(bytes: &[u8]) -> Option<(u64, &[u8])> {
 }
 
 /// Tab if the header has one, else comma, else semicolon, else comma (a single column).
+/// Characters inside quoted names do not count.
 fn detect_delimiter(header: &[u8]) -> u8 {
-    let count = |d: u8| header.iter().filter(|&&b| b == d).count();
+    let mut quoted = false;
+    let unquoted: Vec<u8> = header
+        .iter()
+        .copied()
+        .filter(|&b| {
+            if b == b'"' {
+                quoted = !quoted;
+            }
+            !quoted
+        })
+        .collect();
+    let count = |d: u8| unquoted.iter().filter(|&&b| b == d).count();
     if count(b'\t') > 0 {
         b'\t'
     } else if count(b',') > 0 {

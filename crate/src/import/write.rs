@@ -7,6 +7,7 @@
 use super::spikes::SiteSpikes;
 use super::table::TimeUnit;
 use super::traces::RoiSeries;
+use crate::csv_out::CsvOut;
 use crate::recording::Site;
 use std::fmt::Write;
 
@@ -28,64 +29,51 @@ pub fn write_spike_list_as(
         .flat_map(|s| s.times_s.iter().map(move |&t| (t, s.site.as_str())))
         .collect();
     rows.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let mut out = String::with_capacity(rows.len() * 16 + 16);
-    let _ = writeln!(out, "site,time_{}", unit.symbol());
+    let mut out = CsvOut::new(["site".to_string(), format!("time_{}", unit.symbol())]);
     let scale = 1.0 / unit.seconds();
+    let mut time = String::new();
     for (t, site) in rows {
         let value = if unit == TimeUnit::Seconds {
             t
         } else {
             t * scale
         };
+        time.clear();
         let _ = match decimals {
-            Some(d) => writeln!(out, "{},{:.d$}", field(site), value),
-            None => writeln!(out, "{},{}", field(site), value),
+            Some(d) => write!(time, "{value:.d$}"),
+            None => write!(time, "{value}"),
         };
+        out.row([site, time.as_str()]);
     }
-    out
+    out.finish()
 }
 
 /// Writes a layout as CSV with the header `site,x_um,y_um`.
 pub fn write_layout(sites: &[Site]) -> String {
-    let mut out = String::from("site,x_um,y_um\n");
+    let mut out = CsvOut::new(["site", "x_um", "y_um"]);
     for s in sites {
-        let _ = writeln!(out, "{},{},{}", field(&s.id), s.x_um, s.y_um);
+        out.row([s.id.clone(), s.x_um.to_string(), s.y_um.to_string()]);
     }
-    out
+    out.finish()
 }
 
 /// Writes ROI traces as CSV with a `time_s` column and one column per ROI; NaN is written
 /// as an empty cell.
 pub fn write_roi_traces(time_s: &[f64], rois: &[RoiSeries]) -> String {
-    let mut out = String::from("time_s");
-    for r in rois {
-        out.push(',');
-        out.push_str(&field(&r.roi));
-    }
-    out.push('\n');
+    let mut out = CsvOut::new(std::iter::once("time_s").chain(rois.iter().map(|r| r.roi.as_str())));
+    let mut row: Vec<String> = Vec::with_capacity(rois.len() + 1);
     for (i, t) in time_s.iter().enumerate() {
-        let _ = write!(out, "{t}");
+        row.clear();
+        row.push(t.to_string());
         for r in rois {
-            out.push(',');
-            if let Some(v) = r.values.get(i).filter(|v| !v.is_nan()) {
-                let _ = write!(out, "{v}");
-            }
+            row.push(
+                r.values
+                    .get(i)
+                    .filter(|v| !v.is_nan())
+                    .map_or(String::new(), |v| v.to_string()),
+            );
         }
-        out.push('\n');
+        out.row(&row);
     }
-    out
-}
-
-/// Quotes a text field when the readers would otherwise misread it: a delimiter, a quote,
-/// a line break, or a leading `#` (which would start a comment line).
-fn field(text: &str) -> String {
-    let needs_quotes = text.starts_with('#')
-        || text
-            .chars()
-            .any(|c| matches!(c, ',' | '\t' | ';' | '"' | '\n' | '\r'));
-    if needs_quotes {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_string()
-    }
+    out.finish()
 }

@@ -2,6 +2,7 @@
 //! so the command line and the page export the same bytes.
 
 use super::TrackSummary;
+use crate::csv_out::{number, CsvOut};
 use crate::fronts::{Analysis, AnalysisSettings, BurstResult, Summary};
 use crate::geometry::TrackFit;
 use crate::place::Notice;
@@ -51,122 +52,162 @@ impl AnalysisReport {
 
     /// `bursts.csv`: one row per network burst.
     pub fn bursts_csv(&self) -> String {
-        let mut out = String::from(
-            "burst,start_s,end_s,peak_s,spike_count,site_count,active_sites,leading_sites,recruit_10_ms,recruit_50_ms,recruit_90_ms,retimed_sites,outlier_sites,outcome,front_model,no_front_reason\n",
-        );
+        let mut out = CsvOut::new([
+            "burst",
+            "start_s",
+            "end_s",
+            "peak_s",
+            "spike_count",
+            "site_count",
+            "active_sites",
+            "leading_sites",
+            "recruit_10_ms",
+            "recruit_50_ms",
+            "recruit_90_ms",
+            "retimed_sites",
+            "outlier_sites",
+            "outcome",
+            "front_model",
+            "no_front_reason",
+        ]);
         for b in &self.bursts {
-            let recruit = |k: usize| {
-                b.order
-                    .recruitment_ms
-                    .map_or(String::new(), |r| r[k].to_string())
-            };
-            let _ = writeln!(
-                out,
-                "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
-                b.burst,
-                b.start_s,
-                b.end_s,
-                b.peak_s,
-                b.spike_count,
-                b.site_count,
-                b.order.active_sites,
-                csv_text(&b.order.leading_sites.join(";")),
+            let recruit = |k: usize| number(b.order.recruitment_ms.map(|r| r[k]));
+            out.row([
+                b.burst.to_string(),
+                b.start_s.to_string(),
+                b.end_s.to_string(),
+                b.peak_s.to_string(),
+                b.spike_count.to_string(),
+                b.site_count.to_string(),
+                b.order.active_sites.to_string(),
+                b.order.leading_sites.join(";"),
                 recruit(0),
                 recruit(1),
                 recruit(2),
-                b.retimed_sites,
-                b.outlier_sites,
-                b.no_front_kind.map_or("front", |k| k.as_str()),
-                b.front.as_ref().map_or("", |f| f.model.as_str()),
-                csv_text(b.no_front_reason.as_deref().unwrap_or(""))
-            );
+                b.retimed_sites.to_string(),
+                b.outlier_sites.to_string(),
+                b.no_front_kind.map_or("front", |k| k.as_str()).to_string(),
+                b.front
+                    .as_ref()
+                    .map_or(String::new(), |f| f.model.to_string()),
+                b.no_front_reason.clone().unwrap_or_default(),
+            ]);
         }
-        out
+        out.finish()
     }
 
     /// `fronts.csv`: one row per burst with a front.
     pub fn fronts_csv(&self) -> String {
-        let mut out = String::from(
-            "burst,model,speed_mm_s,speed_ci95_low_mm_s,speed_ci95_high_mm_s,origin_site,origin_along_um,direction_x,direction_y,rotation,travel,sites_used,r2,residual_rms_ms,timing_sd_ms,transit_ms,start_s,reach_um,available_um,failed,near_resolution_limit\n",
-        );
-        let opt = |v: Option<f64>| v.map_or(String::new(), |x| x.to_string());
+        let mut out = CsvOut::new([
+            "burst",
+            "model",
+            "speed_mm_s",
+            "speed_ci95_low_mm_s",
+            "speed_ci95_high_mm_s",
+            "origin_site",
+            "origin_along_um",
+            "direction_x",
+            "direction_y",
+            "rotation",
+            "travel",
+            "sites_used",
+            "r2",
+            "residual_rms_ms",
+            "timing_sd_ms",
+            "transit_ms",
+            "start_s",
+            "reach_um",
+            "available_um",
+            "failed",
+            "near_resolution_limit",
+        ]);
         for b in &self.bursts {
             let Some(f) = &b.front else { continue };
-            let _ = writeln!(
-                out,
-                "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
-                b.burst,
-                f.model,
-                f.speed_mm_s,
-                f.speed_ci95_mm_s[0],
-                f.speed_ci95_mm_s[1],
-                csv_text(&f.origin_site),
-                opt(f.origin_along_um),
-                opt(f.direction_xy.map(|d| d[0])),
-                opt(f.direction_xy.map(|d| d[1])),
-                f.rotation.as_deref().unwrap_or(""),
-                f.travel.as_deref().unwrap_or(""),
-                f.sites_used,
-                f.r2,
-                f.residual_rms_ms,
-                f.timing_sd_ms,
-                f.transit_ms,
-                f.start_s,
-                f.reach_um,
-                f.available_um,
-                f.failed,
-                f.near_resolution_limit
-            );
+            out.row([
+                b.burst.to_string(),
+                f.model.to_string(),
+                f.speed_mm_s.to_string(),
+                f.speed_ci95_mm_s[0].to_string(),
+                f.speed_ci95_mm_s[1].to_string(),
+                f.origin_site.clone(),
+                number(f.origin_along_um),
+                number(f.direction_xy.map(|d| d[0])),
+                number(f.direction_xy.map(|d| d[1])),
+                f.rotation.clone().unwrap_or_default(),
+                f.travel.clone().unwrap_or_default(),
+                f.sites_used.to_string(),
+                f.r2.to_string(),
+                f.residual_rms_ms.to_string(),
+                f.timing_sd_ms.to_string(),
+                f.transit_ms.to_string(),
+                f.start_s.to_string(),
+                f.reach_um.to_string(),
+                f.available_um.to_string(),
+                f.failed.to_string(),
+                f.near_resolution_limit.to_string(),
+            ]);
         }
-        out
+        out.finish()
     }
 
     /// `activation.csv`: long format, one row per site activation in a burst.
     pub fn activation_csv(&self) -> String {
-        let mut out =
-            String::from("burst,site,along_um,x_um,y_um,time_s,first_spike_s,used,status\n");
+        let mut out = CsvOut::new([
+            "burst",
+            "site",
+            "along_um",
+            "x_um",
+            "y_um",
+            "time_s",
+            "first_spike_s",
+            "used",
+            "status",
+        ]);
         for b in &self.bursts {
             for a in &b.activations {
-                let _ = writeln!(
-                    out,
-                    "{},{},{},{},{},{},{},{},{}",
-                    b.burst,
-                    csv_text(&a.site),
-                    a.along_um.map_or(String::new(), |v| v.to_string()),
-                    a.x_um,
-                    a.y_um,
-                    a.time_s,
-                    a.first_spike_s,
-                    a.used,
-                    a.status.as_str()
-                );
+                out.row([
+                    b.burst.to_string(),
+                    a.site.clone(),
+                    number(a.along_um),
+                    a.x_um.to_string(),
+                    a.y_um.to_string(),
+                    a.time_s.to_string(),
+                    a.first_spike_s.to_string(),
+                    a.used.to_string(),
+                    a.status.as_str().to_string(),
+                ]);
             }
         }
-        out
+        out.finish()
     }
 
     /// `leaders.csv`: one row per site that activated in some burst, with how often it led.
     pub fn leaders_csv(&self) -> String {
-        let mut out = String::from(
-            "site,x_um,y_um,bursts_active,bursts_leading,lead_fraction,lead_ci95_low,lead_ci95_high,median_rank_fraction\n",
-        );
-        let opt = |v: Option<f64>| v.map_or(String::new(), |x| x.to_string());
+        let mut out = CsvOut::new([
+            "site",
+            "x_um",
+            "y_um",
+            "bursts_active",
+            "bursts_leading",
+            "lead_fraction",
+            "lead_ci95_low",
+            "lead_ci95_high",
+            "median_rank_fraction",
+        ]);
         for r in &self.summary.leaders {
-            let _ = writeln!(
-                out,
-                "{},{},{},{},{},{},{},{},{}",
-                csv_text(&r.site),
-                r.x_um,
-                r.y_um,
-                r.bursts_active,
-                r.bursts_leading,
-                r.lead_fraction,
-                opt(r.lead_fraction_ci95.map(|c| c[0])),
-                opt(r.lead_fraction_ci95.map(|c| c[1])),
-                opt(r.median_rank_fraction)
-            );
+            out.row([
+                r.site.clone(),
+                r.x_um.to_string(),
+                r.y_um.to_string(),
+                r.bursts_active.to_string(),
+                r.bursts_leading.to_string(),
+                r.lead_fraction.to_string(),
+                number(r.lead_fraction_ci95.map(|c| c[0])),
+                number(r.lead_fraction_ci95.map(|c| c[1])),
+                number(r.median_rank_fraction),
+            ]);
         }
-        out
+        out.finish()
     }
 
     /// Every file `ringline analyze --out` writes, as (name, contents): the command line,
@@ -357,14 +398,5 @@ impl AnalysisReport {
             }
         }
         out
-    }
-}
-
-/// Quotes a CSV field when it holds a comma, quote or line break.
-pub(super) fn csv_text(text: &str) -> String {
-    if text.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_string()
     }
 }

@@ -13,21 +13,27 @@ pub use inspection::{inspect, Inspection, SiteRow, TrackSummary};
 
 /// `electrodes.csv`: one row per channel of a voltage recording.
 pub fn electrodes_csv(rows: &[crate::detect::voltage::ElectrodeRow]) -> String {
-    let mut out =
-        String::from("channel,site,noise_uv,spike_count,rate_hz,saturated_fraction,status\n");
+    let mut out = crate::csv_out::CsvOut::new([
+        "channel",
+        "site",
+        "noise_uv",
+        "spike_count",
+        "rate_hz",
+        "saturated_fraction",
+        "status",
+    ]);
     for r in rows {
-        out.push_str(&format!(
-            "{},{},{},{},{},{},{}\n",
-            r.channel,
-            analysis::csv_text(&r.site),
-            r.noise_uv,
-            r.spike_count,
-            r.rate_hz,
-            r.saturated_fraction,
-            r.status
-        ));
+        out.row([
+            r.channel.to_string(),
+            r.site.clone(),
+            r.noise_uv.to_string(),
+            r.spike_count.to_string(),
+            r.rate_hz.to_string(),
+            r.saturated_fraction.to_string(),
+            r.status.to_string(),
+        ]);
     }
-    out
+    out.finish()
 }
 
 /// The electrode report as text, one line per electrode that is not `ok`, and a count.

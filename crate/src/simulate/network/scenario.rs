@@ -351,22 +351,26 @@ pub fn in_degree_sweep(
 
 /// An in-degree sweep as CSV, one row per target mean in-degree.
 pub fn in_degree_sweep_csv(points: &[InDegreePoint]) -> String {
-    let mut out = String::from(
-        "target_in_degree,neurons,synapses,mean_in_degree,components,giant_component_fraction\n",
-    );
+    let mut out = crate::csv_out::CsvOut::new([
+        "target_in_degree",
+        "neurons",
+        "synapses",
+        "mean_in_degree",
+        "components",
+        "giant_component_fraction",
+    ]);
     for p in points {
         let g = &p.graph;
-        out += &format!(
-            "{},{},{},{:.6},{},{:.6}\n",
-            p.target_in_degree,
-            g.neurons,
-            g.synapses,
-            g.mean_in_degree,
-            g.components,
-            g.giant_component_fraction
-        );
+        out.row([
+            p.target_in_degree.to_string(),
+            g.neurons.to_string(),
+            g.synapses.to_string(),
+            format!("{:.6}", g.mean_in_degree),
+            g.components.to_string(),
+            format!("{:.6}", g.giant_component_fraction),
+        ]);
     }
-    out
+    out.finish()
 }
 
 /// Neurons (the neuron itself included) whose earliest first spike times a sampled neuron in
