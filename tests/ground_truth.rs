@@ -105,8 +105,14 @@ fn evaluate(s: &FrontScenario) -> Outcome {
             (Some(d), _) => f
                 .direction_xy
                 .is_some_and(|e| e[0] * d[0] + e[1] * d[1] > 0.9),
-            (None, Some(r)) => f.rotation.as_deref() == Some(r.as_str()),
-            (None, None) => f.model.ends_with("two_way") || f.model == "point_source",
+            (None, Some(r)) => f.rotation == Some(*r),
+            (None, None) => {
+                use ringline::fronts::FrontModel;
+                matches!(
+                    f.model,
+                    FrontModel::LineTwoWay | FrontModel::RingTwoWay | FrontModel::PointSource
+                )
+            }
         };
         dir_ok += usize::from(right);
         if t.direction_xy.is_none() {

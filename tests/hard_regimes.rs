@@ -194,7 +194,7 @@ fn measure(recipe: &Recipe) -> Measured {
             );
         }
         m.covered += usize::from(f.speed_ci95_mm_s[0] <= v && v <= f.speed_ci95_mm_s[1]);
-        m.model_right += usize::from(f.model == model_name(t.fronts));
+        m.model_right += usize::from(f.model.to_string() == model_name(t.fronts));
         if let Some(d) = t.direction {
             m.direction_asked += 1;
             m.direction_right += usize::from(
@@ -205,7 +205,7 @@ fn measure(recipe: &Recipe) -> Measured {
         if let Some(r) = t.rotation {
             m.direction_asked += 1;
             let want = if r > 0 { "ccw" } else { "cw" };
-            m.direction_right += usize::from(f.rotation.as_deref() == Some(want));
+            m.direction_right += usize::from(f.rotation.map(|r| r.as_str()) == Some(want));
         }
         if let Some(o) = t.origin_xy {
             m.origin_asked += 1;
@@ -507,7 +507,7 @@ fn imaging_at_20_and_50_frames_per_second() {
             let v = t.speed_mm_s.unwrap();
             m.speed_errors.push((f.speed_mm_s / v - 1.0).abs());
             m.covered += usize::from(f.speed_ci95_mm_s[0] <= v && v <= f.speed_ci95_mm_s[1]);
-            m.model_right += usize::from(f.model == "line_one_way");
+            m.model_right += usize::from(f.model.to_string() == "line_one_way");
             m.direction_asked += 1;
             let d = t.direction.unwrap();
             m.direction_right += usize::from(

@@ -204,13 +204,17 @@ pub fn voltage_recording(
             ),
         ));
     }
-    for e in found.electrodes.iter().filter(|e| e.status != "ok") {
+    for e in found
+        .electrodes
+        .iter()
+        .filter(|e| e.status != detect::voltage::ElectrodeStatus::Ok)
+    {
         recording.notices.push(place::Notice::new(
             place::Place::site(&e.site),
             format!(
                 "electrode on channel {}: {} (noise {:.2} µV, {} spikes, {:.3} Hz)",
                 e.channel,
-                e.status.replace('_', " "),
+                e.status.words(),
                 e.noise_uv,
                 e.spike_count,
                 e.rate_hz

@@ -145,7 +145,46 @@ pub struct ElectrodeRow {
     /// samples at the limits), `no_spikes` (noise only), or `rate_outlier` (rate more than
     /// 3 robust SDs from the median in log10, among electrodes with spikes). Thresholds are
     /// common practice, no source.
-    pub status: String,
+    pub status: ElectrodeStatus,
+}
+
+/// What an electrode looks like after detection. Thresholds are common practice, no source.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ElectrodeStatus {
+    /// Usable.
+    Ok,
+    /// No noise at all: disconnected or shorted.
+    Flat,
+    /// Over 1% of samples at the int16 limits.
+    Saturated,
+    /// Noise only.
+    NoSpikes,
+    /// Rate more than 3 robust SDs from the median in log10, among electrodes with spikes.
+    RateOutlier,
+}
+
+impl ElectrodeStatus {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ElectrodeStatus::Ok => "ok",
+            ElectrodeStatus::Flat => "flat",
+            ElectrodeStatus::Saturated => "saturated",
+            ElectrodeStatus::NoSpikes => "no_spikes",
+            ElectrodeStatus::RateOutlier => "rate_outlier",
+        }
+    }
+
+    /// In words, for messages.
+    pub fn words(self) -> String {
+        self.as_str().replace('_', " ")
+    }
+}
+
+impl std::fmt::Display for ElectrodeStatus {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
 }
 
 /// What detection on a voltage file found: spike times per channel and the electrode report.
@@ -272,13 +311,13 @@ pub fn detect_voltage_spikes(
             let rate_hz = trains[c].len() as f64 / duration;
             let saturated_fraction = saturated[c] as f64 / total as f64;
             let status = if noise_uv <= 0.0 {
-                "flat"
+                ElectrodeStatus::Flat
             } else if saturated_fraction > 0.01 {
-                "saturated"
+                ElectrodeStatus::Saturated
             } else if trains[c].is_empty() {
-                "no_spikes"
+                ElectrodeStatus::NoSpikes
             } else {
-                "ok"
+                ElectrodeStatus::Ok
             };
             ElectrodeRow {
                 channel: c + 1,
@@ -290,22 +329,22 @@ pub fn detect_voltage_spikes(
                 spike_count: trains[c].len(),
                 rate_hz,
                 saturated_fraction,
-                status: status.to_string(),
+                status,
             }
         })
         .collect();
     let logs: Vec<f64> = rows
         .iter()
-        .filter(|r| r.status == "ok")
+        .filter(|r| r.status == ElectrodeStatus::Ok)
         .map(|r| libm::log10(r.rate_hz))
         .collect();
     if logs.len() >= 4 {
         let centre = crate::stats::median(&logs).unwrap_or(0.0);
         let spread = crate::stats::mad_sd(&logs).unwrap_or(0.0);
         if spread > 0.0 {
-            for r in rows.iter_mut().filter(|r| r.status == "ok") {
+            for r in rows.iter_mut().filter(|r| r.status == ElectrodeStatus::Ok) {
                 if (libm::log10(r.rate_hz) - centre).abs() > 3.0 * spread {
-                    r.status = "rate_outlier".into();
+                    r.status = ElectrodeStatus::RateOutlier;
                 }
             }
         }

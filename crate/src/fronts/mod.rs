@@ -14,7 +14,8 @@ pub use activation::{activation_times, activation_window, ActivationRule, Activa
 pub use consensus::{settle, ActivationStatus, Settled};
 pub use models::{
     choose_model, distance_from_origin, fit_chosen, fit_front, model_name, Estimator, FittedFront,
-    FrontModel, FrontPoints, FrontSettings, ModelChoice, ModelScore, NoFront, NoFrontKind, Origin,
+    FrontModel, FrontPoints, FrontSettings, LineTravel, ModelChoice, ModelScore, NoFront,
+    NoFrontKind, Origin, RingTravel,
 };
 pub use order::{BurstOrder, LeaderCount, OrderConsistency, OrderSettings};
 /// Angle of a point seen from a ring track's centre, radians (0 for other tracks).
@@ -71,7 +72,7 @@ pub struct Activation {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct FrontReport {
     /// `line_one_way`, `line_two_way`, `ring_one_way`, `ring_two_way`, `plane_wave`, `point_source`.
-    pub model: String,
+    pub model: FrontModel,
     pub speed_mm_s: f64,
     pub speed_ci95_mm_s: [f64; 2],
     pub speed_ci95_analytic_mm_s: Option<[f64; 2]>,
@@ -83,9 +84,9 @@ pub struct FrontReport {
     /// Unit vector of travel in the layout's axes, for one-way line and plane-wave fronts.
     pub direction_xy: Option<[f64; 2]>,
     /// `ccw` or `cw` for one-way ring fronts (layout axes), `both` for two-way ring fronts.
-    pub rotation: Option<String>,
+    pub rotation: Option<RingTravel>,
     /// `increasing` or `decreasing` track coordinate, for one-way line fronts.
-    pub travel: Option<String>,
+    pub travel: Option<LineTravel>,
     pub sites_used: usize,
     pub r2: f64,
     pub residual_rms_ms: f64,
@@ -585,7 +586,7 @@ fn report_front(
     let origin_site = recording.sites[points.site[f.origin_point]].id.clone();
     let (origin_along_um, origin_angle_deg, origin_xy_um) = f.origin.parts();
     FrontReport {
-        model: model_name(f.model).into(),
+        model: f.model,
         speed_mm_s: f.speed_mm_s,
         speed_ci95_mm_s: f.speed_ci95_mm_s,
         speed_ci95_analytic_mm_s: f.speed_ci95_analytic_mm_s,
@@ -594,10 +595,14 @@ fn report_front(
         origin_xy_um,
         origin_angle_deg,
         direction_xy: f.direction_xy,
-        rotation: f.rotation.clone(),
-        travel: f
-            .towards_increasing
-            .map(|up| if up { "increasing" } else { "decreasing" }.to_string()),
+        rotation: f.rotation,
+        travel: f.towards_increasing.map(|up| {
+            if up {
+                LineTravel::Increasing
+            } else {
+                LineTravel::Decreasing
+            }
+        }),
         sites_used: f.sites_used,
         r2: f.r2,
         residual_rms_ms: f.residual_rms_s * 1e3,

@@ -12,6 +12,65 @@ use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 use std::f64::consts::{PI, TAU};
 
+/// Which way a front goes round a ring, in the layout's axes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum RingTravel {
+    /// One way, counter-clockwise (increasing atan2(y - cy, x - cx)).
+    Ccw,
+    /// One way, clockwise.
+    Cw,
+    /// Both ways from the origin (a two-way ring front).
+    Both,
+}
+
+/// Which way a one-way front goes along a line track.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LineTravel {
+    /// Towards increasing track coordinate.
+    Increasing,
+    /// Towards decreasing track coordinate.
+    Decreasing,
+}
+
+impl RingTravel {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            RingTravel::Ccw => "ccw",
+            RingTravel::Cw => "cw",
+            RingTravel::Both => "both",
+        }
+    }
+}
+
+impl LineTravel {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            LineTravel::Increasing => "increasing",
+            LineTravel::Decreasing => "decreasing",
+        }
+    }
+}
+
+impl std::fmt::Display for RingTravel {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl std::fmt::Display for LineTravel {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl std::fmt::Display for FrontModel {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(model_name(*self))
+    }
+}
+
 /// The shape of a front: how its arrival time grows with position.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -185,8 +244,8 @@ pub struct FittedFront {
     pub origin_point: usize,
     /// Unit vector of travel in the layout's axes (one-way line, plane wave).
     pub direction_xy: Option<[f64; 2]>,
-    /// `ccw`/`cw` for one-way ring fronts, `both` for two-way ring fronts.
-    pub rotation: Option<String>,
+    /// Which way round, for ring fronts (`both` for two-way ring fronts).
+    pub rotation: Option<RingTravel>,
     /// For a one-way line: whether the front runs towards increasing track coordinate.
     pub towards_increasing: Option<bool>,
     pub sites_used: usize,
@@ -1219,10 +1278,10 @@ pub fn fit_chosen(
     };
     let rotation = match best.model {
         FrontModel::RingOneWay => best.rotation.map(|r| match r {
-            Rotation::Ccw => "ccw".to_string(),
-            Rotation::Cw => "cw".to_string(),
+            Rotation::Ccw => RingTravel::Ccw,
+            Rotation::Cw => RingTravel::Cw,
         }),
-        FrontModel::RingTwoWay => Some("both".into()),
+        FrontModel::RingTwoWay => Some(RingTravel::Both),
         _ => None,
     };
     let intercept = match best.model {
@@ -1759,7 +1818,7 @@ pub fn distance_from_origin(
                 _ => 0.0,
             };
             let a = ring_angle(track, xy_um);
-            let turn = if front.rotation.as_deref() == Some("cw") {
+            let turn = if front.rotation == Some(RingTravel::Cw) {
                 angle_rad - a
             } else {
                 a - angle_rad

@@ -2,6 +2,7 @@
 //! propagation reliability.
 
 use super::{AnalysisSettings, BurstResult, NoFrontKind};
+use super::{FrontModel, LineTravel, RingTravel};
 use crate::fronts::regression::theil_sen;
 use crate::geometry::{Track, TrackFit};
 use crate::recording::Recording;
@@ -113,7 +114,7 @@ pub struct Summary {
     pub median_speed_ci95_mm_s: Option<[f64; 2]>,
     pub speed_drift: Option<Drift>,
     /// Fronts per model.
-    pub model_counts: Vec<(String, usize)>,
+    pub model_counts: Vec<(super::FrontModel, usize)>,
     pub direction: DirectionBalance,
     pub initiation_sites: Vec<InitiationCount>,
     pub initiation_zones: Vec<ZoneCount>,
@@ -156,11 +157,11 @@ pub fn summarise(
     } else {
         None
     };
-    let mut model_counts: Vec<(String, usize)> = Vec::new();
+    let mut model_counts: Vec<(super::FrontModel, usize)> = Vec::new();
     for (_, f) in &fronts {
         match model_counts.iter_mut().find(|(m, _)| *m == f.model) {
             Some(entry) => entry.1 += 1,
-            None => model_counts.push((f.model.clone(), 1)),
+            None => model_counts.push((f.model, 1)),
         }
     }
 
@@ -319,17 +320,17 @@ fn direction_balance(
             "line",
             Some("increasing"),
             Some("decreasing"),
-            count(&|r| r.travel.as_deref() == Some("increasing")),
-            count(&|r| r.travel.as_deref() == Some("decreasing")),
-            count(&|r| r.model == "line_two_way"),
+            count(&|r| r.travel == Some(LineTravel::Increasing)),
+            count(&|r| r.travel == Some(LineTravel::Decreasing)),
+            count(&|r| r.model == FrontModel::LineTwoWay),
         ),
         Track::Ring { .. } => (
             "ring",
             Some("ccw"),
             Some("cw"),
-            count(&|r| r.rotation.as_deref() == Some("ccw")),
-            count(&|r| r.rotation.as_deref() == Some("cw")),
-            count(&|r| r.rotation.as_deref() == Some("both")),
+            count(&|r| r.rotation == Some(RingTravel::Ccw)),
+            count(&|r| r.rotation == Some(RingTravel::Cw)),
+            count(&|r| r.rotation == Some(RingTravel::Both)),
         ),
         Track::Plane => (
             "plane",
@@ -337,7 +338,7 @@ fn direction_balance(
             None,
             0,
             0,
-            count(&|r| r.model == "point_source"),
+            count(&|r| r.model == FrontModel::PointSource),
         ),
     };
     let (mut sx, mut sy, mut n) = (0.0, 0.0, 0usize);

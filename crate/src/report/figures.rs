@@ -10,6 +10,7 @@ use super::svg::{Colour, Plot};
 use super::{AnalysisReport, Inspection};
 use crate::detect::PopulationRate;
 use crate::fronts::{BurstResult, FrontReport};
+use crate::fronts::{FrontModel, LineTravel, RingTravel};
 use crate::geometry::Track;
 use serde::Serialize;
 use std::f64::consts::TAU;
@@ -877,9 +878,11 @@ pub fn distance_from_origin_um(
     along_um: Option<f64>,
     xy_um: [f64; 2],
 ) -> Option<f64> {
-    match front.model.as_str() {
-        "line_one_way" | "line_two_way" => Some((along_um? - front.origin_along_um?).abs()),
-        "ring_one_way" | "ring_two_way" => {
+    match front.model {
+        FrontModel::LineOneWay | FrontModel::LineTwoWay => {
+            Some((along_um? - front.origin_along_um?).abs())
+        }
+        FrontModel::RingOneWay | FrontModel::RingTwoWay => {
             let Track::Ring {
                 centre_um,
                 radius_um,
@@ -896,22 +899,21 @@ pub fn distance_from_origin_um(
                 None => (xy_um[1] - centre_um[1]).atan2(xy_um[0] - centre_um[0]),
             };
             let turned = (angle - front.origin_angle_deg?.to_radians()).rem_euclid(TAU);
-            let arc = match (front.model.as_str(), front.rotation.as_deref()) {
-                ("ring_one_way", Some("cw")) => (TAU - turned) % TAU,
-                ("ring_one_way", _) => turned,
+            let arc = match (front.model, front.rotation) {
+                (FrontModel::RingOneWay, Some(RingTravel::Cw)) => (TAU - turned) % TAU,
+                (FrontModel::RingOneWay, _) => turned,
                 _ => turned.min(TAU - turned),
             };
             Some(radius_um * arc)
         }
-        "plane_wave" => {
+        FrontModel::PlaneWave => {
             let (o, n) = (front.origin_xy_um?, front.direction_xy?);
             Some((xy_um[0] - o[0]) * n[0] + (xy_um[1] - o[1]) * n[1])
         }
-        "point_source" => {
+        FrontModel::PointSource => {
             let o = front.origin_xy_um?;
             Some((xy_um[0] - o[0]).hypot(xy_um[1] - o[1]))
         }
-        _ => None,
     }
 }
 
@@ -962,9 +964,9 @@ pub fn activation_plot(
         let f = front?;
         let d = if on_track {
             // A one-way front on a line exists only on the side it travels to.
-            if f.model == "line_one_way" {
+            if f.model == FrontModel::LineOneWay {
                 let ahead = x - f.origin_along_um?;
-                let forward = f.travel.as_deref() != Some("decreasing");
+                let forward = f.travel != Some(LineTravel::Decreasing);
                 if (ahead < 0.0 && forward) || (ahead > 0.0 && !forward) {
                     return None;
                 }
@@ -1018,7 +1020,7 @@ pub fn activation_plot(
         Some(f) => format!(
             "Burst {}: {} front, {:.1} mm/s (95% {:.1}-{:.1})",
             b.burst,
-            f.model.replace('_', " "),
+            f.model.to_string().replace('_', " "),
             f.speed_mm_s,
             f.speed_ci95_mm_s[0],
             f.speed_ci95_mm_s[1]

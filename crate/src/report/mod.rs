@@ -38,17 +38,23 @@ pub fn electrodes_csv(rows: &[crate::detect::voltage::ElectrodeRow]) -> String {
 
 /// The electrode report as text, one line per electrode that is not `ok`, and a count.
 pub fn electrodes_text(rows: &[crate::detect::voltage::ElectrodeRow]) -> String {
-    let ok = rows.iter().filter(|r| r.status == "ok").count();
+    let ok = rows
+        .iter()
+        .filter(|r| r.status == crate::detect::voltage::ElectrodeStatus::Ok)
+        .count();
     let mut out = format!(
         "electrodes: {ok} of {} look usable (noise by MAD, spikes at the threshold)\n",
         rows.len()
     );
-    for r in rows.iter().filter(|r| r.status != "ok") {
+    for r in rows
+        .iter()
+        .filter(|r| r.status != crate::detect::voltage::ElectrodeStatus::Ok)
+    {
         out.push_str(&format!(
             "  channel {} (site {}): {}; noise {:.2} µV, {} spikes ({:.3} Hz)\n",
             r.channel,
             r.site,
-            r.status.replace('_', " "),
+            r.status.words(),
             r.noise_uv,
             r.spike_count,
             r.rate_hz

@@ -103,7 +103,7 @@ pub struct TruthBurst {
     /// Unit vector of travel for rows and grids; `None` on a circle.
     pub direction_xy: Option<[f64; 2]>,
     /// `ccw` or `cw` on a circle, in the layout's axes; `None` otherwise.
-    pub rotation: Option<String>,
+    pub rotation: Option<crate::fronts::RingTravel>,
     /// Distance from the origin at which the front stops, micrometres; `None` when it
     /// crosses the whole layout.
     pub stops_after_um: Option<f64>,
@@ -261,7 +261,7 @@ pub fn simulate_fronts(scenario: &FrontScenario) -> Result<SimulatedFronts, Stri
             origin_um: front.origin_um,
             origin_site,
             direction_xy: front.direction_xy,
-            rotation: front.rotation.map(str::to_string),
+            rotation: front.rotation,
             stops_after_um,
             activation_s,
         });
@@ -355,7 +355,7 @@ pub fn nominal_positions(layout: &ElectrodeLayout) -> Vec<[f64; 2]> {
 struct Front {
     origin_um: [f64; 2],
     direction_xy: Option<[f64; 2]>,
-    rotation: Option<&'static str>,
+    rotation: Option<crate::fronts::RingTravel>,
     /// Path length from the origin to each electrode, micrometres.
     distances: Vec<f64>,
 }
@@ -413,7 +413,11 @@ fn draw_front(layout: &ElectrodeLayout, positions: &[[f64; 2]], rng: &mut ChaCha
                     radius_um * libm::sin(origin_angle),
                 ],
                 direction_xy: None,
-                rotation: Some(if ccw { "ccw" } else { "cw" }),
+                rotation: Some(if ccw {
+                    crate::fronts::RingTravel::Ccw
+                } else {
+                    crate::fronts::RingTravel::Cw
+                }),
                 distances,
             }
         }
@@ -462,7 +466,7 @@ fn draw_two_way_front(
                     radius_um * libm::sin(origin_angle),
                 ],
                 direction_xy: None,
-                rotation: Some("both"),
+                rotation: Some(crate::fronts::RingTravel::Both),
                 distances,
             }
         }

@@ -5,7 +5,7 @@ use super::culture::{
 };
 use super::dynamics::{integrate, Network, NeuronParams, NoiseParams, Spike, SynapseParams};
 use crate::detect::{detect_bursts, BurstSettings};
-use crate::fronts::{fit_front, model_name, FrontPoints, FrontSettings};
+use crate::fronts::{fit_front, FrontPoints, FrontSettings};
 use crate::import::{RoiSeries, SiteSpikes};
 use crate::recording::Site;
 use crate::simulate::fronts::{nominal_positions, ElectrodeLayout};
@@ -103,13 +103,13 @@ pub struct NetworkTruthBurst {
     /// Neurons that fired in the burst.
     pub neurons_active: usize,
     /// Front fitted to the first spikes of about 200 neurons spread over the culture.
-    pub model: Option<String>,
+    pub model: Option<crate::fronts::FrontModel>,
     pub speed_mm_s: Option<f64>,
     pub origin_along_um: Option<f64>,
     pub origin_angle_deg: Option<f64>,
     pub origin_xy_um: Option<[f64; 2]>,
     pub direction_xy: Option<[f64; 2]>,
-    pub rotation: Option<String>,
+    pub rotation: Option<crate::fronts::RingTravel>,
     pub no_front_reason: Option<String>,
 }
 
@@ -452,7 +452,7 @@ fn truth_bursts(
             );
             let (model, speed, origin, direction, rotation, reason) = match fit {
                 Ok(f) => (
-                    Some(model_name(f.model).to_string()),
+                    Some(f.model),
                     Some(f.speed_mm_s),
                     Some(f.origin),
                     f.direction_xy,
