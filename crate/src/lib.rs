@@ -48,44 +48,15 @@ pub mod cli;
 #[cfg(target_arch = "wasm32")]
 mod wasm;
 
-use std::fmt;
-
-/// Any error of the pipeline, by layer.
-#[derive(Debug, Clone, PartialEq)]
+/// Any error of the pipeline, by layer; each carries its place and one sentence.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum Error {
-    Import(import::ImportError),
-    Geometry(geometry::GeometryError),
-    Analysis(fronts::AnalysisError),
-}
-
-impl fmt::Display for Error {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            Error::Import(e) => e.fmt(f),
-            Error::Geometry(e) => e.fmt(f),
-            Error::Analysis(e) => e.fmt(f),
-        }
-    }
-}
-
-impl std::error::Error for Error {}
-
-impl From<import::ImportError> for Error {
-    fn from(e: import::ImportError) -> Self {
-        Error::Import(e)
-    }
-}
-
-impl From<fronts::AnalysisError> for Error {
-    fn from(e: fronts::AnalysisError) -> Self {
-        Error::Analysis(e)
-    }
-}
-
-impl From<geometry::GeometryError> for Error {
-    fn from(e: geometry::GeometryError) -> Self {
-        Error::Geometry(e)
-    }
+    #[error(transparent)]
+    Import(#[from] import::ImportError),
+    #[error(transparent)]
+    Geometry(#[from] geometry::GeometryError),
+    #[error(transparent)]
+    Analysis(#[from] fronts::AnalysisError),
 }
 
 /// Reads an activity file and a layout, fits the track and summarises both: the whole of

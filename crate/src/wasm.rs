@@ -45,6 +45,7 @@ fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsValue> {
     value
         .serialize(&serde_wasm_bindgen::Serializer::json_compatible())
         .map_err(|e| {
+            // Not through plain_error, which itself passes a value to the page.
             JsValue::from_str(&format!(
                 "internal: could not pass the result to the page: {e}"
             ))
@@ -59,7 +60,7 @@ fn settings<T: serde::de::DeserializeOwned + Default>(
         return Ok(T::default());
     }
     serde_wasm_bindgen::from_value(value)
-        .map_err(|e| JsValue::from_str(&format!("{what}: the settings cannot be read: {e}")))
+        .map_err(|e| plain_error(format!("{what}: the settings cannot be read: {e}")))
 }
 
 /// Default reader settings and track settings, so the page shows the library's defaults.
@@ -176,6 +177,17 @@ fn message<E: std::fmt::Display + Serialize>(e: &E) -> JsValue {
         detail: e,
     })
     .unwrap_or_else(|_| JsValue::from_str(&e.to_string()))
+}
+
+/// An error without a typed detail, in the one shape the page reads: `{ text, detail: null }`.
+fn plain_error(text: String) -> JsValue {
+    #[derive(Serialize)]
+    struct Plain {
+        text: String,
+        detail: Option<()>,
+    }
+    let fallback = JsValue::from_str(&text);
+    to_js(&Plain { text, detail: None }).unwrap_or(fallback)
 }
 
 fn located(e: &crate::Error) -> JsValue {
@@ -344,7 +356,7 @@ impl WasmWorkbook {
         height_px: u32,
     ) -> Result<JsValue, JsValue> {
         let request: FigureRequest = serde_wasm_bindgen::from_value(request)
-            .map_err(|e| JsValue::from_str(&format!("figure: the request cannot be read: {e}")))?;
+            .map_err(|e| plain_error(format!("figure: the request cannot be read: {e}")))?;
         let size = Size {
             width_px: width_px.clamp(200, 4000),
             height_px: height_px.clamp(150, 4000),
@@ -399,9 +411,9 @@ impl WasmWorkbook {
     #[wasm_bindgen(js_name = studyEntry)]
     pub fn study_entry(&self, manifest: JsValue, row: usize) -> Result<JsValue, JsValue> {
         let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
-            .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+            .map_err(|e| plain_error(format!("manifest: {e}")))?;
         let Some(manifest_row) = manifest.rows.get(row) else {
-            return Err(JsValue::from_str("internal: no such manifest row"));
+            return Err(plain_error("internal: no such manifest row".to_string()));
         };
         let result = self
             .inner
@@ -420,7 +432,7 @@ impl WasmWorkbook {
             } else {
                 Some(
                     serde_wasm_bindgen::from_value(study)
-                        .map_err(|e| JsValue::from_str(&format!("study: {e}")))?,
+                        .map_err(|e| plain_error(format!("study: {e}")))?,
                 )
             };
         Ok(self.inner.notebook_json(study.as_ref()))
@@ -455,10 +467,10 @@ pub fn simulate(
     progress: Option<js_sys::Function>,
 ) -> Result<JsValue, JsValue> {
     let scenario = crate::simulate::parse_scenario(scenario_json)
-        .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
+        .map_err(|e| plain_error(format!("scenario: {e}")))?;
     let mut report = staged_progress_fn(&progress);
     let files = crate::simulate::simulation_files(&scenario, &mut report)
-        .map_err(|e| JsValue::from_str(&format!("scenario: {e}")))?;
+        .map_err(|e| plain_error(format!("scenario: {e}")))?;
     text_files(files)
 }
 
@@ -473,10 +485,10 @@ pub fn simulate_culture(
     progress: Option<js_sys::Function>,
 ) -> Result<JsValue, JsValue> {
     let options: crate::simulate::network::CultureOptions = serde_wasm_bindgen::from_value(options)
-        .map_err(|e| JsValue::from_str(&format!("culture options: {e}")))?;
+        .map_err(|e| plain_error(format!("culture options: {e}")))?;
     let mut report = staged_progress_fn(&progress);
     let files = crate::simulate::culture_files(&options, &mut report)
-        .map_err(|e| JsValue::from_str(&format!("culture options: {e}")))?;
+        .map_err(|e| plain_error(format!("culture options: {e}")))?;
     text_files(files)
 }
 
@@ -595,7 +607,7 @@ pub fn manifest_for_files(files: JsValue) -> Result<JsValue, JsValue> {
 #[wasm_bindgen(js_name = matchStudyFiles)]
 pub fn match_study_files(manifest: JsValue, names: JsValue) -> Result<JsValue, JsValue> {
     let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
-        .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+        .map_err(|e| plain_error(format!("manifest: {e}")))?;
     let names: Vec<String> = settings(names, "file names")?;
     to_js(&crate::study::match_files(&manifest, &names))
 }
@@ -624,10 +636,10 @@ pub fn analyze_study_recording(
 ) -> Result<JsValue, JsValue> {
     use crate::import::InputKind;
     let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
-        .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+        .map_err(|e| plain_error(format!("manifest: {e}")))?;
     let step: StepSettings = self::settings(settings, "settings")?;
     let Some(manifest_row) = manifest.rows.get(row) else {
-        return Err(JsValue::from_str("internal: no such manifest row"));
+        return Err(plain_error("internal: no such manifest row".to_string()));
     };
     let mut report_progress = staged_progress_fn(&progress);
     let result = (|| -> Result<crate::report::AnalysisReport, String> {
@@ -699,9 +711,9 @@ pub fn failed_study_entry(
     message: String,
 ) -> Result<JsValue, JsValue> {
     let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
-        .map_err(|e| JsValue::from_str(&format!("manifest: {e}")))?;
+        .map_err(|e| plain_error(format!("manifest: {e}")))?;
     let Some(manifest_row) = manifest.rows.get(row) else {
-        return Err(JsValue::from_str("internal: no such manifest row"));
+        return Err(plain_error("internal: no such manifest row".to_string()));
     };
     study_entry(&manifest, manifest_row, Err(message))
 }

@@ -22,18 +22,11 @@ pub struct Section {
 }
 
 /// Why a filter cannot be designed.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, thiserror::Error)]
+#[error("{message}")]
 pub struct FilterError {
     pub message: String,
 }
-
-impl std::fmt::Display for FilterError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.message)
-    }
-}
-
-impl std::error::Error for FilterError {}
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 struct Complex {

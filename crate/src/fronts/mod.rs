@@ -153,18 +153,11 @@ pub struct Analysis {
 }
 
 /// The analysis layer's error.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, thiserror::Error)]
+#[error("analysis: {message}")]
 pub struct AnalysisError {
     pub message: String,
 }
-
-impl std::fmt::Display for AnalysisError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "analysis: {}", self.message)
-    }
-}
-
-impl std::error::Error for AnalysisError {}
 
 /// Runs the analysis: bursts, activation times, front fits, summary. `progress(done, total)`
 /// is called after each burst.

@@ -28,7 +28,6 @@ pub fn polyline_length_um(waypoints: &[[f64; 2]]) -> f64 {
 use crate::recording::Site;
 use serde::{Deserialize, Serialize};
 use std::f64::consts::TAU;
-use std::fmt;
 
 /// Which track kind to use.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
@@ -144,7 +143,8 @@ pub enum GeometryProblem {
 }
 
 /// The geometry layer's error: where (site, setting) and one sentence.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, thiserror::Error)]
+#[error("track{}: {message}", located(place))]
 pub struct GeometryError {
     /// Where the problem is (boxed to keep `Result`s small).
     pub place: Box<Place>,
@@ -152,17 +152,14 @@ pub struct GeometryError {
     pub message: String,
 }
 
-impl fmt::Display for GeometryError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        if self.place.is_unknown() {
-            write!(f, "track: {}", self.message)
-        } else {
-            write!(f, "track, {}: {}", self.place, self.message)
-        }
+/// ", PLACE" when the place is known.
+fn located(place: &Place) -> String {
+    if place.is_unknown() {
+        String::new()
+    } else {
+        format!(", {place}")
     }
 }
-
-impl std::error::Error for GeometryError {}
 
 fn error(problem: GeometryProblem, message: impl Into<String>) -> GeometryError {
     GeometryError {

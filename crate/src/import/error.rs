@@ -2,7 +2,6 @@
 
 use crate::place::Place;
 use serde::Serialize;
-use std::fmt;
 
 /// What kind of problem stopped an import. The sentence in [`ImportError::message`] says more.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -33,7 +32,8 @@ pub enum ImportProblem {
 }
 
 /// An import failed. Carries where (file, line, column, site) and one sentence for a scientist.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, thiserror::Error)]
+#[error("{place}: {message}")]
 pub struct ImportError {
     /// Where the problem is (boxed to keep `Result`s small).
     pub place: Box<Place>,
@@ -52,11 +52,3 @@ impl ImportError {
         }
     }
 }
-
-impl fmt::Display for ImportError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}: {}", self.place, self.message)
-    }
-}
-
-impl std::error::Error for ImportError {}

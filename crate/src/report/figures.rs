@@ -57,18 +57,11 @@ impl Figure {
 }
 
 /// Why a figure could not be drawn.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, thiserror::Error)]
+#[error("{message}")]
 pub struct FigureError {
     pub message: String,
 }
-
-impl std::fmt::Display for FigureError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.message)
-    }
-}
-
-impl std::error::Error for FigureError {}
 
 fn empty(what: &str) -> FigureError {
     FigureError {

@@ -11,18 +11,11 @@ use serde::{Deserialize, Serialize};
 pub const MATCH_S: f64 = 0.2;
 
 /// Why a truth file cannot be compared.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, thiserror::Error)]
+#[error("{message}")]
 pub struct TruthError {
     pub message: String,
 }
-
-impl std::fmt::Display for TruthError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.message)
-    }
-}
-
-impl std::error::Error for TruthError {}
 
 /// The fields both simulators write for every burst of the truth.
 #[derive(Deserialize)]

@@ -134,18 +134,11 @@ pub struct OpenedNotebook {
 }
 
 /// Why a notebook file cannot be opened.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, thiserror::Error)]
+#[error("{message}")]
 pub struct NotebookError {
     pub message: String,
 }
-
-impl std::fmt::Display for NotebookError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(&self.message)
-    }
-}
-
-impl std::error::Error for NotebookError {}
 
 /// Lower-case hex SHA-256 of `bytes`.
 pub fn sha256_hex(bytes: &[u8]) -> String {
@@ -512,7 +505,8 @@ impl Workbook {
             study,
         };
         serde_json::to_string_pretty(&nb).unwrap_or_else(|e| {
-            format!("{{\"error\": \"the notebook could not be written: {e}\"}}")
+            serde_json::json!({ "error": format!("the notebook could not be written: {e}") })
+                .to_string()
         })
     }
 
