@@ -68,7 +68,14 @@ fn run(
     .unwrap();
     let fit = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
     let spacing = fit.site_spacing_um.unwrap();
-    let analysis = analyze(&rec, &fit, &AnalysisSettings::default(), &mut |_, _| {}).unwrap();
+    let analysis = analyze(
+        &rec,
+        &ringline::events::event_trains(&rec, &AnalysisSettings::default().calcium),
+        &fit,
+        &AnalysisSettings::default(),
+        &mut |_, _| {},
+    )
+    .unwrap();
     (analysis.bursts, sim.truth.bursts, spacing, sim.sites)
 }
 
@@ -356,7 +363,14 @@ fn isi_n_detector_finds_the_bursts() {
     let fit = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
     let mut settings = AnalysisSettings::default();
     settings.bursts.detector = BurstDetector::IsiN;
-    let analysis = analyze(&rec, &fit, &settings, &mut |_, _| {}).unwrap();
+    let analysis = analyze(
+        &rec,
+        &ringline::events::event_trains(&rec, &settings.calcium),
+        &fit,
+        &settings,
+        &mut |_, _| {},
+    )
+    .unwrap();
     let truth = &sim.truth.bursts;
     let found = truth
         .iter()

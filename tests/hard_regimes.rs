@@ -117,7 +117,14 @@ fn analyse(recipe: &Recipe) -> (Vec<BurstResult>, Vec<TrueBurst>, TrackFit, Vec<
     )
     .unwrap();
     let track = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
-    let a = analyze(&rec, &track, &AnalysisSettings::default(), &mut |_, _| {}).unwrap();
+    let a = analyze(
+        &rec,
+        &ringline::events::event_trains(&rec, &AnalysisSettings::default().calcium),
+        &track,
+        &AnalysisSettings::default(),
+        &mut |_, _| {},
+    )
+    .unwrap();
     (a.bursts, g.truth, track, g.positions)
 }
 
@@ -477,7 +484,14 @@ fn imaging_at_20_and_50_frames_per_second() {
         )
         .unwrap();
         let track = fit_track(&rec.sites, &TrackSettings::default()).unwrap();
-        let a = analyze(&rec, &track, &AnalysisSettings::default(), &mut |_, _| {}).unwrap();
+        let a = analyze(
+            &rec,
+            &ringline::events::event_trains(&rec, &AnalysisSettings::default().calcium),
+            &track,
+            &AnalysisSettings::default(),
+            &mut |_, _| {},
+        )
+        .unwrap();
         let mut m = Measured {
             truth: g.truth.len(),
             found: 0,

@@ -28,6 +28,7 @@ fn round_trip_of(file: &str, s: ringline::simulate::network::NetworkScenario) {
     let fit = fit_track(&recording.sites, &TrackSettings::default()).unwrap();
     let analysis = analyze(
         &recording,
+        &ringline::events::event_trains(&recording, &AnalysisSettings::default().calcium),
         &fit,
         &AnalysisSettings::default(),
         &mut |_, _| {},

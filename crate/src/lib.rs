@@ -31,6 +31,7 @@
 
 pub mod csv_out;
 pub mod detect;
+pub mod events;
 pub mod fronts;
 pub mod geometry;
 pub mod import;
@@ -96,105 +97,6 @@ pub fn analyze_files(
     )
 }
 
-/// Reads a raw voltage file (its header already read; `read(first_frame, end_frame)` returns
-/// the bytes of those frames), detects spikes on every channel and puts them on the layout.
-/// Channel i is the site in row i of the layout unless the file names its channels' sites.
-/// `progress(done, total)` reports frames. Returns the recording (as spikes) and what
-/// detection found, with the electrode report.
-pub fn voltage_recording(
-    header: &import::VoltageHeader,
-    read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, import::ImportError>,
-    layout: (&str, &[u8]),
-    options: &import::ReadOptions,
-    voltage: &detect::voltage::VoltageSettings,
-    progress: &mut dyn FnMut(u64, u64),
-) -> Result<(recording::Recording, detect::voltage::VoltageSpikes), Error> {
-    let layout = import::read_layout(
-        layout.1,
-        layout.0,
-        &import::LayoutOptions {
-            length_unit: options.length_unit,
-            limits: options.limits,
-        },
-    )?;
-    let sites: Vec<String> = match &header.channel_sites {
-        Some(sites) => sites.clone(),
-        None => {
-            if header.channels > layout.sites.len() {
-                return Err(import::ImportError::new(
-                    place::Place::file(&header.file),
-                    import::ImportProblem::UnplacedSites,
-                    format!(
-                        "expected at most one channel per layout row ({} in {}), found {} channels: name each channel's site (channel_sites in the sidecar) or add rows to the layout",
-                        layout.sites.len(),
-                        layout.file,
-                        header.channels
-                    ),
-                )
-                .into());
-            }
-            layout.sites[..header.channels]
-                .iter()
-                .map(|s| s.id.clone())
-                .collect()
-        }
-    };
-    let found = detect::voltage::detect_voltage_spikes(header, &sites, voltage, read, progress)?;
-    let spikes = import::SpikeList {
-        file: header.file.clone(),
-        sites: sites
-            .iter()
-            .zip(&found.trains_s)
-            .map(|(site, times)| import::SiteSpikes {
-                site: site.clone(),
-                times_s: times.clone(),
-            })
-            .collect(),
-        time_unit: import::TimeUnit::Seconds,
-        time_quantum_s: Some(1.0 / header.sample_rate_hz),
-        ignored_columns: Vec::new(),
-        row_count: found.trains_s.iter().map(Vec::len).sum(),
-        notices: Vec::new(),
-    };
-    let mut recording = recording::Recording::from_spike_list(&layout, &spikes)?;
-    recording.metadata.sample_interval_s = Some(1.0 / header.sample_rate_hz);
-    if let Some(source) = recording
-        .metadata
-        .sources
-        .iter_mut()
-        .find(|s| s.name == header.file)
-    {
-        source.kind = format!("voltage_{}", header.container);
-    }
-    if header.container == "wav" {
-        recording.notices.push(place::Notice::new(
-            place::Place::file(&header.file),
-            format!(
-                "a WAV file carries no voltage scale: samples were taken as {} µV per unit (noise levels in the electrode report use this scale; spike detection does not depend on it)",
-                header.scale_uv
-            ),
-        ));
-    }
-    for e in found
-        .electrodes
-        .iter()
-        .filter(|e| e.status != detect::voltage::ElectrodeStatus::Ok)
-    {
-        recording.notices.push(place::Notice::new(
-            place::Place::site(&e.site),
-            format!(
-                "electrode on channel {}: {} (noise {:.2} µV, {} spikes, {:.3} Hz)",
-                e.channel,
-                e.status.words(),
-                e.noise_uv,
-                e.spike_count,
-                e.rate_hz
-            ),
-        ));
-    }
-    Ok((recording, found))
-}
-
 /// The activity file of one recording, as a shell hands it over.
 pub enum ActivityInput<'a> {
     /// A spike list or ROI traces: (file name, bytes).
@@ -234,7 +136,7 @@ pub fn analyze_recording(
             None,
         ),
         ActivityInput::Voltage(header, read) => {
-            let (recording, found) = voltage_recording(
+            let (recording, found) = events::voltage_recording(
                 header,
                 read,
                 layout,
@@ -246,9 +148,14 @@ pub fn analyze_recording(
         }
     };
     let fit = geometry::fit_track(&recording.sites, &settings.track)?;
-    let analysis = fronts::analyze(&recording, &fit, &settings.analysis, &mut |done, total| {
-        progress("analysing bursts", done as u64, total as u64)
-    })?;
+    let events = events::event_trains(&recording, &settings.analysis.calcium);
+    let analysis = fronts::analyze(
+        &recording,
+        &events,
+        &fit,
+        &settings.analysis,
+        &mut |done, total| progress("analysing bursts", done as u64, total as u64),
+    )?;
     let mut report = report::AnalysisReport::new(&recording, &fit, &settings.analysis, analysis);
     report.electrodes = electrodes;
     Ok(report)

@@ -362,8 +362,11 @@ pub fn analyse_csv(spikes_csv: &str, layout_csv: &str) -> ringline::fronts::Anal
     let track =
         ringline::geometry::fit_track(&rec.sites, &ringline::geometry::TrackSettings::default())
             .expect("a track fits");
+    let settings = ringline::fronts::AnalysisSettings::default();
+    let events = ringline::events::event_trains(&rec, &settings.calcium);
     ringline::fronts::analyze(
         &rec,
+        &events,
         &track,
         &ringline::fronts::AnalysisSettings::default(),
         &mut |_, _| {},

@@ -126,6 +126,9 @@ pub struct BurstDetection {
     pub small_windows_rejected: usize,
     /// All sites' firing rate outside the candidate windows, spikes/s.
     pub background_rate_hz: f64,
+    /// The population rate over the recording (what the rate detector thresholds, and what
+    /// the figures draw for either detector); `None` without spikes.
+    pub population_rate: Option<PopulationRate>,
 }
 
 /// Expected number of windows of `duration_s` holding at least `spikes` spikes, over a
@@ -164,9 +167,13 @@ pub fn chance_windows(rate_hz: f64, span_s: f64, duration_s: f64, spikes: usize)
 ///
 /// Empty trains are allowed (silent sites); no spikes at all gives no bursts.
 pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> BurstDetection {
-    let windows = match settings.detector {
-        BurstDetector::PopulationRate => rate_windows(trains_s, &settings.population_rate),
-        BurstDetector::IsiN => isi_n_windows(trains_s, &settings.isi_n),
+    let rate = population_rate(trains_s, &settings.population_rate);
+    let windows = match (settings.detector, &rate) {
+        (BurstDetector::PopulationRate, Some(rate)) => {
+            rate_windows(rate, settings.population_rate.merge_gap_s)
+        }
+        (BurstDetector::PopulationRate, None) => Vec::new(),
+        (BurstDetector::IsiN, _) => isi_n_windows(trains_s, &settings.isi_n),
     };
     let active = trains_s.iter().filter(|t| !t.is_empty()).count();
     let needed = (settings.min_site_fraction * active as f64)
@@ -210,6 +217,7 @@ pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> BurstDe
         chance_windows_rejected: 0,
         small_windows_rejected: 0,
         background_rate_hz,
+        population_rate: rate,
     };
     for b in candidates {
         if b.sites.len() < needed {
@@ -312,10 +320,7 @@ pub fn population_rate(
 }
 
 /// (start, end, peak) windows from the smoothed population rate.
-fn rate_windows(trains_s: &[Vec<f64>], s: &PopulationRateSettings) -> Vec<(f64, f64, f64)> {
-    let Some(pr) = population_rate(trains_s, s) else {
-        return Vec::new();
-    };
+fn rate_windows(pr: &PopulationRate, merge_gap_s: f64) -> Vec<(f64, f64, f64)> {
     let (bin, bins, threshold, edge) = (pr.bin_s, pr.rate_hz.len(), pr.threshold_hz, pr.edge_hz);
     let rate = &pr.rate_hz;
     let time = |k: usize| pr.time_s(k);
@@ -339,7 +344,7 @@ fn rate_windows(trains_s: &[Vec<f64>], s: &PopulationRateSettings) -> Vec<(f64, 
             .max_by(|&a, &b| rate[a].total_cmp(&rate[b]))
             .unwrap_or(k);
         match windows.last_mut() {
-            Some(last) if time(lo) - time(last.1) <= s.merge_gap_s => {
+            Some(last) if time(lo) - time(last.1) <= merge_gap_s => {
                 last.1 = hi;
                 if rate[peak] > rate[last.2] {
                     last.2 = peak;

@@ -31,7 +31,7 @@ pub use summary::{
 use crate::detect::{detect_bursts, BurstSettings, NetworkBurst};
 use crate::geometry::{Track, TrackFit};
 use crate::place::Notice;
-use crate::recording::{Activity, Recording};
+use crate::recording::Recording;
 use serde::{Deserialize, Serialize};
 
 /// Every setting of the analysis, with documented defaults.
@@ -144,12 +144,9 @@ pub struct Analysis {
     pub bursts: Vec<BurstResult>,
     pub summary: Summary,
     pub notices: Vec<Notice>,
-    /// For fluorescence traces: the event onsets found in each ROI, seconds (what the bursts
-    /// and fronts were measured on); `None` for spike lists.
-    pub event_trains_s: Option<Vec<Vec<f64>>>,
-    /// The population-rate settings the burst detector used (for traces, widened to the
-    /// frame interval).
-    pub population_rate: crate::detect::PopulationRateSettings,
+    /// The population rate the bursts were found on (spikes or events per second over all
+    /// sites); `None` without events.
+    pub population_rate: Option<crate::detect::PopulationRate>,
 }
 
 /// The analysis layer's error.
@@ -168,63 +165,28 @@ pub struct AnalysisError {
 /// frames, too fast for the frame rate to resolve.
 pub fn analyze(
     recording: &Recording,
+    events: &crate::events::EventTrains,
     track: &TrackFit,
     settings: &AnalysisSettings,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<Analysis, AnalysisError> {
     check_settings(settings)?;
-    let mut notices = Vec::new();
-    let mut event_trains: Option<Vec<Vec<f64>>> = None;
+    let mut notices = events.notices.clone();
     let mut settings = std::borrow::Cow::Borrowed(settings);
-    let frame_interval_s = match &recording.activity {
-        Activity::Traces {
-            frame_interval_s, ..
-        } => Some(*frame_interval_s),
-        Activity::Spikes { .. } => None,
-    };
-    let trains_s: &[Vec<f64>] = match &recording.activity {
-        Activity::Spikes { trains_s } => trains_s,
-        Activity::Traces {
-            time_s,
-            frame_interval_s,
-            values,
-        } => {
-            use crate::detect::calcium::{delta_f_over_f, event_onsets};
-            let rate = 1.0 / frame_interval_s;
-            let c = &settings.calcium;
-            let trains: Vec<Vec<f64>> = values
-                .iter()
-                .map(|f| event_onsets(&delta_f_over_f(f, rate, c), time_s, rate, c))
-                .collect();
-            let events: usize = trains.iter().map(Vec::len).sum();
-            notices.push(Notice::new(
-                crate::place::Place::default(),
-                format!(
-                    "fluorescence: {events} events found in {} ROIs (dF/F over a running {}th percentile of {} s; events above {} noise SDs, timed at {}); each ROI's activation is its first event in a burst; the population rate is binned by frame and smoothed over at least 5 frames",
-                    values.len(),
-                    c.baseline_percentile,
-                    c.baseline_window_s,
-                    c.high_sd,
-                    match c.onset {
-                        crate::detect::calcium::OnsetRule::HalfMaximum => "the half-maximum crossing",
-                        crate::detect::calcium::OnsetRule::BaselineIntercept => "the rise's baseline intercept",
-                    }
-                ),
-            ));
-            // One event per ROI per burst: the activation is the first event, and the population
-            // rate is binned by frames and smoothed over at least 5 frames, so that a slow front
-            // (a few events per frame interval) still stands out.
-            let s = settings.to_mut();
-            s.activation.rule = activation::ActivationRule::FirstSpike;
-            // (One event per ROI and burst: its first event is the activation.)
-            let p = &mut s.bursts.population_rate;
-            p.bin_s = p.bin_s.max(*frame_interval_s);
-            p.smooth_sd_s = p.smooth_sd_s.max(5.0 * frame_interval_s);
-            event_trains.insert(trains)
-        }
-    };
+    let frame_interval_s = events.frame_interval_s;
+    let trains_s: &[Vec<f64>] = &events.trains_s;
+    if let Some(frame_interval_s) = frame_interval_s {
+        // One event per ROI per burst: the activation is the first event, and the population
+        // rate is binned by frames and smoothed over at least 5 frames, so that a slow front
+        // (a few events per frame interval) still stands out.
+        let s = settings.to_mut();
+        s.activation.rule = activation::ActivationRule::FirstSpike;
+        let p = &mut s.bursts.population_rate;
+        p.bin_s = p.bin_s.max(frame_interval_s);
+        p.smooth_sd_s = p.smooth_sd_s.max(5.0 * frame_interval_s);
+    }
     let settings: &AnalysisSettings = &settings;
-    let detection = detect_bursts(trains_s, &settings.bursts);
+    let mut detection = detect_bursts(trains_s, &settings.bursts);
     if detection.chance_windows_rejected > 0 {
         notices.push(Notice::new(
             crate::place::Place::default(),
@@ -247,7 +209,7 @@ pub fn analyze(
             ),
         ));
     }
-    let bursts = detection.bursts;
+    let bursts = std::mem::take(&mut detection.bursts);
     let time_step_s = recording
         .metadata
         .sample_interval_s
@@ -295,8 +257,7 @@ pub fn analyze(
         bursts: results,
         summary,
         notices,
-        population_rate: settings.bursts.population_rate.clone(),
-        event_trains_s: event_trains,
+        population_rate: detection.population_rate,
     })
 }
 

@@ -8,7 +8,7 @@
 
 use super::figures::{self, Figure, FigureError, RasterRow, Size};
 use super::{inspect, AnalysisReport, Inspection};
-use crate::detect::{population_rate, PopulationRate};
+use crate::detect::PopulationRate;
 use crate::fronts::AnalysisSettings;
 use crate::geometry::{fit_track, TrackFit, TrackSettings};
 use crate::import::{read_recording, ReadOptions};
@@ -291,7 +291,7 @@ impl Workbook {
         settings: StepSettings,
         progress: &mut dyn FnMut(u64, u64),
     ) -> Result<(Workbook, crate::detect::voltage::VoltageSpikes), Error> {
-        let (recording, found) = crate::voltage_recording(
+        let (recording, found) = crate::events::voltage_recording(
             header,
             read,
             layout,
@@ -346,16 +346,13 @@ impl Workbook {
         settings: AnalysisSettings,
         progress: &mut dyn FnMut(usize, usize),
     ) -> Result<&AnalysisReport, Error> {
-        let mut analysis = crate::fronts::analyze(&self.recording, &self.fit, &settings, progress)?;
-        self.events = analysis.event_trains_s.take();
-        self.rate = match (&self.recording.activity, &self.events) {
-            (Activity::Spikes { trains_s }, _) => {
-                population_rate(trains_s, &analysis.population_rate)
-            }
-            (Activity::Traces { .. }, Some(events)) => {
-                population_rate(events, &analysis.population_rate)
-            }
-            (Activity::Traces { .. }, None) => None,
+        let events = crate::events::event_trains(&self.recording, &settings.calcium);
+        let mut analysis =
+            crate::fronts::analyze(&self.recording, &events, &self.fit, &settings, progress)?;
+        self.rate = analysis.population_rate.take();
+        self.events = match events.kind {
+            crate::events::EventKind::FluorescenceOnsets => Some(events.trains_s.into_owned()),
+            crate::events::EventKind::Spikes => None,
         };
         let mut report = AnalysisReport::new(&self.recording, &self.fit, &settings, analysis);
         report.electrodes = self.electrodes.clone();
