@@ -2,10 +2,8 @@
 //!
 //! Units: time in seconds, positions in micrometres, in the layout's own axes.
 
-use crate::import::{ImportError, ImportProblem, Layout, RoiTraceTable, SpikeList};
-use crate::place::{Notice, Place};
+use crate::place::Notice;
 use serde::Serialize;
-use std::collections::{HashMap, HashSet};
 
 /// A recording site: an electrode or an ROI, with its position.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -73,140 +71,6 @@ pub struct Recording {
 }
 
 impl Recording {
-    /// Puts a spike list on a layout.
-    ///
-    /// Every site with spikes must have a position: otherwise the error lists the unplaced
-    /// sites. Sites with a position but no spikes are kept as silent sites and reported.
-    pub fn from_spike_list(layout: &Layout, spikes: &SpikeList) -> Result<Recording, ImportError> {
-        let index = site_index(layout);
-        let unplaced: Vec<&str> = spikes
-            .sites
-            .iter()
-            .filter(|s| !index.contains_key(s.site.as_str()))
-            .map(|s| s.site.as_str())
-            .collect();
-        if !unplaced.is_empty() {
-            return Err(unplaced_error(
-                &spikes.file,
-                &layout.file,
-                "spikes",
-                &unplaced,
-            ));
-        }
-        let mut trains_s = vec![Vec::new(); layout.sites.len()];
-        for s in &spikes.sites {
-            trains_s[index[s.site.as_str()]] = s.times_s.clone();
-        }
-        let mut notices: Vec<Notice> = layout.notices.clone();
-        notices.extend(spikes.notices.iter().cloned());
-        let silent: Vec<&str> = layout
-            .sites
-            .iter()
-            .zip(&trains_s)
-            .filter(|(_, t)| t.is_empty())
-            .map(|(s, _)| s.id.as_str())
-            .collect();
-        if !silent.is_empty() {
-            notices.push(Notice::new(
-                Place::file(&spikes.file),
-                format!(
-                    "{} sites of the layout have no spikes and are kept as silent: {}",
-                    silent.len(),
-                    silent.join(", ")
-                ),
-            ));
-        }
-        Ok(Recording {
-            sites: layout.sites.clone(),
-            activity: Activity::Spikes { trains_s },
-            metadata: Metadata {
-                sources: vec![
-                    SourceFile {
-                        name: spikes.file.clone(),
-                        kind: "spike_list".into(),
-                    },
-                    SourceFile {
-                        name: layout.file.clone(),
-                        kind: "layout".into(),
-                    },
-                ],
-                sample_interval_s: None,
-                time_quantum_s: spikes.time_quantum_s,
-            },
-            notices,
-        })
-    }
-
-    /// Puts ROI traces on a layout. Every ROI column must have a position; layout sites with
-    /// no trace are left out of the recording and reported.
-    pub fn from_roi_traces(
-        layout: &Layout,
-        traces: &RoiTraceTable,
-    ) -> Result<Recording, ImportError> {
-        let index = site_index(layout);
-        let unplaced: Vec<&str> = traces
-            .rois
-            .iter()
-            .filter(|r| !index.contains_key(r.roi.as_str()))
-            .map(|r| r.roi.as_str())
-            .collect();
-        if !unplaced.is_empty() {
-            return Err(unplaced_error(
-                &traces.file,
-                &layout.file,
-                "a trace",
-                &unplaced,
-            ));
-        }
-        let sites: Vec<Site> = traces
-            .rois
-            .iter()
-            .map(|r| layout.sites[index[r.roi.as_str()]].clone())
-            .collect();
-        let with_trace: HashSet<&str> = traces.rois.iter().map(|r| r.roi.as_str()).collect();
-        let mut notices: Vec<Notice> = layout.notices.clone();
-        notices.extend(traces.notices.iter().cloned());
-        let without: Vec<&str> = layout
-            .sites
-            .iter()
-            .filter(|s| !with_trace.contains(s.id.as_str()))
-            .map(|s| s.id.as_str())
-            .collect();
-        if !without.is_empty() {
-            notices.push(Notice::new(
-                Place::file(&layout.file),
-                format!(
-                    "{} layout sites have no trace column and are not part of the recording: {}",
-                    without.len(),
-                    without.join(", ")
-                ),
-            ));
-        }
-        Ok(Recording {
-            sites,
-            activity: Activity::Traces {
-                time_s: traces.time_s.clone(),
-                frame_interval_s: traces.frame_interval_s,
-                values: traces.rois.iter().map(|r| r.values.clone()).collect(),
-            },
-            metadata: Metadata {
-                sources: vec![
-                    SourceFile {
-                        name: traces.file.clone(),
-                        kind: "roi_traces".into(),
-                    },
-                    SourceFile {
-                        name: layout.file.clone(),
-                        kind: "layout".into(),
-                    },
-                ],
-                sample_interval_s: Some(traces.frame_interval_s),
-                time_quantum_s: None,
-            },
-            notices,
-        })
-    }
-
     /// Identifiers of sites with no spikes (spike recordings only; empty for traces).
     pub fn silent_sites(&self) -> Vec<&str> {
         match &self.activity {
@@ -244,46 +108,4 @@ pub fn trains_span_s(trains_s: &[Vec<f64>]) -> Option<(f64, f64)> {
         .copied()
         .reduce(f64::max)?;
     Some((first, last))
-}
-
-fn site_index(layout: &Layout) -> HashMap<&str, usize> {
-    layout
-        .sites
-        .iter()
-        .enumerate()
-        .map(|(i, s)| (s.id.as_str(), i))
-        .collect()
-}
-
-fn unplaced_error(
-    activity_file: &str,
-    layout_file: &str,
-    what: &str,
-    unplaced: &[&str],
-) -> ImportError {
-    const SHOWN: usize = 20;
-    let mut list = unplaced
-        .iter()
-        .take(SHOWN)
-        .copied()
-        .collect::<Vec<_>>()
-        .join(", ");
-    if unplaced.len() > SHOWN {
-        list.push_str(&format!(" and {} more", unplaced.len() - SHOWN));
-    }
-    let mut place = Place::file(activity_file);
-    if let [one] = unplaced {
-        place = place.at_site(one);
-    }
-    ImportError::new(
-        place,
-        ImportProblem::UnplacedSites,
-        format!(
-            "{} sites have {} but no position in the layout {}: {}",
-            unplaced.len(),
-            what,
-            layout_file,
-            list
-        ),
-    )
 }

@@ -847,9 +847,19 @@ fn in_degree_sweep(
             g.giant_component_fraction
         );
     }
-    let figure =
-        crate::report::figures::in_degree_sweep(&points, crate::report::figures::Size::default())
-            .map_err(|e| Failure::Input(format!("{source}: {e}")))?;
+    let figure = crate::report::figures::in_degree_sweep(
+        &points
+            .iter()
+            .map(|p| p.target_in_degree)
+            .collect::<Vec<_>>(),
+        &points
+            .iter()
+            .map(|p| p.graph.giant_component_fraction)
+            .collect::<Vec<_>>(),
+        &points.iter().map(|p| p.describe()).collect::<Vec<_>>(),
+        crate::report::figures::Size::default(),
+    )
+    .map_err(|e| Failure::Input(format!("{source}: {e}")))?;
     let dir = std::path::Path::new(out);
     std::fs::create_dir_all(dir).map_err(Failure::Output)?;
     for (name, content) in [

@@ -16,6 +16,7 @@
 //! start with a UTF-8 byte-order mark, use CRLF or LF, and contain `#` comment lines and
 //! blank lines. Line numbers in messages count every line, as an editor shows them.
 
+mod assemble;
 mod error;
 mod layout;
 mod manifest;

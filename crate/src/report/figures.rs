@@ -557,18 +557,23 @@ pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, Fi
 }
 
 /// The giant component's share of the neurons against the target mean in-degree K, from an
-/// in-degree sweep of one culture (`ringline simulate --in-degree-sweep`).
+/// in-degree sweep of one culture (`ringline simulate --in-degree-sweep`): plain series, one
+/// entry per in-degree (`k`, `giant_fraction` between 0 and 1, and the read-out text).
 pub fn in_degree_sweep(
-    points: &[crate::simulate::network::InDegreePoint],
+    k: &[f64],
+    giant_fraction: &[f64],
+    readouts: &[String],
     size: Size,
 ) -> Result<Figure, FigureError> {
-    let mut sorted: Vec<_> = points
+    let mut sorted: Vec<(f64, f64, &str)> = k
         .iter()
-        .filter(|p| p.target_in_degree.is_finite())
+        .zip(giant_fraction)
+        .zip(readouts)
+        .filter(|((k, _), _)| k.is_finite())
+        .map(|((&k, &g), r)| (k, g, r.as_str()))
         .collect();
-    sorted.sort_by(|a, b| a.target_in_degree.total_cmp(&b.target_in_degree));
-    let (k0, k1) =
-        padded(sorted.iter().map(|p| p.target_in_degree)).ok_or_else(|| empty("no in-degrees"))?;
+    sorted.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let (k0, k1) = padded(sorted.iter().map(|p| p.0)).ok_or_else(|| empty("no in-degrees"))?;
     chart(
         size,
         "Giant component against mean in-degree",
@@ -577,44 +582,16 @@ pub fn in_degree_sweep(
         |c| {
             for pair in sorted.windows(2) {
                 c.segment(
-                    (
-                        pair[0].target_in_degree,
-                        pair[0].graph.giant_component_fraction,
-                    ),
-                    (
-                        pair[1].target_in_degree,
-                        pair[1].graph.giant_component_fraction,
-                    ),
+                    (pair[0].0, pair[0].1),
+                    (pair[1].0, pair[1].1),
                     SKY_BLUE,
                     1.5,
                 );
             }
             for p in &sorted {
-                c.circle(
-                    p.target_in_degree,
-                    p.graph.giant_component_fraction,
-                    3.0,
-                    BLUE,
-                    true,
-                );
+                c.circle(p.0, p.1, 3.0, BLUE, true);
             }
-            Ok(sorted
-                .iter()
-                .map(|p| {
-                    (
-                        p.target_in_degree,
-                        p.graph.giant_component_fraction,
-                        format!(
-                            "K = {}: giant component {:.3} of {} neurons, {} components, mean in-degree {:.2}",
-                            p.target_in_degree,
-                            p.graph.giant_component_fraction,
-                            p.graph.neurons,
-                            p.graph.components,
-                            p.graph.mean_in_degree
-                        ),
-                    )
-                })
-                .collect())
+            Ok(sorted.iter().map(|p| (p.0, p.1, p.2.to_string())).collect())
         },
     )
 }

@@ -349,6 +349,21 @@ pub fn in_degree_sweep(
     Ok(points)
 }
 
+impl InDegreePoint {
+    /// One line for the figure's read-out.
+    pub fn describe(&self) -> String {
+        let g = &self.graph;
+        format!(
+            "K = {}: giant component {:.3} of {} neurons, {} components, mean in-degree {:.2}",
+            self.target_in_degree,
+            g.giant_component_fraction,
+            g.neurons,
+            g.components,
+            g.mean_in_degree
+        )
+    }
+}
+
 /// An in-degree sweep as CSV, one row per target mean in-degree.
 pub fn in_degree_sweep_csv(points: &[InDegreePoint]) -> String {
     let mut out = crate::csv_out::CsvOut::new([
