@@ -782,6 +782,18 @@ async function studyFiles(i) {
   };
 }
 
+/** What the study keeps of a recording's result: its status and the three files the study
+ * tables are made from (the rest is written again when the recording is opened), so that a
+ * large study holds little. */
+const STUDY_FILES = ['summary.json', 'bursts.csv', 'fronts.csv'];
+function studyEntry(entry) {
+  return {
+    status: JSON.parse(entry.status_json),
+    status_json: entry.status_json,
+    files: entry.files.filter((f) => STUDY_FILES.includes(f[0])),
+  };
+}
+
 /** Analyses every recording of the study in turn, as `ringline batch` does; Cancel stops it. */
 async function runStudy() {
   const study = state.study;
@@ -808,7 +820,7 @@ async function runStudy() {
           $('progress-text').textContent = `${label}: ${stage === 'detecting spikes' ? 'detecting spikes' : `burst ${done} of ${total}`}`;
         });
       }
-      study.entries[i] = { status: JSON.parse(entry.status_json), status_json: entry.status_json, files: entry.files };
+      study.entries[i] = studyEntry(entry);
       renderStudy();
     }
     setStatus(`Study analysed: ${n} recordings.`);
@@ -848,7 +860,7 @@ async function updateOpenStudyRecording() {
   const study = state.study;
   if (!study || study.open === null) return;
   const entry = await call('studyEntry', { manifest: study.manifest, row: study.open });
-  study.entries[study.open] = { status: JSON.parse(entry.status_json), status_json: entry.status_json, files: entry.files };
+  study.entries[study.open] = studyEntry(entry);
   renderStudy();
 }
 

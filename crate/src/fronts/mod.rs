@@ -14,8 +14,8 @@ pub use activation::{activation_times, activation_window, ActivationRule, Activa
 pub use consensus::{settle, ActivationStatus, Settled};
 pub use models::{
     choose_model, distance_from_origin, fit_chosen, fit_front, model_name, Estimator, FittedFront,
-    FrontModel, FrontPoints, FrontSettings, LineTravel, ModelChoice, ModelScore, NoFront,
-    NoFrontKind, Origin, RingTravel,
+    FrontModel, FrontPath, FrontPoints, FrontSettings, LineTravel, ModelChoice, ModelScore,
+    NoFront, NoFrontKind, Origin, RingTravel,
 };
 pub use order::{BurstOrder, LeaderCount, OrderConsistency, OrderSettings};
 /// Angle of a point seen from a ring track's centre, radians (0 for other tracks).
@@ -66,6 +66,31 @@ pub struct Activation {
     pub used: bool,
     /// What became of it: used, re-timed past a stray spike, set aside, or off the track.
     pub status: ActivationStatus,
+}
+
+impl FrontReport {
+    /// The reported front's path, for distances along it ([`FrontPath::distance_um`]).
+    pub fn path(&self) -> Option<FrontPath> {
+        let origin = match (
+            self.origin_along_um,
+            self.origin_angle_deg,
+            self.origin_xy_um,
+        ) {
+            (Some(along_um), _, _) => Origin::Along { along_um },
+            (None, Some(deg), _) => Origin::Angle {
+                angle_rad: deg.to_radians(),
+            },
+            (None, None, Some(xy_um)) => Origin::Point { xy_um },
+            (None, None, None) => return None,
+        };
+        Some(FrontPath {
+            model: self.model,
+            origin,
+            rotation: self.rotation,
+            towards_increasing: self.travel.map(|t| t == LineTravel::Increasing),
+            direction_xy: self.direction_xy,
+        })
+    }
 }
 
 /// A front as reported to the user.

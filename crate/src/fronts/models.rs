@@ -1794,52 +1794,108 @@ pub fn model_name(model: FrontModel) -> &'static str {
     }
 }
 
-/// Distance (micrometres) of a position from a fitted front's origin along the model's path:
-/// used to ask how far a front got and which sites it never reached.
+/// Where a front starts and which way it goes: all a model's arrival time depends on besides
+/// its speed. The one home of the models' path arithmetic, used by the fit's reach and
+/// failure counts and by the figures alike.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FrontPath {
+    pub model: FrontModel,
+    pub origin: Origin,
+    /// Ring fronts: which way round.
+    pub rotation: Option<RingTravel>,
+    /// One-way line fronts: whether they run towards increasing track coordinate.
+    pub towards_increasing: Option<bool>,
+    /// Plane waves: unit vector of travel.
+    pub direction_xy: Option<[f64; 2]>,
+}
+
+impl FrontPath {
+    /// Distance (micrometres) travelled from the origin to a position, along the model's path:
+    /// negative behind a one-way line front or a plane wave. Lines read the track coordinate
+    /// `along_um`; planes read the layout position `xy_um`; rings read `xy_um` when given, else
+    /// the track coordinate. `None` when the position lacks what the model needs.
+    pub fn distance_um(
+        &self,
+        track: &Track,
+        along_um: Option<f64>,
+        xy_um: Option<[f64; 2]>,
+    ) -> Option<f64> {
+        match (self.model, self.origin) {
+            (FrontModel::LineOneWay, Origin::Along { along_um: s0 }) => {
+                let d = along_um? - s0;
+                Some(if self.towards_increasing == Some(false) {
+                    -d
+                } else {
+                    d
+                })
+            }
+            (FrontModel::LineTwoWay, Origin::Along { along_um: s0 }) => {
+                Some((along_um? - s0).abs())
+            }
+            (FrontModel::RingOneWay | FrontModel::RingTwoWay, Origin::Angle { angle_rad }) => {
+                let Track::Ring {
+                    radius_um,
+                    start_angle_rad,
+                    rotation,
+                    ..
+                } = track
+                else {
+                    return None;
+                };
+                let a = match (xy_um, along_um) {
+                    (Some(xy), _) => ring_angle(track, xy),
+                    (None, Some(s)) => start_angle_rad + rotation.sign() * s / radius_um,
+                    (None, None) => return None,
+                };
+                if self.model == FrontModel::RingOneWay {
+                    let turn = if self.rotation == Some(RingTravel::Cw) {
+                        angle_rad - a
+                    } else {
+                        a - angle_rad
+                    };
+                    Some(radius_um * wrap_angle(turn))
+                } else {
+                    let d = wrap_angle(a - angle_rad);
+                    Some(radius_um * d.min(TAU - d).min(PI))
+                }
+            }
+            (FrontModel::PlaneWave, Origin::Point { xy_um: o }) => {
+                let (p, d) = (xy_um?, self.direction_xy.unwrap_or([1.0, 0.0]));
+                Some((p[0] - o[0]) * d[0] + (p[1] - o[1]) * d[1])
+            }
+            (FrontModel::PointSource, Origin::Point { xy_um: o }) => {
+                let p = xy_um?;
+                Some(libm::hypot(p[0] - o[0], p[1] - o[1]))
+            }
+            _ => None,
+        }
+    }
+}
+
+impl FittedFront {
+    /// The front's path (origin and way of travel).
+    pub fn path(&self) -> FrontPath {
+        FrontPath {
+            model: self.model,
+            origin: self.origin,
+            rotation: self.rotation,
+            towards_increasing: self.towards_increasing,
+            direction_xy: self.direction_xy,
+        }
+    }
+}
+
+/// Distance (micrometres) of a site from a fitted front's origin along the model's path
+/// ([`FrontPath::distance_um`]; 0 when the model and origin do not match): used to ask how
+/// far a front got and which sites it never reached.
 pub fn distance_from_origin(
     front: &FittedFront,
     track: &Track,
     along_um: f64,
     xy_um: [f64; 2],
 ) -> f64 {
-    match (front.model, front.origin) {
-        (FrontModel::LineOneWay, Origin::Along { along_um: s0 }) => {
-            let d = along_um - s0;
-            if front.towards_increasing == Some(false) {
-                -d
-            } else {
-                d
-            }
-        }
-        (FrontModel::LineTwoWay, Origin::Along { along_um: s0 }) => (along_um - s0).abs(),
-        (FrontModel::RingOneWay, Origin::Angle { angle_rad }) => {
-            let r = match track {
-                Track::Ring { radius_um, .. } => *radius_um,
-                _ => 0.0,
-            };
-            let a = ring_angle(track, xy_um);
-            let turn = if front.rotation == Some(RingTravel::Cw) {
-                angle_rad - a
-            } else {
-                a - angle_rad
-            };
-            r * wrap_angle(turn)
-        }
-        (FrontModel::RingTwoWay, Origin::Angle { angle_rad }) => {
-            let r = match track {
-                Track::Ring { radius_um, .. } => *radius_um,
-                _ => 0.0,
-            };
-            let d = wrap_angle(ring_angle(track, xy_um) - angle_rad);
-            r * d.min(TAU - d).min(PI)
-        }
-        (FrontModel::PlaneWave, Origin::Point { xy_um: o }) => {
-            let d = front.direction_xy.unwrap_or([1.0, 0.0]);
-            (xy_um[0] - o[0]) * d[0] + (xy_um[1] - o[1]) * d[1]
-        }
-        (FrontModel::PointSource, Origin::Point { xy_um: o }) => {
-            libm::hypot(xy_um[0] - o[0], xy_um[1] - o[1])
-        }
-        _ => 0.0,
-    }
+    front
+        .path()
+        .distance_um(track, Some(along_um), Some(xy_um))
+        .unwrap_or(0.0)
 }

@@ -10,7 +10,7 @@ use super::svg::{Colour, Plot};
 use super::{AnalysisReport, Inspection};
 use crate::detect::PopulationRate;
 use crate::fronts::{BurstResult, FrontReport};
-use crate::fronts::{FrontModel, LineTravel, RingTravel};
+use crate::fronts::{FrontModel, LineTravel};
 use crate::geometry::Track;
 use serde::Serialize;
 use std::f64::consts::TAU;
@@ -840,51 +840,22 @@ pub fn reliability(report: &AnalysisReport, size: Size) -> Result<Figure, Figure
 }
 
 /// Distance a front has travelled from its origin to an activation, µm, along the path its
-/// model describes: from the track coordinate `along_um` on a line or ring `track`, from the
-/// layout position `xy_um` on a plane. `None` when the report lacks what the model needs.
+/// model describes ([`crate::fronts::FrontPath::distance_um`]): from the track coordinate
+/// `along_um` on a line or ring `track`, from the layout position `xy_um` on a plane. `None`
+/// when the report lacks what the model needs.
 pub fn distance_from_origin_um(
     front: &FrontReport,
     track: &Track,
     along_um: Option<f64>,
     xy_um: [f64; 2],
 ) -> Option<f64> {
-    match front.model {
-        FrontModel::LineOneWay | FrontModel::LineTwoWay => {
-            Some((along_um? - front.origin_along_um?).abs())
-        }
-        FrontModel::RingOneWay | FrontModel::RingTwoWay => {
-            let Track::Ring {
-                centre_um,
-                radius_um,
-                start_angle_rad,
-                rotation,
-            } = track
-            else {
-                return None;
-            };
-            // Ring origins are angles in the layout's axes (counter-clockwise positive); the
-            // track coordinate grows in the track's own rotation from its start angle.
-            let angle = match along_um {
-                Some(s) => start_angle_rad + rotation.sign() * s / radius_um,
-                None => (xy_um[1] - centre_um[1]).atan2(xy_um[0] - centre_um[0]),
-            };
-            let turned = (angle - front.origin_angle_deg?.to_radians()).rem_euclid(TAU);
-            let arc = match (front.model, front.rotation) {
-                (FrontModel::RingOneWay, Some(RingTravel::Cw)) => (TAU - turned) % TAU,
-                (FrontModel::RingOneWay, _) => turned,
-                _ => turned.min(TAU - turned),
-            };
-            Some(radius_um * arc)
-        }
-        FrontModel::PlaneWave => {
-            let (o, n) = (front.origin_xy_um?, front.direction_xy?);
-            Some((xy_um[0] - o[0]) * n[0] + (xy_um[1] - o[1]) * n[1])
-        }
-        FrontModel::PointSource => {
-            let o = front.origin_xy_um?;
-            Some((xy_um[0] - o[0]).hypot(xy_um[1] - o[1]))
-        }
-    }
+    let xy = along_um.is_none().then_some(xy_um);
+    let d = front.path()?.distance_um(track, along_um, xy)?;
+    // Drawn as distance travelled: on a line, both sides of the origin count forwards.
+    Some(match front.model {
+        FrontModel::LineOneWay | FrontModel::LineTwoWay => d.abs(),
+        _ => d,
+    })
 }
 
 /// Activation time against position for one burst (counted from 1), with the fitted model

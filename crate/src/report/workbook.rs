@@ -106,7 +106,8 @@ pub struct StudyNotebook {
 pub struct StudyRecording {
     /// Text of its `status.json` ([`crate::study::RecordingStatus`]).
     pub status_json: String,
-    /// Its output files, (name, text), as `ringline analyze --out` writes them.
+    /// The output files the study tables are made from, (name, text), as `ringline analyze
+    /// --out` writes them (the page keeps `summary.json`, `bursts.csv` and `fronts.csv`).
     pub files: Vec<(String, String)>,
 }
 
