@@ -7,7 +7,7 @@
 //! data point, and [`Figure::nearest`] names the point under the pointer.
 
 use super::svg::{Colour, Plot};
-use super::{AnalysisReport, Inspection};
+use super::Inspection;
 use crate::detect::PopulationRate;
 use crate::fronts::{BurstResult, FrontReport};
 use crate::fronts::{FrontModel, LineTravel};
@@ -468,17 +468,12 @@ fn bars(
 }
 
 /// Histogram of interburst intervals (from burst start to next burst start), seconds.
-pub fn interval_histogram(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
-    let ibis: Vec<f64> = report
-        .bursts
-        .windows(2)
-        .map(|w| w[1].start_s - w[0].start_s)
-        .collect();
+pub fn interval_histogram(ibis: &[f64], size: Size) -> Result<Figure, FigureError> {
     if ibis.is_empty() {
         return Err(empty("fewer than two bursts, so no interburst intervals"));
     }
     bars(
-        &ibis,
+        ibis,
         size,
         "Interburst intervals",
         "interval (s)",
@@ -488,25 +483,26 @@ pub fn interval_histogram(report: &AnalysisReport, size: Size) -> Result<Figure,
 }
 
 /// Histogram of front speeds, mm/s.
-pub fn speed_histogram(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
-    let speeds: Vec<f64> = report
-        .bursts
-        .iter()
-        .filter_map(|b| b.front.as_ref().map(|f| f.speed_mm_s))
-        .collect();
-    if speeds.is_empty() {
+pub fn speed_histogram(speeds_mm_s: &[f64], size: Size) -> Result<Figure, FigureError> {
+    if speeds_mm_s.is_empty() {
         return Err(empty("no fronts"));
     }
-    bars(&speeds, size, "Front speeds", "speed (mm/s)", "mm/s", GREEN)
+    bars(
+        speeds_mm_s,
+        size,
+        "Front speeds",
+        "speed (mm/s)",
+        "mm/s",
+        GREEN,
+    )
 }
 
-/// Speed of every front against its start time with its 95% bootstrap interval.
-pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
-    let fronts: Vec<(&BurstResult, &FrontReport)> = report
-        .bursts
-        .iter()
-        .filter_map(|b| b.front.as_ref().map(|f| (b, f)))
-        .collect();
+/// Speed of every front against its start time with its 95% bootstrap interval: the
+/// fronts with the burst (counted from 1) each belongs to.
+pub fn speed_over_time(
+    fronts: &[(usize, &FrontReport)],
+    size: Size,
+) -> Result<Figure, FigureError> {
     if fronts.is_empty() {
         return Err(empty("no fronts"));
     }
@@ -524,7 +520,7 @@ pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, Fi
         (t0, t1, "front start (s)"),
         (0.0, top.max(1e-9), "speed (mm/s)"),
         |c| {
-            for (_, f) in &fronts {
+            for (_, f) in fronts {
                 c.segment(
                     (f.start_s, f.speed_ci95_mm_s[0]),
                     (f.start_s, f.speed_ci95_mm_s[1]),
@@ -532,7 +528,7 @@ pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, Fi
                     2.0,
                 );
             }
-            for (_, f) in &fronts {
+            for (_, f) in fronts {
                 c.circle(f.start_s, f.speed_mm_s, 3.0, BLUE, true);
             }
             Ok(fronts
@@ -543,11 +539,7 @@ pub fn speed_over_time(report: &AnalysisReport, size: Size) -> Result<Figure, Fi
                         f.speed_mm_s,
                         format!(
                             "burst {} at {:.2} s: {:.1} mm/s (95% {:.1}-{:.1})",
-                            b.burst,
-                            f.start_s,
-                            f.speed_mm_s,
-                            f.speed_ci95_mm_s[0],
-                            f.speed_ci95_mm_s[1]
+                            b, f.start_s, f.speed_mm_s, f.speed_ci95_mm_s[0], f.speed_ci95_mm_s[1]
                         ),
                     )
                 })
@@ -597,9 +589,12 @@ pub fn in_degree_sweep(
 }
 
 /// How many fronts started at each site, against the site's track coordinate (or rank on a
-/// plane).
-pub fn initiation_sites(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
-    let counts = &report.summary.initiation_sites;
+/// plane); bars are 0.6 site spacings wide.
+pub fn initiation_sites(
+    counts: &[crate::fronts::InitiationCount],
+    site_spacing_um: Option<f64>,
+    size: Size,
+) -> Result<Figure, FigureError> {
     if counts.is_empty() {
         return Err(empty("no fronts, so no initiation sites"));
     }
@@ -612,12 +607,7 @@ pub fn initiation_sites(report: &AnalysisReport, size: Size) -> Result<Figure, F
     let (x0, x1) = padded(xs.iter().copied()).ok_or_else(|| empty("no positions"))?;
     let top = counts.iter().map(|c| c.count).max().unwrap_or(1).max(1) as f64 * 1.15;
     let width = if on_track {
-        report
-            .track
-            .site_spacing_um
-            .unwrap_or((x1 - x0) / 40.0)
-            .max(1e-9)
-            * 0.6
+        site_spacing_um.unwrap_or((x1 - x0) / 40.0).max(1e-9) * 0.6
     } else {
         0.6
     };
@@ -800,10 +790,11 @@ pub fn recruitment(bursts: &[Vec<f64>], size: Size) -> Result<Figure, FigureErro
 }
 
 /// Fraction of fronts that reached each distance from their origin, among those that could.
-pub fn reliability(report: &AnalysisReport, size: Size) -> Result<Figure, FigureError> {
-    let points: Vec<(f64, f64, usize, usize)> = report
-        .summary
-        .reliability
+pub fn reliability(
+    reliability: &[crate::fronts::ReliabilityPoint],
+    size: Size,
+) -> Result<Figure, FigureError> {
+    let points: Vec<(f64, f64, usize, usize)> = reliability
         .iter()
         .filter_map(|p| {
             p.fraction
@@ -861,20 +852,10 @@ pub fn distance_from_origin_um(
 /// Activation time against position for one burst (counted from 1), with the fitted model
 /// and the lines of its 95% speed interval through the origin. On a track the position is
 /// the track coordinate; on a plane it is the distance travelled from the origin.
-pub fn activation_plot(
-    report: &AnalysisReport,
-    burst: usize,
-    size: Size,
-) -> Result<Figure, FigureError> {
-    let b = report
-        .bursts
-        .iter()
-        .find(|b| b.burst == burst)
-        .ok_or_else(|| empty(&format!("there is no burst {burst}")))?;
+pub fn activation_plot(b: &BurstResult, track: &Track, size: Size) -> Result<Figure, FigureError> {
     if b.activations.is_empty() {
         return Err(empty("no site activated in this burst"));
     }
-    let track = &report.track.track;
     let circumference = match track {
         Track::Ring { .. } => track.length_um(),
         _ => None,

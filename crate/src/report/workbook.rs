@@ -437,14 +437,51 @@ impl Workbook {
                 };
                 figures::population_rate(rate, kind, from_s, to_s, size)
             }
-            FigureRequest::IntervalHistogram => figures::interval_histogram(need()?, size),
-            FigureRequest::Activation => {
-                figures::activation_plot(need()?, self.settings.view.burst, size)
+            FigureRequest::IntervalHistogram => {
+                let ibis: Vec<f64> = need()?
+                    .bursts
+                    .windows(2)
+                    .map(|w| w[1].start_s - w[0].start_s)
+                    .collect();
+                figures::interval_histogram(&ibis, size)
             }
-            FigureRequest::SpeedOverTime => figures::speed_over_time(need()?, size),
-            FigureRequest::SpeedHistogram => figures::speed_histogram(need()?, size),
-            FigureRequest::InitiationSites => figures::initiation_sites(need()?, size),
-            FigureRequest::Reliability => figures::reliability(need()?, size),
+            FigureRequest::Activation => {
+                let r = need()?;
+                let burst = self.settings.view.burst;
+                let b = r
+                    .bursts
+                    .iter()
+                    .find(|b| b.burst == burst)
+                    .ok_or_else(|| FigureError {
+                        message: format!("there is no burst {burst}"),
+                    })?;
+                figures::activation_plot(b, &r.track.track, size)
+            }
+            FigureRequest::SpeedOverTime => {
+                let fronts: Vec<(usize, &crate::fronts::FrontReport)> = need()?
+                    .bursts
+                    .iter()
+                    .filter_map(|b| b.front.as_ref().map(|f| (b.burst, f)))
+                    .collect();
+                figures::speed_over_time(&fronts, size)
+            }
+            FigureRequest::SpeedHistogram => {
+                let speeds: Vec<f64> = need()?
+                    .bursts
+                    .iter()
+                    .filter_map(|b| b.front.as_ref().map(|f| f.speed_mm_s))
+                    .collect();
+                figures::speed_histogram(&speeds, size)
+            }
+            FigureRequest::InitiationSites => {
+                let r = need()?;
+                figures::initiation_sites(
+                    &r.summary.initiation_sites,
+                    r.track.site_spacing_um,
+                    size,
+                )
+            }
+            FigureRequest::Reliability => figures::reliability(&need()?.summary.reliability, size),
             FigureRequest::Leaders => {
                 let r = need()?;
                 let points: Vec<figures::LeaderPoint> = r
