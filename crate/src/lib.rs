@@ -73,6 +73,99 @@ pub fn inspect_files(
     Ok(report::inspect(&recording, &fit))
 }
 
+/// A recording's activity file as a shell offers it without reading it whole: name, length
+/// in bytes, first bytes (64 KiB is plenty), and `read(from_byte, to_byte)` for any range.
+pub struct ActivityFile<'a> {
+    pub name: &'a str,
+    pub len: u64,
+    pub head: &'a [u8],
+    pub read: &'a mut dyn FnMut(u64, u64) -> Result<Vec<u8>, import::ImportError>,
+    /// The sidecar (name, bytes) of raw samples, when the shell found one
+    /// ([`import::sidecar_names`] says where to look).
+    pub sidecar: Option<(&'a str, &'a [u8])>,
+    /// Microvolts per stored unit of a WAV file (WAV carries no scale).
+    pub wav_uv_per_unit: f64,
+}
+
+/// [`analyze_recording`] on a file the shell has not read: decides what it is
+/// ([`import::classify_input`]), then reads raw voltage block by block through its header
+/// and a text table whole (within the size limit). The command line, study runs and the
+/// page's studies all come through here.
+pub fn analyze_file(
+    file: ActivityFile<'_>,
+    layout: (&str, &[u8]),
+    settings: &RecordingSettings,
+    progress: &mut dyn FnMut(&str, u64, u64),
+) -> Result<report::AnalysisReport, Error> {
+    use import::{ImportError, ImportProblem, InputKind};
+    let place = || place::Place::file(file.name);
+    let header = match import::classify_input(file.name, file.head) {
+        InputKind::Wav => {
+            import::read_wav_header(file.name, file.head, file.len, file.wav_uv_per_unit)?
+        }
+        InputKind::VoltageSamples => match file.sidecar {
+            Some((name, bytes)) => import::read_sidecar(name, bytes, file.name, file.len)?,
+            None => {
+                return Err(ImportError::new(
+                    place(),
+                    ImportProblem::MissingColumn,
+                    format!(
+                        "this looks like raw samples, which need a JSON sidecar with sample_rate_hz, channels, sample_type and scale_uv; expected it as {}",
+                        import::sidecar_names(file.name).join(" or ")
+                    ),
+                )
+                .into())
+            }
+        },
+        _ => {
+            let limit = settings.read.limits.max_bytes as u64;
+            if file.len > limit {
+                return Err(ImportError::new(
+                    place(),
+                    ImportProblem::TooLarge,
+                    format!(
+                        "the file is {} bytes, more than the limit of {limit} bytes; raise the limit if this file is expected",
+                        file.len
+                    ),
+                )
+                .into());
+            }
+            let bytes = (file.read)(0, file.len)?;
+            return analyze_recording(
+                ActivityInput::Table(file.name, &bytes),
+                layout,
+                settings,
+                progress,
+            );
+        }
+    };
+    let frame = header.frame_bytes() as u64;
+    let offset = header.data_offset_bytes;
+    let read = file.read;
+    let mut frames = |from: u64, to: u64| -> Result<Vec<u8>, ImportError> {
+        let (a, b) = (offset + from * frame, offset + to * frame);
+        let bytes = read(a, b)?;
+        if bytes.len() as u64 != b - a {
+            return Err(ImportError::new(
+                place(),
+                ImportProblem::BadValue,
+                format!(
+                    "expected {} bytes at byte {a}, found {} (the file changed or is truncated)",
+                    b - a,
+                    bytes.len()
+                ),
+            ));
+        }
+        Ok(bytes)
+    };
+    analyze_recording(
+        ActivityInput::Voltage(&header, &mut frames),
+        layout,
+        settings,
+        progress,
+    )
+}
+
 /// [`analyze_recording`] for a spike list or ROI traces with separate settings.
 /// `progress(done, total)` is called after each burst.
 pub fn analyze_files(

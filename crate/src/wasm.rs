@@ -634,7 +634,6 @@ pub fn analyze_study_recording(
     settings: JsValue,
     progress: Option<js_sys::Function>,
 ) -> Result<JsValue, JsValue> {
-    use crate::import::InputKind;
     let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
         .map_err(|e| plain_error(format!("manifest: {e}")))?;
     let step: StepSettings = self::settings(settings, "settings")?;
@@ -646,46 +645,34 @@ pub fn analyze_study_recording(
         let layer = layer_name.as_deref().zip(layer_text.as_deref());
         let settings = crate::study::recording_settings(&step.recording(), manifest_row, layer)
             .map_err(|e| e.to_string())?;
-        let mut progress = |stage: &str, d: u64, t: u64| report_progress(stage, d as f64, t as f64);
-        let layout = (layout_name, layout_bytes);
-        match crate::import::classify_input(data_name, head) {
-            InputKind::Wav | InputKind::VoltageSamples => {
-                let sidecar = sidecar_name.as_deref().zip(sidecar_bytes.as_deref());
-                let header = voltage_header(
-                    data_name,
-                    head,
-                    data_len,
-                    sidecar,
-                    step.voltage_wav_scale_uv(),
+        let mut read_bytes = |from: u64, to: u64| -> Result<Vec<u8>, crate::import::ImportError> {
+            read.call2(
+                &JsValue::NULL,
+                &JsValue::from(from as f64),
+                &JsValue::from(to as f64),
+            )
+            .map(|v| js_sys::Uint8Array::new(&v).to_vec())
+            .map_err(|e| {
+                crate::import::ImportError::new(
+                    crate::place::Place::file(data_name),
+                    crate::import::ImportProblem::BadValue,
+                    format!("the file could not be read: {e:?}"),
                 )
-                .map_err(|e| e.to_string())?;
-                let mut frames = frame_reader(&header, &read);
-                crate::analyze_recording(
-                    crate::ActivityInput::Voltage(&header, &mut frames),
-                    layout,
-                    &settings,
-                    &mut progress,
-                )
-            }
-            _ => {
-                let limit = settings.read.limits.max_bytes as f64;
-                if data_len > limit {
-                    return Err(format!(
-                        "{data_name}: the file is {data_len} bytes, more than the limit of {limit} bytes"
-                    ));
-                }
-                let bytes = read
-                    .call2(&JsValue::NULL, &JsValue::from(0.0), &JsValue::from(data_len))
-                    .map(|v| js_sys::Uint8Array::new(&v).to_vec())
-                    .map_err(|e| format!("{data_name}: the file could not be read: {e:?}"))?;
-                crate::analyze_recording(
-                    crate::ActivityInput::Table(data_name, &bytes),
-                    layout,
-                    &settings,
-                    &mut progress,
-                )
-            }
-        }
+            })
+        };
+        crate::analyze_file(
+            crate::ActivityFile {
+                name: data_name,
+                len: data_len.max(0.0) as u64,
+                head,
+                read: &mut read_bytes,
+                sidecar: sidecar_name.as_deref().zip(sidecar_bytes.as_deref()),
+                wav_uv_per_unit: step.voltage_wav_scale_uv(),
+            },
+            (layout_name, layout_bytes),
+            &settings,
+            &mut |stage, d, t| report_progress(stage, d as f64, t as f64),
+        )
         .map_err(|e| e.to_string())
     })();
     study_entry(

@@ -10,7 +10,7 @@ use crate::import::{
 };
 use crate::place::Place;
 use crate::report::AnalysisReport;
-use crate::{ActivityInput, RecordingSettings};
+use crate::RecordingSettings;
 mod batch;
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
@@ -591,40 +591,53 @@ fn analyze_paths(
     wav_uv_per_unit: Option<f64>,
     progress: &mut dyn FnMut(&str, u64, u64),
 ) -> Result<AnalysisReport, Failure> {
+    use std::io::{Read, Seek, SeekFrom};
     let layout_bytes = read_file(layout, &settings.read.limits)?;
-    let layout = (layout, layout_bytes.as_slice());
-    let report = match open_voltage(data, wav_uv_per_unit)? {
-        Some((header, mut file)) => {
-            let frame = header.frame_bytes() as u64;
-            let offset = header.data_offset_bytes;
-            let mut read_frames = |from: u64, to: u64| -> Result<Vec<u8>, ImportError> {
-                use std::io::{Read, Seek, SeekFrom};
-                let mut buf = vec![0u8; ((to - from) * frame) as usize];
-                file.seek(SeekFrom::Start(offset + from * frame))
-                    .and_then(|_| file.read_exact(&mut buf))
-                    .map_err(|e| {
-                        ImportError::new(Place::file(data), ImportProblem::BadValue, io_words(&e))
-                    })?;
-                Ok(buf)
-            };
-            crate::analyze_recording(
-                ActivityInput::Voltage(&header, &mut read_frames),
-                layout,
-                settings,
-                progress,
-            )
-        }
-        None => {
-            let bytes = read_file(data, &settings.read.limits)?;
-            crate::analyze_recording(
-                ActivityInput::Table(data, &bytes),
-                layout,
-                settings,
-                progress,
-            )
-        }
+    let fail = |e: std::io::Error| {
+        ImportError::new(Place::file(data), ImportProblem::BadOption, io_words(&e))
     };
-    Ok(report?)
+    let mut file = std::fs::File::open(data).map_err(fail)?;
+    let len = file.metadata().map_err(fail)?.len();
+    let mut head = vec![0u8; 65_536.min(len as usize)];
+    file.read_exact(&mut head).map_err(fail)?;
+    let sidecar = match crate::import::classify_input(data, &head) {
+        crate::import::InputKind::VoltageSamples => {
+            match crate::import::sidecar_names(data)
+                .into_iter()
+                .find(|n| std::path::Path::new(n).is_file())
+            {
+                Some(name) => {
+                    let bytes = read_file(&name, &ImportLimits::default())?;
+                    Some((name, bytes))
+                }
+                None => None,
+            }
+        }
+        _ => None,
+    };
+    let mut read = |from: u64, to: u64| -> Result<Vec<u8>, ImportError> {
+        let mut buf = vec![0u8; (to - from) as usize];
+        file.seek(SeekFrom::Start(from))
+            .and_then(|_| file.read_exact(&mut buf))
+            .map_err(|e| {
+                ImportError::new(Place::file(data), ImportProblem::BadValue, io_words(&e))
+            })?;
+        Ok(buf)
+    };
+    let report = crate::analyze_file(
+        crate::ActivityFile {
+            name: data,
+            len,
+            head: &head,
+            read: &mut read,
+            sidecar: sidecar.as_ref().map(|(n, b)| (n.as_str(), b.as_slice())),
+            wav_uv_per_unit: wav_uv_per_unit.unwrap_or(1.0),
+        },
+        (layout, &layout_bytes),
+        settings,
+        progress,
+    )?;
+    Ok(report)
 }
 
 /// Writes a report's output files into `dir` (created if missing); returns their names.
@@ -638,51 +651,6 @@ fn write_outputs(
         std::fs::write(dir.join(name), content).map_err(Failure::Output)?;
     }
     Ok(files.iter().map(|f| f.0).collect())
-}
-
-/// Opens `path` as raw voltage when [`crate::import::classify_input`] says it is: a WAV file,
-/// or raw samples with a sidecar. `None` for text recordings.
-fn open_voltage(
-    path: &str,
-    uv_per_unit: Option<f64>,
-) -> Result<Option<(crate::import::VoltageHeader, std::fs::File)>, Failure> {
-    use crate::import::InputKind;
-    use std::io::Read;
-    let place = || Place::file(path);
-    let mut file = std::fs::File::open(path)
-        .map_err(|e| ImportError::new(place(), ImportProblem::BadOption, io_words(&e)))?;
-    let len = file
-        .metadata()
-        .map_err(|e| ImportError::new(place(), ImportProblem::BadOption, io_words(&e)))?
-        .len();
-    let mut head = vec![0u8; 65_536.min(len as usize)];
-    file.read_exact(&mut head)
-        .map_err(|e| ImportError::new(place(), ImportProblem::BadOption, io_words(&e)))?;
-    match crate::import::classify_input(path, &head) {
-        InputKind::Wav => {
-            let header =
-                crate::import::read_wav_header(path, &head, len, uv_per_unit.unwrap_or(1.0))?;
-            Ok(Some((header, file)))
-        }
-        InputKind::VoltageSamples => {
-            let names = crate::import::sidecar_names(path);
-            let Some(sidecar) = names.iter().find(|n| std::path::Path::new(n).is_file()) else {
-                return Err(ImportError::new(
-                    place(),
-                    ImportProblem::MissingColumn,
-                    format!(
-                        "this looks like raw samples, which need a JSON sidecar with the sample rate and channel count; expected {}",
-                        names.join(" or ")
-                    ),
-                )
-                .into());
-            };
-            let bytes = read_file(sidecar, &ImportLimits::default())?;
-            let header = crate::import::read_sidecar(sidecar, &bytes, path, len)?;
-            Ok(Some((header, file)))
-        }
-        _ => Ok(None),
-    }
 }
 
 fn voltage_settings(
