@@ -205,6 +205,7 @@ fn batch_equals_analyze_names_failures_and_shards_combine_to_the_same_bytes() {
             .collect();
         assert_eq!(measured.len(), CULTURES_PER_CONDITION, "condition {c}");
         let mean = measured.iter().sum::<f64>() / measured.len() as f64;
+        eprintln!("condition {truth} mm/s: mean of the recordings' median speeds {mean:.2} mm/s");
         assert!(
             (mean / truth - 1.0).abs() < 0.1,
             "condition {truth} mm/s measured {mean:.1} ({measured:?})"
