@@ -2,7 +2,7 @@
 """Reference fixtures for ringline's tests, computed with numpy and scipy.
 
 Writes tests/fixtures/geometry_reference.json, stats_reference.json, filter_reference.json,
-wav_reference.json (with the files in wav/) and siegert_reference.json.
+wav_reference.json (with the files in wav/), siegert_reference.json and spectrum_reference.json.
 With --check, computes the same fixtures afresh and compares them with the committed files
 (numbers to a relative 1e-9), exiting 1 on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
 
@@ -31,7 +31,8 @@ References used:
   limit of Poisson kicks): the Siegert formula as Brunel 2000 (J. Comput. Neurosci. 8:183,
   eq. 21) writes it, 1/rate = t_ref + tau sqrt(pi) int_{(V_r - mu)/sigma}^{(theta - mu)/sigma}
   exp(u^2) (1 + erf u) du, integrated by scipy.integrate.quad over scipy.special.erfcx(-u)
-  (= exp(u^2)(1 + erf u) without overflow).
+  (= exp(u^2)(1 + erf u) without overflow);
+- Welch spectra: scipy.signal.welch with its defaults.
 """
 import json
 import math
@@ -50,6 +51,7 @@ FILTER_OUT = ROOT / "tests" / "fixtures" / "filter_reference.json"
 WAV_OUT = ROOT / "tests" / "fixtures" / "wav_reference.json"
 WAV_DIR = ROOT / "tests" / "fixtures" / "wav"
 SIEGERT_OUT = ROOT / "tests" / "fixtures" / "siegert_reference.json"
+SPECTRUM_OUT = ROOT / "tests" / "fixtures" / "spectrum_reference.json"
 SEED = 20261201
 
 
@@ -340,6 +342,29 @@ def wav_fixtures(rng, write):
                          "scipy": scipy.__version__}, "cases": cases}
 
 
+def spectrum_fixtures(rng):
+    """scipy.signal.welch with its defaults (periodic Hann, nperseg // 2 overlap, constant
+    detrend, one-sided density) on seeded series: white noise, a sine in noise, a Poisson
+    rate; even and odd segment lengths; density and spectrum scaling."""
+    from scipy.signal import welch
+    cases = []
+    series = {
+        "white": rng.normal(0.0, 2.0, 1000),
+        "sine": np.sin(2 * np.pi * 3.0 * np.arange(777) / 100.0) + rng.normal(0.0, 0.5, 777),
+        "poisson_rate": rng.poisson(0.05, 2048) / 0.01,
+    }
+    fs = {"white": 1000.0, "sine": 100.0, "poisson_rate": 100.0}
+    for name, x in series.items():
+        for nperseg in (64, 101, 256):
+            for scaling in ("density", "spectrum"):
+                f, p = welch(x, fs=fs[name], nperseg=nperseg, scaling=scaling)
+                cases.append({"series": name, "fs_hz": fs[name], "nperseg": nperseg,
+                              "scaling": scaling, "frequency_hz": f.tolist(), "power": p.tolist()})
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__,
+                         "scipy": scipy.__version__},
+            "series": {k: v.tolist() for k, v in series.items()}, "cases": cases}
+
+
 def compare(a, b, path="$"):
     """Yields differences between two fixture trees; numbers compare to a relative 1e-9."""
     if isinstance(a, dict) and isinstance(b, dict):
@@ -366,7 +391,8 @@ def main():
     outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1))),
                (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2))),
                (WAV_OUT, wav_fixtures(np.random.default_rng(SEED + 3), "--check" not in sys.argv)),
-               (SIEGERT_OUT, siegert_fixtures())]
+               (SIEGERT_OUT, siegert_fixtures()),
+               (SPECTRUM_OUT, spectrum_fixtures(np.random.default_rng(SEED + 4)))]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:

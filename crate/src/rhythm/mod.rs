@@ -1,5 +1,7 @@
 //! Rhythm: how regularly bursts recur.
 
+pub mod spectrum;
+
 use crate::stats::{mean, quantile, sample_sd};
 use serde::Serialize;
 

@@ -1,0 +1,264 @@
+//! Power spectra of the population rate: Welch's method (Welch 1967, IEEE Trans. Audio
+//! Electroacoust. 15:70) with scipy's conventions (`scipy.signal.welch`: periodic Hann
+//! window, half-segment overlap, each segment's mean removed, one-sided density), on
+//! `realfft`; and the rhythm read from it: the dominant frequency, its bandwidth, and its
+//! height above the floor a Poisson train of the same mean rate would give.
+//!
+//! Gaps: a segment holding any value that is not finite (a NaN from a gap in ROI traces) is
+//! left out whole and counted, so one NaN never poisons the average; when no segment is
+//! left, there is no spectrum.
+
+use realfft::RealFftPlanner;
+use serde::{Deserialize, Serialize};
+
+/// Largest segment accepted, in samples (bounds the FFT's memory on any input).
+pub const MAX_SEGMENT: usize = 1 << 22;
+
+/// How `welch` scales its output, as in scipy.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Scaling {
+    /// Power spectral density, units^2/Hz.
+    Density,
+    /// Power spectrum, units^2.
+    Spectrum,
+}
+
+/// A one-sided Welch estimate.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Welch {
+    /// Frequencies, Hz: 0, fs/n, ... up to fs/2.
+    pub frequency_hz: Vec<f64>,
+    /// The average over the segments used, in the scaling asked for.
+    pub power: Vec<f64>,
+    /// Segments averaged, and segments left out for holding non-finite values.
+    pub segments_used: usize,
+    pub segments_skipped: usize,
+}
+
+/// Welch's estimate of `x` sampled at `fs_hz`, with segments of `nperseg` samples
+/// overlapping by `nperseg / 2` (scipy's defaults). `None` when `nperseg` is 0, larger than
+/// [`MAX_SEGMENT`] or than `x`, or when every segment holds a non-finite value.
+pub fn welch(x: &[f64], fs_hz: f64, nperseg: usize, scaling: Scaling) -> Option<Welch> {
+    if nperseg == 0 || nperseg > MAX_SEGMENT || nperseg > x.len() || !(fs_hz > 0.0) {
+        return None;
+    }
+    let step = nperseg - nperseg / 2;
+    // scipy's 'hann' window for spectra is periodic: 0.5 - 0.5 cos(2 pi n / N).
+    let window: Vec<f64> = (0..nperseg)
+        .map(|n| 0.5 - 0.5 * libm::cos(std::f64::consts::TAU * n as f64 / nperseg as f64))
+        .collect();
+    let scale = match scaling {
+        Scaling::Density => 1.0 / (fs_hz * window.iter().map(|w| w * w).sum::<f64>()),
+        Scaling::Spectrum => 1.0 / window.iter().sum::<f64>().powi(2),
+    };
+    let mut planner = RealFftPlanner::<f64>::new();
+    let fft = planner.plan_fft_forward(nperseg);
+    let mut input = fft.make_input_vec();
+    let mut output = fft.make_output_vec();
+    let bins = nperseg / 2 + 1;
+    let mut sum = vec![0.0; bins];
+    let (mut used, mut skipped) = (0, 0);
+    let mut start = 0;
+    while start + nperseg <= x.len() {
+        let segment = &x[start..start + nperseg];
+        start += step;
+        if segment.iter().any(|v| !v.is_finite()) {
+            skipped += 1;
+            continue;
+        }
+        let mean = segment.iter().sum::<f64>() / nperseg as f64;
+        for ((slot, &v), &w) in input.iter_mut().zip(segment).zip(&window) {
+            *slot = (v - mean) * w;
+        }
+        if fft.process(&mut input, &mut output).is_err() {
+            return None;
+        }
+        for (s, c) in sum.iter_mut().zip(&output) {
+            *s += c.norm_sqr();
+        }
+        used += 1;
+    }
+    if used == 0 {
+        return None;
+    }
+    let power: Vec<f64> = sum
+        .iter()
+        .enumerate()
+        .map(|(k, s)| {
+            // One-sided: every bin but DC (and Nyquist for an even length) counts twice.
+            let nyquist = nperseg % 2 == 0 && k == bins - 1;
+            let twice = if k == 0 || nyquist { 1.0 } else { 2.0 };
+            twice * scale * s / used as f64
+        })
+        .collect();
+    Some(Welch {
+        frequency_hz: (0..bins)
+            .map(|k| k as f64 * fs_hz / nperseg as f64)
+            .collect(),
+        power,
+        segments_used: used,
+        segments_skipped: skipped,
+    })
+}
+
+/// How the population rhythm is measured.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct SpectrumSettings {
+    /// Bin of the event rate the spectrum is computed on, seconds (Nyquist 1 / (2 bin)).
+    pub bin_s: f64,
+    /// Slowest rhythm of interest, Hz; with `periods_per_segment` it sets the segment length.
+    pub min_frequency_hz: f64,
+    /// Periods of the slowest rhythm in one Welch segment (common practice, no source: a few
+    /// periods, so that the slowest rhythm is resolved and several segments are averaged).
+    pub periods_per_segment: f64,
+    /// Fastest frequency searched for the dominant rhythm, Hz.
+    pub max_frequency_hz: f64,
+    /// False-alarm probability of the floor test, over all frequencies searched together
+    /// (Bonferroni).
+    pub false_alarm: f64,
+}
+
+impl Default for SpectrumSettings {
+    fn default() -> Self {
+        SpectrumSettings {
+            bin_s: 0.01,
+            min_frequency_hz: 0.05,
+            periods_per_segment: 4.0,
+            max_frequency_hz: 10.0,
+            false_alarm: 0.01,
+        }
+    }
+}
+
+/// The rhythm of the population rate.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RateSpectrum {
+    /// Frequency resolution (bin spacing), Hz, and the segment length, seconds.
+    pub resolution_hz: f64,
+    pub segment_s: f64,
+    pub segments_used: usize,
+    pub segments_skipped: usize,
+    /// Mean event rate over all sites, events/s.
+    pub mean_rate_hz: f64,
+    /// The flat one-sided density of a Poisson train of that rate binned into a rate:
+    /// 2 x mean rate, (events/s)^2/Hz.
+    pub poisson_floor: f64,
+    /// Highest density between the lowest resolved frequency and `max_frequency_hz`.
+    pub peak_frequency_hz: Option<f64>,
+    pub peak_density: Option<f64>,
+    /// Full width of the peak at half its height, Hz (linear between bins).
+    pub peak_bandwidth_hz: Option<f64>,
+    /// Peak density over the Poisson floor.
+    pub peak_over_floor: Option<f64>,
+    /// The ratio a peak must exceed to be a rhythm: the chi-square quantile of an averaged
+    /// Welch estimate of white noise at the floor, corrected for the frequencies searched.
+    pub rhythm_threshold: Option<f64>,
+    /// Whether the peak clears that threshold.
+    pub is_rhythm: bool,
+    /// The spectrum itself: (frequency Hz, density (events/s)^2/Hz), up to `max_frequency_hz`.
+    pub density: Vec<(f64, f64)>,
+}
+
+/// The spectrum of the summed event rate of `trains_s` (seconds) over `span_s`, with the
+/// dominant rhythm and the Poisson floor. `None` when the recording is shorter than one
+/// segment or holds no events.
+pub fn rate_spectrum(
+    trains_s: &[Vec<f64>],
+    span_s: (f64, f64),
+    s: &SpectrumSettings,
+) -> Option<RateSpectrum> {
+    let (t0, t1) = span_s;
+    let duration = t1 - t0;
+    if !(duration > 0.0) || !(s.bin_s > 0.0) || !(s.min_frequency_hz > 0.0) {
+        return None;
+    }
+    let bins = (duration / s.bin_s).floor();
+    if !(bins >= 1.0) || bins > 1e9 {
+        return None;
+    }
+    let bins = bins as usize;
+    let fs = 1.0 / s.bin_s;
+    let wanted = (s.periods_per_segment / s.min_frequency_hz / s.bin_s).round();
+    if !(wanted >= 8.0) {
+        return None;
+    }
+    let nperseg = (wanted as usize).min(bins).min(MAX_SEGMENT);
+    let mut rate = vec![0.0; bins];
+    let mut events = 0usize;
+    for train in trains_s {
+        for &t in train {
+            let k = ((t - t0) / s.bin_s).floor();
+            if k >= 0.0 && (k as usize) < bins {
+                rate[k as usize] += fs;
+                events += 1;
+            }
+        }
+    }
+    if events == 0 {
+        return None;
+    }
+    let w = welch(&rate, fs, nperseg, Scaling::Density)?;
+    let mean_rate_hz = events as f64 / (bins as f64 * s.bin_s);
+    let floor = 2.0 * mean_rate_hz;
+    let in_band: Vec<usize> = (1..w.frequency_hz.len())
+        .filter(|&k| w.frequency_hz[k] <= s.max_frequency_hz)
+        .collect();
+    let peak = in_band
+        .iter()
+        .copied()
+        .max_by(|&a, &b| w.power[a].total_cmp(&w.power[b]));
+    // Averaging K half-overlapping Hann segments gives about 2 K' degrees of freedom with
+    // K' = K / (1 + 2 c^2 (1 - 1/K)), c = 0.167 the correlation of Hann segments overlapping by
+    // half (Welch 1967; Harris 1978, Proc. IEEE 66:51, from memory); one segment has 2.
+    let k = w.segments_used as f64;
+    let dof = 2.0 * k / (1.0 + 2.0 * 0.167f64.powi(2) * (1.0 - 1.0 / k));
+    let threshold = (!in_band.is_empty()).then(|| {
+        use statrs::distribution::{ChiSquared, ContinuousCDF};
+        let p = 1.0 - s.false_alarm.clamp(1e-12, 0.5) / in_band.len() as f64;
+        ChiSquared::new(dof)
+            .map(|c| c.inverse_cdf(p) / dof)
+            .unwrap_or(f64::INFINITY)
+    });
+    let bandwidth = peak.map(|p| {
+        let half = w.power[p] / 2.0;
+        let edge = |step: isize| {
+            let mut i = p as isize;
+            loop {
+                let j = i + step;
+                if j < 0 || j as usize >= w.power.len() {
+                    return w.frequency_hz[i as usize];
+                }
+                let (a, b) = (w.power[i as usize], w.power[j as usize]);
+                if b <= half {
+                    let (fa, fb) = (w.frequency_hz[i as usize], w.frequency_hz[j as usize]);
+                    return fa + (fb - fa) * (a - half) / (a - b);
+                }
+                i = j;
+            }
+        };
+        edge(1) - edge(-1)
+    });
+    let peak_over_floor = peak.map(|p| w.power[p] / floor);
+    Some(RateSpectrum {
+        resolution_hz: fs / nperseg as f64,
+        segment_s: nperseg as f64 * s.bin_s,
+        segments_used: w.segments_used,
+        segments_skipped: w.segments_skipped,
+        mean_rate_hz,
+        poisson_floor: floor,
+        peak_frequency_hz: peak.map(|p| w.frequency_hz[p]),
+        peak_density: peak.map(|p| w.power[p]),
+        peak_bandwidth_hz: bandwidth,
+        peak_over_floor,
+        rhythm_threshold: threshold,
+        is_rhythm: matches!((peak_over_floor, threshold), (Some(r), Some(t)) if r > t),
+        density: w
+            .frequency_hz
+            .iter()
+            .zip(&w.power)
+            .filter(|(f, _)| **f <= s.max_frequency_hz)
+            .map(|(&f, &p)| (f, p))
+            .collect(),
+    })
+}

@@ -1,0 +1,164 @@
+//! Spectra of the population rate: Welch's method against scipy.signal.welch (the worked
+//! values in ../shared/CHECK-VALUES.md and seeded fixtures made by
+//! scripts/reference/make_fixtures.py), the Poisson floor 2 lambda (derived), and a rhythm
+//! found at the frequency it was simulated at.
+
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use ringline::rhythm::spectrum::{rate_spectrum, welch, Scaling, SpectrumSettings};
+
+fn close(a: &[f64], b: &[f64], rel: f64) {
+    assert_eq!(a.len(), b.len());
+    for (x, y) in a.iter().zip(b) {
+        assert!(
+            (x - y).abs() <= rel * y.abs().max(1e-12),
+            "{x} against {y} (relative tolerance {rel})"
+        );
+    }
+}
+
+/// scipy.signal.welch, CHECK-VALUES.md: x = 16 zeros with x[0] = x[8] = 1, fs = 1.
+#[test]
+fn welch_matches_the_worked_scipy_values() {
+    let mut x = vec![0.0; 16];
+    x[0] = 1.0;
+    x[8] = 1.0;
+    let w = welch(&x, 1.0, 8, Scaling::Density).unwrap();
+    close(&w.frequency_hz, &[0.0, 0.125, 0.25, 0.375, 0.5], 1e-12);
+    close(
+        &w.power,
+        &[0.08333333, 0.15277778, 0.22222222, 0.22222222, 0.11111111],
+        1e-6,
+    );
+    let w = welch(&x, 1.0, 8, Scaling::Spectrum).unwrap();
+    close(
+        &w.power,
+        &[0.015625, 0.02864583, 0.04166667, 0.04166667, 0.02083333],
+        1e-6,
+    );
+    let w = welch(&x, 1.0, 9, Scaling::Density).unwrap();
+    close(
+        &w.power,
+        &[0.12477455, 0.23430933, 0.17072113, 0.17072113, 0.17072113],
+        1e-6,
+    );
+}
+
+/// scipy.signal.welch on seeded series (tests/fixtures/spectrum_reference.json).
+#[test]
+fn welch_matches_scipy_fixtures() {
+    let text = std::fs::read_to_string(format!(
+        "{}/../tests/fixtures/spectrum_reference.json",
+        env!("CARGO_MANIFEST_DIR")
+    ))
+    .unwrap();
+    let fixture: serde_json::Value = serde_json::from_str(&text).unwrap();
+    let numbers = |v: &serde_json::Value| -> Vec<f64> {
+        v.as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_f64().unwrap())
+            .collect()
+    };
+    let cases = fixture["cases"].as_array().unwrap();
+    assert_eq!(cases.len(), 18);
+    for case in cases {
+        let x = numbers(&fixture["series"][case["series"].as_str().unwrap()]);
+        let scaling = match case["scaling"].as_str().unwrap() {
+            "density" => Scaling::Density,
+            _ => Scaling::Spectrum,
+        };
+        let nperseg = case["nperseg"].as_u64().unwrap() as usize;
+        let w = welch(&x, case["fs_hz"].as_f64().unwrap(), nperseg, scaling).unwrap();
+        close(&w.frequency_hz, &numbers(&case["frequency_hz"]), 1e-12);
+        close(&w.power, &numbers(&case["power"]), 1e-9);
+    }
+}
+
+/// A segment with a NaN (a gap) is left out; the others give the same estimate as the
+/// series without that segment.
+#[test]
+fn a_gap_leaves_out_its_segments_only() {
+    let mut rng = ChaCha8Rng::seed_from_u64(3);
+    let x: Vec<f64> = (0..1024).map(|_| rng.random::<f64>() - 0.5).collect();
+    let mut gapped = x.clone();
+    gapped[950] = f64::NAN;
+    let whole = welch(&x, 10.0, 128, Scaling::Density).unwrap();
+    let w = welch(&gapped, 10.0, 128, Scaling::Density).unwrap();
+    // Segments of 128 every 64 samples: 15 in all, starting at 0, 64, ..., 896; sample 950
+    // lies in the last two (832-959 and 896-1023).
+    assert_eq!(
+        (whole.segments_used, w.segments_used, w.segments_skipped),
+        (15, 13, 2)
+    );
+    assert!(w.power.iter().all(|p| p.is_finite()));
+    let head = welch(&x[..896], 10.0, 128, Scaling::Density).unwrap();
+    assert_eq!(head.segments_used, 13);
+    close(&w.power, &head.power, 1e-12);
+    assert!(welch(&[f64::NAN; 256], 10.0, 128, Scaling::Density).is_none());
+}
+
+/// Poisson trains of total rate lambda binned into a rate: flat one-sided density 2 lambda
+/// (derived; CHECK-VALUES.md), and no rhythm; the same sites bursting every 8 s give a peak
+/// at 0.125 Hz that clears the floor.
+#[test]
+fn poisson_floor_and_a_simulated_rhythm() {
+    let mut rng = ChaCha8Rng::seed_from_u64(11);
+    let (sites, rate_hz, duration) = (10, 0.5, 3000.0);
+    let poisson: Vec<Vec<f64>> = (0..sites)
+        .map(|_| {
+            let mut t = 0.0;
+            let mut train = Vec::new();
+            loop {
+                t += -(1.0 - rng.random::<f64>()).ln() / rate_hz;
+                if t >= duration {
+                    break train;
+                }
+                train.push(t);
+            }
+        })
+        .collect();
+    let s = SpectrumSettings::default();
+    let spectrum = rate_spectrum(&poisson, (0.0, duration), &s).unwrap();
+    let lambda = sites as f64 * rate_hz;
+    assert!((spectrum.mean_rate_hz / lambda - 1.0).abs() < 0.05);
+    let band: Vec<f64> = spectrum
+        .density
+        .iter()
+        .filter(|(f, _)| *f > 0.2)
+        .map(|p| p.1)
+        .collect();
+    let mean = band.iter().sum::<f64>() / band.len() as f64;
+    assert!(
+        (mean / (2.0 * lambda) - 1.0).abs() < 0.05,
+        "mean density {mean} against the floor {}",
+        2.0 * lambda
+    );
+    assert!(!spectrum.is_rhythm, "{spectrum:?}");
+
+    // Every site fires 5 spikes within 50 ms of each burst, bursts every 8 s +- 0.4 s.
+    let mut bursting = poisson.clone();
+    let mut t = 5.0;
+    while t < duration - 1.0 {
+        for train in bursting.iter_mut() {
+            for _ in 0..5 {
+                train.push(t + 0.05 * rng.random::<f64>());
+            }
+        }
+        t += 8.0 + 0.8 * (rng.random::<f64>() - 0.5);
+    }
+    for train in bursting.iter_mut() {
+        train.sort_by(f64::total_cmp);
+    }
+    let spectrum = rate_spectrum(&bursting, (0.0, duration), &s).unwrap();
+    let peak = spectrum.peak_frequency_hz.unwrap();
+    assert!(
+        (peak - 0.125).abs() <= spectrum.resolution_hz,
+        "peak at {peak} Hz, resolution {} Hz",
+        spectrum.resolution_hz
+    );
+    assert!(spectrum.is_rhythm);
+    assert!(spectrum.peak_bandwidth_hz.unwrap() < 0.05);
+}
