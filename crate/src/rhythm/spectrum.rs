@@ -39,7 +39,7 @@ pub struct Welch {
 /// overlapping by `nperseg / 2` (scipy's defaults). `None` when `nperseg` is 0, larger than
 /// [`MAX_SEGMENT`] or than `x`, or when every segment holds a non-finite value.
 pub fn welch(x: &[f64], fs_hz: f64, nperseg: usize, scaling: Scaling) -> Option<Welch> {
-    if nperseg == 0 || nperseg > MAX_SEGMENT || nperseg > x.len() || !(fs_hz > 0.0) {
+    if nperseg == 0 || nperseg > MAX_SEGMENT || nperseg > x.len() || !positive(fs_hz) {
         return None;
     }
     let step = nperseg - nperseg / 2;
@@ -170,17 +170,17 @@ pub fn rate_spectrum(
 ) -> Option<RateSpectrum> {
     let (t0, t1) = span_s;
     let duration = t1 - t0;
-    if !(duration > 0.0) || !(s.bin_s > 0.0) || !(s.min_frequency_hz > 0.0) {
+    if !positive(duration) || !positive(s.bin_s) || !positive(s.min_frequency_hz) {
         return None;
     }
     let bins = (duration / s.bin_s).floor();
-    if !(bins >= 1.0) || bins > 1e9 {
+    if !at_least(bins, 1.0) || bins > 1e9 {
         return None;
     }
     let bins = bins as usize;
     let fs = 1.0 / s.bin_s;
     let wanted = (s.periods_per_segment / s.min_frequency_hz / s.bin_s).round();
-    if !(wanted >= 8.0) {
+    if !at_least(wanted, 8.0) {
         return None;
     }
     let nperseg = (wanted as usize).min(bins).min(MAX_SEGMENT);
@@ -261,4 +261,14 @@ pub fn rate_spectrum(
             .map(|(&f, &p)| (f, p))
             .collect(),
     })
+}
+
+/// Whether `x` is a number above zero (false for NaN).
+fn positive(x: f64) -> bool {
+    x > 0.0
+}
+
+/// Whether `x` is a number of at least `low` (false for NaN).
+fn at_least(x: f64, low: f64) -> bool {
+    x >= low
 }
