@@ -42,6 +42,7 @@ pub mod rhythm;
 pub mod simulate;
 pub mod stats;
 pub mod study;
+pub mod synchrony;
 
 #[cfg(not(target_arch = "wasm32"))]
 pub mod cli;

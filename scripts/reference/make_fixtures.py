@@ -2,7 +2,8 @@
 """Reference fixtures for ringline's tests, computed with numpy and scipy.
 
 Writes tests/fixtures/geometry_reference.json, stats_reference.json, filter_reference.json,
-wav_reference.json (with the files in wav/), siegert_reference.json and spectrum_reference.json.
+wav_reference.json (with the files in wav/), siegert_reference.json, spectrum_reference.json and
+sttc_reference.json.
 With --check, computes the same fixtures afresh and compares them with the committed files
 (numbers to a relative 1e-9), exiting 1 on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
 
@@ -32,7 +33,9 @@ References used:
   eq. 21) writes it, 1/rate = t_ref + tau sqrt(pi) int_{(V_r - mu)/sigma}^{(theta - mu)/sigma}
   exp(u^2) (1 + erf u) du, integrated by scipy.integrate.quad over scipy.special.erfcx(-u)
   (= exp(u^2)(1 + erf u) without overflow);
-- Welch spectra: scipy.signal.welch with its defaults.
+- Welch spectra: scipy.signal.welch with its defaults;
+- spike time tiling coefficient: written from Cutts & Eglen 2014's definitions with numpy
+  (`sttc_numpy`), on seeded trains.
 """
 import json
 import math
@@ -52,6 +55,7 @@ WAV_OUT = ROOT / "tests" / "fixtures" / "wav_reference.json"
 WAV_DIR = ROOT / "tests" / "fixtures" / "wav"
 SIEGERT_OUT = ROOT / "tests" / "fixtures" / "siegert_reference.json"
 SPECTRUM_OUT = ROOT / "tests" / "fixtures" / "spectrum_reference.json"
+STTC_OUT = ROOT / "tests" / "fixtures" / "sttc_reference.json"
 SEED = 20261201
 
 
@@ -365,6 +369,54 @@ def spectrum_fixtures(rng):
             "series": {k: v.tolist() for k, v in series.items()}, "cases": cases}
 
 
+def sttc_numpy(a, b, t0, t1, dt):
+    """STTC (Cutts & Eglen 2014) written from the paper's definitions with numpy: T from the
+    union of the clipped windows [t - dt, t + dt], P from np.searchsorted."""
+    def tiled_time(x):
+        if len(x) == 0:
+            return 0.0
+        lo = np.clip(x - dt, t0, t1)
+        hi = np.clip(x + dt, t0, t1)
+        total, cur_lo, cur_hi = 0.0, lo[0], hi[0]
+        for l, h in zip(lo[1:], hi[1:]):
+            if l <= cur_hi:
+                cur_hi = max(cur_hi, h)
+            else:
+                total += cur_hi - cur_lo
+                cur_lo, cur_hi = l, h
+        return (total + cur_hi - cur_lo) / (t1 - t0)
+
+    def tiled_spikes(x, y):
+        i = np.searchsorted(y, x - dt, side="left")
+        near = (i < len(y)) & (y[np.minimum(i, len(y) - 1)] <= x + dt)
+        return float(np.mean(near))
+
+    ta, tb = tiled_time(a), tiled_time(b)
+    pa, pb = tiled_spikes(a, b), tiled_spikes(b, a)
+    return 0.5 * (pa - tb) / (1 - pa * tb) + 0.5 * (pb - ta) / (1 - pb * ta)
+
+
+def sttc_fixtures(rng):
+    """STTC of seeded trains: independent Poisson trains, trains sharing bursts, and jittered
+    copies, over a recording of 100 s, for three windows."""
+    t0, t1 = 0.0, 100.0
+    bursts = np.sort(rng.uniform(t0, t1, 30))
+    trains = []
+    for k in range(8):
+        own = rng.uniform(t0, t1, rng.integers(20, 120))
+        shared = bursts[rng.random(30) < 0.3 + 0.08 * k]
+        jitter = rng.normal(0.0, 0.01 * (k + 1), len(shared))
+        trains.append(np.sort(np.clip(np.concatenate([own, shared + jitter]), t0, t1)))
+    cases = []
+    for dt in (0.005, 0.05, 0.5):
+        for i in range(len(trains)):
+            for j in range(i + 1, len(trains)):
+                cases.append({"i": i, "j": j, "dt_s": dt,
+                              "sttc": sttc_numpy(trains[i], trains[j], t0, t1, dt)})
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__},
+            "span_s": [t0, t1], "trains_s": [t.tolist() for t in trains], "cases": cases}
+
+
 def compare(a, b, path="$"):
     """Yields differences between two fixture trees; numbers compare to a relative 1e-9."""
     if isinstance(a, dict) and isinstance(b, dict):
@@ -392,7 +444,8 @@ def main():
                (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2))),
                (WAV_OUT, wav_fixtures(np.random.default_rng(SEED + 3), "--check" not in sys.argv)),
                (SIEGERT_OUT, siegert_fixtures()),
-               (SPECTRUM_OUT, spectrum_fixtures(np.random.default_rng(SEED + 4)))]
+               (SPECTRUM_OUT, spectrum_fixtures(np.random.default_rng(SEED + 4))),
+               (STTC_OUT, sttc_fixtures(np.random.default_rng(SEED + 5)))]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:

@@ -1,0 +1,211 @@
+//! Synchrony between sites: the spike time tiling coefficient for every pair (Cutts &
+//! Eglen 2014, J. Neurosci. 34:14288) and the Kuramoto order parameter from spike phases
+//! (phase linear between successive spikes; Pinsky & Rinzel 1995, J. Comput. Neurosci.
+//! 2:275). Inputs are event trains in seconds, ascending.
+
+use ndarray::Array2;
+use serde::{Deserialize, Serialize};
+
+/// Largest number of sites a pairwise matrix is computed for (the matrix has the square).
+pub const MAX_SITES: usize = 8192;
+
+/// Largest number of time samples of the order parameter.
+pub const MAX_SAMPLES: usize = 2_000_000;
+
+/// Share of the recording `[t0, t1]` within `dt` of some event of `train`: the union of the
+/// windows `[t - dt, t + dt]`, clipped to the recording, over its length.
+pub fn tiled_fraction(train: &[f64], span_s: (f64, f64), dt: f64) -> f64 {
+    let (t0, t1) = span_s;
+    let length = t1 - t0;
+    if length <= 0.0 {
+        return 0.0;
+    }
+    let mut covered = 0.0;
+    let mut open: Option<(f64, f64)> = None;
+    for &t in train {
+        let (a, b) = ((t - dt).max(t0), (t + dt).min(t1));
+        if b <= a {
+            continue;
+        }
+        open = match open {
+            Some((lo, hi)) if a <= hi => Some((lo, hi.max(b))),
+            Some((lo, hi)) => {
+                covered += hi - lo;
+                Some((a, b))
+            }
+            None => Some((a, b)),
+        };
+    }
+    if let Some((lo, hi)) = open {
+        covered += hi - lo;
+    }
+    covered / length
+}
+
+/// Share of the events of `a` that have an event of `b` within `dt` (inclusive): one merge
+/// pass over both sorted trains.
+pub fn tiled_events(a: &[f64], b: &[f64], dt: f64) -> f64 {
+    if a.is_empty() {
+        return 0.0;
+    }
+    let mut j = 0;
+    let mut hits = 0usize;
+    for &t in a {
+        while j < b.len() && b[j] < t - dt {
+            j += 1;
+        }
+        if j < b.len() && b[j] <= t + dt {
+            hits += 1;
+        }
+    }
+    hits as f64 / a.len() as f64
+}
+
+/// STTC of two trains over the recording `span_s` with window `dt` (seconds), from their
+/// tiled fractions `ta`, `tb` ([`tiled_fraction`]).
+///
+/// 0/0 policy: `None` when either train is empty, or when a term's denominator 1 - P T is
+/// zero (every event of one train is tiled by the other, whose windows cover the whole
+/// recording): the coefficient is then undefined, and it is reported as missing, never as 0
+/// or 1.
+pub fn sttc_with(a: &[f64], b: &[f64], ta: f64, tb: f64, dt: f64) -> Option<f64> {
+    if a.is_empty() || b.is_empty() {
+        return None;
+    }
+    let pa = tiled_events(a, b, dt);
+    let pb = tiled_events(b, a, dt);
+    let (da, db) = (1.0 - pa * tb, 1.0 - pb * ta);
+    if da == 0.0 || db == 0.0 {
+        return None;
+    }
+    Some(0.5 * (pa - tb) / da + 0.5 * (pb - ta) / db)
+}
+
+/// STTC of two trains (see [`sttc_with`]).
+pub fn sttc(a: &[f64], b: &[f64], span_s: (f64, f64), dt: f64) -> Option<f64> {
+    sttc_with(
+        a,
+        b,
+        tiled_fraction(a, span_s, dt),
+        tiled_fraction(b, span_s, dt),
+        dt,
+    )
+}
+
+/// STTC for every pair of `trains`, in the order given (callers order sites along the
+/// track); the diagonal is each train with itself (1, or `None` for an empty train). `None`
+/// for more than [`MAX_SITES`] trains. Cost: one linear merge per pair, so it grows with
+/// the square of the sites times their events.
+pub fn sttc_matrix(trains: &[&[f64]], span_s: (f64, f64), dt: f64) -> Option<Array2<Option<f64>>> {
+    let n = trains.len();
+    if n > MAX_SITES {
+        return None;
+    }
+    let tiled: Vec<f64> = trains
+        .iter()
+        .map(|t| tiled_fraction(t, span_s, dt))
+        .collect();
+    let mut m = Array2::from_elem((n, n), None);
+    for i in 0..n {
+        for j in i..n {
+            let v = sttc_with(trains[i], trains[j], tiled[i], tiled[j], dt);
+            m[[i, j]] = v;
+            m[[j, i]] = v;
+        }
+    }
+    Some(m)
+}
+
+/// Settings of the synchrony measures.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct SynchronySettings {
+    /// STTC window, seconds (Cutts & Eglen 2014 illustrate with 5-50 ms; common practice, no
+    /// source, for network bursts: 50 ms).
+    pub sttc_dt_s: f64,
+    /// Time step at which the order parameter is sampled, seconds.
+    pub phase_step_s: f64,
+}
+
+impl Default for SynchronySettings {
+    fn default() -> Self {
+        SynchronySettings {
+            sttc_dt_s: 0.05,
+            phase_step_s: 0.01,
+        }
+    }
+}
+
+/// The Kuramoto order parameter over a recording.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct OrderParameter {
+    /// Mean of R(t) over the samples where at least two sites have a phase.
+    pub mean_r: f64,
+    /// Samples used, and samples masked (fewer than two sites with a phase).
+    pub samples: usize,
+    pub masked: usize,
+    /// Sites with at least two events (the others never have a phase).
+    pub sites: usize,
+    /// Mean number of sites with a phase over the samples used.
+    pub mean_sites_with_phase: f64,
+    /// Expected R of that many independent uniform phases, sqrt(pi) / (2 sqrt(N))
+    /// (derived; CHECK-VALUES.md).
+    pub chance_r: f64,
+}
+
+/// R(t) = |mean over sites of exp(i phi_k(t))|, phi_k rising linearly by 2 pi between a
+/// site's successive events, sampled every `step_s` over `span_s`. A site has no phase
+/// before its first event or after its last: it is left out there (masked), never filled.
+/// `None` when no sample has two sites with a phase, or the sampling would exceed
+/// [`MAX_SAMPLES`].
+pub fn order_parameter(
+    trains: &[&[f64]],
+    span_s: (f64, f64),
+    step_s: f64,
+) -> Option<OrderParameter> {
+    let (t0, t1) = span_s;
+    let count = ((t1 - t0) / step_s).floor();
+    if !(count >= 1.0 && count <= MAX_SAMPLES as f64) {
+        return None;
+    }
+    let samples = count as usize;
+    let mut next = vec![0usize; trains.len()];
+    let (mut sum_r, mut used, mut masked, mut with_phase) = (0.0, 0usize, 0usize, 0usize);
+    for k in 0..samples {
+        let t = t0 + (k as f64 + 0.5) * step_s;
+        let (mut c, mut s, mut n) = (0.0, 0.0, 0usize);
+        for (train, i) in trains.iter().zip(next.iter_mut()) {
+            while *i < train.len() && train[*i] <= t {
+                *i += 1;
+            }
+            // train[i - 1] <= t < train[i]: a phase exists between two events.
+            if *i == 0 || *i >= train.len() {
+                continue;
+            }
+            let (a, b) = (train[*i - 1], train[*i]);
+            let phase = std::f64::consts::TAU * (t - a) / (b - a);
+            c += libm::cos(phase);
+            s += libm::sin(phase);
+            n += 1;
+        }
+        if n < 2 {
+            masked += 1;
+            continue;
+        }
+        sum_r += libm::hypot(c, s) / n as f64;
+        used += 1;
+        with_phase += n;
+    }
+    if used == 0 {
+        return None;
+    }
+    let mean_n = with_phase as f64 / used as f64;
+    Some(OrderParameter {
+        mean_r: sum_r / used as f64,
+        samples: used,
+        masked,
+        sites: trains.iter().filter(|t| t.len() >= 2).count(),
+        mean_sites_with_phase: mean_n,
+        chance_r: std::f64::consts::PI.sqrt() / (2.0 * mean_n.sqrt()),
+    })
+}
