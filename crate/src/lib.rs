@@ -243,14 +243,55 @@ pub fn analyze_recording(
     };
     let fit = geometry::fit_track(&recording.sites, &settings.track)?;
     let events = events::event_trains(&recording, &settings.analysis.calcium);
-    let analysis = fronts::analyze(
+    let (mut report, _rate) = analyze_events(
         &recording,
         &events,
         &fit,
         &settings.analysis,
         &mut |done, total| progress("analysing bursts", done as u64, total as u64),
     )?;
-    let mut report = report::AnalysisReport::new(&recording, &fit, &settings.analysis, analysis);
     report.electrodes = electrodes;
     Ok(report)
+}
+
+/// Everything measured on a recording's event trains once its track is known: bursts and
+/// fronts ([`fronts::analyze`]), the rhythm of the population rate
+/// ([`rhythm::spectrum::rate_spectrum`]) and the synchrony of the sites
+/// ([`synchrony::summarise`], sites in track order). Returns the report and the population
+/// rate the bursts were found on (for the page's figure). `progress(done, total)` per burst.
+pub fn analyze_events(
+    recording: &recording::Recording,
+    events: &events::EventTrains,
+    fit: &geometry::TrackFit,
+    settings: &fronts::AnalysisSettings,
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<(report::AnalysisReport, Option<detect::PopulationRate>), Error> {
+    let mut analysis = fronts::analyze(recording, events, fit, settings, progress)?;
+    let rate = analysis.population_rate.take();
+    let span = recording.observed_span_s();
+    let rhythm =
+        span.and_then(|s| rhythm::spectrum::rate_spectrum(&events.trains_s, s, &settings.spectrum));
+    let on_plane = matches!(fit.track, geometry::Track::Plane);
+    let mut sites: Vec<synchrony::SiteEvents> = recording
+        .sites
+        .iter()
+        .zip(events.trains_s.iter())
+        .zip(&fit.placements)
+        .map(|((site, train), p)| synchrony::SiteEvents {
+            id: &site.id,
+            along_um: (!on_plane).then_some(p.along_um),
+            xy_um: site.position_um(),
+            events_s: train,
+        })
+        .collect();
+    sites.sort_by(|a, b| {
+        a.along_um
+            .unwrap_or(0.0)
+            .total_cmp(&b.along_um.unwrap_or(0.0))
+    });
+    let sync = span.map(|s| synchrony::summarise(&sites, s, &settings.synchrony));
+    let mut report = report::AnalysisReport::new(recording, fit, settings, analysis);
+    report.rhythm = rhythm;
+    report.synchrony = sync;
+    Ok((report, rate))
 }

@@ -47,6 +47,10 @@ pub struct AnalysisSettings {
     pub initiation_zones: Option<usize>,
     /// Leading sites, recruitment and the consistency of the activation order.
     pub order: OrderSettings,
+    /// The spectrum of the population rate.
+    pub spectrum: crate::rhythm::spectrum::SpectrumSettings,
+    /// STTC and the order parameter.
+    pub synchrony: crate::synchrony::SynchronySettings,
 }
 
 /// One site's activation in one burst.
@@ -332,6 +336,9 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
         ("bursts.population_rate.smooth_sd_s", p.smooth_sd_s),
         ("bursts.isi_n.max_span_s", s.bursts.isi_n.max_span_s),
         ("activation.cluster_window_s", s.activation.cluster_window_s),
+        ("spectrum.bin_s", s.spectrum.bin_s),
+        ("synchrony.sttc_dt_s", s.synchrony.sttc_dt_s),
+        ("synchrony.phase_step_s", s.synchrony.phase_step_s),
     ] {
         if !(v.is_finite() && v > 0.0) {
             return bad(format!("{name}: expected a time above 0 s, found {v}"));
@@ -341,6 +348,24 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
         return bad(format!(
             "fronts.confidence: expected a level between 0.5 and 1, found {}",
             s.fronts.confidence
+        ));
+    }
+    for (name, v) in [
+        ("spectrum.min_frequency_hz", s.spectrum.min_frequency_hz),
+        ("spectrum.max_frequency_hz", s.spectrum.max_frequency_hz),
+        (
+            "spectrum.periods_per_segment",
+            s.spectrum.periods_per_segment,
+        ),
+    ] {
+        if !(v.is_finite() && v > 0.0) {
+            return bad(format!("{name}: expected a number above 0, found {v}"));
+        }
+    }
+    if !(s.spectrum.false_alarm > 0.0 && s.spectrum.false_alarm <= 0.5) {
+        return bad(format!(
+            "spectrum.false_alarm: expected a probability above 0 and at most 0.5, found {}",
+            s.spectrum.false_alarm
         ));
     }
     if s.fronts.resamples < 100 {

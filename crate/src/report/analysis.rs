@@ -26,6 +26,11 @@ pub struct AnalysisReport {
     /// Raw voltage only: each electrode's health after spike detection.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub electrodes: Option<Vec<crate::detect::voltage::ElectrodeRow>>,
+    /// The spectrum of the population rate and its dominant rhythm (`None` for a recording
+    /// shorter than one segment or without events).
+    pub rhythm: Option<crate::rhythm::spectrum::RateSpectrum>,
+    /// STTC and the order parameter of the sites.
+    pub synchrony: Option<crate::synchrony::SynchronySummary>,
 }
 
 impl AnalysisReport {
@@ -47,6 +52,8 @@ impl AnalysisReport {
             summary: analysis.summary,
             notices,
             electrodes: None,
+            rhythm: None,
+            synchrony: None,
         }
     }
 
@@ -223,9 +230,39 @@ impl AnalysisReport {
             ("fronts.csv", self.fronts_csv()),
             ("activation.csv", self.activation_csv()),
             ("leaders.csv", self.leaders_csv()),
+            ("spectrum.csv", self.spectrum_csv()),
+            ("sttc.csv", self.sttc_csv()),
             ("summary.json", self.summary_json()),
         ]);
         files
+    }
+
+    /// `spectrum.csv`: the population rate's Welch density, with the Poisson floor beside it.
+    pub fn spectrum_csv(&self) -> String {
+        let mut out = CsvOut::new(["frequency_hz", "density_events2_per_s2_hz", "poisson_floor"]);
+        if let Some(r) = &self.rhythm {
+            for (f, p) in &r.density {
+                out.row([f.to_string(), p.to_string(), r.poisson_floor.to_string()]);
+            }
+        }
+        out.finish()
+    }
+
+    /// `sttc.csv`: every pair of sites with events (sites in track order), their distance
+    /// and STTC (empty where undefined).
+    pub fn sttc_csv(&self) -> String {
+        let mut out = CsvOut::new(["site_a", "site_b", "distance_um", "sttc"]);
+        if let Some(s) = &self.synchrony {
+            for p in &s.pairs_table {
+                out.row([
+                    p.site_a.clone(),
+                    p.site_b.clone(),
+                    p.distance_um.to_string(),
+                    number(p.sttc),
+                ]);
+            }
+        }
+        out.finish()
     }
 
     /// `summary.json`: the summary with the track and the files.
@@ -236,12 +273,16 @@ impl AnalysisReport {
             files: &'a [SourceFile],
             track: &'a TrackSummary,
             summary: &'a Summary,
+            rhythm: &'a Option<crate::rhythm::spectrum::RateSpectrum>,
+            synchrony: &'a Option<crate::synchrony::SynchronySummary>,
         }
         serde_json::to_string_pretty(&SummaryFile {
             schema: self.schema,
             files: &self.files,
             track: &self.track,
             summary: &self.summary,
+            rhythm: &self.rhythm,
+            synchrony: &self.synchrony,
         })
         .unwrap_or_default()
             + "\n"
@@ -362,6 +403,45 @@ impl AnalysisReport {
             "Failures       {} fronts stopped before the end of their path",
             s.failure_count
         );
+        match &self.rhythm {
+            Some(r) => {
+                let verdict = if r.is_rhythm { "a rhythm" } else { "no rhythm" };
+                let _ = writeln!(
+                    out,
+                    "Rhythm         spectrum peak at {} (bandwidth {}), {} the Poisson floor and {} its surroundings: {verdict} (needs {}; resolution {:.4} Hz, {} segments of {:.0} s)",
+                    r.peak_frequency_hz.map_or("-".into(), |f| format!("{f:.3} Hz")),
+                    r.peak_bandwidth_hz.map_or("-".into(), |f| format!("{f:.3} Hz")),
+                    r.peak_over_floor.map_or("-".into(), |x| format!("{x:.1} x")),
+                    r.peak_over_local.map_or("-".into(), |x| format!("{x:.1} x")),
+                    r.rhythm_threshold.map_or("-".into(), |x| format!("{x:.1} x")),
+                    r.resolution_hz,
+                    r.segments_used,
+                    r.segment_s
+                );
+            }
+            None => out.push_str(
+                "Rhythm         no spectrum (the recording is shorter than one segment)\n",
+            ),
+        }
+        if let Some(y) = &self.synchrony {
+            let sttc = match (y.mean_sttc, &y.sttc_skipped) {
+                (Some(m), _) => format!(
+                    "mean STTC {m:.3} (median {}) over {} site pairs (window {:.0} ms)",
+                    y.median_sttc.map_or("-".into(), |v| format!("{v:.3}")),
+                    y.pairs,
+                    y.sttc_dt_s * 1e3
+                ),
+                (None, Some(why)) => why.clone(),
+                (None, None) => "no STTC (fewer than two sites with events)".into(),
+            };
+            let order = y.order.as_ref().map_or("no order parameter".into(), |o| {
+                format!(
+                    "Kuramoto R {:.3} (chance {:.3} for {:.0} sites with a phase)",
+                    o.mean_r, o.chance_r, o.mean_sites_with_phase
+                )
+            });
+            let _ = writeln!(out, "Synchrony      {sttc}; {order}");
+        }
         out.push_str("\nburst   start (s)  model           speed (mm/s)   95% CI (mm/s)     origin   sites\n");
         for b in &self.bursts {
             match &b.front {

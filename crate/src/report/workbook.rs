@@ -348,14 +348,13 @@ impl Workbook {
         progress: &mut dyn FnMut(usize, usize),
     ) -> Result<&AnalysisReport, Error> {
         let events = crate::events::event_trains(&self.recording, &settings.calcium);
-        let mut analysis =
-            crate::fronts::analyze(&self.recording, &events, &self.fit, &settings, progress)?;
-        self.rate = analysis.population_rate.take();
+        let (mut report, rate) =
+            crate::analyze_events(&self.recording, &events, &self.fit, &settings, progress)?;
+        self.rate = rate;
         self.events = match events.kind {
             crate::events::EventKind::FluorescenceOnsets => Some(events.trains_s.into_owned()),
             crate::events::EventKind::Spikes => None,
         };
-        let mut report = AnalysisReport::new(&self.recording, &self.fit, &settings, analysis);
         report.electrodes = self.electrodes.clone();
         self.settings.analysis = settings;
         if !report

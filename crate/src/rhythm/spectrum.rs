@@ -7,9 +7,100 @@
 //! Gaps: a segment holding any value that is not finite (a NaN from a gap in ROI traces) is
 //! left out whole and counted, so one NaN never poisons the average; when no segment is
 //! left, there is no spectrum.
+//!
+//! The transform is [`Dft`]: a radix-2 FFT for powers of two (the lengths the analysis
+//! chooses) and a direct sum otherwise, with every twiddle factor from `libm`. `realfft`
+//! computes its twiddles with the platform's `cos`/`sin`, which differ between glibc and the
+//! WebAssembly build in the last bit, so the page and the command line would disagree in the
+//! 16th digit; with these kernels they agree byte for byte. The tests check the kernels
+//! against `realfft` and against `scipy.signal.welch`.
 
-use realfft::RealFftPlanner;
 use serde::{Deserialize, Serialize};
+
+/// Largest length transformed by the direct sum (lengths that are not powers of two).
+pub const MAX_DIRECT: usize = 8192;
+
+/// The discrete Fourier transform of real segments of one length: X_k = sum_n x_n
+/// exp(-2 pi i k n / N) for k = 0..=N/2.
+pub struct Dft {
+    n: usize,
+    /// exp(-2 pi i j / N) for j in 0..N, from libm.
+    twiddle_re: Vec<f64>,
+    twiddle_im: Vec<f64>,
+    re: Vec<f64>,
+    im: Vec<f64>,
+}
+
+impl Dft {
+    /// A transform of length `n`; `None` for 0, or above [`MAX_DIRECT`] when `n` is not a
+    /// power of two, or above [`MAX_SEGMENT`].
+    pub fn new(n: usize) -> Option<Dft> {
+        if n == 0 || n > MAX_SEGMENT || (!n.is_power_of_two() && n > MAX_DIRECT) {
+            return None;
+        }
+        let angle = |j: usize| -std::f64::consts::TAU * j as f64 / n as f64;
+        Some(Dft {
+            n,
+            twiddle_re: (0..n).map(|j| libm::cos(angle(j))).collect(),
+            twiddle_im: (0..n).map(|j| libm::sin(angle(j))).collect(),
+            re: vec![0.0; n],
+            im: vec![0.0; n],
+        })
+    }
+
+    /// |X_k|^2 for k = 0..=N/2 of the real segment `x` (of the transform's length).
+    pub fn power(&mut self, x: &[f64], out: &mut [f64]) {
+        let n = self.n;
+        if n.is_power_of_two() {
+            // Bit-reversed copy, then iterative radix-2 butterflies.
+            let bits = n.trailing_zeros();
+            for (i, &v) in x.iter().enumerate() {
+                let j = if bits == 0 {
+                    0
+                } else {
+                    i.reverse_bits() >> (usize::BITS - bits)
+                };
+                self.re[j] = v;
+                self.im[j] = 0.0;
+            }
+            let mut size = 2;
+            while size <= n {
+                let half = size / 2;
+                let step = n / size;
+                for start in (0..n).step_by(size) {
+                    for k in 0..half {
+                        let (wr, wi) = (self.twiddle_re[k * step], self.twiddle_im[k * step]);
+                        let (a, b) = (start + k, start + k + half);
+                        let tr = wr * self.re[b] - wi * self.im[b];
+                        let ti = wr * self.im[b] + wi * self.re[b];
+                        self.re[b] = self.re[a] - tr;
+                        self.im[b] = self.im[a] - ti;
+                        self.re[a] += tr;
+                        self.im[a] += ti;
+                    }
+                }
+                size *= 2;
+            }
+            for (k, o) in out.iter_mut().enumerate() {
+                *o = self.re[k] * self.re[k] + self.im[k] * self.im[k];
+            }
+        } else {
+            for (k, o) in out.iter_mut().enumerate() {
+                let (mut sr, mut si) = (0.0, 0.0);
+                let mut j = 0;
+                for &v in x {
+                    sr += v * self.twiddle_re[j];
+                    si += v * self.twiddle_im[j];
+                    j += k;
+                    if j >= n {
+                        j -= n;
+                    }
+                }
+                *o = sr * sr + si * si;
+            }
+        }
+    }
+}
 
 /// Largest segment accepted, in samples (bounds the FFT's memory on any input).
 pub const MAX_SEGMENT: usize = 1 << 22;
@@ -51,11 +142,10 @@ pub fn welch(x: &[f64], fs_hz: f64, nperseg: usize, scaling: Scaling) -> Option<
         Scaling::Density => 1.0 / (fs_hz * window.iter().map(|w| w * w).sum::<f64>()),
         Scaling::Spectrum => 1.0 / window.iter().sum::<f64>().powi(2),
     };
-    let mut planner = RealFftPlanner::<f64>::new();
-    let fft = planner.plan_fft_forward(nperseg);
-    let mut input = fft.make_input_vec();
-    let mut output = fft.make_output_vec();
+    let mut dft = Dft::new(nperseg)?;
+    let mut input = vec![0.0; nperseg];
     let bins = nperseg / 2 + 1;
+    let mut power = vec![0.0; bins];
     let mut sum = vec![0.0; bins];
     let (mut used, mut skipped) = (0, 0);
     let mut start = 0;
@@ -70,11 +160,9 @@ pub fn welch(x: &[f64], fs_hz: f64, nperseg: usize, scaling: Scaling) -> Option<
         for ((slot, &v), &w) in input.iter_mut().zip(segment).zip(&window) {
             *slot = (v - mean) * w;
         }
-        if fft.process(&mut input, &mut output).is_err() {
-            return None;
-        }
-        for (s, c) in sum.iter_mut().zip(&output) {
-            *s += c.norm_sqr();
+        dft.power(&input, &mut power);
+        for (s, p) in sum.iter_mut().zip(&power) {
+            *s += p;
         }
         used += 1;
     }
@@ -123,7 +211,7 @@ impl Default for SpectrumSettings {
     fn default() -> Self {
         SpectrumSettings {
             bin_s: 0.01,
-            min_frequency_hz: 0.05,
+            min_frequency_hz: 0.1,
             periods_per_segment: 4.0,
             max_frequency_hz: 10.0,
             false_alarm: 0.01,
@@ -149,14 +237,22 @@ pub struct RateSpectrum {
     pub peak_density: Option<f64>,
     /// Full width of the peak at half its height, Hz (linear between bins).
     pub peak_bandwidth_hz: Option<f64>,
-    /// Peak density over the Poisson floor.
+    /// Peak density over the Poisson floor (how far the rate is from independent firing at
+    /// that frequency; bursty firing lifts the whole spectrum above it).
     pub peak_over_floor: Option<f64>,
-    /// The ratio a peak must exceed to be a rhythm: the chi-square quantile of an averaged
-    /// Welch estimate of white noise at the floor, corrected for the frequencies searched.
+    /// Peak density over the median density between half and twice the peak frequency (how
+    /// far the peak stands out of its own spectrum: the rhythm itself).
+    pub peak_over_local: Option<f64>,
+    /// The ratio a peak must exceed, over the floor and over its surroundings, to be a
+    /// rhythm: the chi-square quantile of an averaged Welch estimate of a flat spectrum,
+    /// corrected for the frequencies searched.
     pub rhythm_threshold: Option<f64>,
-    /// Whether the peak clears that threshold.
+    /// Whether the peak clears that threshold over both the Poisson floor and its
+    /// surroundings.
     pub is_rhythm: bool,
-    /// The spectrum itself: (frequency Hz, density (events/s)^2/Hz), up to `max_frequency_hz`.
+    /// The spectrum itself: (frequency Hz, density (events/s)^2/Hz), up to `max_frequency_hz`;
+    /// written to `spectrum.csv`, not to the JSON.
+    #[serde(skip)]
     pub density: Vec<(f64, f64)>,
 }
 
@@ -183,7 +279,18 @@ pub fn rate_spectrum(
     if !at_least(wanted, 8.0) {
         return None;
     }
-    let nperseg = (wanted as usize).min(bins).min(MAX_SEGMENT);
+    // The power of two nearest the wanted length (the radix-2 transform), within the data.
+    let wanted = wanted as usize;
+    let up = wanted.next_power_of_two();
+    let pow2 = if up - wanted <= wanted - up / 2 {
+        up
+    } else {
+        up / 2
+    };
+    let mut nperseg = pow2.min(MAX_SEGMENT);
+    while nperseg > bins && nperseg > 8 {
+        nperseg /= 2;
+    }
     let mut rate = vec![0.0; bins];
     let mut events = 0usize;
     for train in trains_s {
@@ -240,6 +347,16 @@ pub fn rate_spectrum(
         edge(1) - edge(-1)
     });
     let peak_over_floor = peak.map(|p| w.power[p] / floor);
+    let peak_over_local = peak.and_then(|p| {
+        let f = w.frequency_hz[p];
+        let around: Vec<f64> = (1..w.power.len())
+            .filter(|&k| k != p && w.frequency_hz[k] >= f / 2.0 && w.frequency_hz[k] <= 2.0 * f)
+            .map(|k| w.power[k])
+            .collect();
+        crate::stats::quantile(&around, 0.5)
+            .filter(|m| *m > 0.0)
+            .map(|m| w.power[p] / m)
+    });
     Some(RateSpectrum {
         resolution_hz: fs / nperseg as f64,
         segment_s: nperseg as f64 * s.bin_s,
@@ -251,8 +368,12 @@ pub fn rate_spectrum(
         peak_density: peak.map(|p| w.power[p]),
         peak_bandwidth_hz: bandwidth,
         peak_over_floor,
+        peak_over_local,
         rhythm_threshold: threshold,
-        is_rhythm: matches!((peak_over_floor, threshold), (Some(r), Some(t)) if r > t),
+        is_rhythm: matches!(
+            (peak_over_floor, peak_over_local, threshold),
+            (Some(r), Some(l), Some(t)) if r > t && l > t
+        ),
         density: w
             .frequency_hz
             .iter()

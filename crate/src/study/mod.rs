@@ -292,7 +292,7 @@ fn status_table(entries: &[(RecordingStatus, &RecordingOutputs)], columns: &[Str
 
 /// The columns of `recordings.csv` after the keys and the outcome: (name, JSON pointer into
 /// `summary.json`). Intervals are 95%.
-const RECORDING_NUMBERS: [(&str, &str); 27] = [
+const RECORDING_NUMBERS: [(&str, &str); 35] = [
     ("track", "/track/kind"),
     ("duration_s", "/summary/duration_s"),
     ("burst_count", "/summary/burst_count"),
@@ -350,6 +350,14 @@ const RECORDING_NUMBERS: [(&str, &str); 27] = [
         "/summary/order_consistency/median_spearman",
     ),
     ("median_recruit_50_ms", "/summary/median_recruitment_ms/1"),
+    ("rhythm_peak_hz", "/rhythm/peak_frequency_hz"),
+    ("rhythm_peak_over_floor", "/rhythm/peak_over_floor"),
+    ("rhythm_peak_over_local", "/rhythm/peak_over_local"),
+    ("rhythm_is_rhythm", "/rhythm/is_rhythm"),
+    ("mean_sttc", "/synchrony/mean_sttc"),
+    ("sttc_pairs", "/synchrony/pairs"),
+    ("kuramoto_r", "/synchrony/order/mean_r"),
+    ("kuramoto_chance_r", "/synchrony/order/chance_r"),
 ];
 
 /// A JSON value as a CSV field: numbers in shortest round-trip form, text as is, empty

@@ -125,6 +125,8 @@ pub struct SynchronySettings {
     pub sttc_dt_s: f64,
     /// Time step at which the order parameter is sampled, seconds.
     pub phase_step_s: f64,
+    /// Largest number of sites with events for which the pairwise STTC is computed.
+    pub max_sites: usize,
 }
 
 impl Default for SynchronySettings {
@@ -132,6 +134,7 @@ impl Default for SynchronySettings {
         SynchronySettings {
             sttc_dt_s: 0.05,
             phase_step_s: 0.01,
+            max_sites: 1024,
         }
     }
 }
@@ -139,6 +142,8 @@ impl Default for SynchronySettings {
 /// The Kuramoto order parameter over a recording.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct OrderParameter {
+    /// Sampling step of R(t), seconds.
+    pub step_s: f64,
     /// Mean of R(t) over the samples where at least two sites have a phase.
     pub mean_r: f64,
     /// Samples used, and samples masked (fewer than two sites with a phase).
@@ -201,6 +206,7 @@ pub fn order_parameter(
     }
     let mean_n = with_phase as f64 / used as f64;
     Some(OrderParameter {
+        step_s,
         mean_r: sum_r / used as f64,
         samples: used,
         masked,
@@ -208,4 +214,106 @@ pub fn order_parameter(
         mean_sites_with_phase: mean_n,
         chance_r: std::f64::consts::PI.sqrt() / (2.0 * mean_n.sqrt()),
     })
+}
+
+/// One pair of sites' STTC, for `sttc.csv`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SttcPair {
+    pub site_a: String,
+    pub site_b: String,
+    /// Distance between the two along the track (or in the plane), micrometres.
+    pub distance_um: f64,
+    /// `None` where the coefficient is undefined (see [`sttc_with`]).
+    pub sttc: Option<f64>,
+}
+
+/// The synchrony of a recording's sites.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SynchronySummary {
+    /// STTC window, seconds.
+    pub sttc_dt_s: f64,
+    /// Sites with events, and pairs of them with a defined STTC.
+    pub sites: usize,
+    pub pairs: usize,
+    pub mean_sttc: Option<f64>,
+    pub median_sttc: Option<f64>,
+    /// Why the pairwise STTC was not computed (too many sites), when it was not.
+    pub sttc_skipped: Option<String>,
+    /// Kuramoto order parameter from spike phases.
+    pub order: Option<OrderParameter>,
+    /// Every pair (i < j, sites in track order), for `sttc.csv`; not in the JSON.
+    #[serde(skip)]
+    pub pairs_table: Vec<SttcPair>,
+}
+
+/// A site as the synchrony measures see it: its id, its position for distances (track
+/// coordinate, or layout x, y on a plane) and its events.
+pub struct SiteEvents<'a> {
+    pub id: &'a str,
+    pub along_um: Option<f64>,
+    pub xy_um: [f64; 2],
+    pub events_s: &'a [f64],
+}
+
+/// STTC for every pair of sites with events (in the order given: callers sort along the
+/// track), their mean and median, and the order parameter. Pairwise work is skipped, with
+/// the reason, beyond `settings.max_sites` sites.
+pub fn summarise(
+    sites: &[SiteEvents],
+    span_s: (f64, f64),
+    settings: &SynchronySettings,
+) -> SynchronySummary {
+    let active: Vec<&SiteEvents> = sites.iter().filter(|s| !s.events_s.is_empty()).collect();
+    let trains: Vec<&[f64]> = active.iter().map(|s| s.events_s).collect();
+    let dt = settings.sttc_dt_s;
+    let mut summary = SynchronySummary {
+        sttc_dt_s: dt,
+        sites: active.len(),
+        pairs: 0,
+        mean_sttc: None,
+        median_sttc: None,
+        sttc_skipped: None,
+        // A long recording is sampled more coarsely rather than refused.
+        order: order_parameter(
+            &trains,
+            span_s,
+            settings
+                .phase_step_s
+                .max((span_s.1 - span_s.0) / MAX_SAMPLES as f64),
+        ),
+        pairs_table: Vec::new(),
+    };
+    if active.len() > settings.max_sites.min(MAX_SITES) {
+        summary.sttc_skipped = Some(format!(
+            "{} sites have events, more than synchrony.max_sites ({}): the pairwise STTC was not computed (its cost grows with the square of the sites); raise the limit to compute it",
+            active.len(),
+            settings.max_sites
+        ));
+        return summary;
+    }
+    let Some(matrix) = sttc_matrix(&trains, span_s, dt) else {
+        return summary;
+    };
+    let mut values = Vec::new();
+    for i in 0..active.len() {
+        for j in i + 1..active.len() {
+            let (a, b) = (active[i], active[j]);
+            let distance_um = match (a.along_um, b.along_um) {
+                (Some(x), Some(y)) => (x - y).abs(),
+                _ => libm::hypot(a.xy_um[0] - b.xy_um[0], a.xy_um[1] - b.xy_um[1]),
+            };
+            let v = matrix[[i, j]];
+            values.extend(v);
+            summary.pairs_table.push(SttcPair {
+                site_a: a.id.to_string(),
+                site_b: b.id.to_string(),
+                distance_um,
+                sttc: v,
+            });
+        }
+    }
+    summary.pairs = values.len();
+    summary.mean_sttc = crate::stats::mean(&values);
+    summary.median_sttc = crate::stats::quantile(&values, 0.5);
+    summary
 }
