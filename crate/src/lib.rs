@@ -271,15 +271,19 @@ pub fn analyze_events(
     let span = recording.observed_span_s();
     let rhythm =
         span.and_then(|s| rhythm::spectrum::rate_spectrum(&events.trains_s, s, &settings.spectrum));
-    let on_plane = matches!(fit.track, geometry::Track::Plane);
+    // Track coordinates when the track placed every site (not on a plane).
+    let along = |i: usize| match fit.track {
+        geometry::Track::Plane => None,
+        _ => fit.placements.get(i).map(|p| p.along_um),
+    };
     let mut sites: Vec<synchrony::SiteEvents> = recording
         .sites
         .iter()
         .zip(events.trains_s.iter())
-        .zip(&fit.placements)
-        .map(|((site, train), p)| synchrony::SiteEvents {
+        .enumerate()
+        .map(|(i, (site, train))| synchrony::SiteEvents {
             id: &site.id,
-            along_um: (!on_plane).then_some(p.along_um),
+            along_um: along(i),
             xy_um: site.position_um(),
             events_s: train,
         })

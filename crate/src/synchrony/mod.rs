@@ -134,7 +134,7 @@ impl Default for SynchronySettings {
         SynchronySettings {
             sttc_dt_s: 0.05,
             phase_step_s: 0.01,
-            max_sites: 1024,
+            max_sites: 256,
         }
     }
 }
