@@ -195,3 +195,21 @@ fn the_transform_matches_realfft() {
         "long lengths must be powers of two"
     );
 }
+
+/// A recording spanning years is binned more coarsely, not allocated bin by bin: the bin
+/// used widens so that the rate has at most 2^24 bins.
+#[test]
+fn a_very_long_recording_widens_the_bin() {
+    use ringline::rhythm::spectrum::MAX_RATE_BINS;
+    // 56 hours: 2e7 bins of 10 ms would be more than 2^24.
+    let trains = vec![(0..20_000).map(|k| k as f64 * 10.0).collect::<Vec<f64>>(); 3];
+    let s = rate_spectrum(&trains, (0.0, 2e5), &SpectrumSettings::default()).unwrap();
+    assert!(
+        (s.bin_s - 2e5 / MAX_RATE_BINS as f64).abs() < 1e-12,
+        "{}",
+        s.bin_s
+    );
+    assert!((s.mean_rate_hz / (60_000.0 / 2e5) - 1.0).abs() < 1e-6);
+    // Years: bins wider than the slowest rhythm's periods allow give no spectrum, at once.
+    assert!(rate_spectrum(&trains, (0.0, 1e8), &SpectrumSettings::default()).is_none());
+}

@@ -17,6 +17,10 @@
 
 use serde::{Deserialize, Serialize};
 
+/// Most bins of the event rate; a longer recording is binned more coarsely (the bin used is
+/// reported), so memory stays bounded (2^24 bins of 8 bytes: 128 MiB).
+pub const MAX_RATE_BINS: usize = 1 << 24;
+
 /// Largest length transformed by the direct sum (lengths that are not powers of two).
 pub const MAX_DIRECT: usize = 8192;
 
@@ -222,6 +226,9 @@ impl Default for SpectrumSettings {
 /// The rhythm of the population rate.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RateSpectrum {
+    /// Bin of the event rate, seconds: `spectrum.bin_s`, or wider for a recording longer
+    /// than [`MAX_RATE_BINS`] bins.
+    pub bin_s: f64,
     /// Frequency resolution (bin spacing), Hz, and the segment length, seconds.
     pub resolution_hz: f64,
     pub segment_s: f64,
@@ -269,13 +276,16 @@ pub fn rate_spectrum(
     if !positive(duration) || !positive(s.bin_s) || !positive(s.min_frequency_hz) {
         return None;
     }
-    let bins = (duration / s.bin_s).floor();
-    if !at_least(bins, 1.0) || bins > 1e9 {
+    let bin_s = s.bin_s.max(duration / MAX_RATE_BINS as f64);
+    let bins = (duration / bin_s).floor();
+    if !at_least(bins, 1.0) {
         return None;
     }
-    let bins = bins as usize;
-    let fs = 1.0 / s.bin_s;
-    let wanted = (s.periods_per_segment / s.min_frequency_hz / s.bin_s).round();
+    let bins = (bins as usize).min(MAX_RATE_BINS);
+    let fs = 1.0 / bin_s;
+    let wanted = (s.periods_per_segment / s.min_frequency_hz / bin_s)
+        .round()
+        .min(MAX_SEGMENT as f64);
     if !at_least(wanted, 8.0) {
         return None;
     }
@@ -295,7 +305,7 @@ pub fn rate_spectrum(
     let mut events = 0usize;
     for train in trains_s {
         for &t in train {
-            let k = ((t - t0) / s.bin_s).floor();
+            let k = ((t - t0) / bin_s).floor();
             if k >= 0.0 && (k as usize) < bins {
                 rate[k as usize] += fs;
                 events += 1;
@@ -306,7 +316,7 @@ pub fn rate_spectrum(
         return None;
     }
     let w = welch(&rate, fs, nperseg, Scaling::Density)?;
-    let mean_rate_hz = events as f64 / (bins as f64 * s.bin_s);
+    let mean_rate_hz = events as f64 / (bins as f64 * bin_s);
     let floor = 2.0 * mean_rate_hz;
     let in_band: Vec<usize> = (1..w.frequency_hz.len())
         .filter(|&k| w.frequency_hz[k] <= s.max_frequency_hz)
@@ -358,8 +368,9 @@ pub fn rate_spectrum(
             .map(|m| w.power[p] / m)
     });
     Some(RateSpectrum {
+        bin_s,
         resolution_hz: fs / nperseg as f64,
-        segment_s: nperseg as f64 * s.bin_s,
+        segment_s: nperseg as f64 * bin_s,
         segments_used: w.segments_used,
         segments_skipped: w.segments_skipped,
         mean_rate_hz,

@@ -12,6 +12,10 @@ pub const MAX_SITES: usize = 8192;
 /// Largest number of time samples of the order parameter.
 pub const MAX_SAMPLES: usize = 2_000_000;
 
+/// Largest number of site-samples (sites x samples) of the order parameter: beyond it the
+/// step widens, so the work stays bounded on any recording.
+pub const MAX_SITE_SAMPLES: f64 = 2e8;
+
 /// Share of the recording `[t0, t1]` within `dt` of some event of `train`: the union of the
 /// windows `[t - dt, t + dt]`, clipped to the recording, over its length.
 pub fn tiled_fraction(train: &[f64], span_s: (f64, f64), dt: f64) -> f64 {
@@ -279,7 +283,8 @@ pub fn summarise(
             span_s,
             settings
                 .phase_step_s
-                .max((span_s.1 - span_s.0) / MAX_SAMPLES as f64),
+                .max((span_s.1 - span_s.0) / MAX_SAMPLES as f64)
+                .max((span_s.1 - span_s.0) * trains.len() as f64 / MAX_SITE_SAMPLES),
         ),
         pairs_table: Vec::new(),
     };
