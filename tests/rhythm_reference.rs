@@ -213,3 +213,84 @@ fn a_very_long_recording_widens_the_bin() {
     // Years: bins wider than the slowest rhythm's periods allow give no spectrum, at once.
     assert!(rate_spectrum(&trains, (0.0, 1e8), &SpectrumSettings::default()).is_none());
 }
+
+/// Sites firing on their own at known frequencies (a jittered clock, CV about 0.05) between
+/// network bursts, and Poisson sites: the clocks are found regular at their frequencies
+/// (ground truth of this generator), the Poisson sites are not (their CV is 1, from the
+/// exponential distribution), and burst spikes never count as firing alone.
+#[test]
+fn sites_that_fire_on_their_own_are_found_at_their_frequencies() {
+    use ringline::rhythm::sites::{site_rhythms, SiteRhythmSettings};
+    let mut rng = ChaCha8Rng::seed_from_u64(21);
+    let duration = 600.0;
+    let bursts: Vec<(f64, f64)> = (0..60)
+        .map(|k| (5.0 + 10.0 * k as f64, 5.3 + 10.0 * k as f64))
+        .collect();
+    let in_burst = |t: f64| bursts.iter().any(|b| t >= b.0 && t <= b.1);
+    let truths = [0.2, 0.5, 1.0, 1.7];
+    let mut trains: Vec<Vec<f64>> = Vec::new();
+    for f in truths {
+        let mut t = rng.random::<f64>() / f;
+        let mut train = Vec::new();
+        while t < duration {
+            if !in_burst(t) {
+                train.push(t);
+            }
+            t += (1.0 + 0.05 * (rng.random::<f64>() - 0.5) * 3.46) / f;
+        }
+        trains.push(train);
+    }
+    for _ in 0..3 {
+        let mut t = 0.0;
+        let mut train = Vec::new();
+        loop {
+            t += -(1.0 - rng.random::<f64>()).ln() / 0.8;
+            if t >= duration {
+                break;
+            }
+            train.push(t);
+        }
+        trains.push(train);
+    }
+    // Every site also fires 4 spikes in each burst.
+    for train in trains.iter_mut() {
+        for b in &bursts {
+            for _ in 0..4 {
+                train.push(b.0 + 0.3 * rng.random::<f64>());
+            }
+        }
+        train.sort_by(f64::total_cmp);
+    }
+    let names: Vec<String> = (0..trains.len()).map(|i| format!("s{i}")).collect();
+    let sites: Vec<(&str, &[f64])> = names
+        .iter()
+        .zip(&trains)
+        .map(|(n, t)| (n.as_str(), t.as_slice()))
+        .collect();
+    let r = site_rhythms(
+        &sites,
+        &bursts,
+        (0.0, duration),
+        Some(0.1),
+        &SiteRhythmSettings::default(),
+    );
+    for (row, f) in r.sites.iter().zip(truths) {
+        assert!(row.regular_alone, "{row:?}");
+        let got = row.frequency_alone_hz.unwrap();
+        assert!((got / f - 1.0).abs() < 0.03, "{} Hz against {f} Hz", got);
+    }
+    for row in &r.sites[truths.len()..] {
+        assert!(!row.regular_alone, "{row:?}");
+        let cv = row.isi_cv_alone.unwrap();
+        assert!((cv - 1.0).abs() < 0.15, "Poisson CV {cv}");
+    }
+    assert_eq!(r.regular_sites, truths.len());
+    let mean = truths.iter().sum::<f64>() / truths.len() as f64;
+    assert!((r.mean_frequency_alone_hz.unwrap() / mean - 1.0).abs() < 0.02);
+    let [lo, hi] = r.mean_frequency_alone_ci95_hz.unwrap();
+    assert!(lo < mean && mean < hi);
+    // Burst spikes are not alone: each site's events alone exclude the 240 burst spikes.
+    for (row, train) in r.sites.iter().zip(&trains) {
+        assert!(row.events_alone + 240 <= train.len());
+    }
+}

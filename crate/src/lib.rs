@@ -294,8 +294,29 @@ pub fn analyze_events(
             .total_cmp(&b.along_um.unwrap_or(0.0))
     });
     let sync = span.map(|s| synchrony::summarise(&sites, s, &settings.synchrony));
+    let windows: Vec<(f64, f64)> = analysis
+        .bursts
+        .iter()
+        .map(|b| (b.start_s, b.end_s))
+        .collect();
+    let network_hz = analysis
+        .summary
+        .ibi
+        .median_s
+        .filter(|m| *m > 0.0)
+        .map(|m| 1.0 / m);
+    let named: Vec<(&str, &[f64])> = recording
+        .sites
+        .iter()
+        .zip(events.trains_s.iter())
+        .map(|(s, t)| (s.id.as_str(), t.as_slice()))
+        .collect();
+    let site_rhythms = span.map(|s| {
+        rhythm::sites::site_rhythms(&named, &windows, s, network_hz, &settings.site_rhythm)
+    });
     let mut report = report::AnalysisReport::new(recording, fit, settings, analysis);
     report.rhythm = rhythm;
     report.synchrony = sync;
+    report.site_rhythms = site_rhythms;
     Ok((report, rate))
 }

@@ -51,6 +51,8 @@ pub struct AnalysisSettings {
     pub spectrum: crate::rhythm::spectrum::SpectrumSettings,
     /// STTC and the order parameter.
     pub synchrony: crate::synchrony::SynchronySettings,
+    /// When a site counts as firing regularly on its own.
+    pub site_rhythm: crate::rhythm::sites::SiteRhythmSettings,
 }
 
 /// One site's activation in one burst.

@@ -31,6 +31,8 @@ pub struct AnalysisReport {
     pub rhythm: Option<crate::rhythm::spectrum::RateSpectrum>,
     /// STTC and the order parameter of the sites.
     pub synchrony: Option<crate::synchrony::SynchronySummary>,
+    /// Each site as an oscillator, beside the network's burst frequency.
+    pub site_rhythms: Option<crate::rhythm::sites::SiteRhythms>,
 }
 
 impl AnalysisReport {
@@ -54,6 +56,7 @@ impl AnalysisReport {
             electrodes: None,
             rhythm: None,
             synchrony: None,
+            site_rhythms: None,
         }
     }
 
@@ -232,6 +235,7 @@ impl AnalysisReport {
             ("leaders.csv", self.leaders_csv()),
             ("spectrum.csv", self.spectrum_csv()),
             ("sttc.csv", self.sttc_csv()),
+            ("sites.csv", self.sites_csv()),
             ("summary.json", self.summary_json()),
         ]);
         files
@@ -265,6 +269,37 @@ impl AnalysisReport {
         out.finish()
     }
 
+    /// `sites.csv`: each site's rate and interval regularity, overall and outside bursts.
+    pub fn sites_csv(&self) -> String {
+        let mut out = CsvOut::new([
+            "site",
+            "events",
+            "rate_hz",
+            "isi_cv",
+            "events_outside_bursts",
+            "intervals_outside_bursts",
+            "isi_cv_outside_bursts",
+            "isi_median_outside_bursts_s",
+            "frequency_alone_hz",
+            "regular_alone",
+        ]);
+        for r in self.site_rhythms.iter().flat_map(|s| &s.sites) {
+            out.row([
+                r.site.clone(),
+                r.events.to_string(),
+                r.rate_hz.to_string(),
+                number(r.isi_cv),
+                r.events_alone.to_string(),
+                r.intervals_alone.to_string(),
+                number(r.isi_cv_alone),
+                number(r.isi_median_alone_s),
+                number(r.frequency_alone_hz),
+                r.regular_alone.to_string(),
+            ]);
+        }
+        out.finish()
+    }
+
     /// `summary.json`: the summary with the track and the files.
     pub fn summary_json(&self) -> String {
         #[derive(Serialize)]
@@ -275,6 +310,7 @@ impl AnalysisReport {
             summary: &'a Summary,
             rhythm: &'a Option<crate::rhythm::spectrum::RateSpectrum>,
             synchrony: &'a Option<crate::synchrony::SynchronySummary>,
+            site_rhythms: &'a Option<crate::rhythm::sites::SiteRhythms>,
         }
         serde_json::to_string_pretty(&SummaryFile {
             schema: self.schema,
@@ -283,6 +319,7 @@ impl AnalysisReport {
             summary: &self.summary,
             rhythm: &self.rhythm,
             synchrony: &self.synchrony,
+            site_rhythms: &self.site_rhythms,
         })
         .unwrap_or_default()
             + "\n"
@@ -422,6 +459,23 @@ impl AnalysisReport {
             None => out.push_str(
                 "Rhythm         no spectrum (the recording is shorter than one segment)\n",
             ),
+        }
+        if let Some(r) = &self.site_rhythms {
+            let sites = r.sites.iter().filter(|s| s.events > 0).count();
+            let mean = match (r.mean_frequency_alone_hz, r.mean_frequency_alone_ci95_hz) {
+                (Some(m), Some([lo, hi])) => {
+                    format!(", their mean frequency {m:.3} Hz (95% CI {lo:.3} to {hi:.3} Hz)")
+                }
+                (Some(m), None) => format!(", frequency {m:.3} Hz"),
+                _ => String::new(),
+            };
+            let _ = writeln!(
+                out,
+                "Sites alone    {} of {sites} sites fire regularly outside bursts{mean}; network bursts at {} (see sites.csv)",
+                r.regular_sites,
+                r.network_frequency_hz
+                    .map_or("-".into(), |f| format!("{f:.3} Hz"))
+            );
         }
         if let Some(y) = &self.synchrony {
             let sttc = match (y.mean_sttc, &y.sttc_skipped) {

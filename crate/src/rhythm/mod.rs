@@ -1,5 +1,6 @@
 //! Rhythm: how regularly bursts recur.
 
+pub mod sites;
 pub mod spectrum;
 
 use crate::stats::{mean, quantile, sample_sd};

@@ -292,7 +292,7 @@ fn status_table(entries: &[(RecordingStatus, &RecordingOutputs)], columns: &[Str
 
 /// The columns of `recordings.csv` after the keys and the outcome: (name, JSON pointer into
 /// `summary.json`). Intervals are 95%.
-const RECORDING_NUMBERS: [(&str, &str); 35] = [
+const RECORDING_NUMBERS: [(&str, &str); 38] = [
     ("track", "/track/kind"),
     ("duration_s", "/summary/duration_s"),
     ("burst_count", "/summary/burst_count"),
@@ -358,6 +358,12 @@ const RECORDING_NUMBERS: [(&str, &str); 35] = [
     ("sttc_pairs", "/synchrony/pairs"),
     ("kuramoto_r", "/synchrony/order/mean_r"),
     ("kuramoto_chance_r", "/synchrony/order/chance_r"),
+    ("regular_sites_alone", "/site_rhythms/regular_sites"),
+    (
+        "mean_site_frequency_alone_hz",
+        "/site_rhythms/mean_frequency_alone_hz",
+    ),
+    ("network_frequency_hz", "/site_rhythms/network_frequency_hz"),
 ];
 
 /// A JSON value as a CSV field: numbers in shortest round-trip form, text as is, empty
