@@ -58,7 +58,9 @@ struct AnalyzeArgs {
     /// Print one JSON document on stdout instead of text.
     #[arg(long)]
     json: bool,
-    /// Write bursts.csv, fronts.csv, activation.csv, leaders.csv and summary.json into this folder.
+    /// Write the output files into this folder: bursts.csv, fronts.csv, activation.csv,
+    /// leaders.csv, spectrum.csv, sttc.csv, sites.csv, summary.json (and electrodes.csv for
+    /// raw voltage).
     #[arg(long, value_name = "DIR")]
     out: Option<String>,
     /// Ground truth of a simulated recording (the truth.json of `ringline simulate`): each
@@ -66,13 +68,7 @@ struct AnalyzeArgs {
     #[arg(long, value_name = "FILE")]
     truth: Option<String>,
     #[command(flatten)]
-    analysis: AnalysisArgs,
-    #[command(flatten)]
-    read: ReadArgs,
-    #[command(flatten)]
-    track: TrackArgs,
-    #[command(flatten)]
-    voltage: VoltageArgs,
+    pipeline: PipelineArgs,
 }
 
 #[derive(Args, Debug)]
@@ -91,13 +87,7 @@ struct BatchArgs {
     #[arg(long, value_name = "N")]
     jobs: Option<usize>,
     #[command(flatten)]
-    analysis: AnalysisArgs,
-    #[command(flatten)]
-    read: ReadArgs,
-    #[command(flatten)]
-    track: TrackArgs,
-    #[command(flatten)]
-    voltage: VoltageArgs,
+    pipeline: PipelineArgs,
 }
 
 #[derive(Args, Debug)]
@@ -108,6 +98,30 @@ struct CombineArgs {
     /// Folder for the study's tables.
     #[arg(long, value_name = "DIR")]
     out: String,
+}
+
+/// Every setting of one recording's path from files to results (analyze and batch).
+#[derive(Args, Debug)]
+struct PipelineArgs {
+    #[command(flatten)]
+    analysis: AnalysisArgs,
+    #[command(flatten)]
+    read: ReadArgs,
+    #[command(flatten)]
+    track: TrackArgs,
+    #[command(flatten)]
+    voltage: VoltageArgs,
+}
+
+impl PipelineArgs {
+    fn settings(&self) -> Result<RecordingSettings, Failure> {
+        Ok(RecordingSettings {
+            read: read_options(&self.read),
+            track: track_settings(&self.track)?,
+            voltage: voltage_settings(&self.voltage)?,
+            analysis: analysis_settings(&self.analysis)?,
+        })
+    }
 }
 
 /// Settings of the analysis.
@@ -417,13 +431,8 @@ fn run_batch(args: &BatchArgs) -> Result<i32, Failure> {
     batch::batch(&batch::BatchJob {
         manifest_path: args.manifest.clone(),
         out: args.out.clone(),
-        settings: RecordingSettings {
-            read: read_options(&args.read),
-            track: track_settings(&args.track)?,
-            voltage: voltage_settings(&args.voltage)?,
-            analysis: analysis_settings(&args.analysis)?,
-        },
-        wav_uv_per_unit: args.voltage.uv_per_unit,
+        settings: args.pipeline.settings()?,
+        wav_uv_per_unit: args.pipeline.voltage.uv_per_unit,
         shard,
         jobs: args.jobs,
     })
@@ -516,16 +525,8 @@ fn analysis_settings(args: &AnalysisArgs) -> Result<crate::fronts::AnalysisSetti
 
 fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     use std::io::IsTerminal;
-    let read = read_options(&args.read);
-    let track = track_settings(&args.track)?;
-    let settings = analysis_settings(&args.analysis)?;
     let show_progress = std::io::stderr().is_terminal();
-    let recording = RecordingSettings {
-        read,
-        track,
-        voltage: voltage_settings(&args.voltage)?,
-        analysis: settings,
-    };
+    let recording = args.pipeline.settings()?;
     let mut progress = |stage: &str, done: u64, total: u64| {
         if show_progress && (done == total || done % 10 == 0 || stage.starts_with("detect")) {
             eprint!("\r{stage}: {done}/{total}   ");
@@ -538,7 +539,7 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
         &args.recording,
         &args.layout,
         &recording,
-        args.voltage.uv_per_unit,
+        args.pipeline.voltage.uv_per_unit,
         &mut progress,
     )?;
     if let Some(dir) = &args.out {
