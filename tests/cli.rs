@@ -5,17 +5,11 @@
 
 mod common;
 
-use common::{bad_cases, demo_network_scenario, demo_scenario_path, GOOD_LAYOUT, GOOD_SPIKES};
+use common::{
+    bad_cases, demo_network_scenario, demo_scenario_path, ringline, GOOD_LAYOUT, GOOD_SPIKES,
+};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
-
-fn ringline(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_ringline"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("the binary runs")
-}
+use std::process::Output;
 
 /// Fails the test with the command's own stderr unless it exited with 0.
 fn assert_succeeded(out: &Output) {

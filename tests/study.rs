@@ -5,17 +5,11 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
+
+use common::ringline;
 use ringline::import::{read_manifest, ImportLimits, ImportProblem};
 use std::path::Path;
-use std::process::{Command, Output};
-
-fn ringline(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_ringline"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("the binary runs")
-}
 
 /// True front speed of each condition, mm/s (the simulator's input, so the ground truth).
 const CONDITION_SPEEDS_MM_S: [f64; 4] = [20.0, 30.0, 40.0, 60.0];

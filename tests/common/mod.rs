@@ -373,3 +373,12 @@ pub fn analyse_csv(spikes_csv: &str, layout_csv: &str) -> ringline::fronts::Anal
     )
     .expect("the analysis runs")
 }
+
+/// Runs the `ringline` binary with `args` in the folder `dir`, as a user would.
+pub fn ringline(args: &[&str], dir: &std::path::Path) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_ringline"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("the binary runs")
+}
