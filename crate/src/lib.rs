@@ -99,30 +99,19 @@ pub fn analyze_file(
     progress: &mut dyn FnMut(&str, u64, u64),
 ) -> Result<report::AnalysisReport, Error> {
     use import::{ImportError, ImportProblem, InputKind};
-    let place = || place::Place::file(file.name);
     let header = match import::classify_input(file.name, file.head) {
-        InputKind::Wav => {
-            import::read_wav_header(file.name, file.head, file.len, file.wav_uv_per_unit)?
-        }
-        InputKind::VoltageSamples => match file.sidecar {
-            Some((name, bytes)) => import::read_sidecar(name, bytes, file.name, file.len)?,
-            None => {
-                return Err(ImportError::new(
-                    place(),
-                    ImportProblem::MissingColumn,
-                    format!(
-                        "this looks like raw samples, which need a JSON sidecar with sample_rate_hz, channels, sample_type and scale_uv; expected it as {}",
-                        import::sidecar_names(file.name).join(" or ")
-                    ),
-                )
-                .into())
-            }
-        },
+        InputKind::Wav | InputKind::VoltageSamples => import::read_voltage_header(
+            file.name,
+            file.head,
+            file.len,
+            file.sidecar,
+            file.wav_uv_per_unit,
+        )?,
         _ => {
             let limit = settings.read.limits.max_bytes as u64;
             if file.len > limit {
                 return Err(ImportError::new(
-                    place(),
+                    place::Place::file(file.name),
                     ImportProblem::TooLarge,
                     format!(
                         "the file is {} bytes, more than the limit of {limit} bytes; raise the limit if this file is expected",
@@ -140,25 +129,7 @@ pub fn analyze_file(
             );
         }
     };
-    let frame = header.frame_bytes() as u64;
-    let offset = header.data_offset_bytes;
-    let read = file.read;
-    let mut frames = |from: u64, to: u64| -> Result<Vec<u8>, ImportError> {
-        let (a, b) = (offset + from * frame, offset + to * frame);
-        let bytes = read(a, b)?;
-        if bytes.len() as u64 != b - a {
-            return Err(ImportError::new(
-                place(),
-                ImportProblem::BadValue,
-                format!(
-                    "expected {} bytes at byte {a}, found {} (the file changed or is truncated)",
-                    b - a,
-                    bytes.len()
-                ),
-            ));
-        }
-        Ok(bytes)
-    };
+    let mut frames = import::frame_reader(&header, file.read);
     analyze_recording(
         ActivityInput::Voltage(&header, &mut frames),
         layout,

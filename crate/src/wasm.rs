@@ -269,15 +269,16 @@ impl WasmWorkbook {
     ) -> Result<VoltageOpened, JsValue> {
         let settings: StepSettings = self::settings(settings, "notebook")?;
         let sidecar = sidecar_name.as_deref().zip(sidecar_bytes.as_deref());
-        let header = voltage_header(
+        let header = crate::import::read_voltage_header(
             name,
             head,
-            file_len,
+            file_len.max(0.0) as u64,
             sidecar,
             settings.voltage_wav_scale_uv(),
         )
         .map_err(|e| message(&e))?;
-        let mut read_frames = frame_reader(&header, &read);
+        let mut read_bytes = js_byte_reader(name, &read);
+        let mut read_frames = crate::import::frame_reader(&header, &mut read_bytes);
         let mut report = progress_fn(&progress);
         let (inner, found) = Workbook::open_voltage(
             &header,
@@ -501,62 +502,26 @@ fn text_files(files: Vec<(String, Vec<u8>)>) -> Result<JsValue, JsValue> {
     to_js(&text)
 }
 
-/// The header of a raw voltage file the page holds as a `File`: a WAV file reads its own,
-/// interleaved samples need their sidecar.
-fn voltage_header(
-    name: &str,
-    head: &[u8],
-    file_len: f64,
-    sidecar: Option<(&str, &[u8])>,
-    wav_scale_uv: f64,
-) -> Result<crate::import::VoltageHeader, crate::import::ImportError> {
-    let len = file_len.max(0.0) as u64;
-    if crate::import::looks_like_wav(head) {
-        return crate::import::read_wav_header(name, head, len, wav_scale_uv);
-    }
-    match sidecar {
-        Some((sn, sb)) => crate::import::read_sidecar(sn, sb, name, len),
-        None => Err(crate::import::ImportError::new(
-            crate::place::Place::file(name),
-            crate::import::ImportProblem::MissingColumn,
-            format!(
-                "expected a WAV file, or interleaved samples with their sidecar (a JSON file with sample_rate_hz, channels, sample_type and scale_uv); found no sidecar among the dropped files (it is looked for as {})",
-                crate::import::sidecar_names(name).join(" or ")
-            ),
-        )),
-    }
-}
-
-/// Reads frames of a voltage file through the page's `read(from_byte, to_byte)`.
-fn frame_reader<'a>(
-    header: &crate::import::VoltageHeader,
+/// Bytes `[from, to)` of a file the page holds, through its `read(from_byte, to_byte)`
+/// (the worker reads `File.slice` with `FileReaderSync`).
+fn js_byte_reader<'a>(
+    name: &'a str,
     read: &'a js_sys::Function,
 ) -> impl FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError> + 'a {
-    let frame = header.frame_bytes() as f64;
-    let offset = header.data_offset_bytes as f64;
-    let file = header.file.clone();
     move |from: u64, to: u64| {
-        let fail = |what: String| {
+        read.call2(
+            &JsValue::NULL,
+            &JsValue::from(from as f64),
+            &JsValue::from(to as f64),
+        )
+        .map(|v| js_sys::Uint8Array::new(&v).to_vec())
+        .map_err(|e| {
             crate::import::ImportError::new(
-                crate::place::Place::file(&file),
+                crate::place::Place::file(name),
                 crate::import::ImportProblem::BadValue,
-                what,
+                format!("the file could not be read: {e:?}"),
             )
-        };
-        let a = offset + from as f64 * frame;
-        let b = offset + to as f64 * frame;
-        let value = read
-            .call2(&JsValue::NULL, &JsValue::from(a), &JsValue::from(b))
-            .map_err(|e| fail(format!("the file could not be read: {e:?}")))?;
-        let bytes = js_sys::Uint8Array::new(&value).to_vec();
-        if bytes.len() as f64 != b - a {
-            return Err(fail(format!(
-                "expected {} bytes at byte {a}, found {} (the file changed or is truncated)",
-                b - a,
-                bytes.len()
-            )));
-        }
-        Ok(bytes)
+        })
     }
 }
 
@@ -645,21 +610,7 @@ pub fn analyze_study_recording(
         let layer = layer_name.as_deref().zip(layer_text.as_deref());
         let settings = crate::study::recording_settings(&step.recording(), manifest_row, layer)
             .map_err(|e| e.to_string())?;
-        let mut read_bytes = |from: u64, to: u64| -> Result<Vec<u8>, crate::import::ImportError> {
-            read.call2(
-                &JsValue::NULL,
-                &JsValue::from(from as f64),
-                &JsValue::from(to as f64),
-            )
-            .map(|v| js_sys::Uint8Array::new(&v).to_vec())
-            .map_err(|e| {
-                crate::import::ImportError::new(
-                    crate::place::Place::file(data_name),
-                    crate::import::ImportProblem::BadValue,
-                    format!("the file could not be read: {e:?}"),
-                )
-            })
-        };
+        let mut read_bytes = js_byte_reader(data_name, &read);
         crate::analyze_file(
             crate::ActivityFile {
                 name: data_name,

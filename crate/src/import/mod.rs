@@ -37,8 +37,8 @@ pub use traces::{
     read_roi_traces, RoiSeries, RoiTraceTable, TraceGap, TraceOptions, FRAME_COLUMN_NAMES,
 };
 pub use voltage::{
-    decode_channel, decode_lanes, looks_like_wav, read_sidecar, read_wav_header, SampleType,
-    VoltageHeader,
+    decode_channel, decode_lanes, frame_reader, looks_like_wav, read_sidecar, read_voltage_header,
+    read_wav_header, SampleType, VoltageHeader,
 };
 pub use write::{write_layout, write_roi_traces, write_spike_list, write_spike_list_as};
 

@@ -407,3 +407,56 @@ fn decode_lanes_as<const W: usize>(
         out.push(lanes);
     }
 }
+
+/// The header of a raw voltage file from its first bytes: a WAV file carries its own; raw
+/// interleaved samples need their sidecar `(name, bytes)`, which the shell looks for as
+/// [`super::sidecar_names`] says. `len` is the file's size in bytes.
+pub fn read_voltage_header(
+    name: &str,
+    head: &[u8],
+    len: u64,
+    sidecar: Option<(&str, &[u8])>,
+    wav_uv_per_unit: f64,
+) -> Result<VoltageHeader, ImportError> {
+    if looks_like_wav(head) {
+        return read_wav_header(name, head, len, wav_uv_per_unit);
+    }
+    match sidecar {
+        Some((sidecar_name, bytes)) => read_sidecar(sidecar_name, bytes, name, len),
+        None => Err(ImportError::new(
+            Place::file(name),
+            ImportProblem::MissingColumn,
+            format!(
+                "expected a WAV file, or raw samples with their JSON sidecar (sample_rate_hz, channels, sample_type and scale_uv); found no sidecar, looked for as {}",
+                super::sidecar_names(name).join(" or ")
+            ),
+        )),
+    }
+}
+
+/// Frames `[from, to)` of a voltage file read through `read(from_byte, to_byte)` (a file, or
+/// the page's `File.slice`), checking that every byte came.
+pub fn frame_reader<'a>(
+    header: &VoltageHeader,
+    read: &'a mut dyn FnMut(u64, u64) -> Result<Vec<u8>, ImportError>,
+) -> impl FnMut(u64, u64) -> Result<Vec<u8>, ImportError> + 'a {
+    let frame = header.frame_bytes() as u64;
+    let offset = header.data_offset_bytes;
+    let file = header.file.clone();
+    move |from: u64, to: u64| {
+        let (a, b) = (offset + from * frame, offset + to * frame);
+        let bytes = read(a, b)?;
+        if bytes.len() as u64 != b - a {
+            return Err(ImportError::new(
+                Place::file(&file),
+                ImportProblem::BadValue,
+                format!(
+                    "expected {} bytes at byte {a}, found {} (the file changed or is truncated)",
+                    b - a,
+                    bytes.len()
+                ),
+            ));
+        }
+        Ok(bytes)
+    }
+}
