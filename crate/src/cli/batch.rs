@@ -1,7 +1,7 @@
 //! `ringline batch` and `ringline combine`: file handling, threads and progress around the
 //! core's study functions ([`crate::study`]).
 
-use super::{analyze_paths, read_file, write_outputs, Failure};
+use super::{analyze_paths, read_file, read_text, write_outputs, Failure};
 use crate::import::{ImportLimits, Manifest, ManifestRow};
 use crate::study::{self, RecordingOutputs, RecordingStatus, RECORDINGS_FOLDER, STATUS_FILE};
 use crate::RecordingSettings;
@@ -152,9 +152,7 @@ fn run_one(
         let layer = match &row.settings {
             Some(file) => {
                 let file = path(file);
-                let bytes = read_file(&file, &ImportLimits::default())?;
-                let text = String::from_utf8(bytes)
-                    .map_err(|_| Failure::Input(format!("{file}: expected UTF-8 JSON text")))?;
+                let text = read_text(&file, "JSON text")?;
                 Some((file, text))
             }
             None => None,
@@ -192,10 +190,7 @@ fn read_outputs(folder: &Path) -> Result<RecordingOutputs, Failure> {
         if !path.is_file() {
             return Ok(None);
         }
-        let bytes = read_file(&path.to_string_lossy(), &ImportLimits::default())?;
-        String::from_utf8(bytes)
-            .map(Some)
-            .map_err(|_| Failure::Input(format!("{}: expected UTF-8 text", path.display())))
+        read_text(&path.to_string_lossy(), "text").map(Some)
     };
     let status_json = text(STATUS_FILE)?.ok_or_else(|| {
         Failure::Input(format!(

@@ -488,9 +488,7 @@ fn analysis_settings(args: &AnalysisArgs) -> Result<crate::fronts::AnalysisSetti
     use crate::fronts::{AnalysisSettings, Estimator};
     let mut settings = match &args.settings {
         Some(path) => {
-            let bytes = read_file(path, &ImportLimits::default())?;
-            let text = String::from_utf8(bytes)
-                .map_err(|_| Failure::Input(format!("{path}: expected UTF-8 JSON text")))?;
+            let text = read_text(path, "JSON text")?;
             serde_json::from_str::<AnalysisSettings>(&text).map_err(|e| {
                 Failure::Input(format!(
                     "{path}, line {}, column {}: {e}",
@@ -548,9 +546,7 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     }
     let truth = match &args.truth {
         Some(path) => {
-            let bytes = read_file(path, &ImportLimits::default())?;
-            let text = String::from_utf8(bytes)
-                .map_err(|_| Failure::Input(format!("{path}: expected UTF-8 JSON text")))?;
+            let text = read_text(path, "JSON text")?;
             Some(
                 crate::report::truth::compare_with_truth(&report, &text)
                     .map_err(|e| Failure::Input(format!("{path}: {e}")))?,
@@ -703,9 +699,7 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
                     "{path}: give a scenario file or culture options (--pattern, --length-um, ...), not both"
                 )));
             }
-            let bytes = read_file(path, &ImportLimits::default())?;
-            let text = String::from_utf8(bytes)
-                .map_err(|_| Failure::Input(format!("{path}: expected UTF-8 JSON text")))?;
+            let text = read_text(path, "JSON text")?;
             let mut scenario = crate::simulate::parse_scenario(&text)
                 .map_err(|e| Failure::Input(format!("{path}: {e}")))?;
             match &mut scenario {
@@ -918,6 +912,13 @@ fn parse_point(text: &str, option: &str) -> Result<[f64; 2], Failure> {
             "{option}: expected a point as X,Y in micrometres, found '{text}'"
         ))),
     }
+}
+
+/// Reads a whole text file (within the default size limit); `what` names it in the message
+/// when it is not UTF-8 ("JSON text").
+fn read_text(path: &str, what: &str) -> Result<String, Failure> {
+    String::from_utf8(read_file(path, &ImportLimits::default())?)
+        .map_err(|_| Failure::Input(format!("{path}: expected UTF-8 {what}")))
 }
 
 /// Reads a whole file, refusing one larger than the limit before reading it.

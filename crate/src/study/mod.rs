@@ -80,24 +80,33 @@ impl RecordingStatus {
         report: &crate::report::AnalysisReport,
     ) -> Self {
         RecordingStatus {
-            outcome: Outcome::Analysed,
             burst_count: Some(report.summary.burst_count),
             front_count: Some(report.summary.front_count),
             notice_count: report.notices.len(),
-            ..RecordingStatus::failed(manifest, row, String::new())
+            ..RecordingStatus::of(manifest, row, Outcome::Analysed, None)
         }
     }
 
     /// The status of a recording that failed with `message`.
     pub fn failed(manifest: &crate::import::Manifest, row: &ManifestRow, message: String) -> Self {
+        RecordingStatus::of(manifest, row, Outcome::Failed, Some(message))
+    }
+
+    /// A status with no counts.
+    fn of(
+        manifest: &crate::import::Manifest,
+        row: &ManifestRow,
+        outcome: Outcome,
+        message: Option<String>,
+    ) -> Self {
         RecordingStatus {
             schema: STUDY_SCHEMA,
             manifest: manifest.file.clone(),
             manifest_rows: manifest.rows.len(),
             column_names: manifest.columns.clone(),
             row: row.clone(),
-            outcome: Outcome::Failed,
-            message: (!message.is_empty()).then_some(message),
+            outcome,
+            message,
             burst_count: None,
             front_count: None,
             notice_count: 0,
