@@ -180,3 +180,72 @@ fn fronts_added_to_real_firing_are_measured() {
     assert!(direction_right as f64 >= 0.95 * reported as f64);
     assert!((0.90..=0.98).contains(&coverage), "coverage {coverage}");
 }
+
+/// Rhythm and synchrony on the real units. With every unit shifted by its own random offset
+/// (independent units, each keeping its own bursting), the mean STTC over all pairs is near
+/// 0 (its expectation for independent trains, Cutts & Eglen 2014) and the population rate
+/// shows no rhythm; and the real recording's STTC matrix is unchanged, pair by pair, when
+/// the whole recording is shifted by a day (CHECK-VALUES.md).
+#[test]
+fn synchrony_and_rhythm_on_the_real_units() {
+    use ringline::rhythm::spectrum::{rate_spectrum, SpectrumSettings};
+    use ringline::synchrony::sttc_matrix;
+    let (spikes, layout) = real();
+    let trains_of = |spikes: &[(String, f64)]| -> Vec<Vec<f64>> {
+        layout
+            .iter()
+            .map(|(u, _, _)| {
+                let mut t: Vec<f64> = spikes.iter().filter(|s| &s.0 == u).map(|s| s.1).collect();
+                t.sort_by(f64::total_cmp);
+                t
+            })
+            .collect()
+    };
+    let dt = 0.05;
+    let span = (0.0, SPAN_S);
+    let trains = trains_of(&spikes);
+    let refs: Vec<&[f64]> = trains.iter().map(Vec::as_slice).collect();
+    let real = sttc_matrix(&refs, span, dt).unwrap();
+    let day = 86_400.0;
+    let later: Vec<Vec<f64>> = trains
+        .iter()
+        .map(|t| t.iter().map(|x| x + day).collect())
+        .collect();
+    let later_refs: Vec<&[f64]> = later.iter().map(Vec::as_slice).collect();
+    let shifted_day = sttc_matrix(&later_refs, (day, day + SPAN_S), dt).unwrap();
+    for (a, b) in real.iter().zip(shifted_day.iter()) {
+        match (a, b) {
+            (Some(x), Some(y)) => assert!((x - y).abs() < 1e-9, "{x} against {y}"),
+            _ => assert_eq!(a, b),
+        }
+    }
+
+    let mut rng = ChaCha8Rng::seed_from_u64(14288);
+    let mut means = Vec::new();
+    for _ in 0..5 {
+        let offsets: Vec<f64> = layout
+            .iter()
+            .map(|_| rng.random_range(0.0..SPAN_S))
+            .collect();
+        let shuffled: Vec<Vec<f64>> = trains
+            .iter()
+            .zip(&offsets)
+            .map(|(t, o)| {
+                let mut s: Vec<f64> = t.iter().map(|x| (x + o) % SPAN_S).collect();
+                s.sort_by(f64::total_cmp);
+                s
+            })
+            .collect();
+        let refs: Vec<&[f64]> = shuffled.iter().map(Vec::as_slice).collect();
+        let m = sttc_matrix(&refs, span, dt).unwrap();
+        let values: Vec<f64> = (0..refs.len())
+            .flat_map(|i| (i + 1..refs.len()).map(move |j| (i, j)))
+            .filter_map(|(i, j)| m[[i, j]])
+            .collect();
+        means.push(values.iter().sum::<f64>() / values.len() as f64);
+        let spectrum = rate_spectrum(&shuffled, span, &SpectrumSettings::default()).unwrap();
+        assert!(!spectrum.is_rhythm, "{spectrum:?}");
+    }
+    eprintln!("mean STTC of independently shifted real units: {means:?}");
+    assert!(means.iter().all(|m| m.abs() < 0.05), "{means:?}");
+}

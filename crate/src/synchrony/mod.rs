@@ -46,19 +46,28 @@ pub fn tiled_fraction(train: &[f64], span_s: (f64, f64), dt: f64) -> f64 {
     covered / length
 }
 
-/// Share of the events of `a` that have an event of `b` within `dt` (inclusive): one merge
-/// pass over both sorted trains.
+/// Tolerance on "within `dt`", seconds: an absolute nanosecond, far below any sampling step.
+/// Event times come from decimal text, so two events exactly `dt` apart (common at a fixed
+/// sampling rate) are a float either side of `dt`, and which side depends on the times'
+/// magnitude; without it, shifting a recording by a day changes the STTC (seen on a real
+/// recording). The comparison is on the difference of the two times, which is exact for
+/// times within a factor of two of each other (Sterbenz), never on `t - dt`.
+pub const TILE_TOLERANCE_S: f64 = 1e-9;
+
+/// Share of the events of `a` that have an event of `b` within `dt` (inclusive, up to
+/// [`TILE_TOLERANCE_S`]): one merge pass over both sorted trains.
 pub fn tiled_events(a: &[f64], b: &[f64], dt: f64) -> f64 {
     if a.is_empty() {
         return 0.0;
     }
+    let reach = dt + TILE_TOLERANCE_S;
     let mut j = 0;
     let mut hits = 0usize;
     for &t in a {
-        while j < b.len() && b[j] < t - dt {
+        while j < b.len() && b[j] - t < -reach {
             j += 1;
         }
-        if j < b.len() && b[j] <= t + dt {
+        if j < b.len() && b[j] - t <= reach {
             hits += 1;
         }
     }
