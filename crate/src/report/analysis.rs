@@ -282,9 +282,21 @@ impl AnalysisReport {
             "isi_median_outside_bursts_s",
             "frequency_alone_hz",
             "regular_alone",
+            "maxinterval_bursts",
+            "maxinterval_bursts_per_min",
+            "maxinterval_median_duration_s",
+            "maxinterval_mean_spikes",
+            "maxinterval_fraction_in_bursts",
+            "logisi_threshold",
+            "logisi_threshold_s",
+            "logisi_bursts",
+            "logisi_bursts_per_min",
+            "logisi_median_duration_s",
+            "logisi_mean_spikes",
+            "logisi_fraction_in_bursts",
         ]);
         for r in self.site_rhythms.iter().flat_map(|s| &s.sites) {
-            out.row([
+            let mut row = vec![
                 r.site.clone(),
                 r.events.to_string(),
                 r.rate_hz.to_string(),
@@ -295,7 +307,21 @@ impl AnalysisReport {
                 number(r.isi_median_alone_s),
                 number(r.frequency_alone_hz),
                 r.regular_alone.to_string(),
-            ]);
+            ];
+            let stats = |b: &crate::rhythm::site_bursts::BurstStats| {
+                [
+                    b.bursts.to_string(),
+                    b.rate_per_min.to_string(),
+                    number(b.median_duration_s),
+                    number(b.mean_spikes),
+                    number(b.fraction_in_bursts),
+                ]
+            };
+            row.extend(stats(&r.bursts.max_interval));
+            row.push(r.bursts.log_isi_threshold.label().to_string());
+            row.push(number(r.bursts.log_isi_threshold.threshold_s()));
+            row.extend(stats(&r.bursts.log_isi));
+            out.row(row);
         }
         out.finish()
     }
@@ -475,6 +501,15 @@ impl AnalysisReport {
                 r.regular_sites,
                 r.network_frequency_hz
                     .map_or("-".into(), |f| format!("{f:.3} Hz"))
+            );
+            let _ = writeln!(
+                out,
+                "Site bursts    {} of {sites} sites burst on their own (MaxInterval); median {} bursts/min per site, {} of spikes in them",
+                r.sites_bursting,
+                r.median_site_burst_rate_per_min
+                    .map_or("-".into(), |v| format!("{v:.2}")),
+                r.median_fraction_in_site_bursts
+                    .map_or("-".into(), |v| format!("{:.0}%", v * 100.0))
             );
         }
         if let Some(y) = &self.synchrony {

@@ -1,5 +1,6 @@
 //! Rhythm: how regularly bursts recur.
 
+pub mod site_bursts;
 pub mod sites;
 pub mod spectrum;
 

@@ -1,6 +1,7 @@
 //! Each site as an oscillator: its rate, the regularity of its inter-event intervals, and
 //! whether it keeps firing regularly on its own, outside the network bursts.
 
+use super::site_bursts::{site_bursts, SiteBurstSettings, SiteBursts};
 use crate::stats::{mean, quantile, sample_sd};
 use serde::{Deserialize, Serialize};
 
@@ -13,6 +14,8 @@ pub struct SiteRhythmSettings {
     /// Largest CV of those intervals for a regular site (common practice, no source: a
     /// Poisson train has CV 1, a clock 0; 0.5 is halfway).
     pub max_cv: f64,
+    /// Bursts within each site's train (MaxInterval and logISI).
+    pub bursts: SiteBurstSettings,
 }
 
 impl Default for SiteRhythmSettings {
@@ -20,6 +23,7 @@ impl Default for SiteRhythmSettings {
         SiteRhythmSettings {
             min_intervals: 5,
             max_cv: 0.5,
+            bursts: SiteBurstSettings::default(),
         }
     }
 }
@@ -43,6 +47,8 @@ pub struct SiteRhythm {
     pub frequency_alone_hz: Option<f64>,
     /// At least `min_intervals` intervals outside bursts with a CV under `max_cv`.
     pub regular_alone: bool,
+    /// Bursts within the site's own train, by both methods.
+    pub bursts: SiteBursts,
 }
 
 /// The sites' oscillators beside the network's rhythm.
@@ -58,6 +64,12 @@ pub struct SiteRhythms {
     pub mean_frequency_alone_ci95_hz: Option<[f64; 2]>,
     /// The network's burst frequency, 1 / median interburst interval, Hz.
     pub network_frequency_hz: Option<f64>,
+    /// Sites with at least one MaxInterval burst of their own, and over the sites with
+    /// events, the median MaxInterval burst rate (bursts per minute) and the median share
+    /// of spikes in those bursts.
+    pub sites_bursting: usize,
+    pub median_site_burst_rate_per_min: Option<f64>,
+    pub median_fraction_in_site_bursts: Option<f64>,
 }
 
 /// Each site's firing over `span_s` (seconds), with `bursts_s` the network bursts' windows
@@ -111,6 +123,7 @@ pub fn site_rhythms(
                     .filter(|m| regular && *m > 0.0)
                     .map(|m| 1.0 / m),
                 regular_alone: regular,
+                bursts: site_bursts(train, duration.max(0.0), &settings.bursts),
             }
         })
         .collect();
@@ -128,7 +141,22 @@ pub fn site_rhythms(
         }
         _ => None,
     };
+    let firing: Vec<&SiteRhythm> = rows.iter().filter(|r| r.events > 0).collect();
+    let rates: Vec<f64> = firing
+        .iter()
+        .map(|r| r.bursts.max_interval.rate_per_min)
+        .collect();
+    let shares: Vec<f64> = firing
+        .iter()
+        .filter_map(|r| r.bursts.max_interval.fraction_in_bursts)
+        .collect();
     SiteRhythms {
+        sites_bursting: firing
+            .iter()
+            .filter(|r| r.bursts.max_interval.bursts > 0)
+            .count(),
+        median_site_burst_rate_per_min: quantile(&rates, 0.5),
+        median_fraction_in_site_bursts: quantile(&shares, 0.5),
         regular_sites: freqs.len(),
         sites: rows,
         mean_frequency_alone_hz: m,

@@ -301,7 +301,7 @@ fn status_table(entries: &[(RecordingStatus, &RecordingOutputs)], columns: &[Str
 
 /// The columns of `recordings.csv` after the keys and the outcome: (name, JSON pointer into
 /// `summary.json`). Intervals are 95%.
-const RECORDING_NUMBERS: [(&str, &str); 38] = [
+const RECORDING_NUMBERS: [(&str, &str); 41] = [
     ("track", "/track/kind"),
     ("duration_s", "/summary/duration_s"),
     ("burst_count", "/summary/burst_count"),
@@ -373,6 +373,15 @@ const RECORDING_NUMBERS: [(&str, &str); 38] = [
         "/site_rhythms/mean_frequency_alone_hz",
     ),
     ("network_frequency_hz", "/site_rhythms/network_frequency_hz"),
+    ("sites_bursting", "/site_rhythms/sites_bursting"),
+    (
+        "median_site_burst_rate_per_min",
+        "/site_rhythms/median_site_burst_rate_per_min",
+    ),
+    (
+        "median_fraction_in_site_bursts",
+        "/site_rhythms/median_fraction_in_site_bursts",
+    ),
 ];
 
 /// A JSON value as a CSV field: numbers in shortest round-trip form, text as is, empty
