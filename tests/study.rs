@@ -157,7 +157,7 @@ fn batch_equals_analyze_names_failures_and_shards_combine_to_the_same_bytes() {
             .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
             .collect();
         files.sort();
-        assert_eq!(files.len(), 8, "{files:?}");
+        assert_eq!(files.len(), 9, "{files:?}");
         for file in files {
             assert_eq!(
                 read(&d.join(&reference).join(&file)),

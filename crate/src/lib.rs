@@ -264,12 +264,12 @@ pub fn analyze_events(
             .unwrap_or(0.0)
             .total_cmp(&b.along_um.unwrap_or(0.0))
     });
-    let sync = span.map(|s| synchrony::summarise(&sites, s, &settings.synchrony));
     let windows: Vec<(f64, f64)> = analysis
         .bursts
         .iter()
         .map(|b| (b.start_s, b.end_s))
         .collect();
+    let sync = span.map(|s| synchrony::summarise(&sites, s, &windows, &settings.synchrony));
     let network_hz = analysis
         .summary
         .ibi
@@ -285,9 +285,38 @@ pub fn analyze_events(
     let site_rhythms = span.map(|s| {
         rhythm::sites::site_rhythms(&named, &windows, s, network_hz, &settings.site_rhythm)
     });
+    if let Some(notice) = sync
+        .as_ref()
+        .and_then(|s| s.lags.as_ref())
+        .and_then(|l| lag_disagreement(l, analysis.summary.median_speed_ci95_mm_s))
+    {
+        analysis.notices.push(notice);
+    }
     let mut report = report::AnalysisReport::new(recording, fit, settings, analysis);
     report.rhythm = rhythm;
     report.synchrony = sync;
     report.site_rhythms = site_rhythms;
     Ok((report, rate))
+}
+
+/// A notice when the speed implied by the lags between sites and the fronts' median speed
+/// disagree beyond their 95% intervals (the intervals do not overlap).
+fn lag_disagreement(
+    lags: &synchrony::lags::LagSummary,
+    fronts_ci95_mm_s: Option<[f64; 2]>,
+) -> Option<place::Notice> {
+    let [lo, hi] = lags.implied_speed_ci95_mm_s?;
+    let [f_lo, f_hi] = fronts_ci95_mm_s?;
+    let lo = lo.unwrap_or(0.0);
+    let apart = hi.is_some_and(|h| h < f_lo) || lo > f_hi;
+    apart.then(|| {
+        place::Notice::new(
+            place::Place::default(),
+            format!(
+                "the lags between neighbouring sites imply {} mm/s (95% CI {lo:.1} to {}), but the fronts' median speed is {f_lo:.1} to {f_hi:.1} mm/s (95% CI): the two do not agree; fronts that fail, run both ways or start mid-track can pull the lags apart from the fitted fronts (see lags.csv)",
+                lags.implied_speed_mm_s.map_or("-".into(), |v| format!("{v:.1}")),
+                hi.map_or("no upper bound".into(), |h| format!("{h:.1}")),
+            ),
+        )
+    })
 }

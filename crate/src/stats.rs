@@ -7,13 +7,17 @@ use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
 
 /// Median (mean of the two middle values for an even count); `None` when empty.
 pub fn median(values: &[f64]) -> Option<f64> {
+    median_in_place(&mut values.to_vec())
+}
+
+/// [`median`] of `v`, reordering it (no copy).
+pub fn median_in_place(v: &mut [f64]) -> Option<f64> {
     // The type-7 quantile at 0.5 by selection instead of sorting (linear time), with the
     // same arithmetic, so the value is the same to the last bit.
-    let n = values.len();
+    let n = v.len();
     if n == 0 {
         return None;
     }
-    let mut v = values.to_vec();
     let h = (n - 1) as f64 * 0.5;
     let lo = h.floor() as usize;
     let (_, &mut a, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
@@ -194,4 +198,44 @@ pub fn median_interval(values: &[f64], confidence: f64) -> Option<[f64; 2]> {
     v.sort_by(f64::total_cmp);
     // 1-based ranks l and n + 1 - l are 0-based l - 1 and n - l.
     Some([v[rank - 1], v[n - rank]])
+}
+
+/// Spearman's rank correlation: Pearson's correlation of the ranks, ties given their average
+/// rank (as `scipy.stats.spearmanr`); `None` when either side is constant or fewer than two
+/// pairs are given.
+pub fn spearman(a: &[f64], b: &[f64]) -> Option<f64> {
+    if a.len() != b.len() || a.len() < 2 {
+        return None;
+    }
+    let (ra, rb) = (average_ranks(a), average_ranks(b));
+    let n = a.len() as f64;
+    let (ma, mb) = (ra.iter().sum::<f64>() / n, rb.iter().sum::<f64>() / n);
+    let (mut sab, mut saa, mut sbb) = (0.0, 0.0, 0.0);
+    for (x, y) in ra.iter().zip(&rb) {
+        sab += (x - ma) * (y - mb);
+        saa += (x - ma) * (x - ma);
+        sbb += (y - mb) * (y - mb);
+    }
+    (saa > 0.0 && sbb > 0.0).then(|| sab / (saa * sbb).sqrt())
+}
+
+/// Ranks from 1, ties sharing their average rank.
+fn average_ranks(v: &[f64]) -> Vec<f64> {
+    let mut idx: Vec<usize> = (0..v.len()).collect();
+    idx.sort_by(|&i, &j| v[i].total_cmp(&v[j]));
+    let mut ranks = vec![0.0; v.len()];
+    let mut k = 0;
+    while k < idx.len() {
+        let mut end = k + 1;
+        while end < idx.len() && v[idx[end]] == v[idx[k]] {
+            end += 1;
+        }
+        // Positions k..end (0-based) share the mean of ranks k + 1 ..= end.
+        let rank = (k + 1 + end) as f64 / 2.0;
+        for &i in &idx[k..end] {
+            ranks[i] = rank;
+        }
+        k = end;
+    }
+    ranks
 }

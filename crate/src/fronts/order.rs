@@ -8,6 +8,7 @@
 //! active in both bursts.
 
 use super::{Activation, BurstResult};
+pub use crate::stats::spearman;
 use serde::{Deserialize, Serialize};
 
 /// Settings of the order measures.
@@ -167,46 +168,6 @@ pub fn leaders(bursts: &[BurstResult], sites: &[(String, f64, f64)]) -> Vec<Lead
             .then(a.site.cmp(&b.site))
     });
     rows
-}
-
-/// Spearman's rank correlation: Pearson's correlation of the ranks, ties given their average
-/// rank (as `scipy.stats.spearmanr`); `None` when either side is constant or fewer than two
-/// pairs are given.
-pub fn spearman(a: &[f64], b: &[f64]) -> Option<f64> {
-    if a.len() != b.len() || a.len() < 2 {
-        return None;
-    }
-    let (ra, rb) = (average_ranks(a), average_ranks(b));
-    let n = a.len() as f64;
-    let (ma, mb) = (ra.iter().sum::<f64>() / n, rb.iter().sum::<f64>() / n);
-    let (mut sab, mut saa, mut sbb) = (0.0, 0.0, 0.0);
-    for (x, y) in ra.iter().zip(&rb) {
-        sab += (x - ma) * (y - mb);
-        saa += (x - ma) * (x - ma);
-        sbb += (y - mb) * (y - mb);
-    }
-    (saa > 0.0 && sbb > 0.0).then(|| sab / (saa * sbb).sqrt())
-}
-
-/// Ranks from 1, ties sharing their average rank.
-fn average_ranks(v: &[f64]) -> Vec<f64> {
-    let mut idx: Vec<usize> = (0..v.len()).collect();
-    idx.sort_by(|&i, &j| v[i].total_cmp(&v[j]));
-    let mut ranks = vec![0.0; v.len()];
-    let mut k = 0;
-    while k < idx.len() {
-        let mut end = k + 1;
-        while end < idx.len() && v[idx[end]] == v[idx[k]] {
-            end += 1;
-        }
-        // Positions k..end (0-based) share the mean of ranks k + 1 ..= end.
-        let rank = (k + 1 + end) as f64 / 2.0;
-        for &i in &idx[k..end] {
-            ranks[i] = rank;
-        }
-        k = end;
-    }
-    ranks
 }
 
 /// Spearman correlation of the activation order between each burst and the next

@@ -235,6 +235,7 @@ impl AnalysisReport {
             ("leaders.csv", self.leaders_csv()),
             ("spectrum.csv", self.spectrum_csv()),
             ("sttc.csv", self.sttc_csv()),
+            ("lags.csv", self.lags_csv()),
             ("sites.csv", self.sites_csv()),
             ("summary.json", self.summary_json()),
         ]);
@@ -265,6 +266,41 @@ impl AnalysisReport {
                     number(p.sttc),
                 ]);
             }
+        }
+        out.finish()
+    }
+
+    /// `lags.csv`: each site with its following neighbours along the track: distance, the
+    /// bursts both fired in, the median size of their burst-by-burst shift (empty with too
+    /// few bursts), the share of bursts in which the second fired after the first, and the
+    /// peak of the whole recording's cross-correlogram (positive: second after first).
+    pub fn lags_csv(&self) -> String {
+        let mut out = CsvOut::new([
+            "site_a",
+            "site_b",
+            "distance_um",
+            "bursts",
+            "lag_ms",
+            "forward_share",
+            "correlogram_peak_ms",
+            "correlogram_peak_count",
+        ]);
+        for p in self
+            .synchrony
+            .iter()
+            .flat_map(|s| s.lags.iter())
+            .flat_map(|l| &l.table)
+        {
+            out.row([
+                p.site_a.clone(),
+                p.site_b.clone(),
+                p.distance_um.to_string(),
+                p.bursts.to_string(),
+                number(p.lag_ms),
+                number(p.forward_share),
+                number(p.correlogram_peak_ms),
+                p.correlogram_peak_count.to_string(),
+            ]);
         }
         out.finish()
     }
@@ -530,6 +566,28 @@ impl AnalysisReport {
                 )
             });
             let _ = writeln!(out, "Synchrony      {sttc}; {order}");
+            if let Some(l) = &y.lags {
+                let speed = match (l.implied_speed_mm_s, l.implied_speed_ci95_mm_s) {
+                    (Some(v), Some([lo, hi])) => format!(
+                        "imply {v:.1} mm/s (95% CI {} to {})",
+                        lo.map_or("-".into(), |x| format!("{x:.1}")),
+                        hi.map_or("no upper bound".into(), |x| format!("{x:.1}"))
+                    ),
+                    (Some(v), None) => format!("imply {v:.1} mm/s"),
+                    _ => "imply no speed".into(),
+                };
+                let forward = l.forward_share.map_or(String::new(), |f| {
+                    format!(
+                        " ({:.0}% of their burst shifts towards the track's end)",
+                        f * 100.0
+                    )
+                });
+                let _ = writeln!(
+                    out,
+                    "Lags           {} of {} neighbouring pairs have a lag{forward}; they {speed} (see lags.csv)",
+                    l.pairs_with_lag, l.pairs
+                );
+            }
         }
         out.push_str("\nburst   start (s)  model           speed (mm/s)   95% CI (mm/s)     origin   sites\n");
         for b in &self.bursts {

@@ -301,7 +301,7 @@ fn status_table(entries: &[(RecordingStatus, &RecordingOutputs)], columns: &[Str
 
 /// The columns of `recordings.csv` after the keys and the outcome: (name, JSON pointer into
 /// `summary.json`). Intervals are 95%.
-const RECORDING_NUMBERS: [(&str, &str); 41] = [
+const RECORDING_NUMBERS: [(&str, &str); 45] = [
     ("track", "/track/kind"),
     ("duration_s", "/summary/duration_s"),
     ("burst_count", "/summary/burst_count"),
@@ -373,6 +373,16 @@ const RECORDING_NUMBERS: [(&str, &str); 41] = [
         "/site_rhythms/mean_frequency_alone_hz",
     ),
     ("network_frequency_hz", "/site_rhythms/network_frequency_hz"),
+    ("lag_speed_mm_s", "/synchrony/lags/implied_speed_mm_s"),
+    (
+        "lag_speed_ci95_low_mm_s",
+        "/synchrony/lags/implied_speed_ci95_mm_s/0",
+    ),
+    (
+        "lag_speed_ci95_high_mm_s",
+        "/synchrony/lags/implied_speed_ci95_mm_s/1",
+    ),
+    ("lag_forward_share", "/synchrony/lags/forward_share"),
     ("sites_bursting", "/site_rhythms/sites_bursting"),
     (
         "median_site_burst_rate_per_min",

@@ -3,6 +3,8 @@
 //! (phase linear between successive spikes; Pinsky & Rinzel 1995, J. Comput. Neurosci.
 //! 2:275). Inputs are event trains in seconds, ascending.
 
+pub mod lags;
+
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
@@ -140,6 +142,8 @@ pub struct SynchronySettings {
     pub phase_step_s: f64,
     /// Largest number of sites with events for which the pairwise STTC is computed.
     pub max_sites: usize,
+    /// Lags between sites along the track ([`lags::lags`]).
+    pub lags: lags::LagSettings,
 }
 
 impl Default for SynchronySettings {
@@ -148,6 +152,7 @@ impl Default for SynchronySettings {
             sttc_dt_s: 0.05,
             phase_step_s: 0.01,
             max_sites: 256,
+            lags: lags::LagSettings::default(),
         }
     }
 }
@@ -254,6 +259,9 @@ pub struct SynchronySummary {
     pub sttc_skipped: Option<String>,
     /// Kuramoto order parameter from spike phases.
     pub order: Option<OrderParameter>,
+    /// Lags between neighbouring sites along the track and the speed they imply; `None` on
+    /// a plane (no track coordinate).
+    pub lags: Option<lags::LagSummary>,
     /// Every pair (i < j, sites in track order), for `sttc.csv`; not in the JSON.
     #[serde(skip)]
     pub pairs_table: Vec<SttcPair>,
@@ -269,11 +277,13 @@ pub struct SiteEvents<'a> {
 }
 
 /// STTC for every pair of sites with events (in the order given: callers sort along the
-/// track), their mean and median, and the order parameter. Pairwise work is skipped, with
+/// track), their mean and median, the order parameter, and on a track the lags between
+/// neighbouring sites within the network bursts `bursts_s` (start, end; seconds). Pairwise work is skipped, with
 /// the reason, beyond `settings.max_sites` sites.
 pub fn summarise(
     sites: &[SiteEvents],
     span_s: (f64, f64),
+    bursts_s: &[(f64, f64)],
     settings: &SynchronySettings,
 ) -> SynchronySummary {
     let active: Vec<&SiteEvents> = sites.iter().filter(|s| !s.events_s.is_empty()).collect();
@@ -296,7 +306,13 @@ pub fn summarise(
                 .max((span_s.1 - span_s.0) * trains.len() as f64 / MAX_SITE_SAMPLES),
         ),
         pairs_table: Vec::new(),
+        lags: None,
     };
+    let along: Option<Vec<(&str, f64, &[f64])>> = active
+        .iter()
+        .map(|s| s.along_um.map(|x| (s.id, x, s.events_s)))
+        .collect();
+    summary.lags = along.map(|a| lags::lags(&a, bursts_s, &settings.lags));
     if active.len() > settings.max_sites.min(MAX_SITES) {
         summary.sttc_skipped = Some(format!(
             "{} sites have events, more than synchrony.max_sites ({}): the pairwise STTC was not computed (its cost grows with the square of the sites); raise the limit to compute it",
