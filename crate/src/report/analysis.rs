@@ -578,7 +578,7 @@ impl AnalysisReport {
                 };
                 let forward = l.forward_share.map_or(String::new(), |f| {
                     format!(
-                        " ({:.0}% of their burst shifts towards the track's end)",
+                        " (fronts towards the track's end in {:.0}% of their bursts)",
                         f * 100.0
                     )
                 });

@@ -29,6 +29,8 @@ pub struct LagSettings {
     pub neighbours: usize,
     /// Fewest network bursts in which both sites fire for a pair to have a lag.
     pub min_bursts: usize,
+    /// Sites either side of a pair whose timing gives the local direction of travel.
+    pub direction_sites: usize,
     /// Spikes of each site per burst used for its shift (the first ones, around the
     /// front's arrival).
     pub max_burst_spikes: usize,
@@ -45,6 +47,7 @@ impl Default for LagSettings {
             max_lag_s: 0.1,
             neighbours: 8,
             min_bursts: 5,
+            direction_sites: 4,
             max_burst_spikes: 64,
             resamples: 1000,
             seed: 2,
@@ -171,10 +174,11 @@ pub struct SiteLag {
     pub site_b: String,
     /// Distance from a to b along the track, micrometres (positive).
     pub distance_um: f64,
-    /// Network bursts with a direction in which both sites fired.
+    /// Network bursts in which both sites fired and the direction of travel near them was
+    /// known.
     pub bursts: usize,
-    /// Median over those bursts of the shift (see [`shift`]) turned by the burst's
-    /// direction, milliseconds: positive when b fires after a for fronts towards the
+    /// Median over those bursts of the shift (see [`shift`]) turned by the local direction
+    /// of travel, milliseconds: positive when b fires after a for fronts towards the
     /// track's end; `None` with fewer than `min_bursts` bursts.
     pub lag_ms: Option<f64>,
     /// Share of those bursts in which b fired after a (shift > 0).
@@ -193,8 +197,9 @@ pub struct LagSummary {
     /// Pairs looked at, and those with a lag.
     pub pairs: usize,
     pub pairs_with_lag: usize,
-    /// Network bursts with a direction, and the share of them towards the track's end.
-    pub directed_bursts: usize,
+    /// Burst shifts with a local direction, and the share of those directions towards the
+    /// track's end.
+    pub oriented_shifts: usize,
     pub forward_share: Option<f64>,
     /// Median over pairs of lag / distance, ms per mm, and the speed it implies (for a
     /// positive slowness), mm/s, with
@@ -218,32 +223,38 @@ fn within(train: &[f64], (start, end): (f64, f64), limit: usize) -> &[f64] {
     &train[a..b.max(a).min(a + limit)]
 }
 
-/// The direction of each burst along the track: the sign of Spearman's rank correlation
-/// between the sites' track coordinates and the median time of their first spikes in the
-/// burst (+1: towards the track's end). `None` where fewer than three sites fired or the
-/// correlation is 0. A vote over all sites, not a front fit.
-pub fn burst_directions(
-    sites: &[(&str, f64, &[f64])],
-    bursts_s: &[(f64, f64)],
-    limit: usize,
-) -> Vec<Option<f64>> {
-    bursts_s
-        .iter()
-        .map(|&w| {
-            let points: Vec<(f64, f64)> = sites
-                .iter()
-                .filter_map(|s| median(within(s.2, w, limit)).map(|t| (s.1, t)))
-                .collect();
-            if points.len() < 3 {
-                return None;
-            }
-            let xs: Vec<f64> = points.iter().map(|p| p.0).collect();
-            let ts: Vec<f64> = points.iter().map(|p| p.1).collect();
-            let rho = crate::stats::spearman(&xs, &ts)?;
-            (rho != 0.0).then_some(rho.signum())
-        })
-        .collect()
+/// The direction of travel near a pair of sites in one burst: the sign of Spearman's rank
+/// correlation between track coordinate and median spike time over the sites from
+/// `span.0` to `span.1` (indices along the track) other than the pair itself (+1: towards
+/// the track's end). Leaving the pair out keeps its own timing noise out of the sign, so a
+/// burst that does not propagate gives shifts of random sign around 0. `None` with fewer
+/// than three such sites, or a correlation of 0. A local vote, not a front fit: fronts
+/// that run both ways from a point, or round a ring, are oriented piece by piece.
+pub fn local_direction(
+    along_um: &[f64],
+    median_s: &[Option<f64>],
+    span: (usize, usize),
+    pair: (usize, usize),
+) -> Option<f64> {
+    let (mut xs, mut ts) = (Vec::new(), Vec::new());
+    for k in span.0..=span.1.min(along_um.len().saturating_sub(1)) {
+        if k == pair.0 || k == pair.1 {
+            continue;
+        }
+        if let Some(t) = median_s.get(k).copied().flatten() {
+            xs.push(along_um[k]);
+            ts.push(t);
+        }
+    }
+    if xs.len() < 3 {
+        return None;
+    }
+    let rho = crate::stats::spearman(&xs, &ts)?;
+    (rho != 0.0).then_some(rho.signum())
 }
+
+/// Largest number of burst shifts kept over all pairs.
+pub const MAX_SHIFTS: usize = 20_000_000;
 
 /// Lags of every site with its `neighbours` following sites. `sites` are (id, track
 /// coordinate in micrometres, events in seconds), sorted along the track; `bursts_s` are
@@ -252,28 +263,29 @@ pub fn burst_directions(
 ///
 /// For each pair and each burst in which both fired, the shift of the farther site's
 /// spikes against the nearer's ([`shift`], the first `max_burst_spikes` of each), turned
-/// by the burst's direction ([`burst_directions`]) so that fronts running either way give
-/// the same sign; the pair's lag is the median of those oriented shifts. Bursts with no
-/// direction are left out. With no network bursts, no pair has a lag.
+/// by the direction of travel there ([`local_direction`] over `direction_sites` sites
+/// either side) so that fronts running either way give the same sign; the pair's lag is
+/// the median of those oriented shifts. With no network bursts, no pair has a lag.
 pub fn lags(
     sites: &[(&str, f64, &[f64])],
     bursts_s: &[(f64, f64)],
     settings: &LagSettings,
 ) -> LagSummary {
     let mut budget = MAX_COINCIDENCES;
-    let mut table = Vec::new();
-    let mut owners = Vec::new();
     let mut skipped = None;
-    let mut scratch = Vec::new();
     let limit = settings.max_burst_spikes.max(1);
-    let directions = burst_directions(sites, bursts_s, limit);
-    let directed: Vec<((f64, f64), f64)> = bursts_s
-        .iter()
-        .zip(&directions)
-        .filter_map(|(w, d)| d.map(|d| (*w, d)))
-        .collect();
-    'outer: for (i, a) in sites.iter().enumerate() {
-        for b in sites.iter().skip(i + 1).take(settings.neighbours) {
+    let reach = settings.direction_sites.max(1);
+    let along: Vec<f64> = sites.iter().map(|s| s.1).collect();
+    // Pairs (i, j, distance) and their whole-recording correlogram peaks.
+    let mut pairs: Vec<(usize, usize, f64)> = Vec::new();
+    let mut peaks = Vec::new();
+    'pairs: for (i, a) in sites.iter().enumerate() {
+        for (j, b) in sites
+            .iter()
+            .enumerate()
+            .skip(i + 1)
+            .take(settings.neighbours)
+        {
             let distance_um = b.1 - a.1;
             // NaN distances fail the comparison and are left out too.
             if distance_um.partial_cmp(&1.0).is_none_or(|o| o.is_lt())
@@ -282,45 +294,71 @@ pub fn lags(
             {
                 continue;
             }
-            let correlogram =
-                cross_correlogram(a.2, b.2, settings.bin_s, settings.max_lag_s, &mut budget);
-            let (mut oriented, mut ahead) = (Vec::new(), 0usize);
-            for &(w, direction) in &directed {
-                let (x, y) = (within(a.2, w, limit), within(b.2, w, limit));
-                let work = (x.len() * y.len()) as u64;
-                let Some(left) = budget.checked_sub(work) else {
-                    budget = 0;
-                    break;
-                };
-                budget = left;
-                if let Some(s) = shift(x, y, &mut scratch) {
-                    ahead += usize::from(s > 0.0);
-                    oriented.push(s * direction * 1e3);
-                }
-            }
-            let Some(counts) = correlogram.filter(|_| budget > 0) else {
+            let Some(counts) =
+                cross_correlogram(a.2, b.2, settings.bin_s, settings.max_lag_s, &mut budget)
+            else {
                 skipped = Some(format!(
-                    "lags were computed for the first {} site pairs only: the recording has more coincidences than the bound of {MAX_COINCIDENCES} (or the correlogram's bins are out of bounds)",
-                    table.len(),
+                    "lags were computed for the first {} site pairs only: their correlograms hold more coincidences than the bound of {MAX_COINCIDENCES} (or the correlogram's bins are out of bounds)",
+                    pairs.len()
                 ));
-                break 'outer;
+                break 'pairs;
             };
-            let peak = peak_lag(&counts, settings.bin_s);
-            let lag_ms = median(&oriented).filter(|_| oriented.len() >= settings.min_bursts.max(1));
-            owners.push(i);
-            table.push(SiteLag {
-                site_a: a.0.to_string(),
-                site_b: b.0.to_string(),
-                distance_um,
-                bursts: oriented.len(),
-                lag_ms,
-                forward_share: (!oriented.is_empty()).then(|| ahead as f64 / oriented.len() as f64),
-                correlogram_peak_ms: peak.map(|p| p.0 * 1e3),
-                correlogram_peak_count: peak.map_or(0.0, |p| p.1),
-            });
+            pairs.push((i, j, distance_um));
+            peaks.push(peak_lag(&counts, settings.bin_s));
         }
     }
-    let forward = directed.iter().filter(|d| d.1 > 0.0).count();
+    // Burst by burst: each site's median time, then each pair's oriented shift.
+    let mut oriented: Vec<Vec<f64>> = vec![Vec::new(); pairs.len()];
+    let mut ahead = vec![0usize; pairs.len()];
+    let (mut forward, mut votes, mut kept) = (0usize, 0usize, 0usize);
+    let mut scratch = Vec::new();
+    'bursts: for &w in bursts_s {
+        let slices: Vec<&[f64]> = sites.iter().map(|s| within(s.2, w, limit)).collect();
+        let medians: Vec<Option<f64>> = slices.iter().map(|x| median(x)).collect();
+        for (p, &(i, j, _)) in pairs.iter().enumerate() {
+            let (x, y) = (slices[i], slices[j]);
+            if x.is_empty() || y.is_empty() {
+                continue;
+            }
+            let work = (x.len() * y.len() + 2 * reach + j - i) as u64;
+            if kept >= MAX_SHIFTS || budget < work {
+                skipped = Some(format!(
+                    "lags use the network bursts up to {:.1} s only: the burst shifts reached the bound on work ({MAX_COINCIDENCES} spike pairs, {MAX_SHIFTS} shifts)",
+                    w.0
+                ));
+                break 'bursts;
+            }
+            budget -= work;
+            let span = (i.saturating_sub(reach), j + reach);
+            let (Some(s), Some(direction)) = (
+                shift(x, y, &mut scratch),
+                local_direction(&along, &medians, span, (i, j)),
+            ) else {
+                continue;
+            };
+            ahead[p] += usize::from(s > 0.0);
+            forward += usize::from(direction > 0.0);
+            votes += 1;
+            kept += 1;
+            oriented[p].push(s * direction * 1e3);
+        }
+    }
+    let table: Vec<SiteLag> = pairs
+        .iter()
+        .zip(&oriented)
+        .zip(ahead.iter().zip(&peaks))
+        .map(|((&(i, j, distance_um), shifts), (&up, peak))| SiteLag {
+            site_a: sites[i].0.to_string(),
+            site_b: sites[j].0.to_string(),
+            distance_um,
+            bursts: shifts.len(),
+            lag_ms: median(shifts).filter(|_| shifts.len() >= settings.min_bursts.max(1)),
+            forward_share: (!shifts.is_empty()).then(|| up as f64 / shifts.len() as f64),
+            correlogram_peak_ms: peak.map(|p| p.0 * 1e3),
+            correlogram_peak_count: peak.map_or(0.0, |p| p.1),
+        })
+        .collect();
+    let owners: Vec<usize> = pairs.iter().map(|p| p.0).collect();
     // (owner, slowness in ms per mm) for pairs with a lag.
     let slow: Vec<(usize, f64)> = table
         .iter()
@@ -336,8 +374,8 @@ pub fn lags(
         max_lag_s: settings.max_lag_s,
         pairs: table.len(),
         pairs_with_lag: slow.len(),
-        directed_bursts: directed.len(),
-        forward_share: (!directed.is_empty()).then(|| forward as f64 / directed.len() as f64),
+        oriented_shifts: votes,
+        forward_share: (votes > 0).then(|| forward as f64 / votes as f64),
         median_slowness_ms_per_mm: median_slowness,
         implied_speed_mm_s: median_slowness.and_then(speed),
         // Slowness interval [lo, hi] is the speed interval [1/hi, 1/lo].
@@ -411,22 +449,18 @@ mod tests {
     }
 
     #[test]
-    fn bursts_take_the_direction_their_sites_vote_for() {
-        let x = [0.0, 100.0, 200.0, 300.0];
-        let forward: Vec<Vec<f64>> = x.iter().map(|&u| vec![1.0 + u * 1e-5]).collect();
-        let backward: Vec<Vec<f64>> = x.iter().map(|&u| vec![5.0 - u * 1e-5]).collect();
-        let trains: Vec<Vec<f64>> = forward
-            .iter()
-            .zip(&backward)
-            .map(|(f, b)| vec![f[0], b[0]])
-            .collect();
-        let sites: Vec<(&str, f64, &[f64])> = x
-            .iter()
-            .zip(&trains)
-            .map(|(&u, t)| ("s", u, t.as_slice()))
-            .collect();
-        let d = burst_directions(&sites, &[(0.5, 2.0), (4.0, 6.0), (8.0, 9.0)], 64);
-        assert_eq!(d, vec![Some(1.0), Some(-1.0), None]);
+    fn the_direction_is_voted_by_the_other_sites_nearby() {
+        // Sites 0..6 at 100 um steps; times rise along the track except at the pair (2, 3),
+        // whose own times are swapped: the vote leaves them out and still says +1.
+        let along: Vec<f64> = (0..7).map(|k| k as f64 * 100.0).collect();
+        let mut t: Vec<Option<f64>> = (0..7).map(|k| Some(k as f64)).collect();
+        t.swap(2, 3);
+        assert_eq!(local_direction(&along, &t, (0, 6), (2, 3)), Some(1.0));
+        let back: Vec<Option<f64>> = (0..7).map(|k| Some(-(k as f64))).collect();
+        assert_eq!(local_direction(&along, &back, (0, 6), (2, 3)), Some(-1.0));
+        // Too few other sites with a time.
+        let sparse = vec![Some(0.0), None, Some(1.0), Some(2.0), None, None, Some(3.0)];
+        assert_eq!(local_direction(&along, &sparse, (1, 4), (2, 3)), None);
     }
 
     #[test]
