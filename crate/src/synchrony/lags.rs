@@ -237,12 +237,13 @@ pub fn local_direction(
     pair: (usize, usize),
 ) -> Option<f64> {
     let (mut xs, mut ts) = (Vec::new(), Vec::new());
-    for k in span.0..=span.1.min(along_um.len().saturating_sub(1)) {
-        if k == pair.0 || k == pair.1 {
+    let last = span.1.min(along_um.len().saturating_sub(1));
+    for (k, (&x, t)) in along_um.iter().zip(median_s).enumerate() {
+        if k < span.0 || k > last || k == pair.0 || k == pair.1 {
             continue;
         }
-        if let Some(t) = median_s.get(k).copied().flatten() {
-            xs.push(along_um[k]);
+        if let Some(t) = *t {
+            xs.push(x);
             ts.push(t);
         }
     }
