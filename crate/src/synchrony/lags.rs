@@ -237,9 +237,15 @@ pub fn local_direction(
     pair: (usize, usize),
 ) -> Option<f64> {
     let (mut xs, mut ts) = (Vec::new(), Vec::new());
-    let last = span.1.min(along_um.len().saturating_sub(1));
-    for (k, (&x, t)) in along_um.iter().zip(median_s).enumerate() {
-        if k < span.0 || k > last || k == pair.0 || k == pair.1 {
+    let end = (span.1 + 1).min(along_um.len()).min(median_s.len());
+    let first = span.0.min(end);
+    for (k, (&x, t)) in along_um[first..end]
+        .iter()
+        .zip(&median_s[first..end])
+        .enumerate()
+        .map(|(k, v)| (k + first, v))
+    {
+        if k == pair.0 || k == pair.1 {
             continue;
         }
         if let Some(t) = *t {
