@@ -239,7 +239,8 @@ pub struct RateSpectrum {
     /// The flat one-sided density of a Poisson train of that rate binned into a rate:
     /// 2 x mean rate, (events/s)^2/Hz.
     pub poisson_floor: f64,
-    /// Highest density between the lowest resolved frequency and `max_frequency_hz`.
+    /// The dominant rhythm: the highest density between the lowest resolved frequency and
+    /// `max_frequency_hz`, or the fundamental of which it is a harmonic.
     pub peak_frequency_hz: Option<f64>,
     pub peak_density: Option<f64>,
     /// Full width of the peak at half its height, Hz (linear between bins).
@@ -321,10 +322,12 @@ pub fn rate_spectrum(
     let in_band: Vec<usize> = (1..w.frequency_hz.len())
         .filter(|&k| w.frequency_hz[k] <= s.max_frequency_hz)
         .collect();
-    let peak = in_band
+    let tallest = in_band
         .iter()
         .copied()
         .max_by(|&a, &b| w.power[a].total_cmp(&w.power[b]));
+    let resolution = fs / nperseg as f64;
+    let peak = tallest.map(|t| fundamental(&w.frequency_hz, &w.power, &in_band, t, resolution));
     // Averaging K half-overlapping Hann segments gives about 2 K' degrees of freedom with
     // K' = K / (1 + 2 c^2 (1 - 1/K)), c = 0.167 the correlation of Hann segments overlapping by
     // half (Welch 1967; Harris 1978, Proc. IEEE 66:51, from memory); one segment has 2.
@@ -395,6 +398,36 @@ pub fn rate_spectrum(
     })
 }
 
+/// Share of the tallest peak's density a lower peak needs to be taken as its fundamental.
+pub const FUNDAMENTAL_SHARE: f64 = 0.5;
+
+/// The dominant rhythm's bin: the tallest in the band, unless a lower local maximum at
+/// least [`FUNDAMENTAL_SHARE`] as tall has it as a harmonic (the tallest lies within n
+/// resolution bins of n times its frequency). A train of sharp, regular bursts puts nearly
+/// equal power at every multiple of its rate, so the tallest bin can be the third
+/// harmonic; the rhythm is the fundamental (our rule; no source).
+fn fundamental(
+    frequency_hz: &[f64],
+    power: &[f64],
+    in_band: &[usize],
+    tallest: usize,
+    resolution_hz: f64,
+) -> usize {
+    let local_max = |k: usize| {
+        k > 0 && power[k] >= power[k - 1] && power.get(k + 1).is_none_or(|&r| power[k] >= r)
+    };
+    let f_top = frequency_hz[tallest];
+    in_band
+        .iter()
+        .copied()
+        .filter(|&k| k < tallest && local_max(k) && power[k] >= FUNDAMENTAL_SHARE * power[tallest])
+        .find(|&k| {
+            let n = (f_top / frequency_hz[k]).round();
+            n >= 2.0 && (f_top - n * frequency_hz[k]).abs() <= n * resolution_hz
+        })
+        .unwrap_or(tallest)
+}
+
 /// Whether `x` is a number above zero (false for NaN).
 fn positive(x: f64) -> bool {
     x > 0.0
@@ -403,4 +436,28 @@ fn positive(x: f64) -> bool {
 /// Whether `x` is a number of at least `low` (false for NaN).
 fn at_least(x: f64, low: f64) -> bool {
     x >= low
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_sharp_regular_pulse_train_peaks_at_its_fundamental() {
+        // Bursts of 50 events within 10 ms every 1.25 s for 300 s: the Fourier series of a
+        // pulse train has equal weight at every multiple of 0.8 Hz up to about 1 / width.
+        let trains: Vec<Vec<f64>> = (0..10)
+            .map(|site| {
+                (0..240)
+                    .flat_map(|k| {
+                        (0..5).map(move |j| k as f64 * 1.25 + 0.002 * j as f64 + site as f64 * 1e-4)
+                    })
+                    .collect()
+            })
+            .collect();
+        let r = rate_spectrum(&trains, (0.0, 300.0), &SpectrumSettings::default()).unwrap();
+        let f = r.peak_frequency_hz.unwrap();
+        assert!((f - 0.8).abs() <= r.resolution_hz, "{f}");
+        assert!(r.is_rhythm);
+    }
 }

@@ -37,6 +37,24 @@ pub struct NeuronParams {
     pub refractory_s: f64,
 }
 
+/// Firing rate of one neuron alone (no synaptic input, no noise) under a constant drive
+/// `drive_mv`, Hz: it is held at reset for the refractory period and then relaxes towards
+/// the drive, reaching threshold after tau_m ln((D - V_reset) / (D - theta)), so the rate
+/// is 1 / (t_ref + tau_m ln((D - V_reset) / (D - theta))) for D > theta and 0 otherwise
+/// (the leaky integrate-and-fire rate; Gerstner et al. 2014, Neuronal Dynamics, ch. 1).
+pub fn isolated_rate_hz(neuron: &NeuronParams, drive_mv: f64) -> f64 {
+    let (d, theta, reset) = (drive_mv, neuron.threshold_mv, neuron.reset_mv);
+    if !(d > theta) || !(d > reset) {
+        return 0.0;
+    }
+    let period = neuron.refractory_s + neuron.tau_m_s * libm::log((d - reset) / (d - theta));
+    if period > 0.0 {
+        1.0 / period
+    } else {
+        0.0
+    }
+}
+
 /// Synaptic parameters.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]

@@ -11,9 +11,12 @@ pub use culture::{
     graph_stats, place_neurons, wire, wire_checked, Connectivity, Footprint, GraphStats, Pattern,
     Synapses, WiringCheck,
 };
-pub use dynamics::{integrate, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams};
+pub use dynamics::{
+    integrate, isolated_rate_hz, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams,
+};
 pub use scenario::{
     in_degree_sweep, in_degree_sweep_csv, scenario_from_options, simulate_network, CultureOptions,
     CultureShape, DriveParams, Electrodes, Imaging, InDegreePoint, NetworkRecording,
-    NetworkScenario, NetworkTruth, NetworkTruthBurst, CULTURE_DURATION_S, CULTURE_SEED,
+    NetworkScenario, NetworkTruth, NetworkTruthBurst, SiteNeurons, CULTURE_DURATION_S,
+    CULTURE_SEED,
 };

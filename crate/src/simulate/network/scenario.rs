@@ -124,6 +124,21 @@ pub struct NetworkTruth {
     pub synaptic_events: u64,
     pub mean_rate_hz: f64,
     pub bursts: Vec<NetworkTruthBurst>,
+    /// The neurons each electrode picks up, with each one's rate alone (no synapses, no
+    /// noise; [`super::dynamics::isolated_rate_hz`]), in electrode order.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub electrode_neurons: Vec<SiteNeurons>,
+    /// The same for each ROI (one neuron each).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub roi_neurons: Vec<SiteNeurons>,
+}
+
+/// The neurons behind one recorded site.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SiteNeurons {
+    pub site: String,
+    /// Each neuron's rate alone, Hz (0 for a neuron whose drive is under threshold).
+    pub isolated_rates_hz: Vec<f64>,
 }
 
 /// What a network run gives.
@@ -234,14 +249,39 @@ pub fn simulate_network(
         trains[sp.neuron as usize].push(sp.time_s);
     }
     let bursts = truth_bursts(s, &positions, &trains);
-    let electrodes = s
-        .electrodes
-        .as_ref()
-        .map(|e| record_electrodes(e, &positions, &trains, &mut rng));
-    let imaging = s
-        .imaging
-        .as_ref()
-        .map(|i| record_imaging(i, duration, &positions, &trains, &mut rng));
+    let alone = |members: &[usize]| -> Vec<f64> {
+        members
+            .iter()
+            .map(|&i| super::dynamics::isolated_rate_hz(&s.neuron, drive[i]))
+            .collect()
+    };
+    let mut electrode_neurons = Vec::new();
+    let electrodes = s.electrodes.as_ref().map(|e| {
+        let (sites, spikes, members) = record_electrodes(e, &positions, &trains, &mut rng);
+        electrode_neurons = sites
+            .iter()
+            .zip(&members)
+            .map(|(site, m)| SiteNeurons {
+                site: site.id.clone(),
+                isolated_rates_hz: alone(m),
+            })
+            .collect();
+        (sites, spikes)
+    });
+    let mut roi_neurons = Vec::new();
+    let imaging = s.imaging.as_ref().map(|i| {
+        let (sites, time_s, series, members) =
+            record_imaging(i, duration, &positions, &trains, &mut rng);
+        roi_neurons = sites
+            .iter()
+            .zip(&members)
+            .map(|(site, &m)| SiteNeurons {
+                site: site.id.clone(),
+                isolated_rates_hz: alone(&[m]),
+            })
+            .collect();
+        (sites, time_s, series)
+    });
     let spikes = run.spikes.len();
     Ok(NetworkRecording {
         positions,
@@ -257,6 +297,8 @@ pub fn simulate_network(
             synaptic_events: run.synaptic_events,
             mean_rate_hz: spikes as f64 / n as f64 / duration,
             bursts,
+            electrode_neurons,
+            roi_neurons,
         },
     })
 }
@@ -507,8 +549,9 @@ fn record_electrodes(
     positions: &[[f64; 2]],
     trains: &[Vec<f64>],
     rng: &mut ChaCha8Rng,
-) -> (Vec<Site>, Vec<SiteSpikes>) {
+) -> (Vec<Site>, Vec<SiteSpikes>, Vec<Vec<usize>>) {
     let at = electrode_positions(&e.layout, e.offset_um);
+    let mut members = Vec::with_capacity(at.len());
     let fs = e.sampling_rate_hz;
     let mut sites = Vec::with_capacity(at.len());
     let mut spikes = Vec::with_capacity(at.len());
@@ -520,9 +563,11 @@ fn record_electrodes(
             y_um: p[1],
         });
         let mut times = Vec::new();
+        let mut picked = Vec::new();
         if !e.dead.contains(&k) {
             for (i, q) in positions.iter().enumerate() {
                 if libm::hypot(q[0] - p[0], q[1] - p[1]) <= e.pickup_radius_um {
+                    picked.push(i);
                     for &t in &trains[i] {
                         if uniform(rng) < e.detection_probability {
                             times.push((t * fs).round() / fs);
@@ -537,8 +582,9 @@ fn record_electrodes(
             site: id,
             times_s: times,
         });
+        members.push(picked);
     }
-    (sites, spikes)
+    (sites, spikes, members)
 }
 
 fn record_imaging(
@@ -547,7 +593,7 @@ fn record_imaging(
     positions: &[[f64; 2]],
     trains: &[Vec<f64>],
     rng: &mut ChaCha8Rng,
-) -> (Vec<Site>, Vec<f64>, Vec<RoiSeries>) {
+) -> (Vec<Site>, Vec<f64>, Vec<RoiSeries>, Vec<usize>) {
     let n = positions.len();
     let rois = im.rois.min(n).max(1);
     let stride = (n / rois).max(1);
@@ -555,8 +601,10 @@ fn record_imaging(
     let time_s: Vec<f64> = (0..frames).map(|k| k as f64 / im.frame_rate_hz).collect();
     let mut sites = Vec::with_capacity(rois);
     let mut series = Vec::with_capacity(rois);
+    let mut members = Vec::with_capacity(rois);
     for r in 0..rois {
         let i = r * stride;
+        members.push(i);
         let id = format!("r{:03}", r + 1);
         sites.push(Site {
             id: id.clone(),
@@ -579,7 +627,7 @@ fn record_imaging(
         }
         series.push(RoiSeries { roi: id, values });
     }
-    (sites, time_s, series)
+    (sites, time_s, series, members)
 }
 
 /// The shape of a culture built from options.
