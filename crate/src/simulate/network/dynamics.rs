@@ -44,11 +44,9 @@ pub struct NeuronParams {
 /// (the leaky integrate-and-fire rate; Gerstner et al. 2014, Neuronal Dynamics, ch. 1).
 pub fn isolated_rate_hz(neuron: &NeuronParams, drive_mv: f64) -> f64 {
     let (d, theta, reset) = (drive_mv, neuron.threshold_mv, neuron.reset_mv);
-    if !(d > theta) || !(d > reset) {
-        return 0.0;
-    }
     let period = neuron.refractory_s + neuron.tau_m_s * libm::log((d - reset) / (d - theta));
-    if period > 0.0 {
+    // A drive at or under threshold (or reset), or NaN anywhere, never fires.
+    if d > theta && d > reset && period > 0.0 {
         1.0 / period
     } else {
         0.0
