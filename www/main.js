@@ -401,7 +401,7 @@ async function simulateCulture(event) {
 }
 
 function hideFrom(stepId) {
-  const order = ['step-track', 'step-bursts', 'step-fronts', 'step-summary'];
+  const order = ['step-track', 'step-bursts', 'step-fronts', 'step-rhythm', 'step-summary'];
   for (const id of order.slice(order.indexOf(stepId))) $(id).hidden = true;
   if (order.indexOf(stepId) <= 1) $('burst-results').hidden = true;
 }
@@ -582,6 +582,7 @@ async function renderResults() {
   $('burst-count').textContent = `of ${r.bursts.length}`;
   await selectBurst(state.settings.view.burst);
   for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability', 'leaders', 'recruitment']) await drawFigure(name);
+  await renderRhythm();
   renderSummary();
   await renderTruth();
 }
@@ -644,6 +645,40 @@ async function selectBurst(number) {
     : `Burst ${b.burst} (${fmt(b.start_s, 3, 's')} to ${fmt(b.end_s, 3, 's')}): no front: ${b.no_front_reason}.`;
   $('readout').textContent = 'Point at a site to read its values.';
   await drawFigure('activation');
+}
+
+/** Step 5: the numbers come from the report; this only words them and asks for figures. */
+async function renderRhythm() {
+  const r = state.report;
+  const sp = r.rhythm;
+  $('rhythm-text').textContent = sp
+    ? `Spectrum peak at ${fmt(sp.peak_frequency_hz, 3, 'Hz')} (bandwidth ${fmt(sp.peak_bandwidth_hz, 3, 'Hz')}), `
+      + `${fmt(sp.peak_over_floor, 1)} times the Poisson floor and ${fmt(sp.peak_over_local, 1)} times its surroundings `
+      + `(a rhythm needs ${fmt(sp.rhythm_threshold, 1)} times both): ${sp.is_rhythm ? 'a rhythm' : 'no rhythm'}. `
+      + `Resolution ${fmt(sp.resolution_hz, 4, 'Hz')} from ${sp.segments_used} segments of ${fmt(sp.segment_s, 0, 's')}.`
+    : 'No spectrum: the recording is shorter than one segment.';
+  const st = r.site_rhythms;
+  $('sites-text').textContent = st
+    ? `${st.regular_sites} sites fire regularly on their own (outside network bursts)`
+      + (st.mean_frequency_alone_hz !== null ? `, at ${fmt(st.mean_frequency_alone_hz, 3, 'Hz')} on average`
+        + (st.mean_frequency_alone_ci95_hz ? ` (95% interval ${fmt(st.mean_frequency_alone_ci95_hz[0], 3)} to ${fmt(st.mean_frequency_alone_ci95_hz[1], 3, 'Hz')})` : '') : '')
+      + `; network bursts at ${fmt(st.network_frequency_hz, 3, 'Hz')}. `
+      + `${st.sites_bursting} sites burst on their own (MaxInterval), a median ${fmt(st.median_site_burst_rate_per_min, 2, 'bursts per min')} per site.`
+    : '';
+  const y = r.synchrony;
+  const o = y?.order;
+  $('synchrony-text').textContent = y
+    ? `Mean STTC ${fmt(y.mean_sttc, 3)} over ${y.pairs} pairs (window ${fmt(1000 * y.sttc_dt_s, 0, 'ms')})`
+      + (o ? `; Kuramoto R ${fmt(o.mean_r, 3)} against ${fmt(o.chance_r, 3)} for independent phases of ${fmt(o.mean_sites_with_phase, 0)} sites.` : '.')
+    : '';
+  const l = y?.lags;
+  $('lags-text').textContent = l
+    ? `${l.pairs_with_lag} of ${l.pairs} neighbouring pairs have a lag; they imply ${fmt(l.implied_speed_mm_s, 1, 'mm/s')}`
+      + (l.implied_speed_ci95_mm_s ? ` (95% interval ${fmt(l.implied_speed_ci95_mm_s[0], 1)} to ${l.implied_speed_ci95_mm_s[1] === null ? 'no upper bound' : fmt(l.implied_speed_ci95_mm_s[1], 1, 'mm/s')})` : '')
+      + `, beside the fronts' median ${fmt(r.summary.median_speed_mm_s, 1, 'mm/s')}.`
+    : 'No lags: they need sites on a track.';
+  $('step-rhythm').hidden = false;
+  for (const name of ['rate_spectrum', 'site_frequencies', 'sttc_matrix', 'lags']) await drawFigure(name);
 }
 
 function summaryRows(r) {

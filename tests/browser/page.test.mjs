@@ -124,12 +124,31 @@ test('the served page analyses the dropped demo files exactly as the command lin
     const text = await downloadText(page, `[data-export="${button}"]`);
     assert.equal(text, readFileSync(join(out, file), 'utf8'), `${file} differs from the command line's`);
   }
+  // The rhythm and synchrony tables, through the bridge the Save buttons use (Chromium
+  // dropped the eleventh of a quick run of downloads from one page in testing).
+  const exported = Object.fromEntries(await page.evaluate(() => window.ringline.call('exports')));
+  for (const file of ['spectrum.csv', 'sites.csv', 'sttc.csv', 'lags.csv']) {
+    assert.equal(exported[file], readFileSync(join(out, file), 'utf8'), `${file} differs from the command line's`);
+  }
   // Where bursts start and how fast they recruit: drawn by the core, saved as SVG.
   for (const [name, title] of [['leaders', 'Where bursts start'], ['recruitment', 'Recruitment of the active sites']]) {
     await page.locator(`#fig-${name}`).waitFor({ state: 'visible' });
     const text = await downloadText(page, `.svg-save[data-figure="${name}"]`);
     assert.ok(text.includes(title), `${name} figure lacks its title`);
   }
+  // Rhythm and synchrony: the step's numbers are the command line's, and its four figures
+  // save as SVG with their legends (and the matrix its colour bar with the unit).
+  assert.match(await page.textContent('#rhythm-text'), new RegExp(`^Spectrum peak at ${report.rhythm.peak_frequency_hz.toFixed(3)} Hz`));
+  assert.match(await page.textContent('#lags-text'), new RegExp(`imply ${report.synchrony.lags.implied_speed_mm_s.toFixed(1)} mm/s`));
+  assert.match(await page.textContent('#synchrony-text'), new RegExp(`^Mean STTC ${report.synchrony.mean_sttc.toFixed(3)} over ${report.synchrony.pairs} pairs`));
+  for (const [name, expected] of [['rate_spectrum', /Poisson floor, 2 x mean rate/], ['site_frequencies', /network bursts \(1 \/ median interval\)/],
+    ['sttc_matrix', /STTC \(no unit; grey: undefined\)/], ['lags', /implied speed/]]) {
+    await page.locator(`#fig-${name}`).waitFor({ state: 'visible' });
+    // The SVG its Save button writes (read from the page, not downloaded: see above).
+    const text = await page.evaluate((n) => window.ringline.state.svgs[n], name);
+    assert.match(text, expected, `${name} figure lacks its legend`);
+  }
+  await shoot(page, '2b-rhythm');
   // An SVG export is a standalone SVG document with the axis units.
   const svg = await downloadText(page, '.svg-save[data-figure="activation"]');
   assert.match(svg, /^<svg[^>]*xmlns="http:\/\/www.w3.org\/2000\/svg"/);

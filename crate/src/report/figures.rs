@@ -23,7 +23,7 @@ pub const GREEN: Colour = Colour(0, 158, 115);
 pub const BLUE: Colour = Colour(0, 114, 178);
 pub const VERMILLION: Colour = Colour(213, 94, 0);
 pub const PURPLE: Colour = Colour(204, 121, 167);
-const GREY: Colour = Colour(150, 150, 150);
+pub const GREY: Colour = Colour(150, 150, 150);
 
 /// A drawn figure.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -63,7 +63,7 @@ pub struct FigureError {
     pub message: String,
 }
 
-fn empty(what: &str) -> FigureError {
+pub(crate) fn empty(what: &str) -> FigureError {
     FigureError {
         message: format!("nothing to draw: {what}"),
     }
@@ -86,7 +86,7 @@ impl Default for Size {
 }
 
 /// Range covering `values` with 5% of padding each side (a unit range around a single value).
-fn padded(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
+pub(crate) fn padded(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     let (lo, hi) = values
         .filter(|v| v.is_finite())
         .fold(None, |acc: Option<(f64, f64)>, v| match acc {
@@ -103,7 +103,7 @@ fn padded(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
 
 /// Draws a chart with the given axes; `draw` adds the marks and returns the read-out points
 /// (data coordinates plus label), which are mapped to pixels.
-fn chart(
+pub(crate) fn chart(
     size: Size,
     title: &str,
     x: (f64, f64, &str),

@@ -4,6 +4,7 @@
 mod analysis;
 pub mod figures;
 mod inspection;
+pub mod rhythm_figures;
 mod svg;
 pub mod truth;
 pub mod workbook;

@@ -114,6 +114,17 @@ pub struct Plot {
 
 const FONT: &str = "font-family=\"sans-serif\"";
 
+/// How a legend entry is drawn.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LegendMark {
+    Line,
+    Dashed,
+    Dot,
+    /// A hollow circle.
+    Ring,
+    Band,
+}
+
 impl Plot {
     /// A plot of `width` x `height` pixels showing x in [x0, x1] and y in [y0, y1], with the
     /// title and axis labels (units in the labels).
@@ -124,6 +135,18 @@ impl Plot {
         x: (f64, f64, &str),
         y: (f64, f64, &str),
     ) -> Plot {
+        Plot::with_right_margin(width, height, title, x, y, 16.0)
+    }
+
+    /// [`Plot::new`] with `right_px` of room right of the plot area (for a colour bar).
+    pub fn with_right_margin(
+        width: u32,
+        height: u32,
+        title: &str,
+        x: (f64, f64, &str),
+        y: (f64, f64, &str),
+        right_px: f64,
+    ) -> Plot {
         let (width, height) = (f64::from(width), f64::from(height));
         let mut p = Plot {
             body: String::new(),
@@ -131,7 +154,7 @@ impl Plot {
             height,
             left: 72.0,
             top: 34.0,
-            right: width - 16.0,
+            right: (width - right_px).max(73.0),
             bottom: height - 48.0,
             x: (x.0, x.1),
             y: (y.0, y.1),
@@ -298,6 +321,112 @@ impl Plot {
             (bx - ax).abs(),
             (by - ay).abs(),
             colour.hex()
+        );
+    }
+
+    /// A dashed straight segment between two data points.
+    pub fn dashed(&mut self, a: (f64, f64), b: (f64, f64), colour: Colour, width_px: f64) {
+        let (ax, ay) = self.at(a.0, a.1);
+        let (bx, by) = self.at(b.0, b.1);
+        let _ = write!(
+            self.body,
+            "<line x1=\"{ax:.2}\" y1=\"{ay:.2}\" x2=\"{bx:.2}\" y2=\"{by:.2}\" stroke=\"{}\" stroke-width=\"{width_px}\" stroke-dasharray=\"6 4\"/>",
+            colour.hex()
+        );
+    }
+
+    /// A legend in the plot area's top-right corner, on a white box: one row per entry.
+    pub fn legend(&mut self, entries: &[(&str, Colour, LegendMark)]) {
+        self.legend_in(entries, false);
+    }
+
+    /// A legend in the top-left corner (`left`) or the top-right one.
+    pub fn legend_in(&mut self, entries: &[(&str, Colour, LegendMark)], left: bool) {
+        if entries.is_empty() {
+            return;
+        }
+        let longest = entries
+            .iter()
+            .map(|e| e.0.chars().count())
+            .max()
+            .unwrap_or(0);
+        // About 6.5 px per character at 12 px (no text measuring; the box errs wide).
+        let w = 34.0 + 6.5 * longest as f64;
+        let h = 8.0 + 17.0 * entries.len() as f64;
+        let x0 = if left {
+            self.left + 6.0
+        } else {
+            (self.right - w - 6.0).max(self.left + 2.0)
+        };
+        let y0 = self.top + 6.0;
+        let _ = write!(
+            self.body,
+            "<g class=\"legend\"><rect x=\"{x0:.1}\" y=\"{y0:.1}\" width=\"{w:.1}\" height=\"{h:.1}\" fill=\"#ffffff\" fill-opacity=\"0.9\" stroke=\"#999999\"/>"
+        );
+        for (k, (label, colour, mark)) in entries.iter().enumerate() {
+            let cy = y0 + 12.5 + 17.0 * k as f64;
+            let (a, b) = (x0 + 6.0, x0 + 24.0);
+            let c = colour.hex();
+            let _ = match mark {
+                LegendMark::Line => write!(self.body, "<line x1=\"{a:.1}\" y1=\"{cy:.1}\" x2=\"{b:.1}\" y2=\"{cy:.1}\" stroke=\"{c}\" stroke-width=\"2\"/>"),
+                LegendMark::Dashed => write!(self.body, "<line x1=\"{a:.1}\" y1=\"{cy:.1}\" x2=\"{b:.1}\" y2=\"{cy:.1}\" stroke=\"{c}\" stroke-width=\"2\" stroke-dasharray=\"6 4\"/>"),
+                LegendMark::Dot => write!(self.body, "<circle cx=\"{:.1}\" cy=\"{cy:.1}\" r=\"4\" fill=\"{c}\"/>", (a + b) / 2.0),
+                LegendMark::Ring => write!(self.body, "<circle cx=\"{:.1}\" cy=\"{cy:.1}\" r=\"3.5\" fill=\"#ffffff\" stroke=\"{c}\" stroke-width=\"1.5\"/>", (a + b) / 2.0),
+                LegendMark::Band => write!(self.body, "<rect x=\"{a:.1}\" y=\"{:.1}\" width=\"18\" height=\"10\" fill=\"{c}\" fill-opacity=\"0.35\"/>", cy - 5.0),
+            };
+            let _ = write!(
+                self.body,
+                "<text x=\"{:.1}\" y=\"{:.1}\" font-size=\"12\" {FONT}>{}</text>",
+                b + 6.0,
+                cy + 4.0,
+                escape(label)
+            );
+        }
+        self.body.push_str("</g>");
+    }
+
+    /// A vertical colour bar in the right margin from `lo` (bottom) to `hi` (top), painted
+    /// by `colour_of`, with ticks and a label (units in it). Drawn outside the plot area.
+    pub fn colour_bar(&mut self, lo: f64, hi: f64, label: &str, colour_of: impl Fn(f64) -> Colour) {
+        const STEPS: usize = 64;
+        let (x, w) = (self.right + 14.0, 14.0);
+        let (t, b) = (self.top, self.bottom);
+        // Leave the clipped plot group, draw, and open it again.
+        self.body.push_str("</g><g class=\"colour-bar\">");
+        let step_px = (b - t) / STEPS as f64;
+        for k in 0..STEPS {
+            let v = lo + (hi - lo) * (k as f64 + 0.5) / STEPS as f64;
+            let y = b - (k as f64 + 1.0) * step_px;
+            let _ = write!(
+                self.body,
+                "<rect x=\"{x:.1}\" y=\"{y:.2}\" width=\"{w}\" height=\"{:.2}\" fill=\"{}\"/>",
+                step_px + 0.3,
+                colour_of(v).hex()
+            );
+        }
+        let _ = write!(
+            self.body,
+            "<rect x=\"{x:.1}\" y=\"{t:.1}\" width=\"{w}\" height=\"{:.1}\" fill=\"none\" stroke=\"#000000\"/>",
+            b - t
+        );
+        let (ticks, dec) = nice_ticks(lo, hi, 5);
+        for v in ticks {
+            let y = b - (v - lo) / (hi - lo) * (b - t);
+            let _ = write!(
+                self.body,
+                "<line x1=\"{:.1}\" y1=\"{y:.1}\" x2=\"{:.1}\" y2=\"{y:.1}\" stroke=\"#000000\"/><text x=\"{:.1}\" y=\"{:.1}\" font-size=\"11\" {FONT}>{v:.dec$}</text>",
+                x + w,
+                x + w + 4.0,
+                x + w + 6.0,
+                y + 4.0
+            );
+        }
+        let _ = write!(
+            self.body,
+            "<text transform=\"translate({:.1} {:.1}) rotate(90)\" text-anchor=\"middle\" font-size=\"12\" {FONT}>{}</text></g><g clip-path=\"url(#plot-area)\">",
+            x + w + 40.0,
+            (t + b) / 2.0,
+            escape(label)
         );
     }
 

@@ -7,6 +7,7 @@
 //! results and change nothing.
 
 use super::figures::{self, Figure, FigureError, RasterRow, Size};
+use super::rhythm_figures;
 use super::{inspect, AnalysisReport, Inspection};
 use crate::detect::PopulationRate;
 use crate::fronts::AnalysisSettings;
@@ -222,6 +223,14 @@ pub enum FigureRequest {
     Leaders,
     /// How fast each burst recruited its active sites.
     Recruitment,
+    /// The population rate's spectrum with the Poisson floor.
+    RateSpectrum,
+    /// The sites' own frequencies beside the network's.
+    SiteFrequencies,
+    /// The STTC of every pair, sites in track order.
+    SttcMatrix,
+    /// Lag between neighbouring sites against their distance.
+    Lags,
 }
 
 /// The page's state.
@@ -506,6 +515,105 @@ impl Workbook {
                     .map(|b| crate::fronts::order::times_after_first_ms(&b.activations))
                     .collect();
                 figures::recruitment(&bursts, size)
+            }
+            FigureRequest::RateSpectrum => {
+                let r = need()?.rhythm.as_ref().ok_or_else(|| FigureError {
+                    message: "no spectrum: the recording is shorter than one segment".into(),
+                })?;
+                rhythm_figures::rate_spectrum(
+                    &r.density,
+                    r.poisson_floor,
+                    r.rhythm_threshold,
+                    r.peak_frequency_hz,
+                    size,
+                )
+            }
+            FigureRequest::SiteFrequencies => {
+                let r = need()?.site_rhythms.as_ref().ok_or_else(|| FigureError {
+                    message: "no site rhythms".into(),
+                })?;
+                let along = self.inspection.sites.iter().all(|s| s.along_um.is_some());
+                let sites: Vec<rhythm_figures::SiteFrequency> = r
+                    .sites
+                    .iter()
+                    .zip(&self.inspection.sites)
+                    .enumerate()
+                    .map(|(k, (row, place))| rhythm_figures::SiteFrequency {
+                        site: row.site.clone(),
+                        position: if along {
+                            place.along_um.unwrap_or(k as f64)
+                        } else {
+                            k as f64 + 1.0
+                        },
+                        rate_hz: row.rate_hz,
+                        frequency_alone_hz: row.frequency_alone_hz,
+                    })
+                    .collect();
+                rhythm_figures::site_frequencies(
+                    &sites,
+                    if along {
+                        "position along the track (µm)"
+                    } else {
+                        "site (order in the layout)"
+                    },
+                    r.mean_frequency_alone_hz,
+                    r.mean_frequency_alone_ci95_hz,
+                    r.network_frequency_hz,
+                    size,
+                )
+            }
+            FigureRequest::SttcMatrix => {
+                let y = need()?.synchrony.as_ref().ok_or_else(|| FigureError {
+                    message: "no synchrony measures".into(),
+                })?;
+                if let Some(why) = &y.sttc_skipped {
+                    return Err(FigureError {
+                        message: why.clone(),
+                    });
+                }
+                let n = y.sttc_sites.len();
+                let mut values = vec![None; n * n];
+                for i in 0..n {
+                    values[i * n + i] = Some(1.0);
+                }
+                // pairs_table holds (i, j) for i < j in row order.
+                let mut pairs = y.pairs_table.iter();
+                for i in 0..n {
+                    for j in i + 1..n {
+                        let v = pairs.next().and_then(|p| p.sttc);
+                        values[i * n + j] = v;
+                        values[j * n + i] = v;
+                    }
+                }
+                rhythm_figures::sttc_matrix(&y.sttc_sites, &values, size)
+            }
+            FigureRequest::Lags => {
+                let lags = need()?
+                    .synchrony
+                    .as_ref()
+                    .and_then(|y| y.lags.as_ref())
+                    .ok_or_else(|| FigureError {
+                        message: "no lags: they need a track (a line or a ring), not an open dish"
+                            .into(),
+                    })?;
+                let pairs: Vec<rhythm_figures::PairLag> = lags
+                    .table
+                    .iter()
+                    .filter_map(|p| {
+                        p.lag_ms.map(|lag_ms| rhythm_figures::PairLag {
+                            site_a: p.site_a.clone(),
+                            site_b: p.site_b.clone(),
+                            distance_um: p.distance_um,
+                            lag_ms,
+                        })
+                    })
+                    .collect();
+                rhythm_figures::lag_distance(
+                    &pairs,
+                    lags.implied_speed_mm_s,
+                    lags.implied_speed_ci95_mm_s,
+                    size,
+                )
             }
         }
     }

@@ -265,6 +265,10 @@ pub struct SynchronySummary {
     /// Every pair (i < j, sites in track order), for `sttc.csv`; not in the JSON.
     #[serde(skip)]
     pub pairs_table: Vec<SttcPair>,
+    /// The sites of `pairs_table` in its order (with events, along the track); not in the
+    /// JSON.
+    #[serde(skip)]
+    pub sttc_sites: Vec<String>,
 }
 
 /// A site as the synchrony measures see it: its id, its position for distances (track
@@ -306,6 +310,7 @@ pub fn summarise(
                 .max((span_s.1 - span_s.0) * trains.len() as f64 / MAX_SITE_SAMPLES),
         ),
         pairs_table: Vec::new(),
+        sttc_sites: Vec::new(),
         lags: None,
     };
     let along: Option<Vec<(&str, f64, &[f64])>> = active
@@ -324,6 +329,7 @@ pub fn summarise(
     let Some(matrix) = sttc_matrix(&trains, span_s, dt) else {
         return summary;
     };
+    summary.sttc_sites = active.iter().map(|s| s.id.to_string()).collect();
     let mut values = Vec::new();
     for i in 0..active.len() {
         for j in i + 1..active.len() {
