@@ -65,6 +65,9 @@ fn isolated_lif_rate_matches_the_closed_form() {
         let error = (measured / theory - 1.0).abs();
         eprintln!("LIF drive {drive} mV, tau {tau} s, t_ref {t_ref} s: {measured:.9} Hz against {theory:.9} Hz (relative error {error:.1e})");
         assert!(error < 1e-9);
+        // The rate the simulator's truth records for a neuron alone is the same formula.
+        let recorded = ringline::simulate::network::isolated_rate_hz(&neuron, drive);
+        assert!((recorded / theory - 1.0).abs() < 1e-12, "{recorded} against {theory}");
     }
 }
 
