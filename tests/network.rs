@@ -67,7 +67,10 @@ fn isolated_lif_rate_matches_the_closed_form() {
         assert!(error < 1e-9);
         // The rate the simulator's truth records for a neuron alone is the same formula.
         let recorded = ringline::simulate::network::isolated_rate_hz(&neuron, drive);
-        assert!((recorded / theory - 1.0).abs() < 1e-12, "{recorded} against {theory}");
+        assert!(
+            (recorded / theory - 1.0).abs() < 1e-12,
+            "{recorded} against {theory}"
+        );
     }
 }
 

@@ -56,6 +56,7 @@ WAV_DIR = ROOT / "tests" / "fixtures" / "wav"
 SIEGERT_OUT = ROOT / "tests" / "fixtures" / "siegert_reference.json"
 SPECTRUM_OUT = ROOT / "tests" / "fixtures" / "spectrum_reference.json"
 STTC_OUT = ROOT / "tests" / "fixtures" / "sttc_reference.json"
+COMPARE_OUT = ROOT / "tests" / "fixtures" / "compare_reference.json"
 SEED = 20261201
 
 
@@ -439,13 +440,48 @@ def compare(a, b, path="$"):
         yield f"{path}: {a!r} against {b!r}"
 
 
+def compare_fixtures(rng):
+    """scipy.stats.wilcoxon and mannwhitneyu (method "auto": exact for small samples without
+    ties, else the normal approximation with the tie correction) and statsmodels'
+    multipletests (holm, fdr_bh) on seeded data: small and large samples, with and without
+    ties and zero differences."""
+    from scipy.stats import mannwhitneyu, wilcoxon
+    from statsmodels.stats.multitest import multipletests
+    import statsmodels
+    signed = []
+    for n, ties in ((7, False), (20, False), (12, True), (60, False), (80, True)):
+        d = rng.normal(0.4, 1.0, n)
+        if ties:
+            d = np.round(d * 2.0) / 2.0  # half-unit grid: ties and zeros
+        r = wilcoxon(d)
+        signed.append({"d": d.tolist(), "statistic": float(r.statistic), "p": float(r.pvalue)})
+    two = []
+    for n1, n2, ties in ((5, 4, False), (8, 8, False), (6, 7, True), (9, 12, False), (30, 25, True)):
+        x, y = rng.normal(0.5, 1.0, n1), rng.normal(0.0, 1.0, n2)
+        if ties:
+            x, y = np.round(x * 2.0) / 2.0, np.round(y * 2.0) / 2.0
+        r = mannwhitneyu(x, y)
+        two.append({"x": x.tolist(), "y": y.tolist(), "statistic": float(r.statistic),
+                    "p": float(r.pvalue)})
+    adjusted = []
+    for m in (3, 8, 20):
+        p = rng.uniform(0.0, 0.2, m)
+        adjusted.append({"p": p.tolist(),
+                         "holm": multipletests(p, method="holm")[1].tolist(),
+                         "fdr_bh": multipletests(p, method="fdr_bh")[1].tolist()})
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__,
+                         "scipy": scipy.__version__, "statsmodels": statsmodels.__version__},
+            "wilcoxon": signed, "mannwhitneyu": two, "multipletests": adjusted}
+
+
 def main():
     outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1))),
                (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2))),
                (WAV_OUT, wav_fixtures(np.random.default_rng(SEED + 3), "--check" not in sys.argv)),
                (SIEGERT_OUT, siegert_fixtures()),
                (SPECTRUM_OUT, spectrum_fixtures(np.random.default_rng(SEED + 4))),
-               (STTC_OUT, sttc_fixtures(np.random.default_rng(SEED + 5)))]
+               (STTC_OUT, sttc_fixtures(np.random.default_rng(SEED + 5))),
+               (COMPARE_OUT, compare_fixtures(np.random.default_rng(SEED + 6)))]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:

@@ -18,6 +18,8 @@
 //! grouped by condition without a join. The tables are a function of the statuses and the
 //! per-recording files only, so sharded and single runs give the same bytes.
 
+pub mod inference;
+
 use crate::csv_out::CsvOut;
 use crate::import::ManifestRow;
 use crate::place::Place;

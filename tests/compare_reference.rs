@@ -1,0 +1,131 @@
+//! The tests and adjustments used to compare conditions, against scipy.stats and
+//! statsmodels (values quoted in the issue, computed with scipy 1.11+ and statsmodels).
+
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
+use ringline::study::inference::{
+    adjust, mann_whitney_u, wilcoxon_signed_rank, Adjustment, PMethod, TestOutcome,
+};
+
+fn computed(t: TestOutcome) -> (f64, f64, PMethod) {
+    match t {
+        TestOutcome::Computed {
+            statistic,
+            p,
+            method,
+        } => (statistic, p, method),
+        other => panic!("{other:?}"),
+    }
+}
+
+#[test]
+fn wilcoxon_matches_scipy_exactly() {
+    // scipy.stats.wilcoxon(d): statistic 24, exact two-sided p 0.041259765625.
+    let d = [
+        6.0, 8.0, 14.0, 16.0, 23.0, 24.0, 28.0, 29.0, 41.0, -48.0, 49.0, 56.0, 60.0, -67.0, 75.0,
+    ];
+    let (t, p, method) = computed(wilcoxon_signed_rank(&d));
+    assert_eq!(t, 24.0);
+    assert_eq!(p, 0.041259765625);
+    assert_eq!(method, PMethod::Exact);
+}
+
+#[test]
+fn mann_whitney_matches_scipy_exactly() {
+    // scipy.stats.mannwhitneyu([19, 22, 16, 29, 24], [20, 11, 17, 12]): U 17, exact p
+    // 0.1111 (= 14 / 126).
+    let (u, p, method) = computed(mann_whitney_u(
+        &[19.0, 22.0, 16.0, 29.0, 24.0],
+        &[20.0, 11.0, 17.0, 12.0],
+    ));
+    assert_eq!(u, 17.0);
+    assert!((p - 14.0 / 126.0).abs() < 1e-15, "{p}");
+    assert_eq!(method, PMethod::Exact);
+}
+
+#[test]
+fn holm_and_benjamini_hochberg_match_statsmodels() {
+    // statsmodels.stats.multitest.multipletests(p, method="holm" / "fdr_bh").
+    let p = [0.01, 0.04, 0.03, 0.005];
+    let holm = adjust(&p, Adjustment::Holm);
+    let bh = adjust(&p, Adjustment::BenjaminiHochberg);
+    for (got, want) in holm.iter().zip([0.03, 0.06, 0.06, 0.02]) {
+        assert!((got - want).abs() < 1e-12, "Holm {holm:?}");
+    }
+    for (got, want) in bh.iter().zip([0.02, 0.04, 0.04, 0.02]) {
+        assert!((got - want).abs() < 1e-12, "BH {bh:?}");
+    }
+}
+
+#[test]
+fn all_equal_data_are_reported_as_such() {
+    assert!(matches!(
+        wilcoxon_signed_rank(&[0.0, 0.0, 0.0]),
+        TestOutcome::Degenerate { .. }
+    ));
+    assert!(matches!(
+        mann_whitney_u(&[2.0, 2.0], &[2.0, 2.0, 2.0]),
+        TestOutcome::Degenerate { .. }
+    ));
+}
+
+/// The fixture made by scripts/reference/make_fixtures.py with scipy and statsmodels.
+fn fixture() -> serde_json::Value {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../tests/fixtures/compare_reference.json"
+    ))
+    .unwrap();
+    serde_json::from_str(&text).unwrap()
+}
+
+fn numbers(v: &serde_json::Value) -> Vec<f64> {
+    v.as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_f64().unwrap())
+        .collect()
+}
+
+fn close(got: f64, want: f64, what: &str) {
+    assert!(
+        (got - want).abs() <= 1e-9 * want.abs().max(1e-300),
+        "{what}: {got} against scipy's {want}"
+    );
+}
+
+#[test]
+fn tests_match_the_scipy_fixture_with_ties_zeros_and_large_samples() {
+    let f = fixture();
+    for case in f["wilcoxon"].as_array().unwrap() {
+        let d = numbers(&case["d"]);
+        let (t, p, _) = computed(wilcoxon_signed_rank(&d));
+        close(t, case["statistic"].as_f64().unwrap(), "Wilcoxon statistic");
+        close(
+            p,
+            case["p"].as_f64().unwrap(),
+            &format!("Wilcoxon p (n {})", d.len()),
+        );
+    }
+    for case in f["mannwhitneyu"].as_array().unwrap() {
+        let (x, y) = (numbers(&case["x"]), numbers(&case["y"]));
+        let (u, p, _) = computed(mann_whitney_u(&x, &y));
+        close(u, case["statistic"].as_f64().unwrap(), "U");
+        close(
+            p,
+            case["p"].as_f64().unwrap(),
+            &format!("Mann-Whitney p ({} and {})", x.len(), y.len()),
+        );
+    }
+    for case in f["multipletests"].as_array().unwrap() {
+        let p = numbers(&case["p"]);
+        for (how, key) in [
+            (Adjustment::Holm, "holm"),
+            (Adjustment::BenjaminiHochberg, "fdr_bh"),
+        ] {
+            for (got, want) in adjust(&p, how).iter().zip(numbers(&case[key])) {
+                close(*got, want, key);
+            }
+        }
+    }
+}
