@@ -129,3 +129,70 @@ fn tests_match_the_scipy_fixture_with_ties_zeros_and_large_samples() {
         }
     }
 }
+
+#[test]
+fn shift_intervals_cut_where_the_exact_tables_say() {
+    use ringline::study::inference::{shift_paired, shift_two_sample};
+    // Six paired differences at 95%: P(T = 0) = 1/64 <= 0.025 < P(T <= 1) = 2/64, so the
+    // interval runs from the smallest to the largest Walsh average, with coverage 62/64
+    // (Hollander & Wolfe 1999, the signed-rank table; from memory).
+    let d = [1.5, -0.5, 2.0, 3.0, 0.25, 4.0];
+    let s = shift_paired(&d, 0.95).unwrap();
+    assert_eq!(s.interval, Some([-0.5, 4.0]));
+    assert_eq!(s.coverage, Some(62.0 / 64.0));
+    // Median of the 21 Walsh averages (numpy.median of them): the 11th smallest, 1.75.
+    assert_eq!(s.estimate, 1.75);
+    // Five against five at 95%: P(U <= 2) = 4/252 <= 0.025 < P(U <= 3) = 7/252, so the third
+    // smallest and third largest of the 25 differences, coverage 1 - 8/252 = 96.8%.
+    let x = [10.0, 12.0, 15.0, 11.0, 14.0];
+    let y = [8.0, 9.5, 7.0, 10.5, 9.0];
+    let s = shift_two_sample(&x, &y, 0.95).unwrap();
+    let mut diffs: Vec<f64> = x
+        .iter()
+        .flat_map(|a| y.iter().map(move |b| a - b))
+        .collect();
+    diffs.sort_by(f64::total_cmp);
+    assert_eq!(s.interval, Some([diffs[2], diffs[22]]));
+    assert_eq!(s.estimate, diffs[12]);
+    assert!((s.coverage.unwrap() - (1.0 - 8.0 / 252.0)).abs() < 1e-15);
+    // Too few pairs for any 95% interval.
+    assert_eq!(shift_paired(&[1.0, 2.0, 3.0], 0.95).unwrap().interval, None);
+}
+
+#[test]
+fn shift_intervals_hold_the_true_shift_as_often_as_they_claim() {
+    use rand::SeedableRng;
+    use rand_distr::{Distribution, Normal, StudentT};
+    use ringline::study::inference::{shift_paired, shift_two_sample};
+    // Ground truth by simulation: a true shift of 1 between normal samples (two-sample,
+    // exact and normal-approximation sizes) and in heavy-tailed paired differences
+    // (Student t, 3 df). Each interval claims at least 95%.
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+    let normal = Normal::new(0.0, 1.0).unwrap();
+    let heavy = StudentT::new(3.0).unwrap();
+    let trials = 2000;
+    for (n1, n2) in [(6, 7), (15, 20)] {
+        let mut held = 0;
+        for _ in 0..trials {
+            let x: Vec<f64> = (0..n1).map(|_| 1.0 + normal.sample(&mut rng)).collect();
+            let y: Vec<f64> = (0..n2).map(|_| normal.sample(&mut rng)).collect();
+            let [lo, hi] = shift_two_sample(&x, &y, 0.95).unwrap().interval.unwrap();
+            held += usize::from(lo <= 1.0 && 1.0 <= hi);
+        }
+        let coverage = held as f64 / trials as f64;
+        eprintln!("two-sample {n1} and {n2}: coverage {coverage:.3}");
+        // Binomial SD at 0.95 over 2000 trials is 0.005: 0.94 is two SDs under the claim.
+        assert!((0.94..=0.99).contains(&coverage), "{coverage}");
+    }
+    for n in [10, 60] {
+        let mut held = 0;
+        for _ in 0..trials {
+            let d: Vec<f64> = (0..n).map(|_| 1.0 + heavy.sample(&mut rng)).collect();
+            let [lo, hi] = shift_paired(&d, 0.95).unwrap().interval.unwrap();
+            held += usize::from(lo <= 1.0 && 1.0 <= hi);
+        }
+        let coverage = held as f64 / trials as f64;
+        eprintln!("paired {n}: coverage {coverage:.3}");
+        assert!((0.94..=0.99).contains(&coverage), "{coverage}");
+    }
+}

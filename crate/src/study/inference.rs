@@ -249,6 +249,121 @@ pub fn mann_whitney_u(x: &[f64], y: &[f64]) -> TestOutcome {
     }
 }
 
+/// A shift between conditions with its interval.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Shift {
+    /// The Hodges-Lehmann estimate.
+    pub estimate: f64,
+    /// Distribution-free interval with at least the asked coverage, `None` when the
+    /// samples are too small for any (e.g. fewer than 6 paired differences at 95%).
+    pub interval: Option<[f64; 2]>,
+    /// Coverage the interval actually has (the exact distribution is discrete).
+    pub coverage: Option<f64>,
+    pub method: PMethod,
+}
+
+/// Largest number of pairwise values (differences or Walsh averages) formed for a shift.
+pub const MAX_PAIRWISE: usize = 20_000_000;
+
+/// The k-th smallest (from 1) of `v`, reordering it.
+fn kth(v: &mut [f64], k: usize) -> f64 {
+    let (_, x, _) = v.select_nth_unstable_by(k - 1, f64::total_cmp);
+    *x
+}
+
+/// How many pairwise values to cut from each end for a `confidence` interval: the largest
+/// k with P(T < k) <= (1 - confidence) / 2 under the null distribution `counts` of a
+/// statistic on 0..=max (Hollander & Wolfe 1999, ch. 3-4), and the coverage that leaves.
+fn cut_from_counts(counts: &[f64], confidence: f64) -> Option<(usize, f64)> {
+    let total: f64 = counts.iter().sum();
+    let alpha_half = (1.0 - confidence) / 2.0;
+    let mut below = 0.0;
+    let mut k = 0;
+    for (u, c) in counts.iter().enumerate() {
+        if (below + c) / total > alpha_half {
+            break;
+        }
+        below += c;
+        k = u + 1;
+    }
+    (k >= 1).then(|| (k, 1.0 - 2.0 * below / total))
+}
+
+/// Two-sample Hodges-Lehmann shift of `x` against `y` (the median of all differences
+/// x_i - y_j) with its distribution-free `confidence` interval (Moses): the k-th smallest
+/// and k-th largest difference, k from the exact Mann-Whitney distribution where it is
+/// tabulated, else from its normal approximation. `None` for an empty sample or more than
+/// [`MAX_PAIRWISE`] differences.
+pub fn shift_two_sample(x: &[f64], y: &[f64], confidence: f64) -> Option<Shift> {
+    let (n1, n2) = (x.len(), y.len());
+    let m = n1
+        .checked_mul(n2)
+        .filter(|m| *m > 0 && *m <= MAX_PAIRWISE)?;
+    let mut d: Vec<f64> = x
+        .iter()
+        .flat_map(|a| y.iter().map(move |b| a - b))
+        .collect();
+    let estimate = crate::stats::median_in_place(&mut d)?;
+    let work = (n1.max(n2) + 1).saturating_mul(m + 1);
+    let (cut, method) = if n1.min(n2) <= MAX_EXACT_U && work <= MAX_EXACT_U_WORK {
+        (
+            cut_from_counts(&u_counts(n1, n2), confidence),
+            PMethod::Exact,
+        )
+    } else {
+        let (a, b) = (n1 as f64, n2 as f64);
+        let z = crate::stats::normal_quantile(0.5 + confidence / 2.0);
+        let k = (a * b / 2.0 - z * (a * b * (a + b + 1.0) / 12.0).sqrt()).floor();
+        let k = (k >= 1.0).then_some(k as usize);
+        (k.map(|k| (k, confidence)), PMethod::Normal)
+    };
+    let interval = cut.map(|(k, _)| [kth(&mut d, k), kth(&mut d, m + 1 - k)]);
+    Some(Shift {
+        estimate,
+        interval,
+        coverage: cut.map(|c| c.1).filter(|_| method == PMethod::Exact),
+        method,
+    })
+}
+
+/// One-sample (paired) Hodges-Lehmann shift of the differences `d`: the median of the Walsh
+/// averages (d_i + d_j) / 2, i <= j, with its distribution-free `confidence` interval from
+/// the signed-rank distribution (exact up to [`MAX_EXACT_N`] differences, normal beyond).
+pub fn shift_paired(d: &[f64], confidence: f64) -> Option<Shift> {
+    let n = d.len();
+    let m = n.checked_mul(n + 1)? / 2;
+    if m == 0 || m > MAX_PAIRWISE {
+        return None;
+    }
+    let mut walsh = Vec::with_capacity(m);
+    for i in 0..n {
+        for j in i..n {
+            walsh.push((d[i] + d[j]) / 2.0);
+        }
+    }
+    let estimate = crate::stats::median_in_place(&mut walsh)?;
+    let (cut, method) = if n <= MAX_EXACT_N {
+        (
+            cut_from_counts(&signed_rank_counts(n), confidence),
+            PMethod::Exact,
+        )
+    } else {
+        let nf = n as f64;
+        let z = crate::stats::normal_quantile(0.5 + confidence / 2.0);
+        let k = (nf * (nf + 1.0) / 4.0 - z * (nf * (nf + 1.0) * (2.0 * nf + 1.0) / 24.0).sqrt())
+            .floor();
+        let k = (k >= 1.0).then_some(k as usize);
+        (k.map(|k| (k, confidence)), PMethod::Normal)
+    };
+    let interval = cut.map(|(k, _)| [kth(&mut walsh, k), kth(&mut walsh, m + 1 - k)]);
+    Some(Shift {
+        estimate,
+        interval,
+        coverage: cut.map(|c| c.1).filter(|_| method == PMethod::Exact),
+        method,
+    })
+}
+
 /// How several p-values are adjusted together.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "snake_case")]
