@@ -469,9 +469,20 @@ def compare_fixtures(rng):
         adjusted.append({"p": p.tolist(),
                          "holm": multipletests(p, method="holm")[1].tolist(),
                          "fdr_bh": multipletests(p, method="fdr_bh")[1].tolist()})
+    from scipy.stats import bootstrap
+    boot = []
+    for n1, n2 in ((8, 10), (25, 30)):
+        x, y = rng.lognormal(0.3, 0.6, n1), rng.lognormal(0.0, 0.6, n2)
+        r = bootstrap((x, y), lambda a, b: np.median(a) - np.median(b), method="percentile",
+                      n_resamples=20000, vectorized=False, random_state=rng)
+        boot.append({"x": x.tolist(), "y": y.tolist(),
+                     "low": float(r.confidence_interval.low),
+                     "high": float(r.confidence_interval.high),
+                     "standard_error": float(r.standard_error)})
     return {"versions": {"python": platform.python_version(), "numpy": np.__version__,
                          "scipy": scipy.__version__, "statsmodels": statsmodels.__version__},
-            "wilcoxon": signed, "mannwhitneyu": two, "multipletests": adjusted}
+            "wilcoxon": signed, "mannwhitneyu": two, "multipletests": adjusted,
+            "bootstrap_median_difference": boot}
 
 
 def main():

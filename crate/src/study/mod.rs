@@ -18,6 +18,7 @@
 //! grouped by condition without a join. The tables are a function of the statuses and the
 //! per-recording files only, so sharded and single runs give the same bytes.
 
+pub mod bootstrap;
 pub mod inference;
 
 use crate::csv_out::CsvOut;
