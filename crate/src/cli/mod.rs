@@ -42,6 +42,10 @@ enum Command {
     Batch(BatchArgs),
     /// Join the output folders of `batch --shard` runs into the study's tables.
     Combine(CombineArgs),
+    /// Compare the conditions of a study (the folder `batch` or `combine` wrote): every
+    /// metric's effect with its 95% interval at the level of the replication unit, then the
+    /// test; writes comparisons.csv.
+    Compare(CompareArgs),
     /// Simulate a recording with known fronts from a scenario file (JSON); write spikes.csv,
     /// layout.csv and truth.json into a folder.
     Simulate(SimulateArgs),
@@ -98,6 +102,74 @@ struct CombineArgs {
     /// Folder for the study's tables.
     #[arg(long, value_name = "DIR")]
     out: String,
+}
+
+#[derive(Args, Debug)]
+struct CompareArgs {
+    /// A study folder written by `ringline batch` or `ringline combine` (with recordings.csv),
+    /// or its recordings.csv.
+    study: String,
+    /// The manifest column that names the condition.
+    #[arg(long)]
+    by: String,
+    /// The manifest column of the replication unit (culture, well) [default: each recording].
+    #[arg(long)]
+    unit: Option<String>,
+    /// The same units were recorded in every condition (paired differences).
+    #[arg(long)]
+    paired: bool,
+    /// Metrics to compare (columns of recordings.csv, comma-separated) [default: median
+    /// speed, direction balance, burst rate, interburst interval and its CV, share reaching
+    /// the end, mean STTC, Kuramoto R].
+    #[arg(long, value_delimiter = ',')]
+    metrics: Vec<String>,
+    /// Multiplicity adjustment over all comparisons.
+    #[arg(long, value_enum, default_value = "holm")]
+    adjust: AdjustArg,
+    /// Folder for comparisons.csv [default: the study folder].
+    #[arg(long, value_name = "DIR")]
+    out: Option<String>,
+}
+
+#[derive(clap::ValueEnum, Clone, Copy, Debug)]
+enum AdjustArg {
+    /// Holm: the family-wise error rate.
+    Holm,
+    /// Benjamini-Hochberg: the false discovery rate.
+    Bh,
+}
+
+fn compare(args: &CompareArgs) -> Result<i32, Failure> {
+    let path = std::path::Path::new(&args.study);
+    let (table, folder) = if path.is_dir() {
+        (path.join("recordings.csv"), path.to_path_buf())
+    } else {
+        (
+            path.to_path_buf(),
+            path.parent().map(|p| p.to_path_buf()).unwrap_or_default(),
+        )
+    };
+    let text = read_text(&table.to_string_lossy(), "study table")?;
+    let settings = crate::study::compare::CompareSettings {
+        by: args.by.clone(),
+        unit: args.unit.clone(),
+        paired: args.paired,
+        metrics: args.metrics.clone(),
+        adjustment: match args.adjust {
+            AdjustArg::Holm => crate::study::inference::Adjustment::Holm,
+            AdjustArg::Bh => crate::study::inference::Adjustment::BenjaminiHochberg,
+        },
+        ..Default::default()
+    };
+    let report = crate::study::compare::compare(&text, &settings)
+        .map_err(|e| Failure::Input(e.to_string()))?;
+    let out = args.out.as_ref().map_or(folder, std::path::PathBuf::from);
+    std::fs::create_dir_all(&out).map_err(Failure::Output)?;
+    std::fs::write(out.join("comparisons.csv"), report.comparisons_csv())
+        .map_err(Failure::Output)?;
+    print!("{}", report.to_text());
+    eprintln!("wrote comparisons.csv to {}", out.display());
+    Ok(0)
 }
 
 /// Every setting of one recording's path from files to results (analyze and batch).
@@ -402,6 +474,7 @@ pub fn run(args: impl IntoIterator<Item = OsString>) -> i32 {
         Command::Simulate(args) => simulate(&args),
         Command::Batch(args) => return finish(run_batch(&args)),
         Command::Combine(args) => return finish(batch::combine(&args.dirs, &args.out)),
+        Command::Compare(args) => return finish(compare(&args)),
     };
     finish(result.map(|()| 0))
 }

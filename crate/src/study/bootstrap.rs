@@ -50,6 +50,32 @@ pub fn percentile_difference(
     percentile(&mut effects, confidence)
 }
 
+/// Percentile interval of `statistic` of one sample resampled with replacement (for paired
+/// differences). `None` as for [`percentile_difference`].
+pub fn percentile_one(
+    x: &[f64],
+    statistic: impl Fn(&[f64]) -> Option<f64>,
+    confidence: f64,
+    resamples: usize,
+    seed: u64,
+) -> Option<[f64; 2]> {
+    let resamples = resamples.min(MAX_RESAMPLES);
+    let draws = (resamples as u64).checked_mul(x.len() as u64)?;
+    if x.is_empty() || resamples == 0 || draws > MAX_DRAWS {
+        return None;
+    }
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut bx = vec![0.0; x.len()];
+    let mut values = Vec::with_capacity(resamples);
+    for _ in 0..resamples {
+        for v in bx.iter_mut() {
+            *v = x[rng.random_range(0..x.len())];
+        }
+        values.extend(statistic(&bx));
+    }
+    percentile(&mut values, confidence)
+}
+
 /// The `confidence` percentile interval of `values` (reordered).
 fn percentile(values: &mut [f64], confidence: f64) -> Option<[f64; 2]> {
     if values.is_empty() {

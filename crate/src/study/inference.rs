@@ -345,7 +345,8 @@ pub fn jonckheere_terpstra(groups: &[Vec<f64>]) -> TestOutcome {
             / (36.0 * nf * (nf - 1.0) * (nf - 2.0))
         + sum(&g, &|x| x * (x - 1.0)) * sum(&tie_sizes, &|t| t * (t - 1.0))
             / (8.0 * nf * (nf - 1.0));
-    if !(var > 0.0) {
+    // NaN or no variance: nothing to test.
+    if var.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
         return TestOutcome::Degenerate {
             reason: "the values leave no variation between groups".into(),
         };

@@ -19,6 +19,7 @@
 //! per-recording files only, so sharded and single runs give the same bytes.
 
 pub mod bootstrap;
+pub mod compare;
 pub mod inference;
 
 use crate::csv_out::CsvOut;
