@@ -132,5 +132,43 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
             assert!(q >= p - 1e-15);
         }
     }
+    // The figures: an estimation plot per metric with n per condition and a legend, and
+    // the curve across the ordered levels.
+    let estimation =
+        std::fs::read_to_string(dir.join("study/estimation-median_speed_mm_s.svg")).unwrap();
+    assert!(
+        estimation.contains("0.5 (n = 4)")
+            && estimation.contains("difference from the reference, 95% CI")
+    );
+    let levels = std::fs::read_to_string(dir.join("study/levels-median_speed_mm_s.svg")).unwrap();
+    assert!(levels.contains("median with quartiles") && levels.contains("calcium_mM"));
+    // --json: the same comparisons as one document.
+    let out = common::ringline(
+        &[
+            "compare",
+            "study",
+            "--by",
+            "calcium_mM",
+            "--unit",
+            "culture",
+            "--metrics",
+            "median_speed_mm_s",
+            "--json",
+            "--out",
+            "json",
+        ],
+        &dir,
+    );
+    assert_eq!(out.status.code(), Some(0));
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(json["ordered"], true);
+    assert_eq!(json["comparisons"][2]["test"], "jonckheere_terpstra");
+    assert_eq!(json["comparisons"][2]["outcome"]["kind"], "computed");
+    assert_eq!(json["comparisons"][2]["outcome"]["method"], "exact");
+    std::fs::copy(
+        dir.join("study/estimation-median_speed_mm_s.svg"),
+        std::env::temp_dir().join("ringline-estimation.svg"),
+    )
+    .ok();
     let _ = std::fs::remove_dir_all(&dir);
 }

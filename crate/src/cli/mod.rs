@@ -129,6 +129,9 @@ struct CompareArgs {
     /// Folder for comparisons.csv [default: the study folder].
     #[arg(long, value_name = "DIR")]
     out: Option<String>,
+    /// Print one JSON document on stdout instead of text.
+    #[arg(long)]
+    json: bool,
 }
 
 #[derive(clap::ValueEnum, Clone, Copy, Debug)]
@@ -165,10 +168,17 @@ fn compare(args: &CompareArgs) -> Result<i32, Failure> {
         .map_err(|e| Failure::Input(e.to_string()))?;
     let out = args.out.as_ref().map_or(folder, std::path::PathBuf::from);
     std::fs::create_dir_all(&out).map_err(Failure::Output)?;
-    std::fs::write(out.join("comparisons.csv"), report.comparisons_csv())
-        .map_err(Failure::Output)?;
-    print!("{}", report.to_text());
-    eprintln!("wrote comparisons.csv to {}", out.display());
+    let files = crate::report::compare_figures::compare_output_files(&report);
+    for (name, text) in &files {
+        std::fs::write(out.join(name), text).map_err(Failure::Output)?;
+    }
+    if args.json {
+        println!("{}", report.to_json());
+    } else {
+        print!("{}", report.to_text());
+    }
+    let names: Vec<&str> = files.iter().map(|f| f.0.as_str()).collect();
+    eprintln!("wrote {} to {}", names.join(", "), out.display());
     Ok(0)
 }
 

@@ -2,6 +2,7 @@
 //! structs with units in every field name, and their text renderings for the terminal.
 
 mod analysis;
+pub mod compare_figures;
 pub mod figures;
 mod inspection;
 pub mod rhythm_figures;

@@ -110,6 +110,8 @@ pub struct Plot {
     bottom: f64,
     x: (f64, f64),
     y: (f64, f64),
+    /// Names drawn under x = 0, 1, 2, ... instead of numeric ticks.
+    categories: Vec<String>,
 }
 
 const FONT: &str = "font-family=\"sans-serif\"";
@@ -158,8 +160,37 @@ impl Plot {
             bottom: height - 48.0,
             x: (x.0, x.1),
             y: (y.0, y.1),
+            categories: Vec::new(),
         };
         p.frame(title, x.2, y.2);
+        p
+    }
+
+    /// A plot whose x axis names `categories` at x = 0, 1, 2, ... (shown from -0.5 to n -
+    /// 0.5), with y in [y0, y1].
+    pub fn with_categories(
+        width: u32,
+        height: u32,
+        title: &str,
+        categories: &[String],
+        x_label: &str,
+        y: (f64, f64, &str),
+    ) -> Plot {
+        let (width, height) = (f64::from(width), f64::from(height));
+        let n = categories.len().max(1) as f64;
+        let mut p = Plot {
+            body: String::new(),
+            width,
+            height,
+            left: 72.0,
+            top: 34.0,
+            right: width - 16.0,
+            bottom: height - 48.0,
+            x: (-0.5, n - 0.5),
+            y: (y.0, y.1),
+            categories: categories.to_vec(),
+        };
+        p.frame(title, x_label, y.2);
         p
     }
 
@@ -185,8 +216,23 @@ impl Plot {
             cx = self.width / 2.0,
             title = escape(title)
         );
-        let (xticks, xdec) = nice_ticks(self.x.0, self.x.1, 8);
+        let (xticks, xdec) = if self.categories.is_empty() {
+            nice_ticks(self.x.0, self.x.1, 8)
+        } else {
+            (Vec::new(), 0)
+        };
         let (yticks, ydec) = nice_ticks(self.y.0, self.y.1, 6);
+        for (k, name) in self.categories.iter().enumerate() {
+            let px = l + (k as f64 - self.x.0) / (self.x.1 - self.x.0) * (r - l);
+            let _ = write!(
+                self.body,
+                "<line x1=\"{px:.1}\" y1=\"{b:.1}\" x2=\"{px:.1}\" y2=\"{b5:.1}\" stroke=\"#000000\"/>\
+                 <text x=\"{px:.1}\" y=\"{b18:.1}\" text-anchor=\"middle\" font-size=\"12\" {FONT}>{}</text>",
+                escape(name),
+                b5 = b + 5.0,
+                b18 = b + 18.0,
+            );
+        }
         for &v in &xticks {
             let px = l + (v - self.x.0) / (self.x.1 - self.x.0) * (r - l);
             let _ = write!(

@@ -116,8 +116,18 @@ pub struct CompareReport {
     pub conditions: Vec<String>,
     pub ordered: bool,
     pub comparisons: Vec<Comparison>,
+    /// Each metric's unit values per condition (in `conditions` order), for the figures.
+    pub units: Vec<MetricUnits>,
     /// Recordings left out (failed, or no value), with the reason.
     pub left_out: Vec<String>,
+}
+
+/// One metric's values per replication unit, per condition.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MetricUnits {
+    pub metric: String,
+    /// (unit, median of its recordings' values) per condition.
+    pub conditions: Vec<Vec<(String, f64)>>,
 }
 
 /// Whether a column name carries a unit: `calcium_mM`, `dose (uM)`, `div_days`, ...
@@ -214,6 +224,7 @@ pub fn compare(
     }
     let unit_of = |r: &Vec<String>| unit.map_or_else(|| r[recording].clone(), |u| r[u].clone());
     let mut comparisons = Vec::new();
+    let mut units = Vec::new();
     for (metric, &mc) in metrics.iter().zip(&metric_cols) {
         // Per condition: unit -> median of its recordings' values.
         let per_condition: Vec<Vec<(String, f64)>> = conditions
@@ -264,6 +275,10 @@ pub fn compare(
                 p_adjusted: None,
             });
         }
+        units.push(MetricUnits {
+            metric: metric.clone(),
+            conditions: per_condition,
+        });
     }
     let ps: Vec<(usize, f64)> = comparisons
         .iter()
@@ -285,6 +300,7 @@ pub fn compare(
         conditions,
         ordered,
         comparisons,
+        units,
         left_out,
     })
 }
@@ -361,6 +377,11 @@ fn pairwise(
 }
 
 impl CompareReport {
+    /// The report as JSON (`compare --json`; keys in the README).
+    pub fn to_json(&self) -> String {
+        serde_json::to_string_pretty(self).unwrap_or_default()
+    }
+
     /// `comparisons.csv`.
     pub fn comparisons_csv(&self) -> String {
         let mut out = CsvOut::new([
