@@ -802,6 +802,16 @@ function renderStudy() {
     }
   });
   $('study-save').disabled = done < manifest.rows.length;
+  // Comparing conditions needs every recording analysed or tried, and a column to compare by.
+  const form = $('compare-form');
+  form.hidden = done < manifest.rows.length || manifest.columns.length === 0;
+  for (const [select, first] of [[form.elements.by, null], [form.elements.unit, 'each recording']]) {
+    const keep = select.value;
+    select.replaceChildren();
+    if (first) select.append(new Option(first, ''));
+    for (const c of manifest.columns) select.append(new Option(c, c));
+    if ([...select.options].some((o) => o.value === keep)) select.value = keep;
+  }
 }
 
 /** The files of manifest row `i`, as the worker needs them. */
@@ -899,9 +909,9 @@ async function updateOpenStudyRecording() {
   renderStudy();
 }
 
-/** Saves the study tables (status, recordings, bursts, fronts): the bytes `ringline batch`
- * writes for the same manifest. */
-async function saveStudy() {
+/** The study's tables (status, recordings, bursts, fronts) from the core, as `ringline
+ * batch` writes them. */
+async function studyTables() {
   const study = state.study;
   const outputs = study.manifest.rows.map((row, i) => {
     const e = study.entries[i];
@@ -911,8 +921,65 @@ async function saveStudy() {
       bursts_csv: file('bursts.csv'), fronts_csv: file('fronts.csv'),
     };
   });
-  const tables = await call('combineStudy', { outputs });
+  return call('combineStudy', { outputs });
+}
+
+/** Saves the study tables: the bytes `ringline batch` writes for the same manifest. */
+async function saveStudy() {
+  const tables = await studyTables();
   for (const [name, text] of tables.files) download(name, text, 'text/csv');
+}
+
+/** Compares the study's conditions (the core does every number, as `ringline compare`). */
+async function compareStudy(event) {
+  event.preventDefault();
+  clearError('input-error');
+  const f = $('compare-form').elements;
+  const tables = await studyTables();
+  const recordings = tables.files.find((x) => x[0] === 'recordings.csv')[1];
+  const settings = { by: f.by.value, unit: f.unit.value || null, paired: f.paired.checked, adjustment: f.adjustment.value };
+  const compared = await call('compareStudy', { recordings, settings });
+  state.comparison = compared;
+  const r = compared.report;
+  $('compare-text').textContent = `Conditions ${r.conditions.join(', ')} (${r.ordered ? 'ordered' : 'not ordered'}), `
+    + `compared with ${r.conditions[0]} by ${r.settings.by}, one value per ${r.settings.unit ?? 'recording'}`
+    + `${r.settings.paired ? ', paired' : ''}; p-values adjusted by ${r.settings.adjustment === 'holm' ? 'Holm' : 'Benjamini-Hochberg'}`
+    + `${r.left_out.length ? `; left out: ${r.left_out.join('; ')}` : ''}.`;
+  const body = $('compare-table').tBodies[0];
+  body.replaceChildren();
+  const num = (v) => (v === null || v === undefined ? '—' : Number(v).toPrecision(4));
+  const ci = (v) => (v ? ` [${num(v[0])}, ${num(v[1])}]` : '');
+  for (const c of r.comparisons) {
+    const o = c.outcome;
+    const trend = c.test === 'jonckheere_terpstra';
+    const cells = [
+      c.metric, trend ? `trend over ${r.conditions.join(' < ')}` : `${c.condition} vs ${c.reference}`,
+      `${c.n_condition} and ${c.n_reference}`, trend ? '—' : `${num(c.effect)}${ci(c.effect_ci)}`,
+      trend ? '—' : `${num(c.shift)}${ci(c.shift_ci)}`,
+      { mann_whitney: 'Mann-Whitney U', wilcoxon_signed_rank: 'Wilcoxon signed-rank', jonckheere_terpstra: 'Jonckheere-Terpstra' }[c.test],
+      o.kind === 'computed' ? num(o.p) : '—', num(c.p_adjusted),
+      o.kind === 'computed' ? (o.method === 'exact' ? 'exact' : 'normal approximation')
+        : (o.kind === 'degenerate' ? `not tested: ${o.reason}` : `not tested: ${o.given} units, ${o.needed} needed`),
+    ];
+    const tr = body.insertRow();
+    for (const text of cells) tr.insertCell().textContent = text;
+  }
+  const select = $('compare-metric');
+  select.replaceChildren();
+  for (const m of r.units) select.append(new Option(m.metric, m.metric));
+  $('compare-results').hidden = false;
+  $('compare-save').disabled = false;
+  showEstimation();
+}
+
+function showEstimation() {
+  const file = state.comparison?.files.find((x) => x[0] === `estimation-${$('compare-metric').value}.svg`);
+  const img = $('fig-estimation');
+  img.hidden = !file;
+  if (!file) return;
+  const old = img.src;
+  img.src = URL.createObjectURL(new Blob([file[1]], { type: 'image/svg+xml' }));
+  if (old.startsWith('blob:')) URL.revokeObjectURL(old);
 }
 
 // ---------------------------------------------------------------- exports
@@ -991,6 +1058,17 @@ function wire() {
   $('window-form').addEventListener('submit', setWindow);
   $('study-run').addEventListener('click', () => runStudy());
   $('study-save').addEventListener('click', () => saveStudy().catch((e) => showError('input-error', e)));
+  $('compare-form').addEventListener('submit', (e) => compareStudy(e).catch((err) => showError('input-error', err)));
+  $('compare-metric').addEventListener('change', showEstimation);
+  $('compare-save').addEventListener('click', () => {
+    const file = state.comparison?.files.find((x) => x[0] === 'comparisons.csv');
+    if (file) download('comparisons.csv', file[1], 'text/csv');
+  });
+  $('estimation-save').addEventListener('click', () => {
+    const name = `estimation-${$('compare-metric').value}.svg`;
+    const file = state.comparison?.files.find((x) => x[0] === name);
+    if (file) download(name, file[1], 'image/svg+xml');
+  });
   $('cancel-button').addEventListener('click', () => {
     setBusy(false);
     restartWorker('Cancelled; the files are still open, run the analysis again when ready.');

@@ -699,6 +699,27 @@ pub fn combine_study(outputs: JsValue) -> Result<JsValue, JsValue> {
     })
 }
 
+/// Compares the conditions of a study from its `recordings.csv` text (as `ringline
+/// compare`): the report and its files (comparisons.csv and the figures).
+#[wasm_bindgen(js_name = compareStudy)]
+pub fn compare_study(recordings_csv: String, options: JsValue) -> Result<JsValue, JsValue> {
+    let options: crate::study::compare::CompareSettings = settings(options, "comparison settings")?;
+    let report =
+        crate::study::compare::compare(&recordings_csv, &options).map_err(|e| message(&e))?;
+    #[derive(Serialize)]
+    struct Compared {
+        report: crate::study::compare::CompareReport,
+        text: String,
+        files: Vec<(String, String)>,
+    }
+    let files = crate::report::compare_figures::compare_output_files(&report);
+    to_js(&Compared {
+        text: report.to_text(),
+        report,
+        files,
+    })
+}
+
 /// What opening a voltage file gives the page: the workbook and the electrode report.
 #[wasm_bindgen]
 pub struct VoltageOpened {

@@ -446,6 +446,20 @@ test('a study of 6 recordings dropped with its manifest gives the command line\'
     assert.equal(saved[table], readFileSync(join(dir, 'batch', table), 'utf8'), `${table} differs from ringline batch`);
   }
 
+  // Comparing conditions (here the two cultures, three recordings each): the page's
+  // comparisons.csv and estimation plot are the bytes `ringline compare` writes.
+  execFileSync(cli, ['compare', 'batch', '--by', 'culture'], { cwd: dir, stdio: 'ignore' });
+  await page.selectOption('#compare-form select[name="by"]', 'culture');
+  await page.click('#compare-button');
+  await page.locator('#compare-results').waitFor({ state: 'visible' });
+  await page.locator('#fig-estimation').waitFor({ state: 'visible' });
+  assert.match(await page.textContent('#compare-text'), /^Conditions culture 1, culture 2 \(not ordered\)/);
+  const comparedFiles = Object.fromEntries(await page.evaluate(() => window.ringline.state.comparison.files));
+  assert.equal(comparedFiles['comparisons.csv'], readFileSync(join(dir, 'batch', 'comparisons.csv'), 'utf8'));
+  assert.equal(comparedFiles['estimation-median_speed_mm_s.svg'], readFileSync(join(dir, 'batch', 'estimation-median_speed_mm_s.svg'), 'utf8'));
+  assert.equal(await page.locator('#compare-table tbody tr').count(), 8);
+  await shoot(page, '9b-compare');
+
   // The notebook keeps the study: re-opened in a fresh page, the study table and its saved
   // tables come back without the recordings.
   await page.getByRole('button', { name: 'Open recording strip-16-1 in the steps below' }).click();
