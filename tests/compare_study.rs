@@ -13,29 +13,10 @@ mod common;
 
 use rand::SeedableRng;
 use rand_distr::{Distribution, LogNormal};
-use std::path::Path;
 
 const LEVELS: [(&str, f64); 3] = [("0.5", 25.0), ("1", 32.0), ("2", 40.0)];
 const CULTURES: usize = 4;
 const RECORDINGS: usize = 2;
-
-fn simulate(dir: &Path, name: &str, speed_mm_s: f64, seed: u64) {
-    let scenario = format!(
-        r#"{{"model": "fronts", "name": "{name}", "seed": {seed}, "duration_s": 60,
-        "electrodes": {{"shape": "row", "count": 16, "pitch_um": 375, "angle_deg": 0}},
-        "pattern": "mixed", "position_jitter_um": 2, "min_interval_s": 4, "extra_interval_s": 6,
-        "speed_mm_s": {speed_mm_s}, "speed_cv": 0.1, "activation_jitter_s": 0.002,
-        "spikes_per_burst": 6, "burst_spread_s": 0.02, "background_rate_hz": 0.3,
-        "failure_probability": 0.1, "sampling_rate_hz": 25000}}"#
-    );
-    let scenario = ringline::simulate::parse_scenario(&scenario).unwrap();
-    let files = ringline::simulate::simulation_files(&scenario, &mut |_, _, _| {}).unwrap();
-    let folder = dir.join(name);
-    std::fs::create_dir_all(&folder).unwrap();
-    for (file, bytes) in files {
-        std::fs::write(folder.join(file), bytes).unwrap();
-    }
-}
 
 #[test]
 fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
@@ -50,11 +31,13 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
             let factor = culture_factor.sample(&mut rng);
             for r in 0..RECORDINGS {
                 let name = format!("ca{l}-c{c}-r{r}");
-                simulate(
+                common::simulate_strip(
                     &dir,
                     &name,
                     speed * factor,
                     (l * 100 + c * 10 + r) as u64 + 1,
+                    60.0,
+                    &[],
                 );
                 manifest.push_str(&format!(
                     "{name},{name}/spikes.csv,{name}/layout.csv,culture {l}-{c},{level}\n"

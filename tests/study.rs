@@ -15,25 +15,6 @@ use std::path::Path;
 const CONDITION_SPEEDS_MM_S: [f64; 4] = [20.0, 30.0, 40.0, 60.0];
 const CULTURES_PER_CONDITION: usize = 5;
 
-/// Writes one simulated recording (a 16-electrode strip, 90 s) into `dir/name/`.
-fn simulate(dir: &Path, name: &str, speed_mm_s: f64, seed: u64) {
-    let scenario = format!(
-        r#"{{"model": "fronts", "name": "{name}", "seed": {seed}, "duration_s": 90,
-        "electrodes": {{"shape": "row", "count": 16, "pitch_um": 375, "angle_deg": 0}},
-        "pattern": "mixed", "position_jitter_um": 2, "min_interval_s": 4, "extra_interval_s": 6,
-        "speed_mm_s": {speed_mm_s}, "speed_cv": 0.1, "activation_jitter_s": 0.002,
-        "spikes_per_burst": 6, "burst_spread_s": 0.02, "background_rate_hz": 0.3,
-        "dead_electrodes": [5], "failure_probability": 0.1, "sampling_rate_hz": 25000}}"#
-    );
-    let scenario = ringline::simulate::parse_scenario(&scenario).unwrap();
-    let files = ringline::simulate::simulation_files(&scenario, &mut |_, _, _| {}).unwrap();
-    let folder = dir.join(name);
-    std::fs::create_dir_all(&folder).unwrap();
-    for (file, bytes) in files {
-        std::fs::write(folder.join(file), bytes).unwrap();
-    }
-}
-
 /// A WAV header that promises 1,000 bytes of 2-channel int16 data and carries 10.
 fn truncated_wav() -> Vec<u8> {
     let mut wav = Vec::new();
@@ -61,7 +42,7 @@ fn write_study(dir: &Path) -> Vec<String> {
     for (c, &speed) in CONDITION_SPEEDS_MM_S.iter().enumerate() {
         for k in 0..CULTURES_PER_CONDITION {
             let name = format!("c{c}-k{k}");
-            simulate(dir, &name, speed, 100 + (c * 10 + k) as u64);
+            common::simulate_strip(dir, &name, speed, 100 + (c * 10 + k) as u64, 90.0, &[5]);
             manifest.push_str(&format!(
                 "{name},{name}/spikes.csv,{name}/layout.csv,culture {k},\"{speed} mm/s, sim\"\n"
             ));

@@ -382,3 +382,34 @@ pub fn ringline(args: &[&str], dir: &std::path::Path) -> std::process::Output {
         .output()
         .expect("the binary runs")
 }
+
+/// Writes one simulated recording into `dir/name/`: kinematic fronts on a 16-electrode
+/// strip at 375 um pitch (mixed origins, 10% speed spread, 10% failing fronts, 0.3 Hz
+/// background), `duration_s` long, with `dead` electrodes.
+pub fn simulate_strip(
+    dir: &std::path::Path,
+    name: &str,
+    speed_mm_s: f64,
+    seed: u64,
+    duration_s: f64,
+    dead: &[usize],
+) {
+    let dead: Vec<String> = dead.iter().map(|d| d.to_string()).collect();
+    let scenario = format!(
+        r#"{{"model": "fronts", "name": "{name}", "seed": {seed}, "duration_s": {duration_s},
+        "electrodes": {{"shape": "row", "count": 16, "pitch_um": 375, "angle_deg": 0}},
+        "pattern": "mixed", "position_jitter_um": 2, "min_interval_s": 4, "extra_interval_s": 6,
+        "speed_mm_s": {speed_mm_s}, "speed_cv": 0.1, "activation_jitter_s": 0.002,
+        "spikes_per_burst": 6, "burst_spread_s": 0.02, "background_rate_hz": 0.3,
+        "dead_electrodes": [{}], "failure_probability": 0.1, "sampling_rate_hz": 25000}}"#,
+        dead.join(", ")
+    );
+    let scenario = ringline::simulate::parse_scenario(&scenario).expect("the scenario parses");
+    let files = ringline::simulate::simulation_files(&scenario, &mut |_, _, _| {})
+        .expect("the scenario simulates");
+    let folder = dir.join(name);
+    std::fs::create_dir_all(&folder).expect("a folder");
+    for (file, bytes) in files {
+        std::fs::write(folder.join(file), bytes).expect("a file");
+    }
+}

@@ -149,21 +149,7 @@ impl Plot {
         y: (f64, f64, &str),
         right_px: f64,
     ) -> Plot {
-        let (width, height) = (f64::from(width), f64::from(height));
-        let mut p = Plot {
-            body: String::new(),
-            width,
-            height,
-            left: 72.0,
-            top: 34.0,
-            right: (width - right_px).max(73.0),
-            bottom: height - 48.0,
-            x: (x.0, x.1),
-            y: (y.0, y.1),
-            categories: Vec::new(),
-        };
-        p.frame(title, x.2, y.2);
-        p
+        Plot::build((width, height, right_px), title, x, y, Vec::new())
     }
 
     /// A plot whose x axis names `categories` at x = 0, 1, 2, ... (shown from -0.5 to n -
@@ -176,21 +162,33 @@ impl Plot {
         x_label: &str,
         y: (f64, f64, &str),
     ) -> Plot {
-        let (width, height) = (f64::from(width), f64::from(height));
         let n = categories.len().max(1) as f64;
+        let x = (-0.5, n - 0.5, x_label);
+        Plot::build((width, height, 16.0), title, x, y, categories.to_vec())
+    }
+
+    /// The plot with its frame drawn: (width, height, right margin) in pixels.
+    fn build(
+        (width, height, right_px): (u32, u32, f64),
+        title: &str,
+        x: (f64, f64, &str),
+        y: (f64, f64, &str),
+        categories: Vec<String>,
+    ) -> Plot {
+        let (width, height) = (f64::from(width), f64::from(height));
         let mut p = Plot {
             body: String::new(),
             width,
             height,
             left: 72.0,
             top: 34.0,
-            right: width - 16.0,
+            right: (width - right_px).max(73.0),
             bottom: height - 48.0,
-            x: (-0.5, n - 0.5),
+            x: (x.0, x.1),
             y: (y.0, y.1),
-            categories: categories.to_vec(),
+            categories,
         };
-        p.frame(title, x_label, y.2);
+        p.frame(title, x.2, y.2);
         p
     }
 
