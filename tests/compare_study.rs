@@ -125,6 +125,45 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     );
     let levels = std::fs::read_to_string(dir.join("study/levels-median_speed_mm_s.svg")).unwrap();
     assert!(levels.contains("median with quartiles") && levels.contains("calcium_mM"));
+    // Every front's speed, nested in recordings and cultures (from fronts.csv): the effect
+    // is the difference of pooled medians with a hierarchical bootstrap interval.
+    let out = common::ringline(
+        &[
+            "compare",
+            "study",
+            "--by",
+            "calcium_mM",
+            "--unit",
+            "culture",
+            "--metrics",
+            "speed_mm_s",
+            "--out",
+            "fronts",
+        ],
+        &dir,
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let table = std::fs::read_to_string(dir.join("fronts/comparisons.csv")).unwrap();
+    let mut reader = csv::Reader::from_reader(table.as_bytes());
+    let header = reader.headers().unwrap().clone();
+    let col = |name: &str| header.iter().position(|h| h == name).unwrap();
+    let nested: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
+    for (row, truth) in nested[..2].iter().zip([32.0 - 25.0, 40.0 - 25.0]) {
+        assert!(row[col("values")].starts_with("fronts nested"), "{:?}", row);
+        let effect: f64 = row[col("effect")].parse().unwrap();
+        let lo: f64 = row[col("effect_ci95_low")].parse().unwrap();
+        let hi: f64 = row[col("effect_ci95_high")].parse().unwrap();
+        eprintln!("every front, true difference {truth} mm/s: effect {effect:.2} (95% CI {lo:.2} to {hi:.2})");
+        assert!(
+            lo <= truth && truth <= hi,
+            "{effect} [{lo}, {hi}] against {truth}"
+        );
+    }
     // --json: the same comparisons as one document.
     let out = common::ringline(
         &[

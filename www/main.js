@@ -937,8 +937,9 @@ async function compareStudy(event) {
   const f = $('compare-form').elements;
   const tables = await studyTables();
   const recordings = tables.files.find((x) => x[0] === 'recordings.csv')[1];
+  const fronts = tables.files.find((x) => x[0] === 'fronts.csv')?.[1] ?? null;
   const settings = { by: f.by.value, unit: f.unit.value || null, paired: f.paired.checked, adjustment: f.adjustment.value };
-  const compared = await call('compareStudy', { recordings, settings });
+  const compared = await call('compareStudy', { recordings, fronts, settings });
   state.comparison = compared;
   const r = compared.report;
   $('compare-text').textContent = `Conditions ${r.conditions.join(', ')} (${r.ordered ? 'ordered' : 'not ordered'}), `

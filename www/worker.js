@@ -69,7 +69,7 @@ const ops = {
   failedStudyEntry: ({ manifest, row, message }) => core.failedStudyEntry(manifest, row, message),
   studyEntry: ({ manifest, row }) => need().studyEntry(manifest, row),
   combineStudy: ({ outputs }) => core.combineStudy(outputs),
-  compareStudy: ({ recordings, settings }) => core.compareStudy(recordings, settings),
+  compareStudy: ({ recordings, fronts, settings }) => core.compareStudy(recordings, fronts, settings),
   open: ({ activity, layout, settings }) => {
     workbook?.free();
     workbook = null;

@@ -702,10 +702,14 @@ pub fn combine_study(outputs: JsValue) -> Result<JsValue, JsValue> {
 /// Compares the conditions of a study from its `recordings.csv` text (as `ringline
 /// compare`): the report and its files (comparisons.csv and the figures).
 #[wasm_bindgen(js_name = compareStudy)]
-pub fn compare_study(recordings_csv: String, options: JsValue) -> Result<JsValue, JsValue> {
+pub fn compare_study(
+    recordings_csv: String,
+    fronts_csv: Option<String>,
+    options: JsValue,
+) -> Result<JsValue, JsValue> {
     let options: crate::study::compare::CompareSettings = settings(options, "comparison settings")?;
-    let report =
-        crate::study::compare::compare(&recordings_csv, &options).map_err(|e| message(&e))?;
+    let report = crate::study::compare::compare(&recordings_csv, fronts_csv.as_deref(), &options)
+        .map_err(|e| message(&e))?;
     #[derive(Serialize)]
     struct Compared {
         report: crate::study::compare::CompareReport,

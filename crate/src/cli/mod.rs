@@ -118,7 +118,8 @@ struct CompareArgs {
     /// The same units were recorded in every condition (paired differences).
     #[arg(long)]
     paired: bool,
-    /// Metrics to compare (columns of recordings.csv, comma-separated) [default: median
+    /// Metrics to compare (columns of recordings.csv, or of fronts.csv such as speed_mm_s
+    /// for every front, nested in recordings and units; comma-separated) [default: median
     /// speed, direction balance, burst rate, interburst interval and its CV, share reaching
     /// the end, mean STTC, Kuramoto R].
     #[arg(long, value_delimiter = ',')]
@@ -164,7 +165,14 @@ fn compare(args: &CompareArgs) -> Result<i32, Failure> {
         },
         ..Default::default()
     };
-    let report = crate::study::compare::compare(&text, &settings)
+    // Metrics per front (speed_mm_s, ...) come from the study's fronts.csv beside it.
+    let fronts_path = table.with_file_name("fronts.csv");
+    let fronts = if fronts_path.is_file() {
+        Some(read_text(&fronts_path.to_string_lossy(), "study table")?)
+    } else {
+        None
+    };
+    let report = crate::study::compare::compare(&text, fronts.as_deref(), &settings)
         .map_err(|e| Failure::Input(e.to_string()))?;
     let out = args.out.as_ref().map_or(folder, std::path::PathBuf::from);
     std::fs::create_dir_all(&out).map_err(Failure::Output)?;

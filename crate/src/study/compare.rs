@@ -9,7 +9,9 @@
 //! numeric values under a column whose name carries a unit). p-values over all metrics and
 //! comparisons are adjusted together (Holm by default, or Benjamini-Hochberg).
 
-use super::bootstrap::{percentile_difference, percentile_one};
+use super::bootstrap::{
+    hierarchical_median_difference, percentile_difference, percentile_one, Nested,
+};
 use super::inference::{
     adjust, jonckheere_terpstra, mann_whitney_u, shift_paired, shift_two_sample,
     wilcoxon_signed_rank, Adjustment, TestOutcome,
@@ -106,6 +108,143 @@ pub struct Comparison {
     pub outcome: TestOutcome,
     /// Adjusted over every comparison of the report.
     pub p_adjusted: Option<f64>,
+    /// What the effect and its interval were computed on.
+    pub values: ValueLevel,
+}
+
+/// What a comparison's effect was computed on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ValueLevel {
+    /// One value per replication unit (the median of its recordings).
+    Units,
+    /// Every front, nested in recordings nested in units: the difference of the pooled
+    /// medians with a hierarchical bootstrap interval (Saravanan et al. 2020); the shift
+    /// and the test still use one value per unit.
+    NestedFronts,
+}
+
+impl ValueLevel {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ValueLevel::Units => "one value per unit",
+            ValueLevel::NestedFronts => {
+                "fronts nested in recordings and units (hierarchical bootstrap)"
+            }
+        }
+    }
+}
+
+/// Where a metric's values come from.
+enum Source {
+    Recordings(usize),
+    Fronts(usize),
+}
+
+/// A table of the study, read whole.
+struct Table {
+    name: &'static str,
+    header: Vec<String>,
+    rows: Vec<Vec<String>>,
+}
+
+impl Table {
+    fn find(&self, column: &str) -> Option<usize> {
+        self.header
+            .iter()
+            .position(|h| h.eq_ignore_ascii_case(column))
+    }
+
+    fn col(&self, column: &str) -> Result<usize, StudyError> {
+        self.find(column).ok_or_else(|| {
+            StudyError::new(
+                Place::file(self.name).at_line(1),
+                format!(
+                    "there is no column {column:?}; the columns are {}",
+                    self.header.join(", ")
+                ),
+            )
+        })
+    }
+}
+
+fn read_table(name: &'static str, text: &str) -> Result<Table, StudyError> {
+    let mut reader = csv::ReaderBuilder::new()
+        .comment(Some(b'#'))
+        .from_reader(text.as_bytes());
+    let header = reader
+        .headers()
+        .map_err(|e| StudyError::new(Place::file(name), e.to_string()))?
+        .iter()
+        .map(str::to_string)
+        .collect();
+    let mut rows = Vec::new();
+    for (k, r) in reader.records().enumerate() {
+        let r =
+            r.map_err(|e| StudyError::new(Place::file(name).at_line(k as u64 + 2), e.to_string()))?;
+        rows.push(r.iter().map(str::to_string).collect());
+    }
+    Ok(Table { name, header, rows })
+}
+
+/// Per condition: the units' names and their values nested as units -> recordings -> fronts,
+/// from the fronts table (which carries the manifest's columns).
+fn nested_values(
+    fronts: &Table,
+    metric: usize,
+    settings: &CompareSettings,
+    conditions: &[String],
+    analysed: &[&String],
+) -> Result<Vec<(Vec<String>, Nested)>, StudyError> {
+    let by = fronts.col(&settings.by)?;
+    let unit = settings
+        .unit
+        .as_deref()
+        .map(|u| fronts.col(u))
+        .transpose()?;
+    let recording = fronts.col("recording")?;
+    Ok(conditions
+        .iter()
+        .map(|c| {
+            let mut names: Vec<String> = Vec::new();
+            let mut cultures: Nested = Vec::new();
+            let mut recordings: Vec<Vec<String>> = Vec::new();
+            for r in fronts
+                .rows
+                .iter()
+                .filter(|r| &r[by] == c && analysed.contains(&&r[recording]))
+            {
+                let Some(v) = r[metric]
+                    .trim()
+                    .parse::<f64>()
+                    .ok()
+                    .filter(|v| v.is_finite())
+                else {
+                    continue;
+                };
+                let u = unit.map_or_else(|| r[recording].clone(), |k| r[k].clone());
+                let ui = match names.iter().position(|n| *n == u) {
+                    Some(i) => i,
+                    None => {
+                        names.push(u);
+                        cultures.push(Vec::new());
+                        recordings.push(Vec::new());
+                        names.len() - 1
+                    }
+                };
+                let ri = match recordings[ui].iter().position(|n| *n == r[recording]) {
+                    Some(i) => i,
+                    None => {
+                        recordings[ui].push(r[recording].clone());
+                        cultures[ui].push(Vec::new());
+                        recordings[ui].len() - 1
+                    }
+                };
+                cultures[ui][ri].push(v);
+            }
+            (names, cultures)
+        })
+        .collect())
 }
 
 /// All comparisons of a study.
@@ -143,11 +282,17 @@ fn has_unit(name: &str) -> bool {
         .any(|u| lower.ends_with(u))
 }
 
-/// Compares the conditions of a study's `recordings.csv` (its text).
+/// Compares the conditions of a study's `recordings.csv` (its text). Metrics not in it are
+/// looked up in `fronts.csv` (one value per front), and compared with the fronts nested in
+/// recordings and units.
 pub fn compare(
     recordings_csv: &str,
+    fronts_csv: Option<&str>,
     settings: &CompareSettings,
 ) -> Result<CompareReport, StudyError> {
+    let fronts = fronts_csv
+        .map(|t| read_table("fronts.csv", t))
+        .transpose()?;
     let mut reader = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
         .from_reader(recordings_csv.as_bytes());
@@ -180,7 +325,15 @@ pub fn compare(
     } else {
         settings.metrics.clone()
     };
-    let metric_cols: Vec<usize> = metrics.iter().map(|m| col(m)).collect::<Result<_, _>>()?;
+    // Each metric from recordings.csv, or else from fronts.csv (one value per front).
+    let sources: Vec<Source> = metrics
+        .iter()
+        .map(|m| match (col(m), fronts.as_ref()) {
+            (Ok(c), _) => Ok(Source::Recordings(c)),
+            (Err(e), Some(f)) => f.find(m).map(Source::Fronts).ok_or(e),
+            (Err(e), None) => Err(e),
+        })
+        .collect::<Result<_, _>>()?;
     let mut rows: Vec<Vec<String>> = Vec::new();
     for (k, r) in reader.records().enumerate() {
         let r = r.map_err(|e| {
@@ -225,7 +378,61 @@ pub fn compare(
     let unit_of = |r: &Vec<String>| unit.map_or_else(|| r[recording].clone(), |u| r[u].clone());
     let mut comparisons = Vec::new();
     let mut units = Vec::new();
-    for (metric, &mc) in metrics.iter().zip(&metric_cols) {
+    let analysed: Vec<&String> = rows.iter().map(|r| &r[recording]).collect();
+    for (metric, source) in metrics.iter().zip(&sources) {
+        let mc = match *source {
+            Source::Recordings(c) => c,
+            Source::Fronts(c) => {
+                let f = fronts
+                    .as_ref()
+                    .ok_or_else(|| StudyError::new(Place::file("fronts.csv"), "no fronts table"))?;
+                let nested = nested_values(f, c, settings, &conditions, &analysed)?;
+                let per_condition: Vec<Vec<(String, f64)>> = nested
+                    .iter()
+                    .map(|(names, cultures)| {
+                        names
+                            .iter()
+                            .zip(cultures)
+                            .filter_map(|(u, recs)| {
+                                let all: Vec<f64> = recs.iter().flatten().copied().collect();
+                                median(&all).map(|m| (u.clone(), m))
+                            })
+                            .collect()
+                    })
+                    .collect();
+                for k in 1..conditions.len() {
+                    let mut c = pairwise(
+                        metric,
+                        (&conditions[0], &per_condition[0]),
+                        (&conditions[k], &per_condition[k]),
+                        settings,
+                        (k * 1000 + comparisons.len()) as u64,
+                    );
+                    if !settings.paired {
+                        let pooled = |n: &Nested| {
+                            median(&n.iter().flatten().flatten().copied().collect::<Vec<_>>())
+                        };
+                        c.effect = pooled(&nested[k].1)
+                            .zip(pooled(&nested[0].1))
+                            .map(|(a, b)| a - b);
+                        c.effect_ci = hierarchical_median_difference(
+                            &nested[k].1,
+                            &nested[0].1,
+                            settings.confidence,
+                            settings.resamples,
+                            settings.seed ^ (k as u64 * 7919),
+                        );
+                        c.values = ValueLevel::NestedFronts;
+                    }
+                    comparisons.push(c);
+                }
+                units.push(MetricUnits {
+                    metric: metric.clone(),
+                    conditions: per_condition,
+                });
+                continue;
+            }
+        };
         // Per condition: unit -> median of its recordings' values.
         let per_condition: Vec<Vec<(String, f64)>> = conditions
             .iter()
@@ -273,6 +480,7 @@ pub fn compare(
                 test: TestKind::JonckheereTerpstra,
                 outcome: jonckheere_terpstra(&groups),
                 p_adjusted: None,
+                values: ValueLevel::Units,
             });
         }
         units.push(MetricUnits {
@@ -330,6 +538,7 @@ fn pairwise(
             given: 0,
         },
         p_adjusted: None,
+        values: ValueLevel::Units,
     };
     let seed = settings.seed ^ seed;
     if settings.paired {
@@ -402,6 +611,7 @@ impl CompareReport {
             "p_adjusted",
             "adjustment",
             "method",
+            "values",
         ]);
         for c in &self.comparisons {
             let (statistic, p, method) = match &c.outcome {
@@ -446,6 +656,7 @@ impl CompareReport {
                     Adjustment::BenjaminiHochberg => "Benjamini-Hochberg".to_string(),
                 },
                 method,
+                c.values.as_str().to_string(),
             ]);
         }
         out.finish()
