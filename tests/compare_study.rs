@@ -18,6 +18,14 @@ const LEVELS: [(&str, f64); 3] = [("0.5", 25.0), ("1", 32.0), ("2", 40.0)];
 const CULTURES: usize = 4;
 const RECORDINGS: usize = 2;
 
+/// A comparisons.csv: its header and rows.
+fn comparisons(path: &std::path::Path) -> (csv::StringRecord, Vec<csv::StringRecord>) {
+    let table = std::fs::read_to_string(path).unwrap();
+    let mut reader = csv::Reader::from_reader(table.as_bytes());
+    let header = reader.headers().unwrap().clone();
+    (header, reader.records().map(Result::unwrap).collect())
+}
+
 #[test]
 fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     let dir = std::env::temp_dir().join(format!("ringline-compare-{}", std::process::id()));
@@ -75,11 +83,8 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     let text = String::from_utf8_lossy(&out.stdout);
     eprintln!("{text}");
     assert!(text.contains("0.5, 1, 2 (ordered)"), "{text}");
-    let table = std::fs::read_to_string(dir.join("study/comparisons.csv")).unwrap();
-    let mut reader = csv::Reader::from_reader(table.as_bytes());
-    let header = reader.headers().unwrap().clone();
+    let (header, rows) = comparisons(&dir.join("study/comparisons.csv"));
     let col = |name: &str| header.iter().position(|h| h == name).unwrap();
-    let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
     let speed: Vec<&csv::StringRecord> = rows
         .iter()
         .filter(|r| &r[col("metric")] == "median_speed_mm_s")
@@ -148,11 +153,8 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    let table = std::fs::read_to_string(dir.join("fronts/comparisons.csv")).unwrap();
-    let mut reader = csv::Reader::from_reader(table.as_bytes());
-    let header = reader.headers().unwrap().clone();
+    let (header, nested) = comparisons(&dir.join("fronts/comparisons.csv"));
     let col = |name: &str| header.iter().position(|h| h == name).unwrap();
-    let nested: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
     for (row, truth) in nested[..2].iter().zip([32.0 - 25.0, 40.0 - 25.0]) {
         assert!(row[col("values")].starts_with("fronts nested"), "{:?}", row);
         let effect: f64 = row[col("effect")].parse().unwrap();

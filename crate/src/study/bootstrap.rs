@@ -28,26 +28,10 @@ pub fn percentile_difference(
     resamples: usize,
     seed: u64,
 ) -> Option<[f64; 2]> {
-    let resamples = resamples.min(MAX_RESAMPLES);
-    let draws = (resamples as u64).checked_mul((x.len() + y.len()) as u64)?;
-    if x.is_empty() || y.is_empty() || resamples == 0 || draws > MAX_DRAWS {
-        return None;
-    }
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let (mut bx, mut by) = (vec![0.0; x.len()], vec![0.0; y.len()]);
-    let mut effects = Vec::with_capacity(resamples);
-    for _ in 0..resamples {
-        for v in bx.iter_mut() {
-            *v = x[rng.random_range(0..x.len())];
-        }
-        for v in by.iter_mut() {
-            *v = y[rng.random_range(0..y.len())];
-        }
-        if let (Some(a), Some(b)) = (statistic(&bx), statistic(&by)) {
-            effects.push(a - b);
-        }
-    }
-    percentile(&mut effects, confidence)
+    let mut values = replicates(&[x, y], resamples, seed, |r| {
+        statistic(&r[0]).zip(statistic(&r[1])).map(|(a, b)| a - b)
+    })?;
+    percentile(&mut values, confidence)
 }
 
 /// Percentile interval of `statistic` of one sample resampled with replacement (for paired
@@ -59,21 +43,37 @@ pub fn percentile_one(
     resamples: usize,
     seed: u64,
 ) -> Option<[f64; 2]> {
+    let mut values = replicates(&[x], resamples, seed, |r| statistic(&r[0]))?;
+    percentile(&mut values, confidence)
+}
+
+/// `value` of each of `resamples` resamplings of `samples` (each resampled with
+/// replacement on its own, in order, from one seeded generator). `None` when a sample is
+/// empty, there are no resamples, or the draws exceed [`MAX_DRAWS`].
+fn replicates(
+    samples: &[&[f64]],
+    resamples: usize,
+    seed: u64,
+    value: impl Fn(&[Vec<f64>]) -> Option<f64>,
+) -> Option<Vec<f64>> {
     let resamples = resamples.min(MAX_RESAMPLES);
-    let draws = (resamples as u64).checked_mul(x.len() as u64)?;
-    if x.is_empty() || resamples == 0 || draws > MAX_DRAWS {
+    let total: usize = samples.iter().map(|s| s.len()).sum();
+    let draws = (resamples as u64).checked_mul(total as u64)?;
+    if samples.iter().any(|s| s.is_empty()) || resamples == 0 || draws > MAX_DRAWS {
         return None;
     }
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let mut bx = vec![0.0; x.len()];
+    let mut drawn: Vec<Vec<f64>> = samples.iter().map(|s| vec![0.0; s.len()]).collect();
     let mut values = Vec::with_capacity(resamples);
     for _ in 0..resamples {
-        for v in bx.iter_mut() {
-            *v = x[rng.random_range(0..x.len())];
+        for (sample, out) in samples.iter().zip(drawn.iter_mut()) {
+            for v in out.iter_mut() {
+                *v = sample[rng.random_range(0..sample.len())];
+            }
         }
-        values.extend(statistic(&bx));
+        values.extend(value(&drawn));
     }
-    percentile(&mut values, confidence)
+    Some(values)
 }
 
 /// The `confidence` percentile interval of `values` (reordered).

@@ -399,6 +399,31 @@ fn cut_from_counts(counts: &[f64], confidence: f64) -> Option<(usize, f64)> {
     (k >= 1).then(|| (k, 1.0 - 2.0 * below / total))
 }
 
+/// The cut of the normal approximation: floor(mean - z sd) of the null statistic, when at
+/// least 1.
+fn normal_cut(mean: f64, sd: f64, confidence: f64) -> Option<(usize, f64)> {
+    let z = crate::stats::normal_quantile(0.5 + confidence / 2.0);
+    let k = (mean - z * sd).floor();
+    (k >= 1.0).then_some((k as usize, confidence))
+}
+
+/// The shift from its pairwise values (reordered), their median and the cut from each end;
+/// the coverage is reported for exact cuts only.
+fn shift_from(
+    values: &mut [f64],
+    estimate: f64,
+    cut: Option<(usize, f64)>,
+    method: PMethod,
+) -> Shift {
+    let m = values.len();
+    Shift {
+        estimate,
+        interval: cut.map(|(k, _)| [kth(values, k), kth(values, m + 1 - k)]),
+        coverage: cut.map(|c| c.1).filter(|_| method == PMethod::Exact),
+        method,
+    }
+}
+
 /// Two-sample Hodges-Lehmann shift of `x` against `y` (the median of all differences
 /// x_i - y_j) with its distribution-free `confidence` interval (Moses): the k-th smallest
 /// and k-th largest difference, k from the exact Mann-Whitney distribution where it is
@@ -422,18 +447,10 @@ pub fn shift_two_sample(x: &[f64], y: &[f64], confidence: f64) -> Option<Shift> 
         )
     } else {
         let (a, b) = (n1 as f64, n2 as f64);
-        let z = crate::stats::normal_quantile(0.5 + confidence / 2.0);
-        let k = (a * b / 2.0 - z * (a * b * (a + b + 1.0) / 12.0).sqrt()).floor();
-        let k = (k >= 1.0).then_some(k as usize);
-        (k.map(|k| (k, confidence)), PMethod::Normal)
+        let sd = (a * b * (a + b + 1.0) / 12.0).sqrt();
+        (normal_cut(a * b / 2.0, sd, confidence), PMethod::Normal)
     };
-    let interval = cut.map(|(k, _)| [kth(&mut d, k), kth(&mut d, m + 1 - k)]);
-    Some(Shift {
-        estimate,
-        interval,
-        coverage: cut.map(|c| c.1).filter(|_| method == PMethod::Exact),
-        method,
-    })
+    Some(shift_from(&mut d, estimate, cut, method))
 }
 
 /// One-sample (paired) Hodges-Lehmann shift of the differences `d`: the median of the Walsh
@@ -459,19 +476,13 @@ pub fn shift_paired(d: &[f64], confidence: f64) -> Option<Shift> {
         )
     } else {
         let nf = n as f64;
-        let z = crate::stats::normal_quantile(0.5 + confidence / 2.0);
-        let k = (nf * (nf + 1.0) / 4.0 - z * (nf * (nf + 1.0) * (2.0 * nf + 1.0) / 24.0).sqrt())
-            .floor();
-        let k = (k >= 1.0).then_some(k as usize);
-        (k.map(|k| (k, confidence)), PMethod::Normal)
+        let sd = (nf * (nf + 1.0) * (2.0 * nf + 1.0) / 24.0).sqrt();
+        (
+            normal_cut(nf * (nf + 1.0) / 4.0, sd, confidence),
+            PMethod::Normal,
+        )
     };
-    let interval = cut.map(|(k, _)| [kth(&mut walsh, k), kth(&mut walsh, m + 1 - k)]);
-    Some(Shift {
-        estimate,
-        interval,
-        coverage: cut.map(|c| c.1).filter(|_| method == PMethod::Exact),
-        method,
-    })
+    Some(shift_from(&mut walsh, estimate, cut, method))
 }
 
 /// How several p-values are adjusted together.
