@@ -293,29 +293,9 @@ pub fn compare(
     let fronts = fronts_csv
         .map(|t| read_table("fronts.csv", t))
         .transpose()?;
-    let mut reader = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .from_reader(recordings_csv.as_bytes());
-    let header: Vec<String> = reader
-        .headers()
-        .map_err(|e| StudyError::new(Place::file("recordings.csv"), e.to_string()))?
-        .iter()
-        .map(str::to_string)
-        .collect();
-    let col = |name: &str| -> Result<usize, StudyError> {
-        header
-            .iter()
-            .position(|h| h.eq_ignore_ascii_case(name))
-            .ok_or_else(|| {
-                StudyError::new(
-                    Place::file("recordings.csv").at_line(1),
-                    format!(
-                        "there is no column {name:?}; the columns are {}",
-                        header.join(", ")
-                    ),
-                )
-            })
-    };
+    let mut table = read_table("recordings.csv", recordings_csv)?;
+    let col = |name: &str| table.col(name);
+    let header = &table.header;
     let by = col(&settings.by)?;
     let unit = settings.unit.as_deref().map(col).transpose()?;
     let recording = col("recording")?;
@@ -334,16 +314,7 @@ pub fn compare(
             (Err(e), None) => Err(e),
         })
         .collect::<Result<_, _>>()?;
-    let mut rows: Vec<Vec<String>> = Vec::new();
-    for (k, r) in reader.records().enumerate() {
-        let r = r.map_err(|e| {
-            StudyError::new(
-                Place::file("recordings.csv").at_line(k as u64 + 2),
-                e.to_string(),
-            )
-        })?;
-        rows.push(r.iter().map(str::to_string).collect());
-    }
+    let mut rows = std::mem::take(&mut table.rows);
     let mut left_out = Vec::new();
     rows.retain(|r| {
         let ok = outcome.is_none_or(|o| r.get(o).is_some_and(|v| v == "analysed"));
