@@ -938,8 +938,10 @@ async function compareStudy(event) {
   const tables = await studyTables();
   const recordings = tables.files.find((x) => x[0] === 'recordings.csv')[1];
   const fronts = tables.files.find((x) => x[0] === 'fronts.csv')?.[1] ?? null;
-  const settings = { by: f.by.value, unit: f.unit.value || null, paired: f.paired.checked, adjustment: f.adjustment.value };
-  const compared = await call('compareStudy', { recordings, fronts, settings });
+  const bursts = tables.files.find((x) => x[0] === 'bursts.csv')?.[1] ?? null;
+  const metrics = f.metrics.value.split(',').map((m) => m.trim()).filter((m) => m);
+  const settings = { by: f.by.value, unit: f.unit.value || null, paired: f.paired.checked, adjustment: f.adjustment.value, metrics };
+  const compared = await call('compareStudy', { recordings, fronts, bursts, settings });
   state.comparison = compared;
   const r = compared.report;
   $('compare-text').textContent = `Conditions ${r.conditions.join(', ')} (${r.ordered ? 'ordered' : 'not ordered'}), `
@@ -961,6 +963,7 @@ async function compareStudy(event) {
       o.kind === 'computed' ? num(o.p) : '—', num(c.p_adjusted),
       o.kind === 'computed' ? (o.method === 'exact' ? 'exact' : 'normal approximation')
         : (o.kind === 'degenerate' ? `not tested: ${o.reason}` : `not tested: ${o.given} units, ${o.needed} needed`),
+      { units: 'one value per unit', nested_fronts: 'every front, nested (hierarchical bootstrap)', nested_bursts: 'every burst, nested (hierarchical bootstrap)' }[c.values],
     ];
     const tr = body.insertRow();
     for (const text of cells) tr.insertCell().textContent = text;
@@ -973,14 +976,18 @@ async function compareStudy(event) {
   showEstimation();
 }
 
+/** Shows the chosen metric's estimation plot, and its curve over the levels when ordered. */
 function showEstimation() {
-  const file = state.comparison?.files.find((x) => x[0] === `estimation-${$('compare-metric').value}.svg`);
-  const img = $('fig-estimation');
-  img.hidden = !file;
-  if (!file) return;
-  const old = img.src;
-  img.src = URL.createObjectURL(new Blob([file[1]], { type: 'image/svg+xml' }));
-  if (old.startsWith('blob:')) URL.revokeObjectURL(old);
+  const metric = $('compare-metric').value;
+  for (const [id, name] of [['fig-estimation', `estimation-${metric}.svg`], ['fig-levels', `levels-${metric}.svg`]]) {
+    const file = state.comparison?.files.find((x) => x[0] === name);
+    const img = $(id);
+    img.closest('figure').hidden = !file;
+    if (!file) continue;
+    const old = img.src;
+    img.src = URL.createObjectURL(new Blob([file[1]], { type: 'image/svg+xml' }));
+    if (old.startsWith('blob:')) URL.revokeObjectURL(old);
+  }
 }
 
 // ---------------------------------------------------------------- exports
@@ -1065,11 +1072,13 @@ function wire() {
     const file = state.comparison?.files.find((x) => x[0] === 'comparisons.csv');
     if (file) download('comparisons.csv', file[1], 'text/csv');
   });
-  $('estimation-save').addEventListener('click', () => {
-    const name = `estimation-${$('compare-metric').value}.svg`;
-    const file = state.comparison?.files.find((x) => x[0] === name);
-    if (file) download(name, file[1], 'image/svg+xml');
-  });
+  for (const [button, prefix] of [['estimation-save', 'estimation'], ['levels-save', 'levels']]) {
+    $(button).addEventListener('click', () => {
+      const name = `${prefix}-${$('compare-metric').value}.svg`;
+      const file = state.comparison?.files.find((x) => x[0] === name);
+      if (file) download(name, file[1], 'image/svg+xml');
+    });
+  }
   $('cancel-button').addEventListener('click', () => {
     setBusy(false);
     restartWorker('Cancelled; the files are still open, run the analysis again when ready.');

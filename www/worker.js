@@ -69,7 +69,7 @@ const ops = {
   failedStudyEntry: ({ manifest, row, message }) => core.failedStudyEntry(manifest, row, message),
   studyEntry: ({ manifest, row }) => need().studyEntry(manifest, row),
   combineStudy: ({ outputs }) => core.combineStudy(outputs),
-  compareStudy: ({ recordings, fronts, settings }) => core.compareStudy(recordings, fronts, settings),
+  compareStudy: ({ recordings, fronts, bursts, settings }) => core.compareStudy(recordings, fronts, bursts, settings),
   open: ({ activity, layout, settings }) => {
     workbook?.free();
     workbook = null;

@@ -699,17 +699,23 @@ pub fn combine_study(outputs: JsValue) -> Result<JsValue, JsValue> {
     })
 }
 
-/// Compares the conditions of a study from its `recordings.csv` text (as `ringline
-/// compare`): the report and its files (comparisons.csv and the figures).
+/// Compares the conditions of a study from its tables' text (`recordings.csv`, and
+/// `fronts.csv` and `bursts.csv` for metrics per event; as `ringline compare`): the report
+/// and its files (comparisons.csv and the figures).
 #[wasm_bindgen(js_name = compareStudy)]
 pub fn compare_study(
     recordings_csv: String,
     fronts_csv: Option<String>,
+    bursts_csv: Option<String>,
     options: JsValue,
 ) -> Result<JsValue, JsValue> {
     let options: crate::study::compare::CompareSettings = settings(options, "comparison settings")?;
-    let report = crate::study::compare::compare(&recordings_csv, fronts_csv.as_deref(), &options)
-        .map_err(|e| message(&e))?;
+    let texts = crate::study::compare::StudyTexts {
+        recordings: &recordings_csv,
+        fronts: fronts_csv.as_deref(),
+        bursts: bursts_csv.as_deref(),
+    };
+    let report = crate::study::compare::compare(texts, &options).map_err(|e| message(&e))?;
     #[derive(Serialize)]
     struct Compared {
         report: crate::study::compare::CompareReport,

@@ -488,6 +488,77 @@ test('a study of 6 recordings dropped with its manifest gives the command line\'
   await context.close();
 });
 
+test('an ordered calcium series compared in the page shows its rising speed, as the command line', async () => {
+  // Nine simulated strips: three calcium levels (the column calcium_mM, so ordered), three
+  // cultures each with its own speed factor. Truth: front speeds 25, 32 and 40 mm/s times
+  // the culture's factor, so the level effects are near 7 and 15 mm/s.
+  const dir = mkdtempSync(join(tmpdir(), 'ringline-calcium-'));
+  const levels = [['0.5', 25], ['1', 32], ['2', 40]];
+  const factors = [0.94, 1.0, 1.05];
+  let manifest = 'recording,data,layout,culture,calcium_mM\n';
+  const files = [];
+  levels.forEach(([level, speed], l) => {
+    factors.forEach((factor, c) => {
+      const name = `ca${l}-c${c}`;
+      const scenario = join(dir, `${name}.json`);
+      writeFileSync(scenario, JSON.stringify({
+        model: 'fronts', name, seed: 10 * l + c + 1, duration_s: 60,
+        electrodes: { shape: 'row', count: 16, pitch_um: 375, angle_deg: 0 },
+        pattern: 'mixed', min_interval_s: 4, extra_interval_s: 6, speed_mm_s: speed * factor, speed_cv: 0.1,
+        activation_jitter_s: 0.002, spikes_per_burst: 6, burst_spread_s: 0.02, background_rate_hz: 0.3,
+        failure_probability: 0.1, sampling_rate_hz: 25000,
+      }));
+      execFileSync(cli, ['simulate', scenario, '--out', join(dir, name)], { stdio: 'ignore' });
+      for (const kind of ['spikes', 'layout']) {
+        writeFileSync(join(dir, `${name}-${kind}.csv`), readFileSync(join(dir, name, `${kind}.csv`)));
+        files.push({ name: `${name}-${kind}.csv`, path: join(dir, `${name}-${kind}.csv`) });
+      }
+      manifest += `${name},${name}-spikes.csv,${name}-layout.csv,culture ${l}-${c},${level}\n`;
+    });
+  });
+  writeFileSync(join(dir, 'study.csv'), manifest);
+  const metrics = 'median_speed_mm_s,speed_mm_s';
+  execFileSync(cli, ['compare', 'study.csv', '--out', 'cli', '--by', 'calcium_mM', '--unit', 'culture', '--metrics', metrics],
+    { cwd: dir, stdio: 'ignore' });
+
+  const { page, context, errors } = await openPage(base);
+  await dropFiles(page, [{ name: 'study.csv', text: manifest }, ...files]);
+  await page.locator('#study').waitFor({ state: 'visible' });
+  await page.click('#study-run');
+  await page.waitForFunction(() => !document.getElementById('study-save').disabled, null, { timeout: 120000 });
+  await page.selectOption('#compare-form select[name="by"]', 'calcium_mM');
+  await page.selectOption('#compare-form select[name="unit"]', 'culture');
+  await page.fill('#compare-form input[name="metrics"]', metrics);
+  await page.click('#compare-button');
+  await page.locator('#fig-levels').waitFor({ state: 'visible' });
+  assert.match(await page.textContent('#compare-text'), /^Conditions 0\.5, 1, 2 \(ordered\)/);
+  const compared = await page.evaluate(() => window.ringline.state.comparison);
+  const files2 = Object.fromEntries(compared.files);
+  for (const name of ['comparisons.csv', 'estimation-median_speed_mm_s.svg', 'levels-median_speed_mm_s.svg', 'levels-speed_mm_s.svg']) {
+    assert.equal(files2[name], readFileSync(join(dir, 'cli', name), 'utf8'), `${name} differs from ringline compare`);
+  }
+  // The ordered change against the truth: both effects positive and rising, each interval
+  // holding its true difference, and the trend test's exact p small (3 ordered groups of 3:
+  // a perfect order has two-sided p 2/1680; Jonckheere 1954).
+  const speed = compared.report.comparisons.filter((c) => c.metric === 'median_speed_mm_s');
+  const truth = [32 - 25, 40 - 25];
+  for (const [k, c] of speed.slice(0, 2).entries()) {
+    assert.ok(c.effect_ci[0] <= truth[k] && truth[k] <= c.effect_ci[1], `${c.effect} ${c.effect_ci} against ${truth[k]}`);
+  }
+  assert.ok(speed[1].effect > speed[0].effect && speed[0].effect > 0);
+  assert.equal(speed[2].test, 'jonckheere_terpstra');
+  assert.ok(speed[2].outcome.p < 0.01, `trend p ${speed[2].outcome.p}`);
+  const fronts = compared.report.comparisons.filter((c) => c.metric === 'speed_mm_s');
+  assert.equal(fronts[0].values, 'nested_fronts');
+  assert.match(await page.textContent('#compare-table'), /every front, nested/);
+  await page.selectOption('#compare-metric', 'speed_mm_s');
+  await shoot(page, '9c-calcium-series');
+  const svg = await downloadText(page, '#levels-save');
+  assert.equal(svg, files2['levels-speed_mm_s.svg']);
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
 test('a notebook of schema 1 (the previous version) opens with its settings and results', async () => {
   const fixture = join(repo, 'tests/fixtures/notebook-schema-1.ringline.json');
   const old = JSON.parse(readFileSync(fixture, 'utf8'));

@@ -42,8 +42,8 @@ enum Command {
     Batch(BatchArgs),
     /// Join the output folders of `batch --shard` runs into the study's tables.
     Combine(CombineArgs),
-    /// Compare the conditions of a study (the folder `batch` or `combine` wrote): every
-    /// metric's effect with its 95% interval at the level of the replication unit, then the
+    /// Compare the conditions of a study (the folder `batch` or `combine` wrote, or a
+    /// manifest, analysed first): every metric's effect with its 95% interval at the level of the replication unit, then the
     /// test; writes comparisons.csv.
     Compare(CompareArgs),
     /// Simulate a recording with known fronts from a scenario file (JSON); write spikes.csv,
@@ -107,7 +107,8 @@ struct CombineArgs {
 #[derive(Args, Debug)]
 struct CompareArgs {
     /// A study folder written by `ringline batch` or `ringline combine` (with recordings.csv),
-    /// or its recordings.csv.
+    /// its recordings.csv, or a study manifest: its recordings are analysed first (as
+    /// `batch`, into --out) and then compared.
     study: String,
     /// The manifest column that names the condition.
     #[arg(long)]
@@ -118,21 +119,28 @@ struct CompareArgs {
     /// The same units were recorded in every condition (paired differences).
     #[arg(long)]
     paired: bool,
-    /// Metrics to compare (columns of recordings.csv, or of fronts.csv such as speed_mm_s
-    /// for every front, nested in recordings and units; comma-separated) [default: median
-    /// speed, direction balance, burst rate, interburst interval and its CV, share reaching
-    /// the end, mean STTC, Kuramoto R].
+    /// Metrics to compare, comma-separated: columns of recordings.csv (one value per
+    /// recording), of fronts.csv such as speed_mm_s (every front) or of bursts.csv such as
+    /// recruit_90_ms (every burst), the last two nested in recordings and units [default:
+    /// median speed, direction balance, burst rate, interburst interval and its CV, share
+    /// reaching the end, mean STTC, Kuramoto R].
     #[arg(long, value_delimiter = ',')]
     metrics: Vec<String>,
     /// Multiplicity adjustment over all comparisons.
     #[arg(long, value_enum, default_value = "holm")]
     adjust: AdjustArg,
-    /// Folder for comparisons.csv [default: the study folder].
+    /// Folder for comparisons.csv and the figures [default: the study folder]; for a
+    /// manifest, also the study's files (required).
     #[arg(long, value_name = "DIR")]
     out: Option<String>,
     /// Print one JSON document on stdout instead of text.
     #[arg(long)]
     json: bool,
+    /// Recordings analysed at once when STUDY is a manifest [default: one per core].
+    #[arg(long, value_name = "N")]
+    jobs: Option<usize>,
+    #[command(flatten, next_help_heading = "Analysis (when STUDY is a manifest)")]
+    pipeline: PipelineArgs,
 }
 
 #[derive(clap::ValueEnum, Clone, Copy, Debug)]
@@ -143,15 +151,49 @@ enum AdjustArg {
     Bh,
 }
 
+/// Whether a CSV file is a study manifest (it names each recording's data file) rather than
+/// a study's recordings.csv (which has an outcome per recording).
+fn is_manifest(path: &std::path::Path) -> bool {
+    let Ok(text) = std::fs::read(path) else {
+        return false;
+    };
+    let mut reader = csv::ReaderBuilder::new()
+        .comment(Some(b'#'))
+        .from_reader(text.as_slice());
+    reader.headers().is_ok_and(|h| {
+        let has = |name: &str| h.iter().any(|c| c.trim().eq_ignore_ascii_case(name));
+        has("data") && !has("outcome")
+    })
+}
+
 fn compare(args: &CompareArgs) -> Result<i32, Failure> {
     let path = std::path::Path::new(&args.study);
-    let (table, folder) = if path.is_dir() {
-        (path.join("recordings.csv"), path.to_path_buf())
+    // The study's recordings.csv, the folder it lies in, and the batch run's exit code.
+    let (table, folder, analysed) = if path.is_dir() {
+        (path.join("recordings.csv"), path.to_path_buf(), 0)
+    } else if is_manifest(path) {
+        let Some(out) = &args.out else {
+            return Err(Failure::Input(format!(
+                "{}: a manifest is analysed before its conditions are compared; give --out DIR for the study's files",
+                args.study
+            )));
+        };
+        if args.jobs == Some(0) {
+            return Err(Failure::Input("--jobs: expected at least 1".into()));
+        }
+        let code = batch::batch(&batch::BatchJob {
+            manifest_path: args.study.clone(),
+            out: out.clone(),
+            settings: args.pipeline.settings()?,
+            wav_uv_per_unit: args.pipeline.voltage.uv_per_unit,
+            shard: None,
+            jobs: args.jobs,
+        })?;
+        let folder = std::path::PathBuf::from(out);
+        (folder.join("recordings.csv"), folder, code)
     } else {
-        (
-            path.to_path_buf(),
-            path.parent().map(|p| p.to_path_buf()).unwrap_or_default(),
-        )
+        let folder = path.parent().map(|p| p.to_path_buf()).unwrap_or_default();
+        (path.to_path_buf(), folder, 0)
     };
     let text = read_text(&table.to_string_lossy(), "study table")?;
     let settings = crate::study::compare::CompareSettings {
@@ -165,14 +207,20 @@ fn compare(args: &CompareArgs) -> Result<i32, Failure> {
         },
         ..Default::default()
     };
-    // Metrics per front (speed_mm_s, ...) come from the study's fronts.csv beside it.
-    let fronts_path = table.with_file_name("fronts.csv");
-    let fronts = if fronts_path.is_file() {
-        Some(read_text(&fronts_path.to_string_lossy(), "study table")?)
-    } else {
-        None
+    // Metrics per front or burst come from the study's tables beside recordings.csv.
+    let beside = |name: &str| -> Result<Option<String>, Failure> {
+        let p = table.with_file_name(name);
+        p.is_file()
+            .then(|| read_text(&p.to_string_lossy(), "study table"))
+            .transpose()
     };
-    let report = crate::study::compare::compare(&text, fronts.as_deref(), &settings)
+    let (fronts, bursts) = (beside("fronts.csv")?, beside("bursts.csv")?);
+    let texts = crate::study::compare::StudyTexts {
+        recordings: &text,
+        fronts: fronts.as_deref(),
+        bursts: bursts.as_deref(),
+    };
+    let report = crate::study::compare::compare(texts, &settings)
         .map_err(|e| Failure::Input(e.to_string()))?;
     let out = args.out.as_ref().map_or(folder, std::path::PathBuf::from);
     std::fs::create_dir_all(&out).map_err(Failure::Output)?;
@@ -187,7 +235,9 @@ fn compare(args: &CompareArgs) -> Result<i32, Failure> {
     }
     let names: Vec<&str> = files.iter().map(|f| f.0.as_str()).collect();
     eprintln!("wrote {} to {}", names.join(", "), out.display());
-    Ok(0)
+    // Recordings that failed are left out of the comparison (and listed); the exit code
+    // still says so.
+    Ok(analysed)
 }
 
 /// Every setting of one recording's path from files to results (analyze and batch).

@@ -15,8 +15,9 @@ use crate::study::compare::{CompareReport, TestKind};
 /// An axis label with its unit for the metrics of recordings.csv (the column name as is
 /// for others; their unit is in the name).
 pub fn metric_label(metric: &str) -> String {
-    match metric {
+    let known = match metric {
         "median_speed_mm_s" => "median front speed (mm/s)",
+        "speed_mm_s" => "front speed (mm/s)",
         "direction_first_fraction" => "share of fronts in the first direction",
         "burst_rate_per_min" => "bursts per minute",
         "ibi_median_s" => "median interburst interval (s)",
@@ -24,9 +25,37 @@ pub fn metric_label(metric: &str) -> String {
         "reaching_end_fraction" => "share of fronts reaching the end",
         "mean_sttc" => "mean STTC (no unit)",
         "kuramoto_r" => "Kuramoto R (no unit)",
-        other => other,
+        "recruit_10_ms" | "recruit_50_ms" | "recruit_90_ms" => {
+            return format!(
+                "time to recruit {}% of the active sites (ms)",
+                &metric["recruit_".len()..metric.len() - 3]
+            )
+        }
+        _ => "",
+    };
+    if !known.is_empty() {
+        return known.to_string();
     }
-    .to_string()
+    // Any other column: its words, and the unit its name ends with.
+    const UNITS: [(&str, &str); 9] = [
+        ("_mm_s", "mm/s"),
+        ("_per_min", "per minute"),
+        ("_ms", "ms"),
+        ("_um", "µm"),
+        ("_mm", "mm"),
+        ("_hz", "Hz"),
+        ("_s", "s"),
+        ("_fraction", "share"),
+        ("_count", "count"),
+    ];
+    let lower = metric.to_ascii_lowercase();
+    match UNITS.iter().find(|(suffix, _)| lower.ends_with(suffix)) {
+        Some((suffix, unit)) => format!(
+            "{} ({unit})",
+            metric[..metric.len() - suffix.len()].replace('_', " ")
+        ),
+        None => metric.replace('_', " "),
+    }
 }
 
 /// One condition's unit values.
@@ -66,8 +95,8 @@ pub fn estimation_plot(
             v
         }));
     let (y0, y1) = padded(values).ok_or_else(|| empty("no values"))?;
-    // Room above for the legend.
-    let y1 = y1 + 0.35 * (y1 - y0);
+    // Room above for the legend (4 rows: about a quarter of the plot's height).
+    let y1 = y1 + 0.45 * (y1 - y0);
     let names: Vec<String> = conditions
         .iter()
         .map(|c| format!("{} (n = {})", c.name, c.units.len()))
@@ -119,16 +148,24 @@ pub fn estimation_plot(
         }
         plot.circle(x, reference + e.effect, 4.0, VERMILLION, true);
     }
-    plot.legend(&[
-        ("replication unit", BLUE, LegendMark::Dot),
-        ("median of the units", BLACK, LegendMark::Line),
-        ("reference median", GREY, LegendMark::Dashed),
-        (
-            "difference from the reference, 95% CI",
-            VERMILLION,
-            LegendMark::Line,
-        ),
-    ]);
+    // The legend goes in the top corner over the lower end of the data.
+    let end_median = |c: Option<&ConditionUnits>| {
+        c.and_then(|c| median(&c.units.iter().map(|u| u.1).collect::<Vec<_>>()))
+    };
+    let left = end_median(conditions.first()) < end_median(conditions.last());
+    plot.legend_in(
+        &[
+            ("replication unit", BLUE, LegendMark::Dot),
+            ("median of the units", BLACK, LegendMark::Line),
+            ("reference median", GREY, LegendMark::Dashed),
+            (
+                "difference from the reference, 95% CI",
+                VERMILLION,
+                LegendMark::Line,
+            ),
+        ],
+        left,
+    );
     Ok(Figure {
         svg: plot.finish(),
         width_px: size.width_px,

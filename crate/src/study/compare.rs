@@ -32,7 +32,8 @@ pub struct CompareSettings {
     pub unit: Option<String>,
     /// The same units in every condition: paired differences.
     pub paired: bool,
-    /// Metrics (columns of recordings.csv); empty: [`DEFAULT_METRICS`].
+    /// Metrics (columns of recordings.csv, fronts.csv or bursts.csv); empty:
+    /// [`DEFAULT_METRICS`].
     pub metrics: Vec<String>,
     pub adjustment: Adjustment,
     pub confidence: f64,
@@ -122,6 +123,8 @@ pub enum ValueLevel {
     /// medians with a hierarchical bootstrap interval (Saravanan et al. 2020); the shift
     /// and the test still use one value per unit.
     NestedFronts,
+    /// Every burst, nested likewise.
+    NestedBursts,
 }
 
 impl ValueLevel {
@@ -131,15 +134,23 @@ impl ValueLevel {
             ValueLevel::NestedFronts => {
                 "fronts nested in recordings and units (hierarchical bootstrap)"
             }
+            ValueLevel::NestedBursts => {
+                "bursts nested in recordings and units (hierarchical bootstrap)"
+            }
         }
     }
 }
 
 /// Where a metric's values come from.
 enum Source {
+    /// A column of recordings.csv.
     Recordings(usize),
-    Fronts(usize),
+    /// A column of the n-th table per event (fronts.csv, bursts.csv).
+    Nested(usize, usize),
 }
+
+/// One condition's (unit, value) pairs.
+type UnitValues = Vec<(String, f64)>;
 
 /// A table of the study, read whole.
 struct Table {
@@ -188,7 +199,7 @@ fn read_table(name: &'static str, text: &str) -> Result<Table, StudyError> {
 }
 
 /// Per condition: the units' names and their values nested as units -> recordings -> fronts,
-/// from the fronts table (which carries the manifest's columns).
+/// from a table per event (fronts.csv or bursts.csv, which carry the manifest's columns).
 fn nested_values(
     fronts: &Table,
     metric: usize,
@@ -214,12 +225,7 @@ fn nested_values(
                 .iter()
                 .filter(|r| &r[by] == c && analysed.contains(&&r[recording]))
             {
-                let Some(v) = r[metric]
-                    .trim()
-                    .parse::<f64>()
-                    .ok()
-                    .filter(|v| v.is_finite())
-                else {
+                let Some(v) = finite(&r[metric]) else {
                     continue;
                 };
                 let u = unit.map_or_else(|| r[recording].clone(), |k| r[k].clone());
@@ -282,18 +288,27 @@ fn has_unit(name: &str) -> bool {
         .any(|u| lower.ends_with(u))
 }
 
-/// Compares the conditions of a study's `recordings.csv` (its text). Metrics not in it are
-/// looked up in `fronts.csv` (one value per front), and compared with the fronts nested in
-/// recordings and units.
-pub fn compare(
-    recordings_csv: &str,
-    fronts_csv: Option<&str>,
-    settings: &CompareSettings,
-) -> Result<CompareReport, StudyError> {
-    let fronts = fronts_csv
-        .map(|t| read_table("fronts.csv", t))
-        .transpose()?;
-    let mut table = read_table("recordings.csv", recordings_csv)?;
+/// The study's tables as text, as `batch` or `combine` wrote them. `fronts` and `bursts`
+/// are needed only for metrics measured per front or per burst.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct StudyTexts<'a> {
+    pub recordings: &'a str,
+    pub fronts: Option<&'a str>,
+    pub bursts: Option<&'a str>,
+}
+
+/// Compares the conditions of a study. Metrics are looked up in `recordings.csv` first (one
+/// value per recording), then in `fronts.csv` (one per front) and `bursts.csv` (one per
+/// burst); the last two are compared with the events nested in recordings and units.
+pub fn compare(texts: StudyTexts, settings: &CompareSettings) -> Result<CompareReport, StudyError> {
+    let mut nested_tables: Vec<(Table, ValueLevel)> = Vec::new();
+    if let Some(t) = texts.fronts {
+        nested_tables.push((read_table("fronts.csv", t)?, ValueLevel::NestedFronts));
+    }
+    if let Some(t) = texts.bursts {
+        nested_tables.push((read_table("bursts.csv", t)?, ValueLevel::NestedBursts));
+    }
+    let mut table = read_table("recordings.csv", texts.recordings)?;
     let col = |name: &str| table.col(name);
     let header = &table.header;
     let by = col(&settings.by)?;
@@ -305,13 +320,23 @@ pub fn compare(
     } else {
         settings.metrics.clone()
     };
-    // Each metric from recordings.csv, or else from fronts.csv (one value per front).
+    // Each metric from recordings.csv, or else from the first table per event that has it.
     let sources: Vec<Source> = metrics
         .iter()
-        .map(|m| match (col(m), fronts.as_ref()) {
-            (Ok(c), _) => Ok(Source::Recordings(c)),
-            (Err(e), Some(f)) => f.find(m).map(Source::Fronts).ok_or(e),
-            (Err(e), None) => Err(e),
+        .map(|m| {
+            col(m).map(Source::Recordings).or_else(|e| {
+                nested_tables
+                    .iter()
+                    .enumerate()
+                    .find_map(|(t, (table, _))| table.find(m).map(|c| Source::Nested(t, c)))
+                    .ok_or_else(|| {
+                        let mut message = e.message;
+                        for (t, _) in &nested_tables {
+                            message.push_str(&format!("; {} has {}", t.name, t.header.join(", ")));
+                        }
+                        StudyError::new(*e.place, message)
+                    })
+            })
         })
         .collect::<Result<_, _>>()?;
     let mut rows = std::mem::take(&mut table.rows);
@@ -351,92 +376,85 @@ pub fn compare(
     let mut units = Vec::new();
     let analysed: Vec<&String> = rows.iter().map(|r| &r[recording]).collect();
     for (metric, source) in metrics.iter().zip(&sources) {
-        let mc = match *source {
-            Source::Recordings(c) => c,
-            Source::Fronts(c) => {
-                let f = fronts
-                    .as_ref()
-                    .ok_or_else(|| StudyError::new(Place::file("fronts.csv"), "no fronts table"))?;
-                let nested = nested_values(f, c, settings, &conditions, &analysed)?;
-                let per_condition: Vec<Vec<(String, f64)>> = nested
-                    .iter()
-                    .map(|(names, cultures)| {
-                        names
-                            .iter()
-                            .zip(cultures)
-                            .filter_map(|(u, recs)| {
-                                let all: Vec<f64> = recs.iter().flatten().copied().collect();
-                                median(&all).map(|m| (u.clone(), m))
-                            })
-                            .collect()
-                    })
-                    .collect();
-                for k in 1..conditions.len() {
-                    let mut c = pairwise(
-                        metric,
-                        (&conditions[0], &per_condition[0]),
-                        (&conditions[k], &per_condition[k]),
-                        settings,
-                        (k * 1000 + comparisons.len()) as u64,
-                    );
-                    if !settings.paired {
-                        let pooled = |n: &Nested| {
-                            median(&n.iter().flatten().flatten().copied().collect::<Vec<_>>())
-                        };
-                        c.effect = pooled(&nested[k].1)
-                            .zip(pooled(&nested[0].1))
-                            .map(|(a, b)| a - b);
-                        c.effect_ci = hierarchical_median_difference(
-                            &nested[k].1,
-                            &nested[0].1,
-                            settings.confidence,
-                            settings.resamples,
-                            settings.seed ^ (k as u64 * 7919),
-                        );
-                        c.values = ValueLevel::NestedFronts;
-                    }
-                    comparisons.push(c);
+        // Per condition: each unit's value (the median of its recordings' values, or of all
+        // its events), and for events the values nested as units -> recordings -> events.
+        let (per_condition, nested): (Vec<UnitValues>, Option<(Vec<Nested>, ValueLevel)>) =
+            match *source {
+                Source::Recordings(mc) => {
+                    let per_condition = conditions
+                        .iter()
+                        .map(|c| {
+                            let mut units: Vec<(String, Vec<f64>)> = Vec::new();
+                            for r in rows.iter().filter(|r| &r[by] == c) {
+                                let Some(v) = finite(&r[mc]) else { continue };
+                                let u = unit_of(r);
+                                match units.iter_mut().find(|x| x.0 == u) {
+                                    Some(x) => x.1.push(v),
+                                    None => units.push((u, vec![v])),
+                                }
+                            }
+                            units
+                                .into_iter()
+                                .filter_map(|(u, v)| median(&v).map(|m| (u, m)))
+                                .collect()
+                        })
+                        .collect();
+                    (per_condition, None)
                 }
-                units.push(MetricUnits {
-                    metric: metric.clone(),
-                    conditions: per_condition,
-                });
-                continue;
-            }
-        };
-        // Per condition: unit -> median of its recordings' values.
-        let per_condition: Vec<Vec<(String, f64)>> = conditions
-            .iter()
-            .map(|c| {
-                let mut units: Vec<(String, Vec<f64>)> = Vec::new();
-                for r in rows.iter().filter(|r| &r[by] == c) {
-                    let Some(v) = r[mc].trim().parse::<f64>().ok().filter(|v| v.is_finite()) else {
-                        continue;
-                    };
-                    let u = unit_of(r);
-                    match units.iter_mut().find(|x| x.0 == u) {
-                        Some(x) => x.1.push(v),
-                        None => units.push((u, vec![v])),
-                    }
+                Source::Nested(t, c) => {
+                    let (table, level) = &nested_tables[t];
+                    let nested = nested_values(table, c, settings, &conditions, &analysed)?;
+                    let per_condition = nested
+                        .iter()
+                        .map(|(names, cultures)| {
+                            names
+                                .iter()
+                                .zip(cultures)
+                                .filter_map(|(u, recs)| {
+                                    let all: Vec<f64> = recs.iter().flatten().copied().collect();
+                                    median(&all).map(|m| (u.clone(), m))
+                                })
+                                .collect()
+                        })
+                        .collect();
+                    (
+                        per_condition,
+                        Some((nested.into_iter().map(|x| x.1).collect(), *level)),
+                    )
                 }
-                units
-                    .into_iter()
-                    .filter_map(|(u, v)| median(&v).map(|m| (u, m)))
-                    .collect()
-            })
-            .collect();
-        let values = |k: usize| -> Vec<f64> { per_condition[k].iter().map(|x| x.1).collect() };
+            };
         for k in 1..conditions.len() {
-            comparisons.push(pairwise(
+            let mut c = pairwise(
                 metric,
                 (&conditions[0], &per_condition[0]),
                 (&conditions[k], &per_condition[k]),
                 settings,
                 (k * 1000 + comparisons.len()) as u64,
-            ));
+            );
+            // Events nested in independent units: the pooled medians' difference with a
+            // hierarchical bootstrap interval (paired designs keep the paired differences).
+            if let Some((nested, level)) = nested.as_ref().filter(|_| !settings.paired) {
+                let pooled =
+                    |n: &Nested| median(&n.iter().flatten().flatten().copied().collect::<Vec<_>>());
+                c.effect = pooled(&nested[k])
+                    .zip(pooled(&nested[0]))
+                    .map(|(a, b)| a - b);
+                c.effect_ci = hierarchical_median_difference(
+                    &nested[k],
+                    &nested[0],
+                    settings.confidence,
+                    settings.resamples,
+                    settings.seed ^ (k as u64 * 7919),
+                );
+                c.values = *level;
+            }
+            comparisons.push(c);
         }
         if ordered && conditions.len() >= 3 {
-            let groups: Vec<Vec<f64>> = (0..conditions.len()).map(values).collect();
+            let groups: Vec<Vec<f64>> = per_condition
+                .iter()
+                .map(|g| g.iter().map(|x| x.1).collect())
+                .collect();
             let last = conditions.len() - 1;
             comparisons.push(Comparison {
                 metric: metric.clone(),
@@ -482,6 +500,11 @@ pub fn compare(
         units,
         left_out,
     })
+}
+
+/// A table cell as a finite number.
+fn finite(cell: &str) -> Option<f64> {
+    cell.trim().parse::<f64>().ok().filter(|v| v.is_finite())
 }
 
 /// One condition against the reference, from (unit, value) lists.
