@@ -26,6 +26,44 @@ fn comparisons(path: &std::path::Path) -> (csv::StringRecord, Vec<csv::StringRec
     (header, reader.records().map(Result::unwrap).collect())
 }
 
+/// `ringline compare STUDY --out OUT --by calcium_mM --unit culture --metrics METRICS`
+/// (and `extra`) in `dir`, which must succeed: its stdout.
+fn run_compare(
+    dir: &std::path::Path,
+    study: &str,
+    out: &str,
+    metrics: &str,
+    extra: &[&str],
+) -> Vec<u8> {
+    let mut args = vec![
+        "compare",
+        study,
+        "--out",
+        out,
+        "--by",
+        "calcium_mM",
+        "--unit",
+        "culture",
+        "--metrics",
+        metrics,
+    ];
+    args.extend(extra);
+    let output = common::ringline(&args, dir);
+    assert_eq!(
+        output.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+    output.stdout
+}
+
+/// The study in `dir/study` compared on one metric, into `dir/METRIC/`: its comparisons.csv.
+fn compare_one(dir: &std::path::Path, metric: &str) -> (csv::StringRecord, Vec<csv::StringRecord>) {
+    run_compare(dir, "study", metric, metric, &[]);
+    comparisons(&dir.join(metric).join("comparisons.csv"))
+}
+
 #[test]
 fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     let dir = std::env::temp_dir().join(format!("ringline-compare-{}", std::process::id()));
@@ -55,29 +93,15 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     }
     std::fs::write(dir.join("study.csv"), manifest).unwrap();
     // From the manifest: the recordings are analysed into `study` and then compared.
-    let out = common::ringline(
-        &[
-            "compare",
-            "study.csv",
-            "--out",
-            "study",
-            "--by",
-            "calcium_mM",
-            "--unit",
-            "culture",
-            "--metrics",
-            "median_speed_mm_s,burst_rate_per_min",
-        ],
+    let stdout = run_compare(
         &dir,
-    );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
+        "study.csv",
+        "study",
+        "median_speed_mm_s,burst_rate_per_min",
+        &[],
     );
     assert!(dir.join("study/recordings/ca0-c0-r0/fronts.csv").is_file());
-    let text = String::from_utf8_lossy(&out.stdout);
+    let text = String::from_utf8_lossy(&stdout);
     eprintln!("{text}");
     assert!(text.contains("0.5, 1, 2 (ordered)"), "{text}");
     let (header, rows) = comparisons(&dir.join("study/comparisons.csv"));
@@ -129,28 +153,7 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     assert!(levels.contains("median with quartiles") && levels.contains("calcium_mM"));
     // Every front's speed, nested in recordings and cultures (from fronts.csv): the effect
     // is the difference of pooled medians with a hierarchical bootstrap interval.
-    let out = common::ringline(
-        &[
-            "compare",
-            "study",
-            "--by",
-            "calcium_mM",
-            "--unit",
-            "culture",
-            "--metrics",
-            "speed_mm_s",
-            "--out",
-            "fronts",
-        ],
-        &dir,
-    );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let (header, nested) = comparisons(&dir.join("fronts/comparisons.csv"));
+    let (header, nested) = compare_one(&dir, "speed_mm_s");
     let col = |name: &str| header.iter().position(|h| h == name).unwrap();
     for (row, truth) in nested[..2].iter().zip([32.0 - 25.0, 40.0 - 25.0]) {
         assert!(row[col("values")].starts_with("fronts nested"), "{:?}", row);
@@ -167,28 +170,7 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     // recruitment of a front crossing the 16-site strip from an end takes 14 pitches of
     // 375 um at the front's speed, one from the middle about half that, so going from 25 to
     // 40 mm/s shortens it by between 39 and 79 ms (fronts from the middle and from the ends).
-    let out = common::ringline(
-        &[
-            "compare",
-            "study",
-            "--by",
-            "calcium_mM",
-            "--unit",
-            "culture",
-            "--metrics",
-            "recruit_90_ms",
-            "--out",
-            "bursts",
-        ],
-        &dir,
-    );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let (header, per_burst) = comparisons(&dir.join("bursts/comparisons.csv"));
+    let (header, per_burst) = compare_one(&dir, "recruit_90_ms");
     let col = |name: &str| header.iter().position(|h| h == name).unwrap();
     let end_to_end = |speed: f64| 14.0 * 0.375 / speed * 1000.0;
     let (slowest, fastest) = (
@@ -206,7 +188,8 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
         lo <= fastest && hi >= slowest && hi < 0.0,
         "{effect} [{lo}, {hi}]"
     );
-    let figure = std::fs::read_to_string(dir.join("bursts/estimation-recruit_90_ms.svg")).unwrap();
+    let figure =
+        std::fs::read_to_string(dir.join("recruit_90_ms/estimation-recruit_90_ms.svg")).unwrap();
     assert!(figure.contains("time to recruit 90% of the active sites (ms)"));
     let trend = &per_burst[2];
     assert_eq!(&trend[col("test")], "Jonckheere-Terpstra trend");
@@ -214,24 +197,8 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
     // the trend over 12 cultures is weaker than the speed's (p 0.02 with this seed).
     assert!(trend[col("p")].parse::<f64>().unwrap() < 0.05);
     // --json: the same comparisons as one document.
-    let out = common::ringline(
-        &[
-            "compare",
-            "study",
-            "--by",
-            "calcium_mM",
-            "--unit",
-            "culture",
-            "--metrics",
-            "median_speed_mm_s",
-            "--json",
-            "--out",
-            "json",
-        ],
-        &dir,
-    );
-    assert_eq!(out.status.code(), Some(0));
-    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let stdout = run_compare(&dir, "study", "json", "median_speed_mm_s", &["--json"]);
+    let json: serde_json::Value = serde_json::from_slice(&stdout).unwrap();
     assert_eq!(json["ordered"], true);
     assert_eq!(json["comparisons"][2]["test"], "jonckheere_terpstra");
     assert_eq!(json["comparisons"][2]["outcome"]["kind"], "computed");
