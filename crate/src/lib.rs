@@ -38,6 +38,7 @@ pub mod import;
 pub mod place;
 pub mod recording;
 pub mod report;
+pub mod response;
 pub mod rhythm;
 pub mod simulate;
 pub mod stats;

@@ -3,7 +3,7 @@
 //! Units: time in seconds, positions in micrometres, in the layout's own axes.
 
 use crate::place::Notice;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// A recording site: an electrode or an ROI, with its position.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -68,6 +68,8 @@ pub struct Recording {
     pub metadata: Metadata,
     /// What the user should know (from the importers and from matching the files).
     pub notices: Vec<Notice>,
+    /// The stimuli given during the recording, when a protocol came with it.
+    pub stimuli: Option<StimulusProtocol>,
 }
 
 impl Recording {
@@ -108,4 +110,66 @@ pub fn trains_span_s(trains_s: &[Vec<f64>]) -> Option<(f64, f64)> {
         .copied()
         .reduce(f64::max)?;
     Some((first, last))
+}
+
+/// The unit of a stimulus amplitude, as its column names it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum AmplitudeUnit {
+    Volt,
+    Millivolt,
+    VoltPerMetre,
+    Microampere,
+    Milliampere,
+}
+
+impl AmplitudeUnit {
+    /// Reads a unit as written after `amplitude_` or inside brackets.
+    pub fn parse(text: &str) -> Option<AmplitudeUnit> {
+        let t = text.trim();
+        Some(match t {
+            "V" | "v" => AmplitudeUnit::Volt,
+            "mV" | "mv" => AmplitudeUnit::Millivolt,
+            _ => match t.to_lowercase().as_str() {
+                "v/m" | "v_per_m" | "v per m" => AmplitudeUnit::VoltPerMetre,
+                "ua" | "µa" | "μa" | "microampere" => AmplitudeUnit::Microampere,
+                "ma" => AmplitudeUnit::Milliampere,
+                _ => return None,
+            },
+        })
+    }
+
+    /// The unit's symbol.
+    pub fn symbol(self) -> &'static str {
+        match self {
+            AmplitudeUnit::Volt => "V",
+            AmplitudeUnit::Millivolt => "mV",
+            AmplitudeUnit::VoltPerMetre => "V/m",
+            AmplitudeUnit::Microampere => "µA",
+            AmplitudeUnit::Milliampere => "mA",
+        }
+    }
+}
+
+/// One stimulus.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Stimulus {
+    /// When it was given, s.
+    pub time_s: f64,
+    /// Its strength, in the protocol's unit.
+    pub amplitude: f64,
+    /// The stimulating electrode; `None` for a field across the dish.
+    pub site: Option<String>,
+    pub label: Option<String>,
+    /// The line of the file it was read from.
+    pub line: u64,
+}
+
+/// A stimulus protocol, in time order.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StimulusProtocol {
+    pub file: String,
+    pub unit: AmplitudeUnit,
+    pub stimuli: Vec<Stimulus>,
+    pub notices: Vec<Notice>,
 }

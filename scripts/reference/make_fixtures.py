@@ -3,7 +3,8 @@
 
 Writes tests/fixtures/geometry_reference.json, stats_reference.json, filter_reference.json,
 wav_reference.json (with the files in wav/), siegert_reference.json, spectrum_reference.json and
-sttc_reference.json.
+sttc_reference.json, compare_reference.json and probit_reference.json (statsmodels GLM Binomial(Probit);
+profile-likelihood intervals with scipy.optimize).
 With --check, computes the same fixtures afresh and compares them with the committed files
 (numbers to a relative 1e-9), exiting 1 on a difference. The point sets are seeded (numpy PCG64), so the run is reproducible.
 
@@ -56,6 +57,7 @@ WAV_DIR = ROOT / "tests" / "fixtures" / "wav"
 SIEGERT_OUT = ROOT / "tests" / "fixtures" / "siegert_reference.json"
 SPECTRUM_OUT = ROOT / "tests" / "fixtures" / "spectrum_reference.json"
 STTC_OUT = ROOT / "tests" / "fixtures" / "sttc_reference.json"
+PROBIT_OUT = ROOT / "tests/fixtures/probit_reference.json"
 COMPARE_OUT = ROOT / "tests" / "fixtures" / "compare_reference.json"
 SEED = 20261201
 
@@ -485,6 +487,75 @@ def compare_fixtures(rng):
             "bootstrap_median_difference": boot}
 
 
+def probit_profile(x, n, k, which, level=0.95):
+    """Profile-likelihood interval of the 50% point ("threshold") or of the width sigma of
+    P = Phi((x - mu) / sigma), by scipy's bounded scalar minimiser and root finder: an
+    implementation independent of the Rust one."""
+    from scipy.optimize import brentq, minimize_scalar
+    from scipy.stats import chi2, norm
+
+    def loglik(mu, sigma):
+        eta = (x - mu) / sigma
+        return float(np.sum(k * norm.logcdf(eta) + (n - k) * norm.logsf(eta)))
+
+    def best(fixed):
+        if which == "threshold":
+            r = minimize_scalar(lambda ls: -loglik(fixed, np.exp(ls)), bounds=(-12, 6),
+                                method="bounded", options={"xatol": 1e-12})
+        else:
+            r = minimize_scalar(lambda m: -loglik(m, fixed), bounds=(x.min() - 5 * np.ptp(x),
+                                x.max() + 5 * np.ptp(x)), method="bounded",
+                                options={"xatol": 1e-12})
+        return -r.fun
+
+    import statsmodels.api as sm
+    fit = sm.GLM(k / n, sm.add_constant(x), family=sm.families.Binomial(sm.families.links.Probit()),
+                 var_weights=n).fit()
+    b0, b1 = fit.params
+    mu_hat, sigma_hat = -b0 / b1, 1.0 / b1
+    top = loglik(mu_hat, sigma_hat)
+    cut = chi2.ppf(level, 1) / 2.0
+    gap = lambda v: top - best(v) - cut
+    hat = mu_hat if which == "threshold" else sigma_hat
+    span = 20 * (fit.bse[0] / abs(b1) if which == "threshold" else fit.bse[1] / b1 ** 2)
+    low_end = hat - span if which == "threshold" else hat * 1e-3
+    return [brentq(gap, low_end, hat, xtol=1e-12), brentq(gap, hat, hat + span, xtol=1e-12)]
+
+
+def probit_fixtures(rng):
+    """statsmodels GLM Binomial(Probit) fits (expected information, as GLM uses by default):
+    Bliss's beetle data and seeded simulated dose-response sets; profile-likelihood
+    intervals of the 50% point and the width from scipy."""
+    import statsmodels
+    import statsmodels.api as sm
+    from scipy.stats import chi2
+    cases = [{"name": "Bliss beetles",
+              "x": [1.6907, 1.7242, 1.7552, 1.7842, 1.8113, 1.8369, 1.8610, 1.8839],
+              "n": [59, 60, 62, 56, 63, 59, 62, 60], "k": [6, 13, 18, 28, 52, 53, 61, 60]}]
+    for name, mu, sigma, amps, trials in (("six amplitudes, 20 trials", 2.0, 0.5, np.linspace(1, 3, 6), 20),
+                                          ("ten amplitudes, 8 trials", 5.0, 1.5, np.linspace(1, 9, 10), 8),
+                                          ("four amplitudes, 50 trials", 0.3, 0.05, np.linspace(0.22, 0.4, 4), 50)):
+        p = 0.5 * (1 + np.vectorize(math.erf)((amps - mu) / sigma / math.sqrt(2)))
+        k = rng.binomial(trials, p)
+        cases.append({"name": name, "x": amps.tolist(), "n": [trials] * len(amps), "k": k.tolist()})
+    out = []
+    for c in cases:
+        x, n, k = np.array(c["x"]), np.array(c["n"], float), np.array(c["k"], float)
+        fit = sm.GLM(k / n, sm.add_constant(x), family=sm.families.Binomial(sm.families.links.Probit()),
+                     var_weights=n).fit()
+        b0, b1 = fit.params
+        dof = len(x) - 2
+        out.append(dict(c, beta=[float(b0), float(b1)], se=[float(v) for v in fit.bse],
+                        deviance=float(fit.deviance), pearson_chi2=float(fit.pearson_chi2),
+                        gof_p=float(chi2.sf(fit.deviance, dof)), threshold=float(-b0 / b1),
+                        width=float(1 / b1),
+                        threshold_profile=probit_profile(x, n, k, "threshold"),
+                        width_profile=probit_profile(x, n, k, "width")))
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__,
+                         "scipy": scipy.__version__, "statsmodels": statsmodels.__version__},
+            "cases": out}
+
+
 def main():
     outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1))),
                (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2))),
@@ -492,7 +563,8 @@ def main():
                (SIEGERT_OUT, siegert_fixtures()),
                (SPECTRUM_OUT, spectrum_fixtures(np.random.default_rng(SEED + 4))),
                (STTC_OUT, sttc_fixtures(np.random.default_rng(SEED + 5))),
-               (COMPARE_OUT, compare_fixtures(np.random.default_rng(SEED + 6)))]
+               (COMPARE_OUT, compare_fixtures(np.random.default_rng(SEED + 6))),
+               (PROBIT_OUT, probit_fixtures(np.random.default_rng(SEED + 7)))]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:

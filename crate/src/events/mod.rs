@@ -142,6 +142,7 @@ pub fn voltage_recording(
         ignored_columns: Vec::new(),
         row_count: found.trains_s.iter().map(Vec::len).sum(),
         notices: Vec::new(),
+        stimuli: None,
     };
     let mut recording = crate::recording::Recording::from_spike_list(&layout, &spikes)?;
     recording.metadata.sample_interval_s = Some(1.0 / header.sample_rate_hz);

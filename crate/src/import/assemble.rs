@@ -68,6 +68,7 @@ impl Recording {
                 time_quantum_s: spikes.time_quantum_s,
             },
             notices,
+            stimuli: spikes.stimuli.clone(),
         })
     }
 
@@ -138,6 +139,7 @@ impl Recording {
                 time_quantum_s: None,
             },
             notices,
+            stimuli: None,
         })
     }
 }

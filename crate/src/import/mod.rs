@@ -11,6 +11,7 @@
 //! | spike list | [`read_spike_list`] | `site`, `time_s` / `time_ms` / `time_us` |
 //! | layout | [`read_layout`] | `site`, `x_um`, `y_um` (or `_mm`) |
 //! | ROI traces | [`read_roi_traces`] | `time_s` (or a frame rate), one column per ROI |
+//! | stimulus protocol | [`read_stimuli`] | `time_s`, `amplitude_V` (or mV, V/m, uA, mA), `site`, `label` |
 //!
 //! Files may be comma-, tab- or semicolon-delimited (detected from the header line), may
 //! start with a UTF-8 byte-order mark, use CRLF or LF, and contain `#` comment lines and
@@ -21,6 +22,7 @@ mod error;
 mod layout;
 mod manifest;
 mod spikes;
+mod stimuli;
 mod table;
 mod traces;
 mod voltage;
@@ -31,6 +33,10 @@ pub use layout::{read_layout, Layout, LayoutOptions};
 pub use manifest::{read_manifest, recording_name_ok, Manifest, ManifestRow, MAX_RECORDING_NAME};
 pub use spikes::{
     read_spike_list, SiteSpikes, SpikeList, SpikeListOptions, SITE_COLUMN_NAMES, TIME_COLUMN_BASES,
+};
+pub use stimuli::{
+    read_stimuli, AmplitudeUnit, Stimulus, StimulusProtocol, AMPLITUDE_COLUMN_BASES,
+    STIMULUS_COLUMN_BASES,
 };
 pub use table::{ImportLimits, LengthUnit, TimeUnit};
 pub use traces::{

@@ -58,6 +58,8 @@ pub struct SpikeList {
     pub row_count: usize,
     /// What the user should know: ignored columns, re-sorted rows, repeated times.
     pub notices: Vec<Notice>,
+    /// Stimuli given in the list's own stimulus column (`stimulus_V`, ...), if it has one.
+    pub stimuli: Option<super::StimulusProtocol>,
 }
 
 impl SpikeList {
@@ -85,11 +87,13 @@ pub fn read_spike_list(
     let Some((time_col, time_unit)) = find_time_column(&table, options.time_unit, true, "")? else {
         unreachable!("a required time column is found or reported")
     };
+    let stimulus_col =
+        super::stimuli::find_amplitude_column(&table, super::stimuli::STIMULUS_COLUMN_BASES)?;
     let ignored_columns: Vec<String> = table
         .headers()
         .iter()
         .enumerate()
-        .filter(|(i, _)| *i != site_col && *i != time_col)
+        .filter(|(i, _)| *i != site_col && *i != time_col && stimulus_col.is_none_or(|s| s.0 != *i))
         .map(|(_, h)| h.clone())
         .collect();
 
@@ -101,9 +105,24 @@ pub fn read_spike_list(
     let mut max_decimals: Option<u32> = Some(0);
     let mut row_count = 0usize;
 
+    let mut stimuli = Vec::new();
     let mut row = Row::default();
     while let Some(next) = table.next_row(&mut row) {
         next?;
+        // A row with a value in the stimulus column is a stimulus, not a spike.
+        if let Some((c, _)) = stimulus_col.filter(|(c, _)| !row.field(*c).is_empty()) {
+            let time_s = table.number(&row, time_col, &what)? * scale;
+            stimuli.push(super::stimuli::stimulus_from_row(
+                &table,
+                &row,
+                time_s,
+                time_col,
+                c,
+                Some(site_col),
+                None,
+            )?);
+            continue;
+        }
         let site = row.field(site_col);
         if site.is_empty() {
             return Err(ImportError::new(
@@ -184,6 +203,10 @@ pub fn read_spike_list(
         ));
     }
     let time_quantum_s = max_decimals.map(|d| scale * 10f64.powi(-(d as i32)));
+    let stimuli = match stimulus_col {
+        Some((_, unit)) => Some(super::stimuli::finish(file, unit, stimuli, Vec::new())?),
+        None => None,
+    };
     Ok(SpikeList {
         file: file.to_string(),
         sites,
@@ -192,6 +215,7 @@ pub fn read_spike_list(
         ignored_columns,
         row_count,
         notices,
+        stimuli,
     })
 }
 
