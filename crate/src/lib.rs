@@ -96,6 +96,7 @@ pub struct ActivityFile<'a> {
 pub fn analyze_file(
     file: ActivityFile<'_>,
     layout: (&str, &[u8]),
+    stimuli: Option<(&str, &[u8])>,
     settings: &RecordingSettings,
     progress: &mut dyn FnMut(&str, u64, u64),
 ) -> Result<report::AnalysisReport, Error> {
@@ -125,6 +126,7 @@ pub fn analyze_file(
             return analyze_recording(
                 ActivityInput::Table(file.name, &bytes),
                 layout,
+                stimuli,
                 settings,
                 progress,
             );
@@ -134,6 +136,7 @@ pub fn analyze_file(
     analyze_recording(
         ActivityInput::Voltage(&header, &mut frames),
         layout,
+        stimuli,
         settings,
         progress,
     )
@@ -158,6 +161,7 @@ pub fn analyze_files(
     analyze_recording(
         ActivityInput::Table(activity.0, activity.1),
         layout,
+        None,
         &settings,
         &mut |_, done, total| progress(done as usize, total as usize),
     )
@@ -188,15 +192,17 @@ pub struct RecordingSettings {
 /// The one entry point from input files to a recording's results: reads the activity (or
 /// detects spikes in raw voltage), fits the track and runs the front analysis. The command
 /// line, study runs and the page's one-shot path all call it; [`report::AnalysisReport::output_files`]
-/// turns its result into files. `progress(stage, done, total)` reports detection (frames),
+/// turns its result into files. `stimuli` is a stimulus protocol file (name, bytes), when
+/// one comes with the recording. `progress(stage, done, total)` reports detection (frames),
 /// then bursts.
 pub fn analyze_recording(
     activity: ActivityInput<'_>,
     layout: (&str, &[u8]),
+    stimuli: Option<(&str, &[u8])>,
     settings: &RecordingSettings,
     progress: &mut dyn FnMut(&str, u64, u64),
 ) -> Result<report::AnalysisReport, Error> {
-    let (recording, electrodes) = match activity {
+    let (mut recording, electrodes) = match activity {
         ActivityInput::Table(name, bytes) => (
             import::read_recording((name, bytes), layout, &settings.read)?,
             None,
@@ -213,6 +219,9 @@ pub fn analyze_recording(
             (recording, Some(found.electrodes))
         }
     };
+    if let Some((name, bytes)) = stimuli {
+        attach_stimuli(&mut recording, name, bytes, &settings.read)?;
+    }
     let fit = geometry::fit_track(&recording.sites, &settings.track)?;
     let events = events::event_trains(&recording, &settings.analysis.calcium);
     let (mut report, _rate) = analyze_events(
@@ -224,6 +233,35 @@ pub fn analyze_recording(
     )?;
     report.electrodes = electrodes;
     Ok(report)
+}
+
+/// Reads a stimulus protocol file into the recording; refused when the spike list carried
+/// its own stimulus column (two protocols for one recording).
+pub fn attach_stimuli(
+    recording: &mut recording::Recording,
+    name: &str,
+    bytes: &[u8],
+    read: &import::ReadOptions,
+) -> Result<(), Error> {
+    let protocol = import::read_stimuli(bytes, name, read.time_unit, read.limits)?;
+    if let Some(own) = &recording.stimuli {
+        return Err(import::ImportError::new(
+            place::Place::file(name),
+            import::ImportProblem::BadOption,
+            format!(
+                "the spike list {} already gives the stimuli in its own column; give the protocol once, in the list or in this file",
+                own.file
+            ),
+        )
+        .into());
+    }
+    recording.notices.extend(protocol.notices.iter().cloned());
+    recording.metadata.sources.push(recording::SourceFile {
+        name: name.to_string(),
+        kind: "stimuli".into(),
+    });
+    recording.stimuli = Some(protocol);
+    Ok(())
 }
 
 /// Everything measured on a recording's event trains once its track is known: bursts and
@@ -293,7 +331,15 @@ pub fn analyze_events(
     {
         analysis.notices.push(notice);
     }
+    let response = recording
+        .stimuli
+        .as_ref()
+        .map(|protocol| response::responses(&named, protocol, &settings.response));
+    if let Some(r) = &response {
+        analysis.notices.extend(r.notices.iter().cloned());
+    }
     let mut report = report::AnalysisReport::new(recording, fit, settings, analysis);
+    report.response = response;
     report.rhythm = rhythm;
     report.synchrony = sync;
     report.site_rhythms = site_rhythms;

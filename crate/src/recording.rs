@@ -139,6 +139,17 @@ impl AmplitudeUnit {
         })
     }
 
+    /// The unit as written in a column name (`amplitude_V_per_m`).
+    pub fn column_suffix(self) -> &'static str {
+        match self {
+            AmplitudeUnit::Volt => "V",
+            AmplitudeUnit::Millivolt => "mV",
+            AmplitudeUnit::VoltPerMetre => "V_per_m",
+            AmplitudeUnit::Microampere => "uA",
+            AmplitudeUnit::Milliampere => "mA",
+        }
+    }
+
     /// The unit's symbol.
     pub fn symbol(self) -> &'static str {
         match self {

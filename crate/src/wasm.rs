@@ -621,6 +621,7 @@ pub fn analyze_study_recording(
                 wav_uv_per_unit: step.voltage_wav_scale_uv(),
             },
             (layout_name, layout_bytes),
+            None,
             &settings,
             &mut |stage, d, t| report_progress(stage, d as f64, t as f64),
         )

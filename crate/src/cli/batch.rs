@@ -166,6 +166,7 @@ fn run_one(
         analyze_paths(
             &path(&row.data),
             &path(&row.layout),
+            row.stimuli.as_deref().map(path).as_deref(),
             &settings,
             job.wav_uv_per_unit,
             &mut |_, _, _| {},

@@ -71,6 +71,11 @@ struct AnalyzeArgs {
     /// true front is set beside the measured one.
     #[arg(long, value_name = "FILE")]
     truth: Option<String>,
+    /// Stimulus protocol (time_s, amplitude_V or mV, V_per_m, uA, mA; optional site and
+    /// label): which sites responded to each stimulus, and the response curves with their
+    /// cumulative-Gaussian fits (adds responses.csv and curves.csv).
+    #[arg(long, value_name = "FILE")]
+    stimuli: Option<String>,
     #[command(flatten)]
     pipeline: PipelineArgs,
 }
@@ -677,6 +682,7 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
     let report = analyze_paths(
         &args.recording,
         &args.layout,
+        args.stimuli.as_deref(),
         &recording,
         args.pipeline.voltage.uv_per_unit,
         &mut progress,
@@ -725,12 +731,17 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
 fn analyze_paths(
     data: &str,
     layout: &str,
+    stimuli: Option<&str>,
     settings: &RecordingSettings,
     wav_uv_per_unit: Option<f64>,
     progress: &mut dyn FnMut(&str, u64, u64),
 ) -> Result<AnalysisReport, Failure> {
     use std::io::{Read, Seek, SeekFrom};
     let layout_bytes = read_file(layout, &settings.read.limits)?;
+    let stimuli = match stimuli {
+        Some(name) => Some((name, read_file(name, &settings.read.limits)?)),
+        None => None,
+    };
     let fail = |e: std::io::Error| {
         ImportError::new(Place::file(data), ImportProblem::BadOption, io_words(&e))
     };
@@ -772,6 +783,7 @@ fn analyze_paths(
             wav_uv_per_unit: wav_uv_per_unit.unwrap_or(1.0),
         },
         (layout, &layout_bytes),
+        stimuli.as_ref().map(|(n, b)| (*n, b.as_slice())),
         settings,
         progress,
     )?;

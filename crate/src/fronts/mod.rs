@@ -53,6 +53,8 @@ pub struct AnalysisSettings {
     pub synchrony: crate::synchrony::SynchronySettings,
     /// When a site counts as firing regularly on its own.
     pub site_rhythm: crate::rhythm::sites::SiteRhythmSettings,
+    /// When a site counts as responding to a stimulus.
+    pub response: crate::response::ResponseSettings,
 }
 
 /// One site's activation in one burst.

@@ -9,6 +9,7 @@
 //! | `settings` | no | a JSON file of analysis settings for this recording, laid over the study's |
 //! | `track` | no | `auto`, `line`, `ring` or `plane` for this recording |
 //! | `start_site` | no | the site at the start of the track for this recording |
+//! | `stimuli` | no | the recording's stimulus protocol file |
 //!
 //! Every other column is carried into the study's tables as written. Paths are relative to
 //! the manifest's folder unless absolute. Column names are matched without regard to case.
@@ -33,6 +34,9 @@ pub struct ManifestRow {
     pub settings: Option<String>,
     pub track: Option<String>,
     pub start_site: Option<String>,
+    /// The stimulus protocol file.
+    #[serde(default)]
+    pub stimuli: Option<String>,
     /// The user's own columns, in the manifest's order: values as written.
     pub columns: Vec<String>,
 }
@@ -46,13 +50,14 @@ pub struct Manifest {
     pub rows: Vec<ManifestRow>,
 }
 
-const KNOWN: [&str; 6] = [
+const KNOWN: [&str; 7] = [
     "recording",
     "data",
     "layout",
     "settings",
     "track",
     "start_site",
+    "stimuli",
 ];
 const TRACK_WORDS: [&str; 4] = ["auto", "line", "ring", "plane"];
 
@@ -65,7 +70,7 @@ pub fn read_manifest(
     let mut table = Table::open(bytes, file, limits)?;
     let headers: Vec<String> = table.headers().to_vec();
     let find = |name: &str| headers.iter().position(|h| h.eq_ignore_ascii_case(name));
-    let mut known = [None; 6];
+    let mut known = [None; KNOWN.len()];
     for (slot, name) in known.iter_mut().zip(KNOWN) {
         *slot = find(name);
     }
@@ -148,6 +153,7 @@ pub fn read_manifest(
             settings: get(known[3]),
             track,
             start_site: get(known[5]),
+            stimuli: get(known[6]),
             columns: free.iter().map(|&i| row.field(i).to_string()).collect(),
         });
     }

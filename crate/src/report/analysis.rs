@@ -33,6 +33,9 @@ pub struct AnalysisReport {
     pub synchrony: Option<crate::synchrony::SynchronySummary>,
     /// Each site as an oscillator, beside the network's burst frequency.
     pub site_rhythms: Option<crate::rhythm::sites::SiteRhythms>,
+    /// Responses to the stimuli, when a protocol came with the recording.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub response: Option<crate::response::ResponseReport>,
 }
 
 impl AnalysisReport {
@@ -57,6 +60,7 @@ impl AnalysisReport {
             rhythm: None,
             synchrony: None,
             site_rhythms: None,
+            response: None,
         }
     }
 
@@ -237,8 +241,9 @@ impl AnalysisReport {
             ("sttc.csv", self.sttc_csv()),
             ("lags.csv", self.lags_csv()),
             ("sites.csv", self.sites_csv()),
-            ("summary.json", self.summary_json()),
         ]);
+        files.extend(self.response_files());
+        files.push(("summary.json", self.summary_json()));
         files
     }
 
@@ -617,6 +622,10 @@ impl AnalysisReport {
                     );
                 }
             }
+        }
+        if let Some(r) = &self.response {
+            out.push('\n');
+            out.push_str(&r.to_text());
         }
         if !self.notices.is_empty() {
             out.push_str("\nNotices\n");

@@ -5,6 +5,7 @@ mod analysis;
 pub mod compare_figures;
 pub mod figures;
 mod inspection;
+mod response_tables;
 pub mod rhythm_figures;
 mod svg;
 pub mod truth;

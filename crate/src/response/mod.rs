@@ -12,7 +12,10 @@
 //! event. Each curve point says how likely its responders would be from spontaneous firing
 //! alone (the binomial upper tail).
 //!
-//! Curves: per site, `trials` are the stimuli at an amplitude; for the population, every
+//! Curves: fitted with the spontaneous probability as the floor a curve starts from
+//! (Abbott's formula, [`probit::fit_probit_above`]), so chance firing is not read as a
+//! wider spread of thresholds. Per site, `trials` are the stimuli at an amplitude; for the
+//! population, every
 //! site at every stimulus (responders within one stimulus are not independent in a
 //! connected network, so the population fit's intervals are too narrow there; the
 //! per-amplitude fractions and their Wilson intervals are what to read). Fits are by
@@ -23,7 +26,7 @@ pub mod probit;
 use crate::place::{Notice, Place};
 use crate::recording::{AmplitudeUnit, StimulusProtocol};
 use crate::stats::{median, wilson_interval};
-use probit::{fit_probit, CurveFit, DosePoint};
+use probit::{fit_probit_above, CurveFit, DosePoint};
 use serde::{Deserialize, Serialize};
 
 /// How responses are judged.
@@ -309,7 +312,7 @@ fn curve(
     ResponseCurve {
         name,
         spontaneous_probability: p0,
-        fit: fit_probit(&dose, confidence),
+        fit: fit_probit_above(&dose, confidence, p0.unwrap_or(0.0)),
         points,
     }
 }

@@ -91,6 +91,19 @@ const MAX_BRACKET_STEPS: usize = 60;
 /// Fits a cumulative Gaussian to the points (amplitudes in any order; points with no trials
 /// are left out) at `confidence` for the profile intervals.
 pub fn fit_probit(points: &[DosePoint], confidence: f64) -> CurveFit {
+    fit_probit_above(points, confidence, 0.0)
+}
+
+/// [`fit_probit`] with a known chance of responding without the stimulus, `floor` in
+/// [0, 1): P(x) = floor + (1 - floor) Phi(b0 + b1 x) (Abbott's formula, Abbott 1925,
+/// J. Econ. Entomol. 18:265; Finney 1971 chapter 7). With spontaneous firing the plain fit
+/// would read the floor as a wider spread of thresholds.
+pub fn fit_probit_above(points: &[DosePoint], confidence: f64, floor: f64) -> CurveFit {
+    let floor = if floor.is_finite() {
+        floor.clamp(0.0, 0.99)
+    } else {
+        0.0
+    };
     let points: Vec<DosePoint> = points
         .iter()
         .copied()
@@ -141,10 +154,17 @@ pub fn fit_probit(points: &[DosePoint], confidence: f64) -> CurveFit {
             above: bottom_firing,
         };
     }
-    let data = Data::new(&points);
-    let Some((b, iterations)) = data.maximise() else {
-        return CurveFit::NotFitted {
-            reason: "the likelihood did not converge in 100 iterations".into(),
+    let data = Data::new(&points, floor);
+    let fitted = data.maximise();
+    // A slope that runs away (the curve rising within a thousandth of the amplitudes
+    // tried) is a step above the chance floor: reported as the bound where it happens.
+    let Some((b, iterations)) = fitted.filter(|(b, _)| b[1] * (highest - lowest) < 1e3) else {
+        return match best_step(&points, floor) {
+            Some(Step::At(below, above)) => CurveFit::Separated { below, above },
+            Some(Step::NotAboveChance) => CurveFit::NoneResponded { highest },
+            None => CurveFit::NotFitted {
+                reason: "the likelihood did not converge in 100 iterations".into(),
+            },
         };
     };
     if b[1] <= 0.0 {
@@ -226,11 +246,14 @@ struct Data {
     x: Vec<f64>,
     n: Vec<f64>,
     k: Vec<f64>,
+    /// The chance of a response without the stimulus (Abbott's floor).
+    floor: f64,
 }
 
 impl Data {
-    fn new(points: &[DosePoint]) -> Data {
+    fn new(points: &[DosePoint], floor: f64) -> Data {
         Data {
+            floor,
             x: points.iter().map(|p| p.amplitude).collect(),
             n: points.iter().map(|p| p.trials as f64).collect(),
             k: points.iter().map(|p| p.responders as f64).collect(),
@@ -239,20 +262,30 @@ impl Data {
 
     /// sum k ln P + (n - k) ln (1 - P), without the binomial coefficients.
     fn log_likelihood(&self, b: [f64; 2]) -> f64 {
+        let c = self.floor;
         let mut l = 0.0;
         for i in 0..self.x.len() {
             let eta = b[0] + b[1] * self.x[i];
-            l += self.k[i] * log_phi(eta) + (self.n[i] - self.k[i]) * log_phi(-eta);
+            // ln P = ln(c + (1 - c) Phi); ln(1 - P) = ln(1 - c) + ln Phi(-eta).
+            let ln_p = if c > 0.0 {
+                (c + (1.0 - c) * log_phi(eta).exp()).ln()
+            } else {
+                log_phi(eta)
+            };
+            let ln_q = (1.0 - c).ln() + log_phi(-eta);
+            l += self.k[i] * ln_p + (self.n[i] - self.k[i]) * ln_q;
         }
         l
     }
 
-    /// Per point at `eta`: the probability, its derivative and the Fisher weight
-    /// n phi^2 / (P (1 - P)), with P kept off 0 and 1.
-    fn terms(eta: f64, n: f64) -> (f64, f64, f64) {
+    /// Per point at `eta`: the probability P = c + (1 - c) Phi, its derivative
+    /// (1 - c) phi and the Fisher weight n (dP/deta)^2 / (P (1 - P)), with P kept off 0
+    /// and 1.
+    fn terms(&self, eta: f64, n: f64) -> (f64, f64, f64) {
         let normal = Normal::standard();
-        let p = normal.cdf(eta).clamp(1e-300, 1.0 - 1e-16);
-        let d = normal.pdf(eta);
+        let c = self.floor;
+        let p = (c + (1.0 - c) * normal.cdf(eta)).clamp(1e-300, 1.0 - 1e-16);
+        let d = (1.0 - c) * normal.pdf(eta);
         (p, d, n * d * d / (p * (1.0 - p)))
     }
 
@@ -260,7 +293,7 @@ impl Data {
     fn information(&self, b: [f64; 2]) -> [f64; 3] {
         let mut info = [0.0; 3];
         for i in 0..self.x.len() {
-            let (_, _, w) = Self::terms(b[0] + b[1] * self.x[i], self.n[i]);
+            let (_, _, w) = self.terms(b[0] + b[1] * self.x[i], self.n[i]);
             info[0] += w;
             info[1] += w * self.x[i];
             info[2] += w * self.x[i] * self.x[i];
@@ -272,7 +305,7 @@ impl Data {
     fn score(&self, b: [f64; 2]) -> [f64; 2] {
         let mut u = [0.0; 2];
         for i in 0..self.x.len() {
-            let (p, d, _) = Self::terms(b[0] + b[1] * self.x[i], self.n[i]);
+            let (p, d, _) = self.terms(b[0] + b[1] * self.x[i], self.n[i]);
             let s = (self.k[i] - self.n[i] * p) * d / (p * (1.0 - p));
             u[0] += s;
             u[1] += s * self.x[i];
@@ -332,7 +365,7 @@ impl Data {
             let (mut u, mut info) = (0.0, 0.0);
             for i in 0..self.x.len() {
                 let z = self.x[i] - mu;
-                let (p, d, w) = Self::terms(b1 * z, self.n[i]);
+                let (p, d, w) = self.terms(b1 * z, self.n[i]);
                 u += (self.k[i] - self.n[i] * p) * d / (p * (1.0 - p)) * z;
                 info += w * z * z;
             }
@@ -372,7 +405,7 @@ impl Data {
         for _ in 0..MAX_ITERATIONS {
             let (mut u, mut info) = (0.0, 0.0);
             for i in 0..self.x.len() {
-                let (p, d, w) = Self::terms(b0 + b1 * self.x[i], self.n[i]);
+                let (p, d, w) = self.terms(b0 + b1 * self.x[i], self.n[i]);
                 u += (self.k[i] - self.n[i] * p) * d / (p * (1.0 - p));
                 info += w;
             }
@@ -405,7 +438,7 @@ impl Data {
         let (mut deviance, mut pearson) = (0.0, 0.0);
         for i in 0..self.x.len() {
             let (n, k) = (self.n[i], self.k[i]);
-            let (p, _, _) = Self::terms(b[0] + b[1] * self.x[i], n);
+            let (p, _, _) = self.terms(b[0] + b[1] * self.x[i], n);
             let term = |obs: f64, exp: f64| {
                 if obs > 0.0 {
                     obs * (obs / exp).ln()
@@ -418,6 +451,61 @@ impl Data {
         }
         (deviance, pearson)
     }
+}
+
+/// What the most likely step says.
+enum Step {
+    /// Between these two adjacent amplitudes.
+    At(f64, f64),
+    /// No step rises above the chance floor by a likelihood-ratio test at 5%.
+    NotAboveChance,
+}
+
+/// The most likely all-or-none step over the chance floor: the split between two adjacent
+/// amplitudes with P = floor below it and the pooled share above it, kept when it beats
+/// the floor alone by a likelihood-ratio test (chi-square 1 df at 5%; with a floor of 0
+/// any responder beats it). `None` when no split raises the share.
+fn best_step(points: &[DosePoint], floor: f64) -> Option<Step> {
+    let mut sorted = points.to_vec();
+    sorted.sort_by(|a, b| a.amplitude.total_cmp(&b.amplitude));
+    let ln = |k: f64, n: f64, p: f64| {
+        let p = p.clamp(1e-300, 1.0 - 1e-16);
+        k * p.ln() + (n - k) * (1.0 - p).ln()
+    };
+    let mut best: Option<(f64, (f64, f64))> = None;
+    for j in 0..sorted.len().saturating_sub(1) {
+        if sorted[j].amplitude == sorted[j + 1].amplitude {
+            continue;
+        }
+        let (below, above) = sorted.split_at(j + 1);
+        let n_above: f64 = above.iter().map(|p| p.trials as f64).sum();
+        let k_above: f64 = above.iter().map(|p| p.responders as f64).sum();
+        let share = k_above / n_above;
+        if share <= floor {
+            continue;
+        }
+        let l: f64 = below
+            .iter()
+            .map(|p| ln(p.responders as f64, p.trials as f64, floor.max(1e-12)))
+            .sum::<f64>()
+            + above
+                .iter()
+                .map(|p| ln(p.responders as f64, p.trials as f64, share))
+                .sum::<f64>();
+        if best.is_none_or(|(b, _)| l > b) {
+            best = Some((l, (sorted[j].amplitude, sorted[j + 1].amplitude)));
+        }
+    }
+    let (l_step, (below, above)) = best?;
+    let l_floor: f64 = sorted
+        .iter()
+        .map(|p| ln(p.responders as f64, p.trials as f64, floor.max(1e-12)))
+        .sum();
+    Some(if 2.0 * (l_step - l_floor) >= 3.841_458_820_694_124 {
+        Step::At(below, above)
+    } else {
+        Step::NotAboveChance
+    })
 }
 
 /// Weighted least-squares line y = b0 + b1 x.
