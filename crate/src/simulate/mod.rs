@@ -101,6 +101,9 @@ pub fn simulation_files(
                     crate::import::write_layout(sites).into_bytes(),
                 ));
             }
+            if let Some(text) = &rec.stimuli_csv {
+                files.push(("stimuli.csv".to_string(), text.clone().into_bytes()));
+            }
             let truth = serde_json::to_string_pretty(&rec.truth).map_err(|e| e.to_string())? + "\n";
             files.push(("truth.json".to_string(), truth.into_bytes()));
             Ok(files)

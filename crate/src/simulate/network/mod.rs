@@ -6,6 +6,7 @@ pub mod culture;
 mod decay;
 pub mod dynamics;
 pub mod scenario;
+pub mod stimulation;
 
 pub use culture::{
     graph_stats, place_neurons, wire, wire_checked, Connectivity, Footprint, GraphStats, Pattern,
@@ -15,8 +16,8 @@ pub use dynamics::{
     integrate, isolated_rate_hz, Network, NeuronParams, NoiseParams, Run, Spike, SynapseParams,
 };
 pub use scenario::{
-    in_degree_sweep, in_degree_sweep_csv, scenario_from_options, simulate_network, CultureOptions,
-    CultureShape, DriveParams, Electrodes, Imaging, InDegreePoint, NetworkRecording,
-    NetworkScenario, NetworkTruth, NetworkTruthBurst, SiteNeurons, CULTURE_DURATION_S,
-    CULTURE_SEED,
+    in_degree_sweep, in_degree_sweep_csv, oscillator_drive_mv, scenario_from_options,
+    simulate_network, CultureOptions, CultureShape, DriveParams, Electrodes, Imaging,
+    InDegreePoint, NetworkRecording, NetworkScenario, NetworkTruth, NetworkTruthBurst, SiteNeurons,
+    CULTURE_DURATION_S, CULTURE_SEED,
 };

@@ -20,6 +20,12 @@ use serde::{Deserialize, Serialize};
 pub struct DriveParams {
     pub mean_mv: f64,
     pub sd_mv: f64,
+    /// Isolated oscillators instead: each neuron's drive set so that alone (no synapses,
+    /// no noise) it fires regularly at a rate drawn uniformly from this range, Hz (the
+    /// leaky integrate-and-fire rate inverted; [`super::dynamics::isolated_rate_hz`]).
+    /// `mean_mv` and `sd_mv` are then not used.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub isolated_rates_hz: Option<[f64; 2]>,
 }
 
 /// Virtual electrodes over the culture.
@@ -83,6 +89,29 @@ pub struct NetworkScenario {
     pub electrodes: Option<Electrodes>,
     #[serde(default)]
     pub imaging: Option<Imaging>,
+    /// Graded synaptic block: every excitatory weight times this (1: none; 0: all blocked).
+    #[serde(default = "one", skip_serializing_if = "is_one")]
+    pub excitatory_scale: f64,
+    /// Calcium, relative to the culture's own level (1). A model choice: the release
+    /// probability of the depressing synapses (`synapse.depression_u`) is scaled by it
+    /// (capped at 1), and every neuron's drive shifts by
+    /// [`CALCIUM_DRIVE_MV`] x (calcium_scale - 1).
+    #[serde(default = "one", skip_serializing_if = "is_one")]
+    pub calcium_scale: f64,
+    /// Field stimulation, written beside the recording as `stimuli.csv`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub stimulation: Option<super::stimulation::Stimulation>,
+}
+
+/// Drive shift per unit of relative calcium, mV (a model choice, see
+/// [`NetworkScenario::calcium_scale`]).
+pub const CALCIUM_DRIVE_MV: f64 = 0.5;
+
+fn one() -> f64 {
+    1.0
+}
+fn is_one(v: &f64) -> bool {
+    *v == 1.0
 }
 
 fn default_excitatory() -> f64 {
@@ -131,6 +160,14 @@ pub struct NetworkTruth {
     /// The same for each ROI (one neuron each).
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub roi_neurons: Vec<SiteNeurons>,
+    /// Field stimulation: thresholds and what each stimulus did.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub stimulation: Option<super::stimulation::StimulationTruth>,
+    /// The giant component's share of the neurons when each excitatory synapse is kept with
+    /// probability `excitatory_scale` (only when the scale is below 1; see
+    /// [`super::stimulation::percolated_giant_fraction`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub block_giant_component_fraction: Option<f64>,
 }
 
 /// The neurons behind one recorded site.
@@ -150,6 +187,8 @@ pub struct NetworkRecording {
     pub electrodes: Option<(Vec<Site>, Vec<SiteSpikes>)>,
     /// ROI sites, frame times and traces, when the scenario has imaging.
     pub imaging: Option<(Vec<Site>, Vec<f64>, Vec<RoiSeries>)>,
+    /// The stimulus file (`stimuli.csv`), when the scenario stimulates.
+    pub stimuli_csv: Option<String>,
     pub truth: NetworkTruth,
 }
 
@@ -197,6 +236,29 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
             return Err("electrodes: sampling_rate_hz and pickup_radius_um must be above 0".into());
         }
     }
+    if !(s.excitatory_scale.is_finite() && (0.0..=1.0).contains(&s.excitatory_scale)) {
+        return Err(format!(
+            "excitatory_scale: expected 0 (all blocked) to 1 (none), found {}",
+            s.excitatory_scale
+        ));
+    }
+    if !(s.calcium_scale.is_finite() && s.calcium_scale > 0.0 && s.calcium_scale <= 10.0) {
+        return Err(format!(
+            "calcium_scale: expected a level above 0 and at most 10 (1 is the culture's own), found {}",
+            s.calcium_scale
+        ));
+    }
+    if let Some([lo, hi]) = s.drive.isolated_rates_hz {
+        let most = 1.0 / s.neuron.refractory_s.max(1e-9);
+        if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && lo <= hi && hi < most) {
+            return Err(format!(
+                "drive.isolated_rates_hz: expected a range 0 < low <= high below 1 / refractory ({most:.0} Hz), found [{lo}, {hi}]"
+            ));
+        }
+    }
+    if let Some(st) = &s.stimulation {
+        st.check(s.duration_s, neurons)?;
+    }
     if let Some(i) = &s.imaging {
         if !(i.frame_rate_hz > 0.0 && i.decay_s > 0.0 && i.noise_sd >= 0.0) {
             return Err(
@@ -230,18 +292,39 @@ pub fn simulate_network(
         &mut rng,
     );
     let graph = graph_stats(n, &synapses);
+    let block_giant_component_fraction = (s.excitatory_scale < 1.0).then(|| {
+        super::stimulation::percolated_giant_fraction(
+            &synapses,
+            &excitatory,
+            s.excitatory_scale,
+            s.seed,
+        )
+    });
+    let mut synapse = s.synapse.clone();
+    synapse.excitatory_mv *= s.excitatory_scale;
+    synapse.depression_u = (synapse.depression_u * s.calcium_scale).min(1.0);
     let net = Network {
         synapses: &synapses,
         excitatory: &excitatory,
         drive_mv: &drive,
         neuron: &s.neuron,
-        synapse: &s.synapse,
+        synapse: &synapse,
         noise: &s.noise,
     };
     let duration = s.duration_s;
-    let run = integrate(&net, duration, &[], &mut rng, &mut |t| {
+    let stimulated = s.stimulation.as_ref().map(|st| {
+        let protocol = st.protocol(s.seed);
+        let thresholds = st.thresholds(n, s.seed);
+        (st, protocol, thresholds)
+    });
+    let forced = stimulated
+        .as_ref()
+        .map(|(st, protocol, thresholds)| st.forced_spikes(thresholds, protocol))
+        .unwrap_or_default();
+    let run = integrate(&net, duration, &forced, &mut rng, &mut |t| {
         progress("integrating", t, duration)
     });
+    drop(forced);
     drop(synapses);
 
     let mut trains: Vec<Vec<f64>> = vec![Vec::new(); n];
@@ -256,8 +339,10 @@ pub fn simulate_network(
             .collect()
     };
     let mut electrode_neurons = Vec::new();
+    let mut electrode_members: Vec<Vec<usize>> = Vec::new();
     let electrodes = s.electrodes.as_ref().map(|e| {
         let (sites, spikes, members) = record_electrodes(e, &positions, &trains, &mut rng);
+        electrode_members = members.clone();
         electrode_neurons = sites
             .iter()
             .zip(&members)
@@ -269,9 +354,11 @@ pub fn simulate_network(
         (sites, spikes)
     });
     let mut roi_neurons = Vec::new();
+    let mut roi_members: Vec<usize> = Vec::new();
     let imaging = s.imaging.as_ref().map(|i| {
         let (sites, time_s, series, members) =
             record_imaging(i, duration, &positions, &trains, &mut rng);
+        roi_members = members.clone();
         roi_neurons = sites
             .iter()
             .zip(&members)
@@ -282,12 +369,32 @@ pub fn simulate_network(
             .collect();
         (sites, time_s, series)
     });
+    // The response window of the stimulation truth: the analysis's default (200 ms).
+    let window_s = crate::response::ResponseSettings::default().window_ms / 1000.0;
+    let stimulation = stimulated.as_ref().map(|(st, protocol, thresholds)| {
+        super::stimulation::StimulationTruth {
+            unit: st.unit,
+            threshold_mean: st.threshold_mean,
+            threshold_sd: st.threshold_sd,
+            window_s,
+            stimuli: super::stimulation::stimulus_truth(thresholds, protocol, &trains, window_s),
+            electrode_thresholds: electrode_members
+                .iter()
+                .map(|m| m.iter().map(|&i| thresholds[i]).collect())
+                .collect(),
+            roi_thresholds: roi_members.iter().map(|&i| thresholds[i]).collect(),
+        }
+    });
+    let stimuli_csv = stimulated
+        .as_ref()
+        .map(|(st, protocol, _)| st.protocol_csv(protocol));
     let spikes = run.spikes.len();
     Ok(NetworkRecording {
         positions,
         spikes: run.spikes,
         electrodes,
         imaging,
+        stimuli_csv,
         truth: NetworkTruth {
             model: "network".into(),
             scenario: s.clone(),
@@ -299,6 +406,8 @@ pub fn simulate_network(
             bursts,
             electrode_neurons,
             roi_neurons,
+            stimulation,
+            block_giant_component_fraction,
         },
     })
 }
@@ -324,15 +433,31 @@ fn grow(s: &NetworkScenario) -> Result<Grown, String> {
     let excitatory: Vec<bool> = (0..n)
         .map(|_| uniform(&mut rng) < s.excitatory_fraction)
         .collect();
-    let drive: Vec<f64> = (0..n)
-        .map(|_| (s.drive.mean_mv + s.drive.sd_mv * normal(&mut rng)).max(0.0))
-        .collect();
+    let shift = CALCIUM_DRIVE_MV * (s.calcium_scale - 1.0);
+    let drive: Vec<f64> = match s.drive.isolated_rates_hz {
+        Some([lo, hi]) => (0..n)
+            .map(|_| oscillator_drive_mv(&s.neuron, lo + (hi - lo) * uniform(&mut rng)) + shift)
+            .collect(),
+        None => (0..n)
+            .map(|_| (s.drive.mean_mv + s.drive.sd_mv * normal(&mut rng)).max(0.0) + shift)
+            .collect(),
+    };
     Ok(Grown {
         positions,
         excitatory,
         drive,
         rng,
     })
+}
+
+/// The constant drive under which a neuron alone fires regularly at `rate_hz`, mV: the
+/// leaky integrate-and-fire period T = t_ref + tau ln((D - V_reset) / (D - theta)) solved
+/// for D, D = (theta e^x - V_reset) / (e^x - 1) with x = (T - t_ref) / tau (Gerstner et al.
+/// 2014, Neuronal Dynamics, ch. 1). The rate must be below 1 / t_ref.
+pub fn oscillator_drive_mv(neuron: &super::dynamics::NeuronParams, rate_hz: f64) -> f64 {
+    let x = (1.0 / rate_hz - neuron.refractory_s) / neuron.tau_m_s;
+    let e = x.exp();
+    (neuron.threshold_mv * e - neuron.reset_mv) / (e - 1.0)
 }
 
 /// The wiring of one culture at one target mean in-degree.
@@ -820,6 +945,7 @@ pub fn scenario_from_options(o: &CultureOptions) -> Result<NetworkScenario, Stri
         drive: DriveParams {
             mean_mv: 14.0,
             sd_mv: 1.5,
+            isolated_rates_hz: None,
         },
         noise: NoiseParams {
             rate_hz: 20.0,
@@ -847,6 +973,9 @@ pub fn scenario_from_options(o: &CultureOptions) -> Result<NetworkScenario, Stri
             amplitude: 0.3,
             noise_sd: 0.02,
         }),
+        excitatory_scale: 1.0,
+        calcium_scale: 1.0,
+        stimulation: None,
     };
     check_network_scenario(&s)
         .map_err(|e| format!("the options describe a culture that cannot be run: {e}"))?;

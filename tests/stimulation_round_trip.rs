@@ -1,0 +1,192 @@
+//! Field stimulation of simulated cultures, analysed as a lab would analyse it, against the
+//! simulator's ground truth (truth.json: every neuron's threshold, and what each stimulus
+//! did).
+//!
+//! - Synapses fully blocked (`excitatory_scale` 0): each ROI is one neuron, so the
+//!   population curve over ROIs is the distribution of the neurons' thresholds. Its 50%
+//!   point and width must hold the simulated N(1.0 V, 0.2 V) within the spread of 100
+//!   drawn thresholds, and each ROI's own fit or bound must reach the gap between the
+//!   tested amplitudes that holds its threshold.
+//! - The electrodes (about one neuron each) must respond at the rate their neurons'
+//!   thresholds say: a site with a neuron at or under the amplitude responds.
+
+#![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
+
+mod common;
+
+const AMPLITUDES: [f64; 8] = [0.6, 0.75, 0.85, 0.95, 1.05, 1.15, 1.25, 1.4];
+
+fn scenario(scale: f64, seed: u64) -> String {
+    format!(
+        r#"{{"model": "network", "name": "stimulated", "seed": {seed}, "duration_s": 125,
+  "pattern": {{"shape": "strip", "length_um": 3000, "width_um": 300}},
+  "density_per_mm2": 1500,
+  "connectivity": {{"footprint": "gaussian", "sigma_um": 150, "mean_in_degree": 100}},
+  "neuron": {{"tau_m_s": 0.02, "threshold_mv": 20, "reset_mv": 10, "refractory_s": 0.002}},
+  "drive": {{"mean_mv": 14, "sd_mv": 1.5}},
+  "noise": {{"rate_hz": 20, "amplitude_mv": 1.0}},
+  "synapse": {{"excitatory_mv": 4.0, "inhibitory_mv": 2.0, "depression_u": 0.5, "recovery_s": 3.0}},
+  "electrodes": {{"layout": {{"shape": "row", "count": 16, "pitch_um": 187.5}}, "offset_um": [93.75, 0], "pickup_radius_um": 15, "detection_probability": 1.0, "sampling_rate_hz": 25000}},
+  "imaging": {{"rois": 100, "frame_rate_hz": 100, "decay_s": 0.3, "amplitude": 0.3, "noise_sd": 0.02}},
+  "excitatory_scale": {scale},
+  "stimulation": {{"threshold_mean": 1.0, "threshold_sd": 0.2, "amplitudes": {AMPLITUDES:?}, "repeats": 12, "start_s": 25, "interval_s": 1.0}}}}"#
+    )
+}
+
+type Row = std::collections::HashMap<String, String>;
+
+fn table(path: &std::path::Path) -> Vec<Row> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    let header = reader.headers().unwrap().clone();
+    reader
+        .records()
+        .map(|r| {
+            let r = r.unwrap();
+            header
+                .iter()
+                .zip(r.iter())
+                .map(|(h, v)| (h.to_string(), v.to_string()))
+                .collect()
+        })
+        .collect()
+}
+
+fn num(r: &Row, k: &str) -> f64 {
+    r[k].parse()
+        .unwrap_or_else(|_| panic!("{k}: {:?} in {r:?}", r[k]))
+}
+
+/// Simulates and analyses one culture; returns the folder.
+fn run(dir: &std::path::Path, scale: f64, seed: u64) {
+    std::fs::write(dir.join("scenario.json"), scenario(scale, seed)).unwrap();
+    let ok = |out: std::process::Output| {
+        assert_eq!(
+            out.status.code(),
+            Some(0),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+    };
+    ok(common::ringline(
+        &["simulate", "scenario.json", "--out", "sim"],
+        dir,
+    ));
+    for (data, layout, out) in [
+        ("sim/traces.csv", "sim/roi_layout.csv", "rois"),
+        ("sim/spikes.csv", "sim/layout.csv", "electrodes"),
+    ] {
+        ok(common::ringline(
+            &[
+                "analyze",
+                data,
+                "--layout",
+                layout,
+                "--stimuli",
+                "sim/stimuli.csv",
+                "--out",
+                out,
+            ],
+            dir,
+        ));
+    }
+}
+
+#[test]
+fn blocked_culture_gives_back_its_threshold_distribution() {
+    let dir = tempfile::tempdir().unwrap();
+    run(dir.path(), 0.0, 5);
+    let truth: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("sim/truth.json")).unwrap())
+            .unwrap();
+    let stimulation = &truth["stimulation"];
+    let roi_thresholds: Vec<f64> = stimulation["roi_thresholds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    assert_eq!(roi_thresholds.len(), 100);
+    let curves = table(&dir.path().join("rois/curves.csv"));
+    let population = curves.iter().find(|r| r["curve"] == "population").unwrap();
+    assert_eq!(population["fit"], "fitted");
+    let (mu, sigma) = (num(population, "threshold_V"), num(population, "width_V"));
+    let n = roi_thresholds.len() as f64;
+    let drawn_mean = roi_thresholds.iter().sum::<f64>() / n;
+    eprintln!(
+        "blocked: 50% point {mu:.4} V, width {sigma:.4} V; simulated N(1.0, 0.2), the 100 ROIs' thresholds average {drawn_mean:.4}"
+    );
+    // 3 standard errors of the mean and of the SD of 100 draws from N(1.0, 0.2).
+    assert!((mu - 1.0).abs() < 3.0 * 0.2 / n.sqrt(), "{mu}");
+    assert!(
+        (sigma - 0.2).abs() < 3.0 * 0.2 / (2.0 * n).sqrt(),
+        "{sigma}"
+    );
+    // Each ROI: its fit or bound reaches the gap that holds its threshold.
+    let mut held = 0;
+    for (k, &theta) in roi_thresholds.iter().enumerate() {
+        let name = format!("r{:03}", k + 1);
+        let r = curves
+            .iter()
+            .find(|r| r["curve"] == name)
+            .unwrap_or_else(|| panic!("{name}"));
+        let low = AMPLITUDES
+            .iter()
+            .copied()
+            .filter(|&a| a < theta)
+            .fold(f64::NEG_INFINITY, f64::max);
+        let high = AMPLITUDES
+            .iter()
+            .copied()
+            .filter(|&a| a >= theta)
+            .fold(f64::INFINITY, f64::min);
+        let reaches = |lo: f64, hi: f64| lo <= high && hi >= low;
+        let ok = match r["fit"].as_str() {
+            "fitted" => reaches(
+                r["threshold_ci95_low_V"]
+                    .parse()
+                    .unwrap_or(f64::NEG_INFINITY),
+                r["threshold_ci95_high_V"].parse().unwrap_or(f64::INFINITY),
+            ),
+            "all_or_none_step" => reaches(num(r, "threshold_above_V"), num(r, "threshold_below_V")),
+            "none_responded" => high >= num(r, "threshold_above_V"),
+            "all_responded" => low < num(r, "threshold_below_V"),
+            _ => false,
+        };
+        held += usize::from(ok);
+    }
+    eprintln!("{held} of 100 ROIs' thresholds inside their fit or bound");
+    assert!(held >= 90, "{held}");
+    // Electrodes: the share responding at each amplitude against the share whose lowest
+    // neuron threshold the amplitude reaches (an electrode without a neuron never does).
+    let sites: Vec<Option<f64>> = stimulation["electrode_thresholds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| {
+            t.as_array()
+                .unwrap()
+                .iter()
+                .map(|v| v.as_f64().unwrap())
+                .reduce(f64::min)
+        })
+        .collect();
+    let electrodes = table(&dir.path().join("electrodes/curves.csv"));
+    let mut inside = 0;
+    for r in electrodes.iter().filter(|r| r["curve"] == "population") {
+        let a = num(r, "amplitude_V");
+        let expected =
+            sites.iter().filter(|t| t.is_some_and(|t| t <= a)).count() as f64 / sites.len() as f64;
+        let (lo, hi) = (num(r, "fraction_ci95_low"), num(r, "fraction_ci95_high"));
+        eprintln!(
+            "electrodes at {a} V: {:.3} responded (95% CI {lo:.3}-{hi:.3}), truth {expected:.3}",
+            num(r, "fraction")
+        );
+        inside += usize::from(lo <= expected && expected <= hi);
+    }
+    assert_eq!(
+        inside,
+        AMPLITUDES.len(),
+        "amplitudes whose interval holds the truth"
+    );
+}
