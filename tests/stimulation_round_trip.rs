@@ -190,3 +190,92 @@ fn blocked_culture_gives_back_its_threshold_distribution() {
         "amplitudes whose interval holds the truth"
     );
 }
+
+#[test]
+fn a_block_series_follows_the_simulated_ignition_and_giant_component() {
+    // The same culture (seed) at four levels of excitatory block, as a study: calcium
+    // imaging with the protocol in the manifest's stimuli column, through `ringline batch`
+    // and `ringline percolation`.
+    let scales = [0.6, 0.4, 0.25, 0.0];
+    let dir = tempfile::tempdir().unwrap();
+    let mut manifest = String::from("recording,data,layout,stimuli,block\n");
+    let mut truths = Vec::new();
+    for (k, scale) in scales.iter().enumerate() {
+        let name = format!("level{k}");
+        let sim = dir.path().join(&name);
+        std::fs::create_dir_all(&sim).unwrap();
+        std::fs::write(sim.join("scenario.json"), scenario(*scale, 5)).unwrap();
+        let out = common::ringline(&["simulate", "scenario.json", "--out", "."], &sim);
+        assert_eq!(out.status.code(), Some(0));
+        truths.push(
+            serde_json::from_str::<serde_json::Value>(
+                &std::fs::read_to_string(sim.join("truth.json")).unwrap(),
+            )
+            .unwrap(),
+        );
+        // The block level: how much of the excitatory weight is blocked.
+        manifest.push_str(&format!(
+            "{name},{name}/traces.csv,{name}/roi_layout.csv,{name}/stimuli.csv,{}\n",
+            1.0 - scale
+        ));
+    }
+    std::fs::write(dir.path().join("study.csv"), manifest).unwrap();
+    for args in [
+        vec!["batch", "study.csv", "--out", "study"],
+        vec!["percolation", "study", "--by", "block"],
+    ] {
+        let out = common::ringline(&args, dir.path());
+        assert_eq!(
+            out.status.code(),
+            Some(0),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        eprint!("{}", String::from_utf8_lossy(&out.stdout));
+    }
+    let rows = table(&dir.path().join("study/percolation.csv"));
+    assert_eq!(rows.len(), 4);
+    assert_eq!(rows[3]["disconnected"], "true");
+    for figure in ["percolation.svg", "curves-by-level.svg"] {
+        let svg = std::fs::read_to_string(dir.path().join("study").join(figure)).unwrap();
+        assert!(svg.contains("block") && svg.contains("</svg>"), "{figure}");
+        std::fs::write(std::env::temp_dir().join(format!("ringline-{figure}")), svg).ok();
+    }
+    let normal = |x: f64| 0.5 * libm::erfc(-x / std::f64::consts::SQRT_2);
+    let mut previous_threshold = f64::NEG_INFINITY;
+    for (row, truth) in rows.iter().zip(&truths) {
+        let v_star = num(row, "network_threshold_V");
+        // Truth over every neuron, not only the 100 ROIs: the share fired directly at V*
+        // (the simulated thresholds are N(1.0, 0.2)), and the giant component as the
+        // neurons fired beyond the direct ones, pooled over the stimuli at or above V*.
+        let true_ignition = normal((v_star - 1.0) / 0.2);
+        let (mut excess, mut room) = (0.0, 0.0);
+        for s in truth["stimulation"]["stimuli"].as_array().unwrap() {
+            if s["amplitude"].as_f64().unwrap() >= v_star {
+                let direct = s["directly_fired_fraction"].as_f64().unwrap();
+                excess += s["fired_fraction"].as_f64().unwrap() - direct;
+                room += 1.0 - direct;
+            }
+        }
+        let true_giant = (excess / room).clamp(0.0, 1.0);
+        let (ignition, g) = (num(row, "ignition_fraction"), num(row, "giant_component"));
+        eprintln!(
+            "block {}: network threshold {v_star:.3} V, ignition fraction {ignition:.3} (truth {true_ignition:.3}), giant component {g:.3} (95% CI {}-{}; truth {true_giant:.3}; bond-percolated graph {})",
+            row["block"],
+            row["giant_component_ci95_low"],
+            row["giant_component_ci95_high"],
+            truth["block_giant_component_fraction"]
+        );
+        // f is read off 100 ROIs, a sample of the culture's neurons: allow 2.5 binomial
+        // standard errors of a share of 100.
+        let sampling = (true_ignition * (1.0 - true_ignition) / 100.0).sqrt();
+        assert!(
+            (ignition - true_ignition).abs() < 2.5 * sampling + 0.01,
+            "ignition {ignition} against {true_ignition}"
+        );
+        assert!((g - true_giant).abs() < 0.1, "{g} against {true_giant}");
+        // Blocking raises the network threshold.
+        assert!(v_star > previous_threshold - 0.01);
+        previous_threshold = v_star;
+    }
+}

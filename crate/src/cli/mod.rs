@@ -46,6 +46,10 @@ enum Command {
     /// manifest, analysed first): every metric's effect with its 95% interval at the level of the replication unit, then the
     /// test; writes comparisons.csv.
     Compare(CompareArgs),
+    /// Read a study's block series (recordings analysed with --stimuli, at levels of a
+    /// synaptic blocker) as percolation: the network threshold, the ignition fraction and the
+    /// giant component per level; writes percolation.csv and its figures.
+    Percolation(PercolationArgs),
     /// Simulate a recording with known fronts from a scenario file (JSON); write spikes.csv,
     /// layout.csv and truth.json into a folder.
     Simulate(SimulateArgs),
@@ -146,6 +150,70 @@ struct CompareArgs {
     jobs: Option<usize>,
     #[command(flatten, next_help_heading = "Analysis (when STUDY is a manifest)")]
     pipeline: PipelineArgs,
+}
+
+#[derive(Args, Debug)]
+struct PercolationArgs {
+    /// A study folder written by `ringline batch` (recordings.csv, and recordings/NAME/
+    /// curves.csv for every recording analysed with stimuli).
+    study: String,
+    /// The manifest column of the block level (a blocker's concentration, in order).
+    #[arg(long)]
+    by: String,
+    /// The fully blocked level: its curve is the disconnected one [default: the last level,
+    /// the highest when the levels are numbers].
+    #[arg(long, value_name = "LEVEL")]
+    blocked: Option<String>,
+    /// Folder for percolation.csv and the figures [default: the study folder].
+    #[arg(long, value_name = "DIR")]
+    out: Option<String>,
+    /// Print one JSON document on stdout instead of text.
+    #[arg(long)]
+    json: bool,
+}
+
+fn percolation(args: &PercolationArgs) -> Result<i32, Failure> {
+    let folder = std::path::Path::new(&args.study);
+    let table = folder.join("recordings.csv");
+    let text = read_text(&table.to_string_lossy(), "study table")?;
+    let mut curves = Vec::new();
+    if let Ok(entries) = std::fs::read_dir(folder.join(crate::study::RECORDINGS_FOLDER)) {
+        let mut paths: Vec<std::path::PathBuf> = entries.flatten().map(|e| e.path()).collect();
+        paths.sort();
+        for dir in paths {
+            let file = dir.join("curves.csv");
+            if file.is_file() {
+                let name = dir
+                    .file_name()
+                    .map(|n| n.to_string_lossy().into_owned())
+                    .unwrap_or_default();
+                curves.push((name, read_text(&file.to_string_lossy(), "curves table")?));
+            }
+        }
+    }
+    let series =
+        crate::study::percolation::block_series(&text, &curves, &args.by, args.blocked.as_deref())
+            .map_err(|e| Failure::Input(e.to_string()))?;
+    let out = args
+        .out
+        .as_ref()
+        .map_or(folder.to_path_buf(), std::path::PathBuf::from);
+    std::fs::create_dir_all(&out).map_err(Failure::Output)?;
+    let files = crate::report::response_figures::percolation_output_files(&series);
+    for (name, text) in &files {
+        std::fs::write(out.join(name), text).map_err(Failure::Output)?;
+    }
+    if args.json {
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&series).unwrap_or_default()
+        );
+    } else {
+        print!("{}", series.to_text());
+    }
+    let names: Vec<&str> = files.iter().map(|f| f.0.as_str()).collect();
+    eprintln!("wrote {} to {}", names.join(", "), out.display());
+    Ok(0)
 }
 
 #[derive(clap::ValueEnum, Clone, Copy, Debug)]
@@ -548,6 +616,7 @@ pub fn run(args: impl IntoIterator<Item = OsString>) -> i32 {
         Command::Batch(args) => return finish(run_batch(&args)),
         Command::Combine(args) => return finish(batch::combine(&args.dirs, &args.out)),
         Command::Compare(args) => return finish(compare(&args)),
+        Command::Percolation(args) => return finish(percolation(&args)),
     };
     finish(result.map(|()| 0))
 }

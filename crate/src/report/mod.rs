@@ -5,6 +5,7 @@ mod analysis;
 pub mod compare_figures;
 pub mod figures;
 mod inspection;
+pub mod response_figures;
 mod response_tables;
 pub mod rhythm_figures;
 mod svg;

@@ -6,31 +6,6 @@ use crate::csv_out::{number, CsvOut};
 use crate::response::probit::CurveFit;
 use crate::response::{ResponseCurve, ResponseReport};
 
-impl CurveFit {
-    /// A short name of the outcome, as `curves.csv` writes it.
-    pub fn kind(&self) -> &'static str {
-        match self {
-            CurveFit::Fitted(_) => "fitted",
-            CurveFit::Separated { .. } => "all_or_none_step",
-            CurveFit::NoneResponded { .. } => "none_responded",
-            CurveFit::AllResponded { .. } => "all_responded",
-            CurveFit::OneAmplitude { .. } => "one_amplitude",
-            CurveFit::NoRise { .. } => "no_rise",
-            CurveFit::NotFitted { .. } => "not_fitted",
-        }
-    }
-
-    /// Where the threshold lies when no curve could be fitted: (above, below) bounds.
-    pub fn threshold_bounds(&self) -> (Option<f64>, Option<f64>) {
-        match *self {
-            CurveFit::Separated { below, above } => (Some(below), Some(above)),
-            CurveFit::NoneResponded { highest } => (Some(highest), None),
-            CurveFit::AllResponded { lowest } => (None, Some(lowest)),
-            _ => (None, None),
-        }
-    }
-}
-
 impl ResponseReport {
     /// `responses.csv`: one row per stimulus and site.
     pub fn responses_csv(&self) -> String {

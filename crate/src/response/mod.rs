@@ -21,6 +21,7 @@
 //! per-amplitude fractions and their Wilson intervals are what to read). Fits are by
 //! [`probit::fit_probit`].
 
+pub mod percolation;
 pub mod probit;
 
 use crate::place::{Notice, Place};

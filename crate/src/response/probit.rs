@@ -82,6 +82,31 @@ pub enum CurveFit {
     NotFitted { reason: String },
 }
 
+impl CurveFit {
+    /// A short name of the outcome, as `curves.csv` writes it.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            CurveFit::Fitted(_) => "fitted",
+            CurveFit::Separated { .. } => "all_or_none_step",
+            CurveFit::NoneResponded { .. } => "none_responded",
+            CurveFit::AllResponded { .. } => "all_responded",
+            CurveFit::OneAmplitude { .. } => "one_amplitude",
+            CurveFit::NoRise { .. } => "no_rise",
+            CurveFit::NotFitted { .. } => "not_fitted",
+        }
+    }
+
+    /// Where the threshold lies when no curve could be fitted: (above, below) bounds.
+    pub fn threshold_bounds(&self) -> (Option<f64>, Option<f64>) {
+        match *self {
+            CurveFit::Separated { below, above } => (Some(below), Some(above)),
+            CurveFit::NoneResponded { highest } => (Some(highest), None),
+            CurveFit::AllResponded { lowest } => (None, Some(lowest)),
+            _ => (None, None),
+        }
+    }
+}
+
 /// Most Fisher-scoring iterations; the beetle data converge in 6.
 const MAX_ITERATIONS: usize = 100;
 /// Steps of interval bisection and of bracketing.

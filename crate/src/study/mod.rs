@@ -21,6 +21,7 @@
 pub mod bootstrap;
 pub mod compare;
 pub mod inference;
+pub mod percolation;
 
 use crate::csv_out::CsvOut;
 use crate::import::ManifestRow;
