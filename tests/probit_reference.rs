@@ -195,3 +195,25 @@ fn separation_and_degenerate_curves_are_bounds_not_fits() {
     let c = fit_probit(&points(&[f64::NAN], &[5], &[2]), 0.95);
     assert!(matches!(c, CurveFit::NotFitted { .. }), "{c:?}");
 }
+
+#[test]
+fn chi_square_tail_and_normal_quantile_match_scipy() {
+    use ringline::response::probit::{chi_square_sf, normal_quantile};
+    // scipy.stats.chi2.sf(x, k) and norm.ppf (scipy 1.17).
+    for (x, k, want) in [
+        (3.0, 1, 0.08326451666355042),
+        (5.0, 3, 0.1717971442967335),
+        (10.12, 6, 0.1196886744205892),
+        (0.5, 5, 0.9921232932326296),
+        (40.0, 7, 1.258790387371308e-06),
+        (12.3, 11, 0.3415208582761478),
+    ] {
+        let got = chi_square_sf(x, k);
+        assert!(
+            (got - want).abs() <= 1e-12 * want.max(1e-300) + 1e-15,
+            "chi2.sf({x}, {k}): {got} against {want}"
+        );
+    }
+    assert!((normal_quantile(0.975) - 1.959963984540054).abs() < 1e-13);
+    assert!((normal_quantile(1e-10) - -6.361340902404056).abs() < 1e-12);
+}

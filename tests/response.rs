@@ -328,3 +328,23 @@ fn protocol_errors_name_the_place() {
     assert_eq!(p.stimuli[1].label.as_deref(), Some("first"));
     assert_eq!(p.notices.len(), 1, "re-sorted");
 }
+
+#[test]
+fn binomial_tail_matches_scipy() {
+    use ringline::response::binomial_upper_tail;
+    // scipy.stats.binom.sf(k - 1, n, p) (scipy 1.17).
+    for (n, k, p, want) in [
+        (12usize, 3usize, 0.094, 0.09599841287909541_f64),
+        (1200, 120, 0.033, 4.377903022749927e-26),
+        (20, 1, 0.05, 0.6415140775914578),
+        (50, 10, 0.1, 0.024537935704591392),
+        (1000, 0, 0.2, 1.0),
+        (96, 96, 0.5, 1.262177448353619e-29),
+    ] {
+        let got = binomial_upper_tail(n, k, p);
+        assert!(
+            (got - want).abs() <= 1e-12 * want,
+            "P(X >= {k}) for n {n}, p {p}: {got} against {want}"
+        );
+    }
+}

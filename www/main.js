@@ -99,6 +99,7 @@ const state = {
   layout: null,
   voltage: null,      // a raw voltage file (WAV, or samples with a sidecar)
   sidecar: null,
+  stimuli: null,      // a dropped stimulus protocol, attached to the recording when it opens
   electrodes: null,
   settings: null,     // every step's settings, as the core reports them
   inspection: null,
@@ -134,7 +135,7 @@ function clearError(id) {
 
 const KIND_NAMES = {
   spike_list: 'spike list', layout: 'layout', roi_traces: 'ROI traces', notebook: 'ringline notebook',
-  voltage: 'raw voltage', sidecar: 'voltage sidecar', manifest: 'study manifest',
+  voltage: 'raw voltage', sidecar: 'voltage sidecar', manifest: 'study manifest', stimuli: 'stimulus protocol',
 };
 
 function formatBytes(n) {
@@ -161,7 +162,7 @@ function renderFiles() {
 /** The page's kinds, from the core's one rule for telling input files apart. */
 const KIND_OF_WORD = {
   spike_list: 'spike_list', roi_traces: 'roi_traces', layout: 'layout', wav: 'voltage',
-  voltage_samples: 'voltage', sidecar: 'sidecar', json: 'notebook', manifest: 'manifest',
+  voltage_samples: 'voltage', sidecar: 'sidecar', json: 'notebook', manifest: 'manifest', stimuli: 'stimuli',
 };
 const ACTIVITY_KINDS = ['spike_list', 'roi_traces', 'voltage'];
 
@@ -211,6 +212,7 @@ async function addFiles(list, { asStudy = false } = {}) {
     if (entry.kind === 'voltage') { state.voltage = entry; state.activity = null; }
     if (entry.kind === 'sidecar') state.sidecar = entry;
     if (entry.kind === 'layout') state.layout = entry;
+    if (entry.kind === 'stimuli') state.stimuli = entry;
   }
   renderFiles();
   await openChosen();
@@ -253,6 +255,7 @@ async function openVoltage({ keepSettings }) {
     state.voltage.status = 'spikes detected';
     state.voltage.problem = false;
     state.layout.status = 'imported';
+    await attachStimuli();
     if (state.sidecar) state.sidecar.status = 'used';
     state.fileStem = state.voltage.name.replace(/\.[^.]*$/, '').replace(/[^A-Za-z0-9_-]+/g, '_') || 'ringline';
     renderFiles();
@@ -303,6 +306,7 @@ async function openWorkbook({ keepSettings }) {
     state.activity.problem = false;
     state.layout.status = 'imported';
     state.layout.problem = false;
+    await attachStimuli();
     state.fileStem = state.activity.name.replace(/\.[^.]*$/, '').replace(/[^A-Za-z0-9_-]+/g, '_') || 'ringline';
     renderFiles();
     fillForms();
@@ -322,6 +326,22 @@ async function openWorkbook({ keepSettings }) {
     renderFiles();
     showError('input-error', e);
     hideFrom('step-track');
+  }
+}
+
+/** Gives the open recording the dropped stimulus protocol, if any (the core reads it with
+ * the importers' located errors). */
+async function attachStimuli() {
+  const f = state.stimuli;
+  if (!f) return;
+  try {
+    await call('attachStimuli', { name: f.name, bytes: await bytesOf(f) });
+    f.status = 'imported';
+    f.problem = false;
+  } catch (e) {
+    f.status = errorText(e);
+    f.problem = true;
+    showError('input-error', e);
   }
 }
 
@@ -401,7 +421,7 @@ async function simulateCulture(event) {
 }
 
 function hideFrom(stepId) {
-  const order = ['step-track', 'step-bursts', 'step-fronts', 'step-rhythm', 'step-summary'];
+  const order = ['step-track', 'step-bursts', 'step-fronts', 'step-rhythm', 'step-response', 'step-summary'];
   for (const id of order.slice(order.indexOf(stepId))) $(id).hidden = true;
   if (order.indexOf(stepId) <= 1) $('burst-results').hidden = true;
 }
@@ -583,6 +603,7 @@ async function renderResults() {
   await selectBurst(state.settings.view.burst);
   for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability', 'leaders', 'recruitment']) await drawFigure(name);
   await renderRhythm();
+  await renderResponse();
   renderSummary();
   await renderTruth();
 }
@@ -679,6 +700,41 @@ async function renderRhythm() {
     : 'No lags: they need sites on a track.';
   $('step-rhythm').hidden = false;
   for (const name of ['rate_spectrum', 'site_frequencies', 'sttc_matrix', 'lags']) await drawFigure(name);
+}
+
+/** Step 6: the responses to the stimuli, when a protocol came with the recording. */
+async function renderResponse() {
+  const r = state.report?.response;
+  $('step-response').hidden = !r;
+  if (!r) return;
+  const unit = { volt: 'V', millivolt: 'mV', volt_per_metre: 'V/m', microampere: 'µA', milliampere: 'mA' }[r.unit];
+  const f = r.population.fit;
+  const ci = (c) => (c ? ` (95% profile interval ${fmt(c[0], 4)} to ${fmt(c[1], 4, unit)})` : '');
+  const fit = {
+    fitted: () => `50% of sites respond at ${fmt(f.threshold, 4, unit)}${ci(f.threshold_ci)}; thresholds spread ${fmt(f.width, 4, unit)} (SD); deviance ${fmt(f.deviance, 2)} on ${f.degrees_of_freedom} degrees of freedom`,
+    separated: () => `an all-or-none step between ${fmt(f.below, 4)} and ${fmt(f.above, 4, unit)}: the threshold lies there, and no curve can be fitted`,
+    none_responded: () => `no response above chance: the threshold is above ${fmt(f.highest, 4, unit)}`,
+    all_responded: () => `every site responded: the threshold is below ${fmt(f.lowest, 4, unit)}`,
+    one_amplitude: () => `one amplitude only: no curve`,
+    no_rise: () => 'the share responding does not rise with the amplitude',
+    not_fitted: () => `not fitted: ${f.reason}`,
+  }[f.kind]();
+  $('response-text').textContent = `${r.stimuli.length} stimuli from ${r.protocol_file}; a site responds with an event `
+    + `${fmt(r.settings.blank_ms, 1)} to ${fmt(r.settings.window_ms, 0, 'ms')} after a stimulus. `
+    + `Spontaneous chance of an event in such a window: ${fmt(r.population.spontaneous_probability, 3)} `
+    + `(from the ${fmt(r.baseline_s, 1, 's')} before the first stimulus). ${fit}.`;
+  const body = $('response-table').tBodies[0];
+  body.replaceChildren();
+  for (const p of r.population.points) {
+    const tr = body.insertRow();
+    const n = r.stimuli.filter((s) => s.amplitude === p.amplitude).length;
+    for (const text of [fmt(p.amplitude, 4, unit), String(n),
+      `${fmt(p.fraction, 3)} (${p.responders} of ${p.trials})${p.fraction_ci ? ` [${fmt(p.fraction_ci[0], 3)}, ${fmt(p.fraction_ci[1], 3)}]` : ''}`,
+      fmt(p.median_latency_ms, 1), p.chance_p === null ? '—' : fmt(p.chance_p, 4)]) {
+      tr.insertCell().textContent = text;
+    }
+  }
+  await drawFigure('response_curve');
 }
 
 function summaryRows(r) {

@@ -103,6 +103,7 @@ const ops = {
     return { inspection: workbook.inspection(), settings: workbook.settings(), electrodes };
   },
   setTrack: ({ track }) => need().setTrack(track),
+  attachStimuli: ({ name, bytes }) => need().attachStimuli(name, new Uint8Array(bytes)),
   analyze: ({ analysis }, id) => need().analyze(analysis, progress(id)),
   setView: ({ view }) => need().setView(view),
   settings: () => need().settings(),

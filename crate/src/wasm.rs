@@ -308,6 +308,14 @@ impl WasmWorkbook {
     }
 
     /// Re-fits the track with new track settings; returns the new inspection.
+    /// Gives the recording its stimulus protocol; the analysis must be run again.
+    #[wasm_bindgen(js_name = attachStimuli)]
+    pub fn attach_stimuli(&mut self, name: &str, bytes: &[u8]) -> Result<(), JsValue> {
+        self.inner
+            .attach_stimuli(name, bytes)
+            .map_err(|e| located(&e))
+    }
+
     #[wasm_bindgen(js_name = setTrack)]
     pub fn set_track(&mut self, track: JsValue) -> Result<JsValue, JsValue> {
         let track: TrackSettings = settings(track, "track")?;

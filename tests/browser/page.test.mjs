@@ -559,6 +559,52 @@ test('an ordered calcium series compared in the page shows its rising speed, as 
   await context.close();
 });
 
+test('a stimulus protocol dropped with its recording gives the command line\'s response curves', async () => {
+  // A blocked culture stimulated at eight amplitudes (the simulator writes the protocol
+  // beside the recording): the page's curves.csv and responses.csv are the CLI's bytes.
+  const dir = mkdtempSync(join(tmpdir(), 'ringline-stimuli-'));
+  const scenario = {
+    model: 'network', name: 'stimulated', seed: 5, duration_s: 125,
+    pattern: { shape: 'strip', length_um: 3000, width_um: 300 }, density_per_mm2: 1500,
+    connectivity: { footprint: 'gaussian', sigma_um: 150, mean_in_degree: 100 },
+    neuron: { tau_m_s: 0.02, threshold_mv: 20, reset_mv: 10, refractory_s: 0.002 },
+    drive: { mean_mv: 14, sd_mv: 1.5 }, noise: { rate_hz: 20, amplitude_mv: 1.0 },
+    synapse: { excitatory_mv: 4.0, inhibitory_mv: 2.0, depression_u: 0.5, recovery_s: 3.0 },
+    electrodes: { layout: { shape: 'row', count: 16, pitch_um: 187.5 }, offset_um: [93.75, 0], pickup_radius_um: 40,
+      detection_probability: 1.0, sampling_rate_hz: 25000 },
+    excitatory_scale: 0,
+    stimulation: { threshold_mean: 1.0, threshold_sd: 0.2, amplitudes: [0.6, 0.75, 0.85, 0.95, 1.05, 1.15, 1.25, 1.4], repeats: 12, start_s: 25, interval_s: 1.0 },
+  };
+  writeFileSync(join(dir, 'scenario.json'), JSON.stringify(scenario));
+  execFileSync(cli, ['simulate', 'scenario.json', '--out', 'sim'], { cwd: dir, stdio: 'ignore' });
+  execFileSync(cli, ['analyze', 'sim/spikes.csv', '--layout', 'sim/layout.csv', '--stimuli', 'sim/stimuli.csv', '--out', 'out'],
+    { cwd: dir, stdio: 'ignore' });
+  const { page, context, errors } = await openPage(base);
+  await dropFiles(page, ['spikes.csv', 'layout.csv', 'stimuli.csv'].map((n) => ({ name: n, path: join(dir, 'sim', n) })));
+  assert.match(await page.textContent('#file-table'), /stimulus protocol/);
+  await analyse(page);
+  await page.locator('#step-response').waitFor({ state: 'visible' });
+  await page.locator('#fig-response_curve').waitFor({ state: 'visible' });
+  assert.match(await page.textContent('#response-text'), /^96 stimuli from stimuli\.csv/);
+  assert.equal(await page.locator('#response-table tbody tr').count(), 8);
+  const files = Object.fromEntries(await page.evaluate(() => window.ringline.call('exports')));
+  for (const name of ['curves.csv', 'responses.csv']) {
+    assert.equal(files[name], readFileSync(join(dir, 'out', name), 'utf8'), `${name} differs from ringline analyze`);
+  }
+  await shoot(page, '10-response');
+  // The notebook keeps the protocol: re-opened, the same curves come back.
+  const notebook = await downloadText(page, '#save-notebook');
+  assert.ok(JSON.parse(notebook).files.some((f) => f.role === 'stimuli'));
+  const second = await openPage(base);
+  await dropFiles(second.page, [{ name: 'stimulated.ringline.json', text: notebook }]);
+  await second.page.locator('#step-response').waitFor({ state: 'visible', timeout: 60000 });
+  const again = Object.fromEntries(await second.page.evaluate(() => window.ringline.call('exports')));
+  assert.equal(again['curves.csv'], files['curves.csv']);
+  await second.context.close();
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
 test('a notebook of schema 1 (the previous version) opens with its settings and results', async () => {
   const fixture = join(repo, 'tests/fixtures/notebook-schema-1.ringline.json');
   const old = JSON.parse(readFileSync(fixture, 'utf8'));

@@ -58,6 +58,8 @@ pub enum FileKind {
     Layout,
     /// A time column (or none) and ROI columns, no site column.
     RoiTraces,
+    /// A stimulus protocol: a time column and an amplitude column with its unit.
+    Stimuli,
 }
 
 /// Guesses what a file holds from its header, so a user can drop files without saying
@@ -76,6 +78,24 @@ pub fn sniff_file_kind(bytes: &[u8]) -> Option<FileKind> {
     let has_time = headers
         .iter()
         .any(|h| table::time_header(h, TIME_COLUMN_BASES).is_some_and(|m| m.understood()));
+    // A stimulus amplitude (V, mV, V/m, uA, mA; not a spike's amplitude in uV). With a site
+    // column (the stimulating electrode) only a current or a field is taken as a stimulus:
+    // a spike list may carry its spikes' amplitudes in mV.
+    let amplitude =
+        headers
+            .iter()
+            .find_map(|h| match table::match_header(h, AMPLITUDE_COLUMN_BASES) {
+                table::HeaderMatch::Unit(u) => AmplitudeUnit::parse(&u),
+                _ => None,
+            });
+    let stimulus_unit = match amplitude {
+        Some(AmplitudeUnit::Volt | AmplitudeUnit::Millivolt) => !has_site,
+        Some(_) => true,
+        None => false,
+    };
+    if has_time && stimulus_unit {
+        return Some(FileKind::Stimuli);
+    }
     match (has_site, has_time, has("x") && has("y")) {
         (true, _, true) => Some(FileKind::Layout),
         (true, true, false) => Some(FileKind::SpikeList),
@@ -151,6 +171,11 @@ pub fn read_recording(
             ImportProblem::BadOption,
             "this file looks like a layout (site, x, y columns), but a spike list or ROI traces was expected here",
         )),
+        FileKind::Stimuli => Err(ImportError::new(
+            crate::place::Place::file(name),
+            ImportProblem::BadOption,
+            "this file looks like a stimulus protocol (time and amplitude columns), but a spike list or ROI traces was expected here; give it as the stimuli (--stimuli, or the manifest's stimuli column)",
+        )),
     }
 }
 
@@ -182,6 +207,7 @@ impl InputKind {
             InputKind::Table(FileKind::SpikeList) => "spike_list",
             InputKind::Table(FileKind::Layout) => "layout",
             InputKind::Table(FileKind::RoiTraces) => "roi_traces",
+            InputKind::Table(FileKind::Stimuli) => "stimuli",
             InputKind::Manifest => "manifest",
             InputKind::Wav => "wav",
             InputKind::VoltageSamples => "voltage_samples",

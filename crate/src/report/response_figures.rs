@@ -11,7 +11,6 @@ use super::svg::{Colour, LegendMark, Plot};
 use crate::response::percolation::PercolationReport;
 use crate::response::probit::{CurveFit, DosePoint};
 use crate::stats::wilson_interval;
-use statrs::distribution::{ContinuousCDF, Normal};
 
 /// One curve to draw: its name, its points and its fit.
 #[derive(Debug, Clone, PartialEq)]
@@ -45,7 +44,6 @@ pub fn response_curves(
         (x0, x1, &format!("stimulus amplitude ({unit})")),
         (0.0, 1.18, "share of sites responding"),
     );
-    let normal = Normal::standard();
     let mut legend: Vec<(String, Colour)> = Vec::new();
     for (k, c) in curves.iter().enumerate() {
         let colour = PALETTE[k % PALETTE.len()];
@@ -66,7 +64,10 @@ pub fn response_curves(
                 let line: Vec<(f64, f64)> = (0..=120)
                     .map(|i| {
                         let x = x0 + (x1 - x0) * i as f64 / 120.0;
-                        (x, normal.cdf(f.intercept + f.slope * x))
+                        (
+                            x,
+                            crate::response::probit::normal_cdf(f.intercept + f.slope * x),
+                        )
                     })
                     .collect();
                 plot.polyline(&line, colour, 1.8);

@@ -231,6 +231,8 @@ pub enum FigureRequest {
     SttcMatrix,
     /// Lag between neighbouring sites against their distance.
     Lags,
+    /// The share of sites responding at each stimulus amplitude, with its fit.
+    ResponseCurve,
 }
 
 /// The page's state.
@@ -248,6 +250,8 @@ pub struct Workbook {
     events: Option<Vec<Vec<f64>>>,
     /// Raw voltage: the electrode report of spike detection (goes into every analysis report).
     electrodes: Option<Vec<crate::detect::voltage::ElectrodeRow>>,
+    /// The stimulus protocol file, when one was given with the recording.
+    stimuli: Option<(String, Vec<u8>)>,
 }
 
 impl Workbook {
@@ -287,7 +291,22 @@ impl Workbook {
             rate: None,
             events: None,
             electrodes: None,
+            stimuli: None,
         })
+    }
+
+    /// Gives the recording its stimulus protocol (a file of its own); the analysis must be
+    /// run again. Refused when the spike list carries its own stimulus column.
+    pub fn attach_stimuli(&mut self, name: &str, bytes: &[u8]) -> Result<(), Error> {
+        let mut recording = self.recording.clone();
+        if self.stimuli.is_some() {
+            recording.stimuli = None;
+        }
+        crate::attach_stimuli(&mut recording, name, bytes, &self.settings.read)?;
+        self.recording = recording;
+        self.stimuli = Some((name.to_string(), bytes.to_vec()));
+        self.report = None;
+        Ok(())
     }
 
     /// Opens a raw voltage file: detects spikes on every channel (`read(first, end)` gives the
@@ -615,6 +634,34 @@ impl Workbook {
                     size,
                 )
             }
+            FigureRequest::ResponseCurve => {
+                let r = need()?.response.as_ref().ok_or_else(|| FigureError {
+                    message: "no stimuli: drop a stimulus protocol with the recording".into(),
+                })?;
+                let curve = &r.population;
+                let series = super::response_figures::CurveSeries {
+                    name: "all sites".into(),
+                    points: curve
+                        .points
+                        .iter()
+                        .map(|p| crate::response::probit::DosePoint {
+                            amplitude: p.amplitude,
+                            trials: p.trials,
+                            responders: p.responders,
+                        })
+                        .collect(),
+                    fit: curve.fit.clone(),
+                };
+                super::response_figures::response_curves(
+                    &format!(
+                        "Share of sites responding within {}-{} ms of each stimulus",
+                        r.settings.blank_ms, r.settings.window_ms
+                    ),
+                    &[series],
+                    r.unit.symbol(),
+                    size,
+                )
+            }
         }
     }
 
@@ -638,10 +685,14 @@ impl Workbook {
         let nb = Notebook {
             schema: NOTEBOOK_SCHEMA,
             program: format!("ringline {}", env!("CARGO_PKG_VERSION")),
-            files: vec![
-                file("activity", &self.activity),
-                file("layout", &self.layout),
-            ],
+            files: [
+                Some(file("activity", &self.activity)),
+                Some(file("layout", &self.layout)),
+                self.stimuli.as_ref().map(|f| file("stimuli", f)),
+            ]
+            .into_iter()
+            .flatten()
+            .collect(),
             settings: &self.settings,
             results: self.report.as_ref(),
             study,
@@ -670,6 +721,10 @@ impl Workbook {
                 .unwrap_or(("", b""))
         };
         let mut wb = Workbook::open(get("activity"), get("layout"), nb.settings.clone())?;
+        if nb.files.iter().any(|f| f.role == "stimuli") {
+            let (name, bytes) = get("stimuli");
+            wb.attach_stimuli(name, bytes)?;
+        }
         let view = nb.settings.view.clone();
         wb.analyze(nb.settings.analysis.clone(), progress)?;
         wb.settings.view = view;

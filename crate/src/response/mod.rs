@@ -318,20 +318,32 @@ fn curve(
     }
 }
 
-/// P(X >= k) for X ~ Binomial(n, p), summed from the top term down (no cancellation).
+/// P(X >= k) for X ~ Binomial(n, p): the terms from k up, each from `libm`'s log-gamma
+/// (so native and WebAssembly builds agree to the bit), summed until they no longer change
+/// the total.
 pub fn binomial_upper_tail(n: usize, k: usize, p: f64) -> f64 {
     if k == 0 {
         return 1.0;
     }
-    if k > n || p <= 0.0 {
+    if k > n || !(p > 0.0) {
         return 0.0;
     }
     if p >= 1.0 {
         return 1.0;
     }
-    use statrs::distribution::{Binomial, DiscreteCDF};
-    match Binomial::new(p, n as u64) {
-        Ok(b) => b.sf(k as u64 - 1),
-        Err(_) => f64::NAN,
+    let (nf, lp, lq) = (n as f64, libm::log(p), libm::log1p(-p));
+    let ln_choose =
+        |j: f64| libm::lgamma(nf + 1.0) - libm::lgamma(j + 1.0) - libm::lgamma(nf - j + 1.0);
+    let mode = (nf * p).floor();
+    let mut total = 0.0;
+    for j in k..=n {
+        let jf = j as f64;
+        let term = libm::exp(ln_choose(jf) + jf * lp + (nf - jf) * lq);
+        total += term;
+        // Past the mode the terms only fall: stop once they no longer count.
+        if jf > mode && term < total * 1e-17 {
+            break;
+        }
     }
+    total.min(1.0)
 }

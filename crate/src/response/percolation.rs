@@ -29,7 +29,6 @@
 use super::probit::{fit_probit, CurveFit, DosePoint};
 use crate::stats::wilson_interval;
 use serde::Serialize;
-use statrs::distribution::{ContinuousCDF, Normal};
 
 /// One level of the block series: its value (the blocker's concentration, or 1 - the
 /// scale of the weights) and the network curve's points, pooled over its recordings.
@@ -99,8 +98,7 @@ pub fn percolation(
             disconnected_fit.kind(),
         ));
     };
-    let normal = Normal::standard();
-    let f = |v: f64| normal.cdf((v - f0.threshold) / f0.width);
+    let f = |v: f64| crate::response::probit::normal_cdf((v - f0.threshold) / f0.width);
     let out = levels
         .iter()
         .map(|level| {

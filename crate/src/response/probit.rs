@@ -19,10 +19,10 @@
 //!   responder, only responders, or one amplitude.
 //!
 //! Every loop is bounded (iterations and bisection steps are capped); nothing here panics on
-//! any input.
+//! any input. The transcendental functions are the `libm` crate's, so the native command
+//! line and the page (WebAssembly) give the same bits.
 
 use serde::Serialize;
-use statrs::distribution::{ChiSquared, Continuous, ContinuousCDF, Normal};
 
 /// Responses at one amplitude: `responders` of `trials`.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -212,9 +212,9 @@ pub fn fit_probit_above(points: &[DosePoint], confidence: f64, floor: f64) -> Cu
         .sqrt();
     let width = 1.0 / b[1];
     let top = data.log_likelihood(b);
-    let cut = ChiSquared::new(1.0)
-        .map(|c| c.inverse_cdf(confidence) / 2.0)
-        .unwrap_or(1.920_729);
+    // Half the chi-square(1) quantile: z^2 / 2 with z the normal quantile of (1 + c) / 2.
+    let z = normal_quantile(0.5 + 0.5 * confidence);
+    let cut = z * z / 2.0;
     let threshold_ci = profile_interval(
         threshold,
         threshold_se.max(1e-12 * threshold.abs().max(1.0)),
@@ -232,10 +232,7 @@ pub fn fit_probit_above(points: &[DosePoint], confidence: f64, floor: f64) -> Cu
     );
     let (deviance, pearson_chi2) = data.goodness(b);
     let degrees_of_freedom = points.len().saturating_sub(2);
-    let fit_p = (degrees_of_freedom > 0)
-        .then(|| ChiSquared::new(degrees_of_freedom as f64).ok())
-        .flatten()
-        .map(|c| c.sf(deviance));
+    let fit_p = (degrees_of_freedom > 0).then(|| chi_square_sf(deviance, degrees_of_freedom));
     CurveFit::Fitted(ProbitFit {
         intercept: b[0],
         slope: b[1],
@@ -254,15 +251,81 @@ pub fn fit_probit_above(points: &[DosePoint], confidence: f64, floor: f64) -> Cu
     })
 }
 
+/// The standard normal cdf.
+pub fn normal_cdf(x: f64) -> f64 {
+    0.5 * libm::erfc(-x / std::f64::consts::SQRT_2)
+}
+
+/// The standard normal density.
+pub fn normal_pdf(x: f64) -> f64 {
+    libm::exp(-0.5 * x * x) / (2.0 * std::f64::consts::PI).sqrt()
+}
+
+/// The standard normal quantile, by bisection on [`normal_cdf`] (to the last bit, 200 steps
+/// at most); `p` is kept inside (1e-300, 1 - 1e-16).
+pub fn normal_quantile(p: f64) -> f64 {
+    let p = if p.is_finite() {
+        p.clamp(1e-300, 1.0 - 1e-16)
+    } else {
+        0.5
+    };
+    let (mut lo, mut hi) = (-40.0_f64, 9.0_f64);
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        if normal_cdf(mid) < p {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
+/// P(X > x) for X chi-square with `k` degrees of freedom, from the closed forms for whole
+/// k (Abramowitz & Stegun 26.4.4 and 26.4.5): e^(-x/2) times a finite sum, plus for odd
+/// k the normal tail 2 (1 - Phi(sqrt x)).
+pub fn chi_square_sf(x: f64, k: usize) -> f64 {
+    if !(x > 0.0) {
+        return 1.0;
+    }
+    let half = x / 2.0;
+    let mut total;
+    let mut term;
+    if k % 2 == 0 {
+        // sum over i < k/2 of (x/2)^i / i!
+        term = 1.0;
+        total = 1.0;
+        for i in 1..k / 2 {
+            term *= half / i as f64;
+            total += term;
+        }
+        total *= libm::exp(-half);
+    } else {
+        // 2 Q(sqrt x) + sqrt(2 x / pi) e^(-x/2) sum over r < (k-1)/2 of x^r / (1 3 ... (2r+1))
+        let tail = libm::erfc((half).sqrt());
+        term = 1.0;
+        let mut sum = if k > 1 { 1.0 } else { 0.0 };
+        for r in 1..(k - 1) / 2 {
+            term *= x / (2 * r + 1) as f64;
+            sum += term;
+        }
+        total = tail + (2.0 * x / std::f64::consts::PI).sqrt() * libm::exp(-half) * sum;
+    }
+    total.clamp(0.0, 1.0)
+}
+
 /// The standard normal's log cdf, accurate far into both tails.
 fn log_phi(x: f64) -> f64 {
     if x > -30.0 {
-        (0.5 * libm::erfc(-x / std::f64::consts::SQRT_2)).ln()
+        libm::log(0.5 * libm::erfc(-x / std::f64::consts::SQRT_2))
     } else {
         // Mills' ratio: Phi(x) ~ phi(x) / |x| (1 - 1/x^2 + 3/x^4).
         let x2 = x * x;
-        -0.5 * x2 - (-x).ln() - 0.5 * (2.0 * std::f64::consts::PI).ln()
-            + (1.0 - 1.0 / x2 + 3.0 / (x2 * x2)).ln()
+        -0.5 * x2 - libm::log(-x) - 0.5 * libm::log(2.0 * std::f64::consts::PI)
+            + libm::log(1.0 - 1.0 / x2 + 3.0 / (x2 * x2))
     }
 }
 
@@ -293,11 +356,11 @@ impl Data {
             let eta = b[0] + b[1] * self.x[i];
             // ln P = ln(c + (1 - c) Phi); ln(1 - P) = ln(1 - c) + ln Phi(-eta).
             let ln_p = if c > 0.0 {
-                (c + (1.0 - c) * log_phi(eta).exp()).ln()
+                libm::log(c + (1.0 - c) * libm::exp(log_phi(eta)))
             } else {
                 log_phi(eta)
             };
-            let ln_q = (1.0 - c).ln() + log_phi(-eta);
+            let ln_q = libm::log(1.0 - c) + log_phi(-eta);
             l += self.k[i] * ln_p + (self.n[i] - self.k[i]) * ln_q;
         }
         l
@@ -307,10 +370,9 @@ impl Data {
     /// (1 - c) phi and the Fisher weight n (dP/deta)^2 / (P (1 - P)), with P kept off 0
     /// and 1.
     fn terms(&self, eta: f64, n: f64) -> (f64, f64, f64) {
-        let normal = Normal::standard();
         let c = self.floor;
-        let p = (c + (1.0 - c) * normal.cdf(eta)).clamp(1e-300, 1.0 - 1e-16);
-        let d = (1.0 - c) * normal.pdf(eta);
+        let p = (c + (1.0 - c) * normal_cdf(eta)).clamp(1e-300, 1.0 - 1e-16);
+        let d = (1.0 - c) * normal_pdf(eta);
         (p, d, n * d * d / (p * (1.0 - p)))
     }
 
@@ -343,7 +405,7 @@ impl Data {
     fn maximise(&self) -> Option<([f64; 2], usize)> {
         let m = self.x.len();
         let eta0: Vec<f64> = (0..m)
-            .map(|i| crate::stats::normal_quantile((self.k[i] + 0.5) / (self.n[i] + 1.0)))
+            .map(|i| normal_quantile((self.k[i] + 0.5) / (self.n[i] + 1.0)))
             .collect();
         let w: Vec<f64> = self.n.clone();
         let mut b = weighted_line(&self.x, &eta0, &w)?;
@@ -466,13 +528,13 @@ impl Data {
             let (p, _, _) = self.terms(b[0] + b[1] * self.x[i], n);
             let term = |obs: f64, exp: f64| {
                 if obs > 0.0 {
-                    obs * (obs / exp).ln()
+                    obs * libm::log(obs / exp)
                 } else {
                     0.0
                 }
             };
             deviance += 2.0 * (term(k, n * p) + term(n - k, n * (1.0 - p)));
-            pearson += (k - n * p).powi(2) / (n * p * (1.0 - p));
+            pearson += (k - n * p) * (k - n * p) / (n * p * (1.0 - p));
         }
         (deviance, pearson)
     }
@@ -495,7 +557,7 @@ fn best_step(points: &[DosePoint], floor: f64) -> Option<Step> {
     sorted.sort_by(|a, b| a.amplitude.total_cmp(&b.amplitude));
     let ln = |k: f64, n: f64, p: f64| {
         let p = p.clamp(1e-300, 1.0 - 1e-16);
-        k * p.ln() + (n - k) * (1.0 - p).ln()
+        k * libm::log(p) + (n - k) * libm::log(1.0 - p)
     };
     let mut best: Option<(f64, (f64, f64))> = None;
     for j in 0..sorted.len().saturating_sub(1) {
@@ -538,7 +600,7 @@ fn weighted_line(x: &[f64], y: &[f64], w: &[f64]) -> Option<[f64; 2]> {
     let sw: f64 = w.iter().sum();
     let mx = x.iter().zip(w).map(|(a, b)| a * b).sum::<f64>() / sw;
     let my = y.iter().zip(w).map(|(a, b)| a * b).sum::<f64>() / sw;
-    let sxx: f64 = x.iter().zip(w).map(|(a, b)| b * (a - mx).powi(2)).sum();
+    let sxx: f64 = x.iter().zip(w).map(|(a, b)| b * (a - mx) * (a - mx)).sum();
     let sxy: f64 = (0..x.len()).map(|i| w[i] * (x[i] - mx) * (y[i] - my)).sum();
     (sxx > 0.0).then(|| {
         let b1 = sxy / sxx;
