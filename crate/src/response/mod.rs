@@ -325,7 +325,7 @@ pub fn binomial_upper_tail(n: usize, k: usize, p: f64) -> f64 {
     if k == 0 {
         return 1.0;
     }
-    if k > n || !(p > 0.0) {
+    if k > n || p.is_nan() || p <= 0.0 {
         return 0.0;
     }
     if p >= 1.0 {

@@ -288,7 +288,7 @@ pub fn normal_quantile(p: f64) -> f64 {
 /// k (Abramowitz & Stegun 26.4.4 and 26.4.5): e^(-x/2) times a finite sum, plus for odd
 /// k the normal tail 2 (1 - Phi(sqrt x)).
 pub fn chi_square_sf(x: f64, k: usize) -> f64 {
-    if !(x > 0.0) {
+    if x.is_nan() || x <= 0.0 {
         return 1.0;
     }
     let half = x / 2.0;
