@@ -279,3 +279,71 @@ fn a_block_series_follows_the_simulated_ignition_and_giant_component() {
         previous_threshold = v_star;
     }
 }
+
+#[test]
+fn isolated_oscillators_fire_at_the_rates_drawn_for_them() {
+    use ringline::simulate::network::{
+        isolated_rate_hz, oscillator_drive_mv, scenario_from_options, simulate_network,
+        CultureOptions, CultureShape,
+    };
+    // The drive is the leaky integrate-and-fire period solved for the drive, so the closed
+    // form rate (Gerstner et al. 2014, ch. 1; checked against the simulated neuron in
+    // tests/rhythm_round_trip.rs) gives the rate back.
+    let mut s = scenario_from_options(&CultureOptions {
+        shape: CultureShape::Strip,
+        length_um: Some(3000.0),
+        width_um: Some(300.0),
+        radius_um: None,
+        density_per_mm2: Some(1000.0),
+        mean_in_degree: Some(60.0),
+        sigma_um: Some(200.0),
+        electrodes: Some(16),
+        rois: 0,
+        duration_s: 120.0,
+        seed: 8,
+    })
+    .unwrap();
+    // A slow membrane, so that 0.1 Hz is a drive measurably above threshold.
+    s.neuron.tau_m_s = 0.5;
+    s.neuron.reset_mv = 0.0;
+    s.neuron.refractory_s = 0.01;
+    for rate in [0.1, 0.37, 1.0, 2.0] {
+        let d = oscillator_drive_mv(&s.neuron, rate);
+        // At 0.1 Hz the drive sits 4e-8 mV above threshold, where a rounding of the drive
+        // (4e-15 mV) moves the rate by about 1e-7 of itself.
+        let back = isolated_rate_hz(&s.neuron, d);
+        assert!((back - rate).abs() < 1e-6 * rate, "{rate}: {back}");
+    }
+    s.drive.isolated_rates_hz = Some([0.1, 2.0]);
+    s.synapse.excitatory_mv = 0.0;
+    s.synapse.inhibitory_mv = 0.0;
+    s.noise.rate_hz = 0.0;
+    let e = s.electrodes.as_mut().unwrap();
+    e.pickup_radius_um = 20.0;
+    e.detection_probability = 1.0;
+    // The default membrane (20 ms) cannot reach 0.1 Hz: refused with the time constant needed.
+    let mut fast = s.clone();
+    fast.neuron.tau_m_s = 0.02;
+    let refused = simulate_network(&fast, &mut |_, _, _| {}).unwrap_err();
+    assert!(refused.contains("tau_m_s of at least"), "{refused}");
+    let rec = simulate_network(&s, &mut |_, _, _| {}).unwrap();
+    let (_, spikes) = rec.electrodes.unwrap();
+    let mut single = 0;
+    for (site, truth) in spikes.iter().zip(&rec.truth.electrode_neurons) {
+        assert!(truth
+            .isolated_rates_hz
+            .iter()
+            .all(|&r| (0.1 - 1e-9..=2.0 + 1e-9).contains(&r)));
+        if let [rate] = truth.isolated_rates_hz[..] {
+            // A regular train: the rate from its mean interval, against the rate drawn.
+            let t = &site.times_s;
+            let measured = (t.len() - 1) as f64 / (t[t.len() - 1] - t[0]);
+            assert!(
+                (measured - rate).abs() < 0.01 * rate,
+                "{measured} against {rate}"
+            );
+            single += 1;
+        }
+    }
+    assert!(single >= 3, "{single} single-neuron electrodes");
+}

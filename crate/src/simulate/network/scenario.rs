@@ -255,6 +255,16 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
                 "drive.isolated_rates_hz: expected a range 0 < low <= high below 1 / refractory ({most:.0} Hz), found [{lo}, {hi}]"
             ));
         }
+        // A slow rate puts the drive within threshold x e^-(period / tau_m) of the threshold;
+        // past e^-30 that gap is lost in rounding (and any noise sets the rate instead).
+        let periods = (1.0 / lo - s.neuron.refractory_s) / s.neuron.tau_m_s;
+        if periods > 30.0 {
+            return Err(format!(
+                "drive.isolated_rates_hz: a neuron with tau_m_s {} cannot fire as slowly as {lo} Hz on a constant drive (its drive would sit within rounding of the threshold); give tau_m_s of at least {:.3} s or a faster lowest rate",
+                s.neuron.tau_m_s,
+                (1.0 / lo - s.neuron.refractory_s) / 30.0
+            ));
+        }
     }
     if let Some(st) = &s.stimulation {
         st.check(s.duration_s, neurons)?;
