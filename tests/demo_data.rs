@@ -41,6 +41,23 @@ fn demo_recordings_regenerate_byte_for_byte() {
     );
 }
 
+#[test]
+fn the_demo_study_manifest_names_files_that_exist() {
+    let text = std::fs::read(demo_dir().join("blocker-series.csv")).unwrap();
+    let manifest = ringline::import::read_manifest(
+        &text,
+        "blocker-series.csv",
+        ringline::import::ImportLimits::default(),
+    )
+    .unwrap();
+    assert_eq!(manifest.rows.len(), 4);
+    for row in &manifest.rows {
+        for file in [&row.data, &row.layout, row.stimuli.as_ref().unwrap()] {
+            assert!(demo_dir().join(file).is_file(), "{file}");
+        }
+    }
+}
+
 fn quiet_row() -> FrontScenario {
     FrontScenario {
         name: "check".into(),
