@@ -202,6 +202,8 @@ async function addFiles(list, { asStudy = false } = {}) {
     await openStudy(added);
     return;
   }
+  // A new recording dropped without a protocol does not inherit the last one's.
+  if (recordings.length && !added.some((f) => f.kind === 'stimuli')) state.stimuli = null;
   for (const entry of added) {
     if (entry.kind === 'notebook') {
       renderFiles();
@@ -880,6 +882,7 @@ async function studyFiles(i) {
     sidecar: m.sidecar == null ? null : { name: files[m.sidecar].name, bytes: await bytesOf(files[m.sidecar]) },
     layout: { name: row.layout, bytes: await bytesOf(files[m.layout]) },
     layer: m.settings == null ? null : { name: row.settings, text: new TextDecoder().decode(await bytesOf(files[m.settings])) },
+    stimuli: m.stimuli == null ? null : { name: row.stimuli, bytes: await bytesOf(files[m.stimuli]) },
   };
 }
 
@@ -944,6 +947,7 @@ async function openStudyRecording(i) {
   state.truthText = null;
   state.layout = layout;
   state.sidecar = m.sidecar == null ? null : study.files[m.sidecar];
+  state.stimuli = m.stimuli == null ? null : { ...study.files[m.stimuli], name: row.stimuli };
   if (data.kind === 'voltage') {
     state.voltage = data;
     state.activity = null;

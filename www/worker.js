@@ -55,14 +55,15 @@ const ops = {
   readManifest: ({ name, bytes }) => core.readManifest(name, new Uint8Array(bytes)),
   manifestForFiles: ({ files }) => core.manifestForFiles(files),
   matchStudy: ({ manifest, names }) => core.matchStudyFiles(manifest, names),
-  studyRecording: ({ manifest, row, name, file, sidecar, layout, layer, settings }, id) => {
+  studyRecording: ({ manifest, row, name, file, sidecar, layout, layer, stimuli, settings }, id) => {
     // Only this recording is read, and voltage only block by block.
     const reader = new FileReaderSync();
     const slice = (a, b) => new Uint8Array(reader.readAsArrayBuffer(file.slice(a, b)));
     return core.analyzeStudyRecording(
       manifest, row, name, slice(0, Math.min(65536, file.size)), file.size, slice,
       sidecar?.name, sidecar ? new Uint8Array(sidecar.bytes) : undefined,
-      layout.name, new Uint8Array(layout.bytes), layer?.name, layer?.text, settings ?? null,
+      layout.name, new Uint8Array(layout.bytes), layer?.name, layer?.text,
+      stimuli?.name, stimuli ? new Uint8Array(stimuli.bytes) : undefined, settings ?? null,
       (stage, done, total) => postMessage({ id, progress: [done, total], stage }),
     );
   },

@@ -604,6 +604,8 @@ pub fn analyze_study_recording(
     layout_bytes: &[u8],
     layer_name: Option<String>,
     layer_text: Option<String>,
+    stimuli_name: Option<String>,
+    stimuli_bytes: Option<Vec<u8>>,
     settings: JsValue,
     progress: Option<js_sys::Function>,
 ) -> Result<JsValue, JsValue> {
@@ -629,7 +631,7 @@ pub fn analyze_study_recording(
                 wav_uv_per_unit: step.voltage_wav_scale_uv(),
             },
             (layout_name, layout_bytes),
-            None,
+            stimuli_name.as_deref().zip(stimuli_bytes.as_deref()),
             &settings,
             &mut |stage, d, t| report_progress(stage, d as f64, t as f64),
         )

@@ -605,6 +605,42 @@ test('a stimulus protocol dropped with its recording gives the command line\'s r
   await context.close();
 });
 
+test('the demo blocker series as a study in the page gives the command line\'s tables and responses', async () => {
+  // The demo study's four recordings with their protocols (the manifest's stimuli column),
+  // copied under distinct names; the page's study tables equal `ringline batch`'s, and an
+  // opened recording shows its responses.
+  const dir = mkdtempSync(join(tmpdir(), 'ringline-series-'));
+  let manifest = 'recording,data,layout,stimuli,blocked_fraction\n';
+  const files = [];
+  for (const [level, fraction] of [['40', '0.4'], ['60', '0.6'], ['75', '0.75'], ['100', '1']]) {
+    for (const kind of ['spikes', 'layout', 'stimuli']) {
+      const name = `blocker-${level}-${kind}.csv`;
+      writeFileSync(join(dir, name), readFileSync(join(repo, `demo-data/blocker-${level}/${kind}.csv`)));
+      files.push({ name, path: join(dir, name) });
+    }
+    manifest += `blocker-${level},blocker-${level}-spikes.csv,blocker-${level}-layout.csv,blocker-${level}-stimuli.csv,${fraction}\n`;
+  }
+  writeFileSync(join(dir, 'series.csv'), manifest);
+  execFileSync(cli, ['batch', 'series.csv', '--out', 'batch'], { cwd: dir, stdio: 'ignore' });
+  const { page, context, errors } = await openPage(base);
+  await dropFiles(page, [{ name: 'series.csv', text: manifest }, ...files]);
+  await page.locator('#study').waitFor({ state: 'visible' });
+  await page.click('#study-run');
+  await page.waitForFunction(() => !document.getElementById('study-save').disabled, null, { timeout: 120000 });
+  const saved = {};
+  page.on('download', async (d) => { saved[d.suggestedFilename()] = readFileSync(await d.path(), 'utf8'); });
+  await page.click('#study-save');
+  for (let k = 0; k < 100 && Object.keys(saved).length < 4; k += 1) await page.waitForTimeout(100);
+  assert.equal(saved['recordings.csv'], readFileSync(join(dir, 'batch', 'recordings.csv'), 'utf8'));
+  await page.getByRole('button', { name: 'Open recording blocker-40 in the steps below' }).click();
+  await analyse(page);
+  await page.locator('#step-response').waitFor({ state: 'visible' });
+  const exported = Object.fromEntries(await page.evaluate(() => window.ringline.call('exports')));
+  assert.equal(exported['curves.csv'], readFileSync(join(dir, 'batch/recordings/blocker-40/curves.csv'), 'utf8'));
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
 test('a notebook of schema 1 (the previous version) opens with its settings and results', async () => {
   const fixture = join(repo, 'tests/fixtures/notebook-schema-1.ringline.json');
   const old = JSON.parse(readFileSync(fixture, 'utf8'));

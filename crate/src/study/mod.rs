@@ -599,6 +599,7 @@ pub struct RowFiles {
     pub sidecar: Option<usize>,
     pub layout: Option<usize>,
     pub settings: Option<usize>,
+    pub stimuli: Option<usize>,
     pub problem: Option<String>,
 }
 
@@ -642,6 +643,9 @@ pub fn match_files(manifest: &crate::import::Manifest, names: &[String]) -> Vec<
                 files.layout = Some(need(&row.layout, "layout")?);
                 if let Some(s) = &row.settings {
                     files.settings = Some(need(s, "settings")?);
+                }
+                if let Some(s) = &row.stimuli {
+                    files.stimuli = Some(need(s, "stimulus protocol")?);
                 }
                 for candidate in crate::import::sidecar_names(&row.data) {
                     if let Some(i) = find(&candidate)? {
