@@ -233,10 +233,35 @@ fn a_block_series_follows_the_simulated_ignition_and_giant_component() {
         );
         eprint!("{}", String::from_utf8_lossy(&out.stdout));
     }
+    // The study's recordings.csv carries each level's population threshold, so `compare`
+    // can set the levels against each other: blocking raises it (the thresholds below).
+    let out = common::ringline(
+        &[
+            "compare",
+            "study",
+            "--by",
+            "block",
+            "--metrics",
+            "response_threshold",
+            "--out",
+            "compared",
+        ],
+        dir.path(),
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let compared = table(&dir.path().join("compared/comparisons.csv"));
+    assert_eq!(compared[0]["metric"], "response_threshold");
+    // 0.6 blocked against 0.4: the threshold rises by about 0.2 V (0.958 against 0.743).
+    assert!(num(&compared[0], "effect") > 0.1, "{:?}", compared[0]);
     let rows = table(&dir.path().join("study/percolation.csv"));
     assert_eq!(rows.len(), 4);
     assert_eq!(rows[3]["disconnected"], "true");
-    for figure in ["percolation.svg", "curves-by-level.svg"] {
+    for figure in ["percolation.svg", "thresholds.svg", "curves-by-level.svg"] {
         let svg = std::fs::read_to_string(dir.path().join("study").join(figure)).unwrap();
         assert!(svg.contains("block") && svg.contains("</svg>"), "{figure}");
         std::fs::write(std::env::temp_dir().join(format!("ringline-{figure}")), svg).ok();

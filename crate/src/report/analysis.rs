@@ -378,6 +378,8 @@ impl AnalysisReport {
             rhythm: &'a Option<crate::rhythm::spectrum::RateSpectrum>,
             synchrony: &'a Option<crate::synchrony::SynchronySummary>,
             site_rhythms: &'a Option<crate::rhythm::sites::SiteRhythms>,
+            #[serde(skip_serializing_if = "Option::is_none")]
+            response: Option<crate::response::ResponseSummary>,
         }
         serde_json::to_string_pretty(&SummaryFile {
             schema: self.schema,
@@ -387,6 +389,7 @@ impl AnalysisReport {
             rhythm: &self.rhythm,
             synchrony: &self.synchrony,
             site_rhythms: &self.site_rhythms,
+            response: self.response.as_ref().map(|r| r.summary()),
         })
         .unwrap_or_default()
             + "\n"

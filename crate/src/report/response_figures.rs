@@ -167,9 +167,65 @@ pub fn percolation_figure(
     })
 }
 
+/// The network threshold V* of each level of a block series (levels in order at x = 0, 1,
+/// ...), with the disconnected curve's 50% point as a dashed line for reference.
+pub fn threshold_figure(
+    report: &PercolationReport,
+    level_label: &str,
+    unit: &str,
+    size: Size,
+) -> Result<Figure, FigureError> {
+    let values: Vec<(usize, f64)> = report
+        .levels
+        .iter()
+        .enumerate()
+        .filter_map(|(k, l)| l.threshold.map(|t| (k, t)))
+        .collect();
+    let (y0, y1) = padded(values.iter().map(|v| v.1)).ok_or_else(|| empty("no thresholds"))?;
+    let names: Vec<String> = report.levels.iter().map(|l| l.name.clone()).collect();
+    let mut plot = Plot::with_categories(
+        size.width_px,
+        size.height_px,
+        "Network threshold across the block series",
+        &names,
+        level_label,
+        (
+            y0,
+            y1 + 0.25 * (y1 - y0),
+            &format!("network threshold V* ({unit})"),
+        ),
+    );
+    let line: Vec<(f64, f64)> = values.iter().map(|&(k, t)| (k as f64, t)).collect();
+    plot.polyline(&line, BLUE, 1.2);
+    for &(x, y) in &line {
+        plot.circle(x, y, 4.0, BLUE, true);
+    }
+    let mut legend = vec![(
+        "network threshold (50% point of the level's curve)",
+        BLUE,
+        LegendMark::Dot,
+    )];
+    if let CurveFit::Fitted(f) = &report.disconnected_fit {
+        plot.dashed(
+            (-0.5, f.threshold),
+            (names.len() as f64 - 0.5, f.threshold),
+            BLACK,
+            1.0,
+        );
+        legend.push(("disconnected curve's 50% point", BLACK, LegendMark::Dashed));
+    }
+    plot.legend_in(&legend, false);
+    Ok(Figure {
+        svg: plot.finish(),
+        width_px: size.width_px,
+        height_px: size.height_px,
+        points: Vec::new(),
+    })
+}
+
 /// The files of a block series: `percolation.csv`, `percolation.svg` (ignition fraction and
-/// giant component per level) and `curves-by-level.svg` (each level's pooled population
-/// curve with its fit).
+/// giant component per level), `thresholds.svg` (the network threshold per level) and
+/// `curves-by-level.svg` (each level's pooled population curve with its fit).
 pub fn percolation_output_files(
     series: &crate::study::percolation::BlockSeries,
 ) -> Vec<(String, String)> {
@@ -181,6 +237,9 @@ pub fn percolation_output_files(
     let mut files = vec![("percolation.csv".to_string(), series.percolation_csv())];
     if let Ok(f) = percolation_figure(&series.report, &series.by, &unit, size) {
         files.push(("percolation.svg".into(), f.svg));
+    }
+    if let Ok(f) = threshold_figure(&series.report, &series.by, &unit, size) {
+        files.push(("thresholds.svg".into(), f.svg));
     }
     let curves: Vec<CurveSeries> = series
         .report

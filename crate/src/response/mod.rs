@@ -115,6 +115,47 @@ pub struct ResponseReport {
     pub notices: Vec<Notice>,
 }
 
+/// The population curve in a few numbers (summary.json's `response`, the study's
+/// `recordings.csv`).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ResponseSummary {
+    pub unit: AmplitudeUnit,
+    pub stimuli: usize,
+    /// The fit's kind (`fitted`, `all_or_none_step`, ...).
+    pub fit: &'static str,
+    /// The 50% point and spread with their profile intervals, when fitted.
+    pub threshold: Option<f64>,
+    pub threshold_ci: Option<[Option<f64>; 2]>,
+    pub width: Option<f64>,
+    /// Where the threshold lies when no curve was fitted.
+    pub threshold_above: Option<f64>,
+    pub threshold_below: Option<f64>,
+    pub spontaneous_probability: Option<f64>,
+}
+
+impl ResponseReport {
+    /// The population curve in a few numbers.
+    pub fn summary(&self) -> ResponseSummary {
+        let fit = &self.population.fit;
+        let fitted = match fit {
+            CurveFit::Fitted(f) => Some(f),
+            _ => None,
+        };
+        let (above, below) = fit.threshold_bounds();
+        ResponseSummary {
+            unit: self.unit,
+            stimuli: self.stimuli.len(),
+            fit: fit.kind(),
+            threshold: fitted.map(|f| f.threshold),
+            threshold_ci: fitted.map(|f| f.threshold_ci),
+            width: fitted.map(|f| f.width),
+            threshold_above: above,
+            threshold_below: below,
+            spontaneous_probability: self.population.spontaneous_probability,
+        }
+    }
+}
+
 /// Responses of `sites` (id, sorted event times in s) to every stimulus of `protocol`.
 pub fn responses(
     sites: &[(&str, &[f64])],

@@ -306,7 +306,7 @@ fn status_table(entries: &[(RecordingStatus, &RecordingOutputs)], columns: &[Str
 
 /// The columns of `recordings.csv` after the keys and the outcome: (name, JSON pointer into
 /// `summary.json`). Intervals are 95%.
-const RECORDING_NUMBERS: [(&str, &str); 45] = [
+const RECORDING_NUMBERS: [(&str, &str); 53] = [
     ("track", "/track/kind"),
     ("duration_s", "/summary/duration_s"),
     ("burst_count", "/summary/burst_count"),
@@ -396,6 +396,17 @@ const RECORDING_NUMBERS: [(&str, &str); 45] = [
     (
         "median_fraction_in_site_bursts",
         "/site_rhythms/median_fraction_in_site_bursts",
+    ),
+    ("stimuli", "/response/stimuli"),
+    ("response_unit", "/response/unit"),
+    ("response_fit", "/response/fit"),
+    ("response_threshold", "/response/threshold"),
+    ("response_threshold_ci95_low", "/response/threshold_ci/0"),
+    ("response_threshold_ci95_high", "/response/threshold_ci/1"),
+    ("response_width", "/response/width"),
+    (
+        "response_spontaneous_probability",
+        "/response/spontaneous_probability",
     ),
 ];
 
