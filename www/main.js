@@ -473,12 +473,12 @@ function readAnalysisForm() {
 
 // ---------------------------------------------------------------- figures
 
-async function drawFigure(name) {
+async function drawFigure(name, extra = {}) {
   const img = $(`fig-${name}`);
   const width = Math.max(360, Math.min(900, Math.round(img.parentElement.clientWidth || 760)));
   const height = name === 'raster' ? Math.max(300, Math.min(700, 80 + 14 * (state.inspection?.site_count ?? 16))) : 340;
   try {
-    const fig = await call('figure', { figure: name, width, height });
+    const fig = await call('figure', { figure: name, width, height, extra });
     state.svgs[name] = fig.svg;
     const old = img.src;
     img.src = URL.createObjectURL(new Blob([fig.svg], { type: 'image/svg+xml' }));
@@ -736,7 +736,17 @@ async function renderResponse() {
       tr.insertCell().textContent = text;
     }
   }
-  await drawFigure('response_curve');
+  const select = $('response-site');
+  const keep = select.value;
+  select.replaceChildren(new Option('all sites', ''));
+  for (const c of r.sites) select.append(new Option(`site ${c.name} (${c.fit.kind.replaceAll('_', ' ')})`, c.name));
+  if ([...select.options].some((o) => o.value === keep)) select.value = keep;
+  await drawResponseCurve();
+}
+
+function drawResponseCurve() {
+  const site = $('response-site').value;
+  return drawFigure('response_curve', site ? { site } : {});
 }
 
 function summaryRows(r) {
@@ -1128,6 +1138,7 @@ function wire() {
   $('study-save').addEventListener('click', () => saveStudy().catch((e) => showError('input-error', e)));
   $('compare-form').addEventListener('submit', (e) => compareStudy(e).catch((err) => showError('input-error', err)));
   $('compare-metric').addEventListener('change', showEstimation);
+  $('response-site').addEventListener('change', () => drawResponseCurve().catch((e) => showError('input-error', e)));
   $('compare-save').addEventListener('click', () => {
     const file = state.comparison?.files.find((x) => x[0] === 'comparisons.csv');
     if (file) download('comparisons.csv', file[1], 'text/csv');

@@ -591,6 +591,9 @@ test('a stimulus protocol dropped with its recording gives the command line\'s r
   for (const name of ['curves.csv', 'responses.csv']) {
     assert.equal(files[name], readFileSync(join(dir, 'out', name), 'utf8'), `${name} differs from ringline analyze`);
   }
+  // One site's own curve beside the population's.
+  await page.selectOption('#response-site', { index: 3 });
+  await page.waitForFunction(() => /site e\d+/.test(window.ringline.state.svgs.response_curve ?? ''));
   await shoot(page, '10-response');
   // The notebook keeps the protocol: re-opened, the same curves come back.
   const notebook = await downloadText(page, '#save-notebook');

@@ -231,8 +231,12 @@ pub enum FigureRequest {
     SttcMatrix,
     /// Lag between neighbouring sites against their distance.
     Lags,
-    /// The share of sites responding at each stimulus amplitude, with its fit.
-    ResponseCurve,
+    /// The share of sites responding at each stimulus amplitude, with its fit; with `site`,
+    /// that site's own curve beside the population's.
+    ResponseCurve {
+        #[serde(default)]
+        site: Option<String>,
+    },
 }
 
 /// The page's state.
@@ -634,30 +638,42 @@ impl Workbook {
                     size,
                 )
             }
-            FigureRequest::ResponseCurve => {
+            FigureRequest::ResponseCurve { site } => {
                 let r = need()?.response.as_ref().ok_or_else(|| FigureError {
                     message: "no stimuli: drop a stimulus protocol with the recording".into(),
                 })?;
-                let curve = &r.population;
-                let series = super::response_figures::CurveSeries {
-                    name: "all sites".into(),
-                    points: curve
-                        .points
-                        .iter()
-                        .map(|p| crate::response::probit::DosePoint {
-                            amplitude: p.amplitude,
-                            trials: p.trials,
-                            responders: p.responders,
-                        })
-                        .collect(),
-                    fit: curve.fit.clone(),
+                let series = |name: &str, curve: &crate::response::ResponseCurve| {
+                    super::response_figures::CurveSeries {
+                        name: name.to_string(),
+                        points: curve
+                            .points
+                            .iter()
+                            .map(|p| crate::response::probit::DosePoint {
+                                amplitude: p.amplitude,
+                                trials: p.trials,
+                                responders: p.responders,
+                            })
+                            .collect(),
+                        fit: curve.fit.clone(),
+                    }
                 };
+                let mut curves = vec![series("all sites", &r.population)];
+                if let Some(id) = site {
+                    let own =
+                        r.sites
+                            .iter()
+                            .find(|c| &c.name == id)
+                            .ok_or_else(|| FigureError {
+                                message: format!("no site {id} in the responses"),
+                            })?;
+                    curves.push(series(&format!("site {id}"), own));
+                }
                 super::response_figures::response_curves(
                     &format!(
-                        "Share of sites responding within {}-{} ms of each stimulus",
+                        "Share responding within {}-{} ms of each stimulus",
                         r.settings.blank_ms, r.settings.window_ms
                     ),
-                    &[series],
+                    &curves,
                     r.unit.symbol(),
                     size,
                 )
