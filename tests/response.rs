@@ -93,23 +93,6 @@ fn generate(seed: u64) -> Generated {
     }
 }
 
-fn curves(path: &std::path::Path) -> Vec<std::collections::HashMap<String, String>> {
-    let text = std::fs::read_to_string(path).unwrap();
-    let mut reader = csv::Reader::from_reader(text.as_bytes());
-    let header = reader.headers().unwrap().clone();
-    reader
-        .records()
-        .map(|r| {
-            let r = r.unwrap();
-            header
-                .iter()
-                .zip(r.iter())
-                .map(|(h, v)| (h.to_string(), v.to_string()))
-                .collect()
-        })
-        .collect()
-}
-
 #[test]
 fn thresholds_drawn_by_an_independent_generator_are_recovered() {
     let g = generate(5);
@@ -141,14 +124,12 @@ fn thresholds_drawn_by_an_independent_generator_are_recovered() {
         text.contains("Stimuli        96 from stimuli.csv (8 amplitudes)"),
         "{text}"
     );
-    let rows = curves(&dir.path().join("out/curves.csv"));
+    let rows = common::csv_rows(&dir.path().join("out/curves.csv"));
     let population: Vec<_> = rows.iter().filter(|r| r["curve"] == "population").collect();
     assert_eq!(population.len(), AMPLITUDES_V.len());
     let p = population[0];
     assert_eq!(p["fit"], "fitted");
-    let num = |r: &std::collections::HashMap<String, String>, k: &str| -> f64 {
-        r[k].parse().unwrap_or_else(|_| panic!("{k}: {:?}", r[k]))
-    };
+    let num = common::csv_number;
     let mu = num(p, "threshold_V");
     let sigma = num(p, "width_V");
     // The generator's mean: the fit is of 60 draws, so allow 3 standard errors of a mean
@@ -185,35 +166,7 @@ fn thresholds_drawn_by_an_independent_generator_are_recovered() {
         let name = format!("e{e:02}");
         let r = rows.iter().find(|r| r["curve"] == name).unwrap();
         judged += 1;
-        // What the data can tell: the threshold lies between the two tested amplitudes
-        // around it (every threshold in that gap gives the same responses), so the reported
-        // interval or bound must reach into that gap.
-        let gap_low = AMPLITUDES_V
-            .iter()
-            .copied()
-            .filter(|&a| a < theta)
-            .fold(f64::NEG_INFINITY, f64::max);
-        let gap_high = AMPLITUDES_V
-            .iter()
-            .copied()
-            .filter(|&a| a >= theta)
-            .fold(f64::INFINITY, f64::min);
-        let reaches = |lo: f64, hi: f64| lo <= gap_high && hi >= gap_low;
-        let ok = match r["fit"].as_str() {
-            "fitted" => {
-                let lo = r["threshold_ci95_low_V"]
-                    .parse::<f64>()
-                    .unwrap_or(f64::NEG_INFINITY);
-                let hi = r["threshold_ci95_high_V"]
-                    .parse::<f64>()
-                    .unwrap_or(f64::INFINITY);
-                reaches(lo, hi)
-            }
-            "all_or_none_step" => reaches(num(r, "threshold_above_V"), num(r, "threshold_below_V")),
-            "none_responded" => gap_high >= num(r, "threshold_above_V"),
-            "all_responded" => gap_low < num(r, "threshold_below_V"),
-            other => panic!("{name}: {other}"),
-        };
+        let ok = common::curve_holds_threshold(r, theta, &AMPLITUDES_V);
         if !ok {
             eprintln!(
                 "{name}: threshold {theta:.3}, {} [{} {}] bounds [{} {}]",

@@ -33,29 +33,7 @@ fn scenario(scale: f64, seed: u64) -> String {
     )
 }
 
-type Row = std::collections::HashMap<String, String>;
-
-fn table(path: &std::path::Path) -> Vec<Row> {
-    let text = std::fs::read_to_string(path).unwrap();
-    let mut reader = csv::Reader::from_reader(text.as_bytes());
-    let header = reader.headers().unwrap().clone();
-    reader
-        .records()
-        .map(|r| {
-            let r = r.unwrap();
-            header
-                .iter()
-                .zip(r.iter())
-                .map(|(h, v)| (h.to_string(), v.to_string()))
-                .collect()
-        })
-        .collect()
-}
-
-fn num(r: &Row, k: &str) -> f64 {
-    r[k].parse()
-        .unwrap_or_else(|_| panic!("{k}: {:?} in {r:?}", r[k]))
-}
+use common::{csv_number as num, csv_rows as table};
 
 /// Simulates and analyses one culture; returns the folder.
 fn run(dir: &std::path::Path, scale: f64, seed: u64) {
@@ -130,29 +108,7 @@ fn blocked_culture_gives_back_its_threshold_distribution() {
             .iter()
             .find(|r| r["curve"] == name)
             .unwrap_or_else(|| panic!("{name}"));
-        let low = AMPLITUDES
-            .iter()
-            .copied()
-            .filter(|&a| a < theta)
-            .fold(f64::NEG_INFINITY, f64::max);
-        let high = AMPLITUDES
-            .iter()
-            .copied()
-            .filter(|&a| a >= theta)
-            .fold(f64::INFINITY, f64::min);
-        let reaches = |lo: f64, hi: f64| lo <= high && hi >= low;
-        let ok = match r["fit"].as_str() {
-            "fitted" => reaches(
-                r["threshold_ci95_low_V"]
-                    .parse()
-                    .unwrap_or(f64::NEG_INFINITY),
-                r["threshold_ci95_high_V"].parse().unwrap_or(f64::INFINITY),
-            ),
-            "all_or_none_step" => reaches(num(r, "threshold_above_V"), num(r, "threshold_below_V")),
-            "none_responded" => high >= num(r, "threshold_above_V"),
-            "all_responded" => low < num(r, "threshold_below_V"),
-            _ => false,
-        };
+        let ok = common::curve_holds_threshold(r, theta, &AMPLITUDES);
         held += usize::from(ok);
     }
     eprintln!("{held} of 100 ROIs' thresholds inside their fit or bound");

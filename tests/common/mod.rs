@@ -413,3 +413,63 @@ pub fn simulate_strip(
         std::fs::write(folder.join(file), bytes).expect("a file");
     }
 }
+
+/// A CSV file's rows as column -> text maps.
+pub type CsvRow = std::collections::HashMap<String, String>;
+
+/// Reads a CSV file written by ringline into rows keyed by column name.
+pub fn csv_rows(path: &std::path::Path) -> Vec<CsvRow> {
+    let text = std::fs::read_to_string(path).expect("a CSV file");
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    let header = reader.headers().expect("a header").clone();
+    reader
+        .records()
+        .map(|r| {
+            let r = r.expect("a CSV row");
+            header
+                .iter()
+                .zip(r.iter())
+                .map(|(h, v)| (h.to_string(), v.to_string()))
+                .collect()
+        })
+        .collect()
+}
+
+/// A number from a CSV row.
+pub fn csv_number(r: &CsvRow, key: &str) -> f64 {
+    r[key]
+        .parse()
+        .unwrap_or_else(|_| panic!("{key}: {:?} in {r:?}", r[key]))
+}
+
+/// Whether a curves.csv row (amplitudes in V) is true to a threshold `theta`: every
+/// threshold between the two tested amplitudes around it gives the same responses, so the
+/// reported interval or bound must reach into that gap (`common practice, no source`).
+pub fn curve_holds_threshold(r: &CsvRow, theta: f64, amplitudes: &[f64]) -> bool {
+    let low = amplitudes
+        .iter()
+        .copied()
+        .filter(|&a| a < theta)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let high = amplitudes
+        .iter()
+        .copied()
+        .filter(|&a| a >= theta)
+        .fold(f64::INFINITY, f64::min);
+    let reaches = |lo: f64, hi: f64| lo <= high && hi >= low;
+    match r["fit"].as_str() {
+        "fitted" => reaches(
+            r["threshold_ci95_low_V"]
+                .parse()
+                .unwrap_or(f64::NEG_INFINITY),
+            r["threshold_ci95_high_V"].parse().unwrap_or(f64::INFINITY),
+        ),
+        "all_or_none_step" => reaches(
+            csv_number(r, "threshold_above_V"),
+            csv_number(r, "threshold_below_V"),
+        ),
+        "none_responded" => high >= csv_number(r, "threshold_above_V"),
+        "all_responded" => low < csv_number(r, "threshold_below_V"),
+        _ => false,
+    }
+}
