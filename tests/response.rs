@@ -301,3 +301,86 @@ fn binomial_tail_matches_scipy() {
         );
     }
 }
+
+#[test]
+fn stimuli_that_did_nothing_give_no_curve_on_a_real_recording() {
+    // A real recording (Cotterill et al. 2016, J Neurophysiol 116:306; the fixture and its
+    // citation in tests/fixtures/stem-cell-networks-2016/) with a protocol of 40 "stimuli"
+    // at random times that were never given: its network bursts fall in some response
+    // windows by chance. Nothing may come out as a threshold, and the per-site chance
+    // levels must hold about their nominal 5%.
+    let fixture = std::path::Path::new(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../tests/fixtures/stem-cell-networks-2016"
+    ));
+    let dir = tempfile::tempdir().unwrap();
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+    let mut amplitudes: Vec<f64> = [0.5, 1.0, 1.5, 2.0]
+        .iter()
+        .flat_map(|&a| std::iter::repeat_n(a, 10))
+        .collect();
+    for i in (1..amplitudes.len()).rev() {
+        amplitudes.swap(i, rng.random_range(0..=i));
+    }
+    let mut times: Vec<f64> = amplitudes
+        .iter()
+        .map(|_| rng.random_range(40.0..148.0))
+        .collect();
+    times.sort_by(f64::total_cmp);
+    let mut protocol = String::from("time_s,amplitude_V\n");
+    for (t, a) in times.iter().zip(&amplitudes) {
+        protocol.push_str(&format!("{t:.4},{a}\n"));
+    }
+    std::fs::write(dir.path().join("stimuli.csv"), protocol).unwrap();
+    let out = common::ringline(
+        &[
+            "analyze",
+            &fixture
+                .join("tc146_d21_first150s.spikes.csv")
+                .to_string_lossy(),
+            "--layout",
+            &fixture.join("tc146_d21.layout.csv").to_string_lossy(),
+            "--stimuli",
+            "stimuli.csv",
+            "--out",
+            "out",
+        ],
+        dir.path(),
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let rows = common::csv_rows(&dir.path().join("out/curves.csv"));
+    let population = rows.iter().find(|r| r["curve"] == "population").unwrap();
+    assert!(
+        ["no_rise", "none_responded"].contains(&population["fit"].as_str()),
+        "{}",
+        population["fit"]
+    );
+    let points: Vec<_> = rows
+        .iter()
+        .filter(|r| r["curve"] != "population" && !r["chance_p"].is_empty())
+        .collect();
+    let below = points
+        .iter()
+        .filter(|r| common::csv_number(r, "chance_p") < 0.05)
+        .count();
+    let sites: Vec<_> = rows
+        .iter()
+        .filter(|r| r["curve"] != "population" && r["amplitude_V"] == "0.5")
+        .collect();
+    let thresholds = sites
+        .iter()
+        .filter(|r| ["fitted", "all_or_none_step"].contains(&r["fit"].as_str()))
+        .count();
+    eprintln!(
+        "{below} of {} site-amplitude points below a chance p of 0.05; {thresholds} of {} sites with a threshold",
+        points.len(),
+        sites.len()
+    );
+    assert!((below as f64) <= 0.1 * points.len() as f64);
+    assert!((thresholds as f64) <= 0.1 * sites.len() as f64);
+}

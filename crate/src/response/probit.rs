@@ -76,7 +76,8 @@ pub enum CurveFit {
     AllResponded { lowest: f64 },
     /// Responses at one amplitude only: the share, with no curve.
     OneAmplitude { amplitude: f64, fraction: f64 },
-    /// The share does not rise with amplitude (a fitted slope of 0 or less).
+    /// The share does not rise with amplitude: a fitted slope of 0 or less, or a rise no
+    /// better than a constant share (likelihood-ratio test at 5%).
     NoRise { slope: f64 },
     /// No trials, or the fit did not converge.
     NotFitted { reason: String },
@@ -106,6 +107,9 @@ impl CurveFit {
         }
     }
 }
+
+/// The chi-square(1) 95% quantile (scipy.stats.chi2.ppf(0.95, 1)).
+const CHI_SQUARE_1_95: f64 = 3.841_458_820_694_124;
 
 /// Most Fisher-scoring iterations; the beetle data converge in 6.
 const MAX_ITERATIONS: usize = 100;
@@ -187,12 +191,23 @@ pub fn fit_probit_above(points: &[DosePoint], confidence: f64, floor: f64) -> Cu
         return match best_step(&points, floor) {
             Some(Step::At(below, above)) => CurveFit::Separated { below, above },
             Some(Step::NotAboveChance) => CurveFit::NoneResponded { highest },
-            None => CurveFit::NotFitted {
-                reason: "the likelihood did not converge in 100 iterations".into(),
-            },
+            // No split raises the share above the chance floor.
+            None => CurveFit::NoRise { slope: 0.0 },
         };
     };
-    if b[1] <= 0.0 {
+    // A rise no better than a constant share (likelihood-ratio test at 5%, 1 df) is not a
+    // threshold curve: a flat curve's fit would put its 50% point anywhere, often far
+    // outside the amplitudes tried.
+    let trials_f = trials as f64;
+    let share = responders as f64 / trials_f;
+    let constant: f64 = points
+        .iter()
+        .map(|p| {
+            let (k, n) = (p.responders as f64, p.trials as f64);
+            k * libm::log(share) + (n - k) * libm::log(1.0 - share)
+        })
+        .sum();
+    if b[1] <= 0.0 || 2.0 * (data.log_likelihood(b) - constant) < CHI_SQUARE_1_95 {
         return CurveFit::NoRise { slope: b[1] };
     }
     let info = data.information(b);
@@ -588,7 +603,7 @@ fn best_step(points: &[DosePoint], floor: f64) -> Option<Step> {
         .iter()
         .map(|p| ln(p.responders as f64, p.trials as f64, floor.max(1e-12)))
         .sum();
-    Some(if 2.0 * (l_step - l_floor) >= 3.841_458_820_694_124 {
+    Some(if 2.0 * (l_step - l_floor) >= CHI_SQUARE_1_95 {
         Step::At(below, above)
     } else {
         Step::NotAboveChance
