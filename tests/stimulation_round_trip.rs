@@ -328,3 +328,54 @@ fn isolated_oscillators_fire_at_the_rates_drawn_for_them() {
     }
     assert!(single >= 3, "{single} single-neuron electrodes");
 }
+
+#[test]
+fn the_calcium_level_shifts_every_drive_as_documented() {
+    use ringline::simulate::network::{
+        isolated_rate_hz, oscillator_drive_mv, scenario_from_options, simulate_network,
+        CultureOptions, CultureShape, CALCIUM_DRIVE_MV,
+    };
+    // The model choice (README "The network simulator"): calcium 1.5 shifts every drive by
+    // 0.5 mV x 0.5 and scales the release probability. With oscillator drives, each
+    // electrode neuron's rate alone must be the LIF rate of its drawn drive plus the shift.
+    let run = |calcium: f64| {
+        let mut s = scenario_from_options(&CultureOptions {
+            shape: CultureShape::Strip,
+            length_um: Some(2000.0),
+            width_um: Some(300.0),
+            radius_um: None,
+            density_per_mm2: Some(1000.0),
+            mean_in_degree: Some(60.0),
+            sigma_um: Some(200.0),
+            electrodes: Some(16),
+            rois: 0,
+            duration_s: 10.0,
+            seed: 9,
+        })
+        .unwrap();
+        s.neuron.tau_m_s = 0.5;
+        s.neuron.reset_mv = 0.0;
+        s.neuron.refractory_s = 0.01;
+        s.drive.isolated_rates_hz = Some([0.5, 2.0]);
+        s.calcium_scale = calcium;
+        let truth = simulate_network(&s, &mut |_, _, _| {}).unwrap().truth;
+        (s, truth)
+    };
+    let (s, base) = run(1.0);
+    let (_, raised) = run(1.5);
+    assert_eq!(raised.scenario.calcium_scale, 1.5);
+    let shift = CALCIUM_DRIVE_MV * 0.5;
+    let mut compared = 0;
+    for (a, b) in base.electrode_neurons.iter().zip(&raised.electrode_neurons) {
+        for (&r0, &r1) in a.isolated_rates_hz.iter().zip(&b.isolated_rates_hz) {
+            let expected = isolated_rate_hz(&s.neuron, oscillator_drive_mv(&s.neuron, r0) + shift);
+            assert!(
+                (r1 - expected).abs() < 1e-9 * expected,
+                "{r1} against {expected}"
+            );
+            assert!(r1 > r0);
+            compared += 1;
+        }
+    }
+    assert!(compared >= 10, "{compared}");
+}

@@ -19,5 +19,5 @@ pub use scenario::{
     in_degree_sweep, in_degree_sweep_csv, oscillator_drive_mv, scenario_from_options,
     simulate_network, CultureOptions, CultureShape, DriveParams, Electrodes, Imaging,
     InDegreePoint, NetworkRecording, NetworkScenario, NetworkTruth, NetworkTruthBurst, SiteNeurons,
-    CULTURE_DURATION_S, CULTURE_SEED,
+    CALCIUM_DRIVE_MV, CULTURE_DURATION_S, CULTURE_SEED,
 };
