@@ -51,7 +51,9 @@ enum Command {
     /// giant component per level; writes percolation.csv and its figures.
     Percolation(PercolationArgs),
     /// Simulate a recording with known fronts from a scenario file (JSON); write spikes.csv,
-    /// layout.csv and truth.json into a folder.
+    /// layout.csv and truth.json into a folder (network cultures also traces.csv and
+    /// roi_layout.csv when imaged, voltage.raw and voltage.json when asked, stimuli.csv when
+    /// stimulated).
     Simulate(SimulateArgs),
 }
 
