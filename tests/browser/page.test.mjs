@@ -581,7 +581,8 @@ test('a stimulus protocol dropped with its recording gives the command line\'s r
     { cwd: dir, stdio: 'ignore' });
   const { page, context, errors } = await openPage(base);
   await dropFiles(page, ['spikes.csv', 'layout.csv', 'stimuli.csv'].map((n) => ({ name: n, path: join(dir, 'sim', n) })));
-  assert.match(await page.textContent('#file-table'), /stimulus protocol/);
+  // The file table fills in as each dropped file is classified.
+  await page.waitForFunction(() => document.getElementById('file-table').textContent.includes('stimulus protocol'));
   await analyse(page);
   await page.locator('#step-response').waitFor({ state: 'visible' });
   await page.locator('#fig-response_curve').waitFor({ state: 'visible' });
