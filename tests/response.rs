@@ -100,7 +100,7 @@ fn thresholds_drawn_by_an_independent_generator_are_recovered() {
     std::fs::write(dir.path().join("spikes.csv"), &g.spikes).unwrap();
     std::fs::write(dir.path().join("layout.csv"), &g.layout).unwrap();
     std::fs::write(dir.path().join("stimuli.csv"), &g.protocol).unwrap();
-    let out = common::ringline(
+    let out = common::ringline_ok(
         &[
             "analyze",
             "spikes.csv",
@@ -112,12 +112,6 @@ fn thresholds_drawn_by_an_independent_generator_are_recovered() {
             "out",
         ],
         dir.path(),
-    );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
     );
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
@@ -221,13 +215,7 @@ fn stimuli_in_the_spike_list_give_the_same_curves() {
         if let Some(p) = extra {
             args.extend(["--stimuli", p]);
         }
-        let out = common::ringline(&args, dir.path());
-        assert_eq!(
-            out.status.code(),
-            Some(0),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
+        common::ringline_ok(&args, dir.path());
     }
     let a = std::fs::read_to_string(dir.path().join("out-with.csv/curves.csv")).unwrap();
     let b = std::fs::read_to_string(dir.path().join("out-spikes.csv/curves.csv")).unwrap();
@@ -332,7 +320,7 @@ fn stimuli_that_did_nothing_give_no_curve_on_a_real_recording() {
         protocol.push_str(&format!("{t:.4},{a}\n"));
     }
     std::fs::write(dir.path().join("stimuli.csv"), protocol).unwrap();
-    let out = common::ringline(
+    common::ringline_ok(
         &[
             "analyze",
             &fixture
@@ -346,12 +334,6 @@ fn stimuli_that_did_nothing_give_no_curve_on_a_real_recording() {
             "out",
         ],
         dir.path(),
-    );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
     );
     let rows = common::csv_rows(&dir.path().join("out/curves.csv"));
     let population = rows.iter().find(|r| r["curve"] == "population").unwrap();

@@ -473,3 +473,16 @@ pub fn curve_holds_threshold(r: &CsvRow, theta: f64, amplitudes: &[f64]) -> bool
         _ => false,
     }
 }
+
+/// [`ringline`] that must succeed (exit 0; otherwise the test fails with its stderr).
+pub fn ringline_ok(args: &[&str], dir: &std::path::Path) -> std::process::Output {
+    let out = ringline(args, dir);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "ringline {}: {}",
+        args.join(" "),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    out
+}
