@@ -15,32 +15,17 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod common;
+
 use ringline::fronts::AnalysisSettings;
 use ringline::import::{write_layout, write_spike_list, ReadOptions};
 use ringline::report::AnalysisReport;
 use ringline::simulate::network::{
-    isolated_rate_hz, scenario_from_options, simulate_network, CultureOptions, CultureShape,
-    NetworkRecording, NetworkScenario,
+    isolated_rate_hz, simulate_network, NetworkRecording, NetworkScenario,
 };
 
 fn oscillators(blocked: bool, seed: u64) -> NetworkScenario {
-    let mut s = scenario_from_options(&CultureOptions {
-        shape: CultureShape::Strip,
-        length_um: Some(4000.0),
-        width_um: Some(300.0),
-        radius_um: None,
-        density_per_mm2: Some(1000.0),
-        mean_in_degree: Some(60.0),
-        sigma_um: Some(200.0),
-        electrodes: Some(16),
-        rois: 0,
-        duration_s: 240.0,
-        seed,
-    })
-    .unwrap();
-    s.neuron.tau_m_s = 0.5;
-    s.neuron.reset_mv = 0.0;
-    s.neuron.refractory_s = 0.01;
+    let mut s = common::slow_oscillator_culture(4000.0, 240.0, seed);
     s.drive.mean_mv = 21.0;
     s.drive.sd_mv = 0.4;
     if blocked {

@@ -255,42 +255,13 @@ fn a_block_series_follows_the_simulated_ignition_and_giant_component() {
     }
 }
 
-/// A strip culture of 1,000 neurons/mm^2 under 16 electrodes with a slow membrane (0.5 s,
-/// reset 0, refractory 10 ms), so that rates down to 0.1 Hz are drives measurably above
-/// threshold.
-fn slow_oscillator_culture(
-    length_um: f64,
-    duration_s: f64,
-    seed: u64,
-) -> ringline::simulate::network::NetworkScenario {
-    use ringline::simulate::network::{scenario_from_options, CultureOptions, CultureShape};
-    let mut s = scenario_from_options(&CultureOptions {
-        shape: CultureShape::Strip,
-        length_um: Some(length_um),
-        width_um: Some(300.0),
-        radius_um: None,
-        density_per_mm2: Some(1000.0),
-        mean_in_degree: Some(60.0),
-        sigma_um: Some(200.0),
-        electrodes: Some(16),
-        rois: 0,
-        duration_s,
-        seed,
-    })
-    .expect("the culture options are valid");
-    s.neuron.tau_m_s = 0.5;
-    s.neuron.reset_mv = 0.0;
-    s.neuron.refractory_s = 0.01;
-    s
-}
-
 #[test]
 fn isolated_oscillators_fire_at_the_rates_drawn_for_them() {
     use ringline::simulate::network::{isolated_rate_hz, oscillator_drive_mv, simulate_network};
     // The drive is the leaky integrate-and-fire period solved for the drive, so the closed
     // form rate (Gerstner et al. 2014, ch. 1; checked against the simulated neuron in
     // tests/rhythm_round_trip.rs) gives the rate back.
-    let mut s = slow_oscillator_culture(3000.0, 120.0, 8);
+    let mut s = common::slow_oscillator_culture(3000.0, 120.0, 8);
     for rate in [0.1, 0.37, 1.0, 2.0] {
         let d = oscillator_drive_mv(&s.neuron, rate);
         // At 0.1 Hz the drive sits 4e-8 mV above threshold, where a rounding of the drive
@@ -341,7 +312,7 @@ fn the_calcium_level_shifts_every_drive_as_documented() {
     // 0.5 mV x 0.5 and scales the release probability. With oscillator drives, each
     // electrode neuron's rate alone must be the LIF rate of its drawn drive plus the shift.
     let run = |calcium: f64| {
-        let mut s = slow_oscillator_culture(2000.0, 10.0, 9);
+        let mut s = common::slow_oscillator_culture(2000.0, 10.0, 9);
         s.drive.isolated_rates_hz = Some([0.5, 2.0]);
         s.calcium_scale = calcium;
         let truth = simulate_network(&s, &mut |_, _, _| {}).unwrap().truth;

@@ -486,3 +486,32 @@ pub fn ringline_ok(args: &[&str], dir: &std::path::Path) -> std::process::Output
     );
     out
 }
+
+/// A strip culture of 1,000 neurons/mm^2 under 16 electrodes with a slow membrane (0.5 s,
+/// reset 0, refractory 10 ms), so that rates down to 0.1 Hz are drives measurably above
+/// threshold.
+pub fn slow_oscillator_culture(
+    length_um: f64,
+    duration_s: f64,
+    seed: u64,
+) -> ringline::simulate::network::NetworkScenario {
+    use ringline::simulate::network::{scenario_from_options, CultureOptions, CultureShape};
+    let mut s = scenario_from_options(&CultureOptions {
+        shape: CultureShape::Strip,
+        length_um: Some(length_um),
+        width_um: Some(300.0),
+        radius_um: None,
+        density_per_mm2: Some(1000.0),
+        mean_in_degree: Some(60.0),
+        sigma_um: Some(200.0),
+        electrodes: Some(16),
+        rois: 0,
+        duration_s,
+        seed,
+    })
+    .expect("the culture options are valid");
+    s.neuron.tau_m_s = 0.5;
+    s.neuron.reset_mv = 0.0;
+    s.neuron.refractory_s = 0.01;
+    s
+}

@@ -153,10 +153,10 @@ enum Source {
 type UnitValues = Vec<(String, f64)>;
 
 /// A table of the study, read whole.
-struct Table {
-    name: &'static str,
-    header: Vec<String>,
-    rows: Vec<Vec<String>>,
+pub(super) struct Table {
+    pub(super) name: &'static str,
+    pub(super) header: Vec<String>,
+    pub(super) rows: Vec<Vec<String>>,
 }
 
 impl Table {
@@ -166,7 +166,7 @@ impl Table {
             .position(|h| h.eq_ignore_ascii_case(column))
     }
 
-    fn col(&self, column: &str) -> Result<usize, StudyError> {
+    pub(super) fn col(&self, column: &str) -> Result<usize, StudyError> {
         self.find(column).ok_or_else(|| {
             StudyError::new(
                 Place::file(self.name).at_line(1),
@@ -179,7 +179,7 @@ impl Table {
     }
 }
 
-fn read_table(name: &'static str, text: &str) -> Result<Table, StudyError> {
+pub(super) fn read_table(name: &'static str, text: &str) -> Result<Table, StudyError> {
     let mut reader = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
         .from_reader(text.as_bytes());

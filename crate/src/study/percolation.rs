@@ -31,38 +31,15 @@ pub fn block_series(
     blocked: Option<&str>,
 ) -> Result<BlockSeries, StudyError> {
     let place = || Place::file("recordings.csv");
-    let mut reader = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .from_reader(recordings_csv.as_bytes());
-    let header: Vec<String> = reader
-        .headers()
-        .map_err(|e| StudyError::new(place(), e.to_string()))?
-        .iter()
-        .map(str::to_string)
-        .collect();
-    let col = |name: &str| {
-        header
-            .iter()
-            .position(|h| h.eq_ignore_ascii_case(name))
-            .ok_or_else(|| {
-                StudyError::new(
-                    place().at_line(1),
-                    format!(
-                        "there is no column {name:?}; the columns are {}",
-                        header.join(", ")
-                    ),
-                )
-            })
-    };
-    let (by_col, rec_col) = (col(by)?, col("recording")?);
+    let table = super::compare::read_table("recordings.csv", recordings_csv)?;
+    let (by_col, rec_col) = (table.col(by)?, table.col("recording")?);
     let mut levels: Vec<(String, Vec<String>)> = Vec::new();
     let mut left_out = Vec::new();
     let mut unit: Option<String> = None;
     let mut pooled: Vec<Vec<DosePoint>> = Vec::new();
-    for (k, row) in reader.records().enumerate() {
-        let row = row.map_err(|e| StudyError::new(place().at_line(k as u64 + 2), e.to_string()))?;
-        let name = row.get(rec_col).unwrap_or_default().to_string();
-        let level = row.get(by_col).unwrap_or_default().to_string();
+    for row in &table.rows {
+        let name = row.get(rec_col).cloned().unwrap_or_default();
+        let level = row.get(by_col).cloned().unwrap_or_default();
         let Some((_, text)) = curves.iter().find(|c| c.0 == name) else {
             left_out.push(format!(
                 "{name}: no curves.csv (not analysed, or no stimuli)"
