@@ -606,7 +606,7 @@ async function renderResults() {
   for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability', 'leaders', 'recruitment']) await drawFigure(name);
   await renderRhythm();
   await renderResponse();
-  renderSummary();
+  await renderSummary();
   await renderTruth();
 }
 
@@ -749,44 +749,29 @@ function drawResponseCurve() {
   return drawFigure('response_curve', site ? { site } : {});
 }
 
-function summaryRows(r) {
-  const s = r.summary;
-  const d = s.direction;
-  const rows = [
-    ['bursts', s.burst_count, String(s.burst_count)],
-    ['recording duration', s.duration_s, fmt(s.duration_s, 1, 's')],
-    ['burst rate', s.burst_rate_per_min, fmt(s.burst_rate_per_min, 2, 'per min')],
-    ['median interburst interval', s.ibi.median_s, `${fmt(s.ibi.median_s, 3, 's')} (IQR ${fmt(s.ibi.q25_s, 3)} to ${fmt(s.ibi.q75_s, 3, 's')}, CV ${fmt(s.ibi.cv, 2)})`],
-    ['fronts', s.front_count, `${s.front_count} (no front in ${s.no_front_count}: ${s.synchronous_count} synchronous, ${s.unresolved_count} too fast to resolve, ${s.too_few_sites_count} with too few sites)`],
-    ['site timing', s.retimed_activations + s.outlier_activations, `${s.retimed_activations} activations re-timed to their earliest spike that fits the front, ${s.outlier_activations} set aside as outliers`],
-    ['median speed', s.median_speed_mm_s, `${fmt(s.median_speed_mm_s, 2, 'mm/s')} (95% interval ${fmt(s.median_speed_ci95_mm_s?.[0], 2)} to ${fmt(s.median_speed_ci95_mm_s?.[1], 2, 'mm/s')})`],
-    ['speed IQR', s.speed_iqr_mm_s, `${fmt(s.speed_q25_mm_s, 2)} to ${fmt(s.speed_q75_mm_s, 2, 'mm/s')}`],
-    ['speed drift', s.speed_drift?.slope_mm_s_per_min ?? null, s.speed_drift ? `${fmt(s.speed_drift.slope_mm_s_per_min, 3, 'mm/s per min')} (95% ${fmt(s.speed_drift.ci95_mm_s_per_min[0], 3)} to ${fmt(s.speed_drift.ci95_mm_s_per_min[1], 3)})` : '—'],
-    ['direction', d.first_fraction, d.first_label
-      ? `${d.first_count} ${d.first_label}, ${d.second_count} ${d.second_label}, ${d.two_way_count} two-way; share ${d.first_label} ${fmt(d.first_fraction, 2)} (95% ${fmt(d.first_fraction_ci95?.[0], 2)} to ${fmt(d.first_fraction_ci95?.[1], 2)})`
-      : (d.mean_direction_deg !== null ? `mean direction ${fmt(d.mean_direction_deg, 0, '°')}, resultant length ${fmt(d.mean_resultant_length, 2)}` : '—')],
-    ['models chosen', null, s.model_counts.map(([m, n]) => `${m.replaceAll('_', ' ')}: ${n}`).join(', ') || '—'],
-    ['propagation failures', s.failure_count, String(s.failure_count)],
-  ];
-  return rows;
-}
-
-function renderSummary() {
+/** The summary table: the core's facts (the lines of the text report), keyed for tests. */
+async function renderSummary() {
   const body = $('summary-table').tBodies[0];
   body.replaceChildren();
-  for (const [label, value, text] of summaryRows(state.report)) {
+  for (const fact of await call('summaryFacts')) {
     const row = body.insertRow();
-    row.insertCell().textContent = label;
+    const th = document.createElement('th');
+    th.scope = 'row';
+    th.textContent = fact.label;
+    row.append(th);
     const cell = row.insertCell();
-    cell.textContent = text;
-    if (value !== null && value !== undefined) cell.dataset.value = String(value);
-    cell.dataset.key = label;
+    cell.textContent = fact.text;
+    if (fact.value !== null) cell.dataset.value = String(fact.value);
+    cell.dataset.key = fact.key;
   }
-  const notices = state.report.notices;
-  fillNotices('analysis-notices', notices);
+  fillNotices('analysis-notices', state.report.notices);
   $('step-summary').hidden = false;
 }
 
+async function saveReport() {
+  const html = await call('reportHtml', {}, showProgress);
+  download(`${state.fileStem}-report.html`, html, 'text/html');
+}
 
 // ---------------------------------------------------------------- the study
 
@@ -1173,6 +1158,7 @@ function wire() {
   for (const b of document.querySelectorAll('[data-export]')) b.addEventListener('click', exportTable);
   for (const b of document.querySelectorAll('.svg-save')) b.addEventListener('click', exportSvg);
   $('save-notebook').addEventListener('click', saveNotebook);
+  $('save-report').addEventListener('click', () => saveReport().catch((e) => showError('analysis-error', e)));
 }
 
 // For the page's own tests: the bridge, to reach the core the way the page does.

@@ -8,6 +8,7 @@ const loadCore = () => init({ module_or_path: new URL('./pkg/ringline_bg.wasm', 
 // ringline-core-import-end
 
 let workbook = null;
+let voltageFile = null; // the raw voltage File the open workbook's spikes came from
 
 function reply(id, value) {
   postMessage({ id, ok: true, value });
@@ -74,6 +75,7 @@ const ops = {
   open: ({ activity, layout, settings }) => {
     workbook?.free();
     workbook = null;
+    voltageFile = null;
     workbook = new core.Workbook(activity.name, new Uint8Array(activity.bytes),
       layout.name, new Uint8Array(layout.bytes), settings ?? null);
     return { inspection: workbook.inspection(), settings: workbook.settings() };
@@ -81,6 +83,7 @@ const ops = {
   openNotebook: ({ name, bytes }, id) => {
     workbook?.free();
     workbook = null;
+    voltageFile = null;
     workbook = core.Workbook.fromNotebook(name, new Uint8Array(bytes), progress(id));
     return { inspection: workbook.inspection(), settings: workbook.settings(), report: workbook.report() };
   },
@@ -99,6 +102,7 @@ const ops = {
       (done, total) => postMessage({ id, progress: [done, total], stage: 'detecting spikes' }),
     );
     workbook = opened.takeWorkbook();
+    voltageFile = file;
     const electrodes = opened.electrodes();
     opened.free();
     return { inspection: workbook.inspection(), settings: workbook.settings(), electrodes };
@@ -111,6 +115,24 @@ const ops = {
   figure: ({ figure, width, height, extra }) => need().figure({ figure, ...(extra ?? {}) }, width, height),
   readout: ({ x, y }) => need().readout(x, y) ?? null,
   exports: () => need().exports(),
+  summaryFacts: () => need().summaryFacts(),
+  reportHtml: (_, id) => {
+    const book = need();
+    if (voltageFile) {
+      // The report names the voltage file by its SHA-256: read it in 8 MiB pieces.
+      const reader = new FileReaderSync();
+      const hash = new core.Sha256Stream();
+      const piece = 8 << 20;
+      for (let at = 0; at < voltageFile.size; at += piece) {
+        hash.update(new Uint8Array(reader.readAsArrayBuffer(voltageFile.slice(at, at + piece))));
+        postMessage({ id, progress: [Math.min(at + piece, voltageFile.size), voltageFile.size], stage: 'reading the voltage file for its SHA-256' });
+      }
+      book.setVoltageSha256(hash.finish());
+      hash.free();
+      voltageFile = null;
+    }
+    return book.reportHtml();
+  },
   notebook: ({ study }) => need().notebookJson(study ?? null),
   notebookStudy: ({ name, bytes }) => core.notebookStudy(name, new Uint8Array(bytes)),
   compareTruth: ({ truth }) => need().compareTruth(truth),

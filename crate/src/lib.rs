@@ -94,13 +94,13 @@ pub struct ActivityFile<'a> {
 /// and a text table whole (within the size limit). The command line, study runs and the
 /// page's studies all come through here.
 pub fn analyze_file(
-    file: ActivityFile<'_>,
+    mut file: ActivityFile<'_>,
     layout: (&str, &[u8]),
     stimuli: Option<(&str, &[u8])>,
     settings: &RecordingSettings,
     progress: &mut dyn FnMut(&str, u64, u64),
 ) -> Result<report::AnalysisReport, Error> {
-    use import::{ImportError, ImportProblem, InputKind};
+    use import::InputKind;
     let header = match import::classify_input(file.name, file.head) {
         InputKind::Wav | InputKind::VoltageSamples => import::read_voltage_header(
             file.name,
@@ -110,19 +110,7 @@ pub fn analyze_file(
             file.wav_uv_per_unit,
         )?,
         _ => {
-            let limit = settings.read.limits.max_bytes as u64;
-            if file.len > limit {
-                return Err(ImportError::new(
-                    place::Place::file(file.name),
-                    ImportProblem::TooLarge,
-                    format!(
-                        "the file is {} bytes, more than the limit of {limit} bytes; raise the limit if this file is expected",
-                        file.len
-                    ),
-                )
-                .into());
-            }
-            let bytes = (file.read)(0, file.len)?;
+            let bytes = read_whole_table(&mut file, &settings.read.limits)?;
             return analyze_recording(
                 ActivityInput::Table(file.name, &bytes),
                 layout,
@@ -140,6 +128,26 @@ pub fn analyze_file(
         settings,
         progress,
     )
+}
+
+/// The whole of a text activity file, refused when it is larger than the limit.
+pub(crate) fn read_whole_table(
+    file: &mut ActivityFile<'_>,
+    limits: &import::ImportLimits,
+) -> Result<Vec<u8>, Error> {
+    let limit = limits.max_bytes as u64;
+    if file.len > limit {
+        return Err(import::ImportError::new(
+            place::Place::file(file.name),
+            import::ImportProblem::TooLarge,
+            format!(
+                "the file is {} bytes, more than the limit of {limit} bytes; raise the limit if this file is expected",
+                file.len
+            ),
+        )
+        .into());
+    }
+    Ok((file.read)(0, file.len)?)
 }
 
 /// [`analyze_recording`] for a spike list or ROI traces with separate settings.

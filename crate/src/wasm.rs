@@ -431,6 +431,27 @@ impl WasmWorkbook {
         self::study_entry(&manifest, manifest_row, result)
     }
 
+    /// The self-contained HTML report of the last analysis (the bytes of `ringline analyze
+    /// --report`).
+    #[wasm_bindgen(js_name = reportHtml)]
+    pub fn report_html(&self) -> Result<String, JsValue> {
+        let document = self.inner.report_document().map_err(|e| message(&e))?;
+        Ok(document.to_html())
+    }
+
+    /// The summary as labelled facts `[{ key, label, text, value }]` (the text report's
+    /// lines); null before the analysis.
+    #[wasm_bindgen(js_name = summaryFacts)]
+    pub fn summary_facts(&self) -> Result<JsValue, JsValue> {
+        to_js(&self.inner.report().map(|r| r.facts()))
+    }
+
+    /// Records the SHA-256 of the raw voltage file the spikes were detected in.
+    #[wasm_bindgen(js_name = setVoltageSha256)]
+    pub fn set_voltage_sha256(&mut self, hex: String) {
+        self.inner.set_voltage_sha256(hex);
+    }
+
     /// The notebook file (JSON text), holding `study` (a `StudyNotebook` object) when the
     /// page has one.
     #[wasm_bindgen(js_name = notebookJson)]
@@ -445,6 +466,39 @@ impl WasmWorkbook {
                 )
             };
         Ok(self.inner.notebook_json(study.as_ref()))
+    }
+}
+
+/// SHA-256 computed piece by piece (FIPS 180-4), for files too large to hold whole.
+#[wasm_bindgen(js_name = Sha256Stream)]
+pub struct Sha256Stream {
+    inner: sha2::Sha256,
+}
+
+#[wasm_bindgen(js_class = Sha256Stream)]
+impl Sha256Stream {
+    #[wasm_bindgen(constructor)]
+    #[allow(clippy::new_without_default)]
+    pub fn new() -> Sha256Stream {
+        use sha2::Digest;
+        Sha256Stream {
+            inner: sha2::Sha256::new(),
+        }
+    }
+
+    pub fn update(&mut self, bytes: &[u8]) {
+        use sha2::Digest;
+        self.inner.update(bytes);
+    }
+
+    /// The digest as lower-case hex; the stream starts again.
+    pub fn finish(&mut self) -> String {
+        use sha2::Digest;
+        self.inner
+            .finalize_reset()
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect()
     }
 }
 

@@ -113,10 +113,10 @@ test('the served page analyses the dropped demo files exactly as the command lin
 
   await analyse(page);
   // Median speed (mm/s) and burst count: the same numbers as `ringline analyze --json`.
-  const median = await summaryValue(page, 'median speed');
+  const median = await summaryValue(page, 'speed');
   assert.equal(median, report.summary.median_speed_mm_s);
   assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
-  assert.equal(await summaryValue(page, 'propagation failures'), report.summary.failure_count);
+  assert.equal(await summaryValue(page, 'failures'), report.summary.failure_count);
   await shoot(page, '2-results');
 
   // Exports: byte for byte the files of `ringline analyze --out`.
@@ -206,7 +206,7 @@ test('the single-file page opened from disk analyses the demo the same way, with
   const { page, context, requests, errors } = await openPage(file);
   await page.click('#demo-button');
   await analyse(page);
-  assert.equal(await summaryValue(page, 'median speed'), report.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'speed'), report.summary.median_speed_mm_s);
   assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
   await shoot(page, '4-single-file');
   assert.deepEqual(requests.filter((u) => !u.startsWith('blob:') && !u.startsWith('data:') && u !== file), []);
@@ -250,7 +250,7 @@ test('a saved notebook re-opens with the same settings and results', async () =>
   await page.fill('#burst-form [name=seed]', '7');
   await page.selectOption('#burst-form [name=estimator]', 'huber');
   await analyse(page);
-  const median = await summaryValue(page, 'median speed');
+  const median = await summaryValue(page, 'speed');
   const summaryText = await page.textContent('#summary-table');
   const notebook = await downloadText(page, '#save-notebook');
   const parsed = JSON.parse(notebook);
@@ -268,7 +268,7 @@ test('a saved notebook re-opens with the same settings and results', async () =>
   assert.equal(await page.inputValue('#burst-form [name=resamples]'), '300');
   assert.equal(await page.inputValue('#burst-form [name=seed]'), '7');
   assert.equal(await page.inputValue('#burst-form [name=estimator]'), 'huber');
-  assert.equal(await summaryValue(page, 'median speed'), median);
+  assert.equal(await summaryValue(page, 'speed'), median);
   assert.equal(await page.textContent('#summary-table'), summaryText);
   await context.close();
 });
@@ -318,7 +318,7 @@ test('a culture simulated in the page gives the command line\'s files and analys
   }
   assert.match(await page.textContent('#sim-result-text'), /^Simulated \d+ neurons for 20 s: \d+ spikes, \d+ bursts\.$/);
   await analyse(page);
-  assert.equal(await summaryValue(page, 'median speed'), report.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'speed'), report.summary.median_speed_mm_s);
   assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
   // Beside the truth: the rows and numbers of `ringline analyze --truth`.
   const withTruth = JSON.parse(execFileSync(cli, ['analyze', 'spikes.csv', '--layout', 'layout.csv', '--truth', 'truth.json', '--json'],
@@ -398,7 +398,7 @@ test('raw voltage dropped on the page gives the command line\'s electrodes and s
     assert.deepEqual(statuses, report.electrodes.map((e) => e.status.replaceAll('_', ' ')));
     assert.equal(statuses[3], 'flat');
     await analyse(page);
-    assert.equal(await summaryValue(page, 'median speed'), report.summary.median_speed_mm_s, files.join(' + '));
+    assert.equal(await summaryValue(page, 'speed'), report.summary.median_speed_mm_s, files.join(' + '));
     assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
     if (files[0].endsWith('.wav')) await shoot(page, '6-voltage');
     assert.deepEqual(errors, []);
@@ -481,7 +481,7 @@ test('a study of 6 recordings dropped with its manifest gives the command line\'
   await page.getByRole('button', { name: 'Open recording ring-24-2 in the steps below' }).click();
   await analyse(page);
   const summary = JSON.parse(readFileSync(join(dir, 'batch/recordings/ring-24-2/summary.json'), 'utf8'));
-  assert.equal(await summaryValue(page, 'median speed'), summary.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'speed'), summary.summary.median_speed_mm_s);
   const fronts = await downloadText(page, '[data-export="fronts_csv"]');
   assert.equal(fronts, readFileSync(join(dir, 'batch/recordings/ring-24-2/fronts.csv'), 'utf8'));
   assert.deepEqual(errors, []);
@@ -652,9 +652,52 @@ test('a notebook of schema 1 (the previous version) opens with its settings and 
   await dropFiles(page, [{ name: 'old.ringline.json', path: fixture }]);
   await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
   assert.equal(await page.inputValue('#burst-form [name=resamples]'), String(old.settings.analysis.fronts.resamples));
-  assert.equal(await summaryValue(page, 'median speed'), old.results.summary.median_speed_mm_s);
+  assert.equal(await summaryValue(page, 'speed'), old.results.summary.median_speed_mm_s);
   assert.equal(await summaryValue(page, 'bursts'), old.results.summary.burst_count);
   assert.ok(await page.locator('#study').isHidden());
   assert.deepEqual(errors, []);
   await context.close();
+});
+
+test('the report saved from the page equals `ringline analyze --report` and opens from disk with no script and no request', async () => {
+  const dir = mkdtempSync(join(tmpdir(), 'ringline-report-'));
+  const cliReport = join(dir, 'cli-report.html');
+  execFileSync(cli, ['analyze', basename(demo.spikes), '--layout', basename(demo.layout), '--report', cliReport],
+    { cwd: dirname(demo.spikes), stdio: 'ignore' });
+  const { report } = cliAnalysis(demo.spikes, demo.layout);
+  const { page, context, errors } = await openPage(base);
+  await dropFiles(page, [
+    { name: 'spikes.csv', path: demo.spikes },
+    { name: 'layout.csv', path: demo.layout },
+  ]);
+  await analyse(page);
+  const html = await downloadText(page, '#save-report');
+  assert.equal(html, readFileSync(cliReport, 'utf8'), 'the page\'s report differs from the command line\'s');
+  assert.deepEqual(errors, []);
+  await context.close();
+
+  // Opened from file:// with JavaScript off: every table and figure shows, nothing is fetched.
+  const saved = join(dir, 'page-report.html');
+  writeFileSync(saved, html);
+  const offline = await browser.newContext({ javaScriptEnabled: false, viewport: { width: 1000, height: 800 } });
+  const view = await offline.newPage();
+  const requests = [];
+  view.on('request', (r) => requests.push(r.url()));
+  const consoleErrors = [];
+  view.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
+  await view.goto(pathToFileURL(saved).href);
+  await view.waitForLoadState('load');
+  assert.deepEqual(requests, [pathToFileURL(saved).href], 'the report asked for something besides itself');
+  assert.deepEqual(consoleErrors, []);
+  const figures = await view.$$eval('figure img', (imgs) => imgs.map((i) => ({ ok: i.complete && i.naturalWidth > 0, alt: i.alt })));
+  assert.ok(figures.length >= 12, `only ${figures.length} figures`);
+  for (const f of figures) assert.ok(f.ok, `figure not shown: ${f.alt}`);
+  // Every burst has its row in the (collapsed) table, and the summary states the CLI's count.
+  const burstRows = await view.$$eval('details table tbody tr', (rows) => rows.length);
+  assert.equal(burstRows, report.summary.burst_count);
+  assert.match(await view.textContent('table.facts'), new RegExp(`Bursts\\s*${report.summary.burst_count}`));
+  assert.match(await view.textContent('body'), /not for clinical or diagnostic use/);
+  await view.screenshot({ path: join(artifacts, 'report-from-disk.png'), fullPage: false });
+  await view.pdf?.({ path: join(artifacts, 'report-a4.pdf'), format: 'A4' }).catch(() => {});
+  await offline.close();
 });

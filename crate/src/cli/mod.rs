@@ -82,6 +82,11 @@ struct AnalyzeArgs {
     /// cumulative-Gaussian fits (adds responses.csv and curves.csv).
     #[arg(long, value_name = "FILE")]
     stimuli: Option<String>,
+    /// Write one self-contained HTML report (inputs with SHA-256, every setting, the summary,
+    /// every figure, the notices, every front): it opens from disk with no script and prints
+    /// on A4 or Letter. The page's "Save report" writes the same bytes.
+    #[arg(long, value_name = "FILE")]
+    report: Option<String>,
     #[command(flatten)]
     pipeline: PipelineArgs,
 }
@@ -750,14 +755,57 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
             }
         }
     };
-    let report = analyze_paths(
-        &args.recording,
-        &args.layout,
-        args.stimuli.as_deref(),
-        &recording,
-        args.pipeline.voltage.uv_per_unit,
-        &mut progress,
-    )?;
+    let report = match &args.report {
+        // The report needs the page's figures, so this run goes through the workbook.
+        Some(path) => {
+            let settings = crate::report::workbook::StepSettings {
+                read: recording.read.clone(),
+                voltage: recording.voltage.clone(),
+                voltage_wav_uv_per_unit: args.pipeline.voltage.uv_per_unit,
+                track: recording.track.clone(),
+                analysis: recording.analysis.clone(),
+                view: Default::default(),
+            };
+            let mut workbook = open_paths(
+                &args.recording,
+                &args.layout,
+                args.stimuli.as_deref(),
+                &recording.read.limits,
+                args.pipeline.voltage.uv_per_unit,
+                &mut |file, layout, stimuli| {
+                    crate::report::workbook::Workbook::analyze_file(
+                        file,
+                        layout,
+                        stimuli,
+                        settings.clone(),
+                        &mut progress,
+                    )
+                },
+            )?;
+            if crate::import::classify_input(&args.recording, &read_head(&args.recording)?)
+                .is_voltage()
+            {
+                workbook.set_voltage_sha256(sha256_of_path(&args.recording)?);
+            }
+            let document = workbook
+                .report_document()
+                .map_err(|e| Failure::Input(e.message))?;
+            std::fs::write(path, document.to_html()).map_err(Failure::Output)?;
+            eprintln!("wrote the report to {path}");
+            workbook
+                .report()
+                .cloned()
+                .ok_or_else(|| Failure::Input("the analysis gave no report".into()))?
+        }
+        None => analyze_paths(
+            &args.recording,
+            &args.layout,
+            args.stimuli.as_deref(),
+            &recording,
+            args.pipeline.voltage.uv_per_unit,
+            &mut progress,
+        )?,
+    };
     if let Some(dir) = &args.out {
         let names = write_outputs(std::path::Path::new(dir), &report)?;
         eprintln!("wrote {} to {dir}", names.join(", "));
@@ -807,10 +855,70 @@ fn analyze_paths(
     wav_uv_per_unit: Option<f64>,
     progress: &mut dyn FnMut(&str, u64, u64),
 ) -> Result<AnalysisReport, Failure> {
+    open_paths(
+        data,
+        layout,
+        stimuli,
+        &settings.read.limits,
+        wav_uv_per_unit,
+        &mut |file, layout, stimuli| crate::analyze_file(file, layout, stimuli, settings, progress),
+    )
+}
+
+/// The first 64 KiB of a file (what tells its kind).
+fn read_head(path: &str) -> Result<Vec<u8>, Failure> {
+    use std::io::Read;
+    let fail = |e: std::io::Error| {
+        ImportError::new(Place::file(path), ImportProblem::BadOption, io_words(&e))
+    };
+    let mut head = Vec::new();
+    std::fs::File::open(path)
+        .map_err(fail)?
+        .take(65_536)
+        .read_to_end(&mut head)
+        .map_err(fail)?;
+    Ok(head)
+}
+
+/// SHA-256 of a file, read in 1 MiB pieces (raw voltage can be gigabytes).
+fn sha256_of_path(path: &str) -> Result<String, Failure> {
+    use sha2::Digest;
+    use std::io::Read;
+    let mut file = std::fs::File::open(path).map_err(Failure::Output)?;
+    let mut hasher = sha2::Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = file.read(&mut buf).map_err(Failure::Output)?;
+        if n == 0 {
+            break;
+        }
+        hasher.update(&buf[..n]);
+    }
+    Ok(hasher
+        .finalize()
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect())
+}
+
+/// Opens the files of one recording from paths and hands them to `run`: the activity file as
+/// an [`crate::ActivityFile`] (read in blocks), the layout and the stimulus protocol whole.
+fn open_paths<T>(
+    data: &str,
+    layout: &str,
+    stimuli: Option<&str>,
+    limits: &ImportLimits,
+    wav_uv_per_unit: Option<f64>,
+    run: &mut dyn FnMut(
+        crate::ActivityFile<'_>,
+        (&str, &[u8]),
+        Option<(&str, &[u8])>,
+    ) -> Result<T, crate::Error>,
+) -> Result<T, Failure> {
     use std::io::{Read, Seek, SeekFrom};
-    let layout_bytes = read_file(layout, &settings.read.limits)?;
+    let layout_bytes = read_file(layout, limits)?;
     let stimuli = match stimuli {
-        Some(name) => Some((name, read_file(name, &settings.read.limits)?)),
+        Some(name) => Some((name, read_file(name, limits)?)),
         None => None,
     };
     let fail = |e: std::io::Error| {
@@ -844,7 +952,7 @@ fn analyze_paths(
             })?;
         Ok(buf)
     };
-    let report = crate::analyze_file(
+    Ok(run(
         crate::ActivityFile {
             name: data,
             len,
@@ -855,10 +963,7 @@ fn analyze_paths(
         },
         (layout, &layout_bytes),
         stimuli.as_ref().map(|(n, b)| (*n, b.as_slice())),
-        settings,
-        progress,
-    )?;
-    Ok(report)
+    )?)
 }
 
 /// Writes a report's output files into `dir` (created if missing); returns their names.

@@ -201,6 +201,11 @@ pub enum InputKind {
 }
 
 impl InputKind {
+    /// Raw voltage (a WAV file or raw samples).
+    pub fn is_voltage(self) -> bool {
+        matches!(self, InputKind::Wav | InputKind::VoltageSamples)
+    }
+
     /// One word per kind, as the page shows and passes it.
     pub fn as_str(self) -> &'static str {
         match self {

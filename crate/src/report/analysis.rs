@@ -1,6 +1,7 @@
 //! The report of `ringline analyze`: one JSON document and the CSV tables, built as strings
 //! so the command line and the page export the same bytes.
 
+use super::document::{Fact, FactKey};
 use super::TrackSummary;
 use crate::csv_out::{number, CsvOut};
 use crate::fronts::{Analysis, AnalysisSettings, BurstResult, Summary};
@@ -395,139 +396,185 @@ impl AnalysisReport {
             + "\n"
     }
 
-    /// A terminal summary, every number with its unit.
-    pub fn to_text(&self) -> String {
+    /// The results in words, one labelled line each: the terminal report's summary, the
+    /// HTML report's and the page's summary table.
+    pub fn facts(&self) -> Vec<Fact> {
         let s = &self.summary;
-        let mut out = String::new();
+        let mut facts = Vec::new();
+        let mut fact = |key, label: &str, text: String, value: Option<f64>| {
+            facts.push(Fact::new(key, label, text, value));
+        };
         let names: Vec<&str> = self.files.iter().map(|f| f.name.as_str()).collect();
-        let _ = writeln!(out, "Recording      {}", names.join(" + "));
-        let _ = writeln!(
-            out,
-            "Track          {} ({})",
-            self.track.kind, self.track.reason
+        fact(FactKey::Recording, "Recording", names.join(" + "), None);
+        fact(
+            FactKey::Track,
+            "Track",
+            format!("{} ({})", self.track.kind, self.track.reason),
+            None,
         );
-        let _ = write!(out, "Bursts         {}", s.burst_count);
+        let mut text = s.burst_count.to_string();
         if let Some(r) = s.burst_rate_per_min {
-            let _ = write!(out, " ({r:.2} per min)");
+            let _ = write!(text, " ({r:.2} per min)");
         }
-        out.push('\n');
+        fact(FactKey::Bursts, "Bursts", text, Some(s.burst_count as f64));
         if let (Some(m), Some(iqr), Some(cv)) = (s.ibi.median_s, s.ibi.iqr_s, s.ibi.cv) {
-            let _ = writeln!(
-                out,
-                "Interburst     median {m:.2} s, IQR {iqr:.2} s, CV {cv:.2}"
+            fact(
+                FactKey::Interburst,
+                "Interburst",
+                format!("median {m:.2} s, IQR {iqr:.2} s, CV {cv:.2}"),
+                Some(m),
             );
         }
-        let _ = writeln!(
-            out,
-            "Fronts         {} ({} bursts without a resolvable front: {} synchronous, {} too fast to resolve, {} with too few sites)",
-            s.front_count, s.no_front_count, s.synchronous_count, s.unresolved_count, s.too_few_sites_count
+        fact(
+            FactKey::Fronts,
+            "Fronts",
+            format!(
+                "{} ({} bursts without a resolvable front: {} synchronous, {} too fast to resolve, {} with too few sites)",
+                s.front_count, s.no_front_count, s.synchronous_count, s.unresolved_count, s.too_few_sites_count
+            ),
+            Some(s.front_count as f64),
         );
         if let Some(first) = s.leaders.first() {
-            let _ = writeln!(
-                out,
-                "Leaders        {} led {} of {} bursts ({:.0}%; leading = first {:.0}% of active sites), then {}",
-                first.site,
-                first.bursts_leading,
-                s.burst_count,
-                first.lead_fraction * 100.0,
-                self.settings.order.leading_fraction * 100.0,
-                s.leaders
-                    .iter()
-                    .skip(1)
-                    .take(3)
-                    .filter(|r| r.bursts_leading > 0)
-                    .map(|r| format!("{} ({})", r.site, r.bursts_leading))
-                    .collect::<Vec<_>>()
-                    .join(", ")
+            fact(
+                FactKey::Leaders,
+                "Leaders",
+                format!(
+                    "{} led {} of {} bursts ({:.0}%; leading = first {:.0}% of active sites), then {}",
+                    first.site,
+                    first.bursts_leading,
+                    s.burst_count,
+                    first.lead_fraction * 100.0,
+                    self.settings.order.leading_fraction * 100.0,
+                    s.leaders
+                        .iter()
+                        .skip(1)
+                        .take(3)
+                        .filter(|r| r.bursts_leading > 0)
+                        .map(|r| format!("{} ({})", r.site, r.bursts_leading))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+                Some(first.lead_fraction),
             );
         }
         if let Some(rho) = s.order_consistency.median_spearman {
-            let _ = writeln!(
-                out,
-                "Order          median Spearman correlation of activation order between bursts {rho:.2} ({} pairs; 1 = the same order every time)",
-                s.order_consistency.pairs
+            fact(
+                FactKey::Order,
+                "Order",
+                format!(
+                    "median Spearman correlation of activation order between bursts {rho:.2} ({} pairs; 1 = the same order every time)",
+                    s.order_consistency.pairs
+                ),
+                Some(rho),
             );
         }
         if let Some([a, b, c]) = s.median_recruitment_ms {
-            let _ = writeln!(
-                out,
-                "Recruitment    median time to 10% / 50% / 90% of the active sites {a:.1} / {b:.1} / {c:.1} ms"
+            fact(
+                FactKey::Recruitment,
+                "Recruitment",
+                format!("median time to 10% / 50% / 90% of the active sites {a:.1} / {b:.1} / {c:.1} ms"),
+                Some(c),
             );
         }
         if s.retimed_activations + s.outlier_activations > 0 {
-            let _ = writeln!(
-                out,
-                "Site timing    {} activations re-timed to their earliest spike that fits the front, {} set aside as outliers (see activation.csv)",
-                s.retimed_activations, s.outlier_activations
+            fact(
+                FactKey::SiteTiming,
+                "Site timing",
+                format!(
+                    "{} activations re-timed to their earliest spike that fits the front, {} set aside as outliers (see activation.csv)",
+                    s.retimed_activations, s.outlier_activations
+                ),
+                Some((s.retimed_activations + s.outlier_activations) as f64),
             );
         }
         if let Some(m) = s.median_speed_mm_s {
-            let _ = write!(out, "Speed          median {m:.1} mm/s");
+            let mut text = format!("median {m:.1} mm/s");
             if let Some([a, b]) = s.median_speed_ci95_mm_s {
-                let _ = write!(out, " (95% CI {a:.1} to {b:.1} mm/s)");
+                let _ = write!(text, " (95% CI {a:.1} to {b:.1} mm/s)");
             }
             if let (Some(a), Some(b)) = (s.speed_q25_mm_s, s.speed_q75_mm_s) {
-                let _ = write!(out, ", IQR {a:.1} to {b:.1} mm/s");
+                let _ = write!(text, ", IQR {a:.1} to {b:.1} mm/s");
             }
-            out.push('\n');
+            fact(FactKey::Speed, "Speed", text, Some(m));
         }
         if let Some(d) = &s.speed_drift {
-            let _ = writeln!(
-                out,
-                "Drift          {:+.3} mm/s per min",
-                d.slope_mm_s_per_min
+            fact(
+                FactKey::Drift,
+                "Drift",
+                format!("{:+.3} mm/s per min", d.slope_mm_s_per_min),
+                Some(d.slope_mm_s_per_min),
             );
         }
         let d = &s.direction;
         if let (Some(a), Some(b)) = (&d.first_label, &d.second_label) {
-            let _ = write!(
-                out,
-                "Direction      {} {}, {} {}",
-                d.first_count, a, d.second_count, b
-            );
+            let mut text = format!("{} {}, {} {}", d.first_count, a, d.second_count, b);
             if let (Some(f), Some([lo, hi])) = (d.first_fraction, d.first_fraction_ci95) {
                 let _ = write!(
-                    out,
+                    text,
                     " ({:.0}% {a}, 95% CI {:.0} to {:.0}%)",
                     f * 100.0,
                     lo * 100.0,
                     hi * 100.0
                 );
             }
-            let _ = writeln!(out, "; {} two-way", d.two_way_count);
+            let _ = write!(text, "; {} two-way", d.two_way_count);
+            fact(FactKey::Direction, "Direction", text, d.first_fraction);
         } else if let (Some(deg), Some(r)) = (d.mean_direction_deg, d.mean_resultant_length) {
-            let _ = writeln!(out, "Direction      mean {deg:.0} deg from +x, resultant length {r:.2}; {} point sources", d.two_way_count);
-        }
-        if let Some(top) = s.initiation_sites.first() {
-            let _ = writeln!(
-                out,
-                "Initiation     most often at {} ({} of {} fronts)",
-                top.site, top.count, s.front_count
+            fact(
+                FactKey::Direction,
+                "Direction",
+                format!(
+                    "mean {deg:.0} deg from +x, resultant length {r:.2}; {} point sources",
+                    d.two_way_count
+                ),
+                Some(deg),
             );
         }
-        let _ = writeln!(
-            out,
-            "Failures       {} fronts stopped before the end of their path",
-            s.failure_count
+        if let Some(top) = s.initiation_sites.first() {
+            fact(
+                FactKey::Initiation,
+                "Initiation",
+                format!(
+                    "most often at {} ({} of {} fronts)",
+                    top.site, top.count, s.front_count
+                ),
+                Some(top.count as f64),
+            );
+        }
+        fact(
+            FactKey::Failures,
+            "Failures",
+            format!(
+                "{} fronts stopped before the end of their path",
+                s.failure_count
+            ),
+            Some(s.failure_count as f64),
         );
         match &self.rhythm {
             Some(r) => {
                 let verdict = if r.is_rhythm { "a rhythm" } else { "no rhythm" };
-                let _ = writeln!(
-                    out,
-                    "Rhythm         spectrum peak at {} (bandwidth {}), {} the Poisson floor and {} its surroundings: {verdict} (needs {}; resolution {:.4} Hz, {} segments of {:.0} s)",
-                    r.peak_frequency_hz.map_or("-".into(), |f| format!("{f:.3} Hz")),
-                    r.peak_bandwidth_hz.map_or("-".into(), |f| format!("{f:.3} Hz")),
-                    r.peak_over_floor.map_or("-".into(), |x| format!("{x:.1} x")),
-                    r.peak_over_local.map_or("-".into(), |x| format!("{x:.1} x")),
-                    r.rhythm_threshold.map_or("-".into(), |x| format!("{x:.1} x")),
-                    r.resolution_hz,
-                    r.segments_used,
-                    r.segment_s
+                fact(
+                    FactKey::Rhythm,
+                    "Rhythm",
+                    format!(
+                        "spectrum peak at {} (bandwidth {}), {} the Poisson floor and {} its surroundings: {verdict} (needs {}; resolution {:.4} Hz, {} segments of {:.0} s)",
+                        r.peak_frequency_hz.map_or("-".into(), |f| format!("{f:.3} Hz")),
+                        r.peak_bandwidth_hz.map_or("-".into(), |f| format!("{f:.3} Hz")),
+                        r.peak_over_floor.map_or("-".into(), |x| format!("{x:.1} x")),
+                        r.peak_over_local.map_or("-".into(), |x| format!("{x:.1} x")),
+                        r.rhythm_threshold.map_or("-".into(), |x| format!("{x:.1} x")),
+                        r.resolution_hz,
+                        r.segments_used,
+                        r.segment_s
+                    ),
+                    r.peak_frequency_hz,
                 );
             }
-            None => out.push_str(
-                "Rhythm         no spectrum (the recording is shorter than one segment)\n",
+            None => fact(
+                FactKey::Rhythm,
+                "Rhythm",
+                "no spectrum (the recording is shorter than one segment)".into(),
+                None,
             ),
         }
         if let Some(r) = &self.site_rhythms {
@@ -539,21 +586,29 @@ impl AnalysisReport {
                 (Some(m), None) => format!(", frequency {m:.3} Hz"),
                 _ => String::new(),
             };
-            let _ = writeln!(
-                out,
-                "Sites alone    {} of {sites} sites fire regularly outside bursts{mean}; network bursts at {} (see sites.csv)",
-                r.regular_sites,
-                r.network_frequency_hz
-                    .map_or("-".into(), |f| format!("{f:.3} Hz"))
+            fact(
+                FactKey::SitesAlone,
+                "Sites alone",
+                format!(
+                    "{} of {sites} sites fire regularly outside bursts{mean}; network bursts at {} (see sites.csv)",
+                    r.regular_sites,
+                    r.network_frequency_hz
+                        .map_or("-".into(), |f| format!("{f:.3} Hz"))
+                ),
+                Some(r.regular_sites as f64),
             );
-            let _ = writeln!(
-                out,
-                "Site bursts    {} of {sites} sites burst on their own (MaxInterval); median {} bursts/min per site, {} of spikes in them",
-                r.sites_bursting,
-                r.median_site_burst_rate_per_min
-                    .map_or("-".into(), |v| format!("{v:.2}")),
-                r.median_fraction_in_site_bursts
-                    .map_or("-".into(), |v| format!("{:.0}%", v * 100.0))
+            fact(
+                FactKey::SiteBursts,
+                "Site bursts",
+                format!(
+                    "{} of {sites} sites burst on their own (MaxInterval); median {} bursts/min per site, {} of spikes in them",
+                    r.sites_bursting,
+                    r.median_site_burst_rate_per_min
+                        .map_or("-".into(), |v| format!("{v:.2}")),
+                    r.median_fraction_in_site_bursts
+                        .map_or("-".into(), |v| format!("{:.0}%", v * 100.0))
+                ),
+                Some(r.sites_bursting as f64),
             );
         }
         if let Some(y) = &self.synchrony {
@@ -573,7 +628,12 @@ impl AnalysisReport {
                     o.mean_r, o.chance_r, o.mean_sites_with_phase
                 )
             });
-            let _ = writeln!(out, "Synchrony      {sttc}; {order}");
+            fact(
+                FactKey::Synchrony,
+                "Synchrony",
+                format!("{sttc}; {order}"),
+                y.mean_sttc,
+            );
             if let Some(l) = &y.lags {
                 let speed = match (l.implied_speed_mm_s, l.implied_speed_ci95_mm_s) {
                     (Some(v), Some([lo, hi])) => format!(
@@ -590,13 +650,23 @@ impl AnalysisReport {
                         f * 100.0
                     )
                 });
-                let _ = writeln!(
-                    out,
-                    "Lags           {} of {} neighbouring pairs have a lag{forward}; they {speed} (see lags.csv)",
-                    l.pairs_with_lag, l.pairs
+                fact(
+                    FactKey::Lags,
+                    "Lags",
+                    format!(
+                        "{} of {} neighbouring pairs have a lag{forward}; they {speed} (see lags.csv)",
+                        l.pairs_with_lag, l.pairs
+                    ),
+                    l.implied_speed_mm_s,
                 );
             }
         }
+        facts
+    }
+
+    /// A terminal summary, every number with its unit.
+    pub fn to_text(&self) -> String {
+        let mut out = super::document::facts_text(&self.facts());
         out.push_str("\nburst   start (s)  model           speed (mm/s)   95% CI (mm/s)     origin   sites\n");
         for b in &self.bursts {
             match &b.front {

@@ -2,7 +2,9 @@
 //! structs with units in every field name, and their text renderings for the terminal.
 
 mod analysis;
+pub mod analysis_document;
 pub mod compare_figures;
+pub mod document;
 pub mod figures;
 mod inspection;
 pub mod response_figures;

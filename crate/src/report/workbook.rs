@@ -6,6 +6,8 @@
 //! inspection), analysis (bursts, activations, fronts, summary). Figures and exports read the
 //! results and change nothing.
 
+use super::analysis_document::InputFile;
+use super::document::{Block, Document};
 use super::figures::{self, Figure, FigureError, RasterRow, Size};
 use super::rhythm_figures;
 use super::{inspect, AnalysisReport, Inspection};
@@ -206,6 +208,14 @@ pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, Noteboo
     Ok(nb)
 }
 
+/// A figure request's name as the page and the report use it (`site_map`, `raster`, ...).
+pub fn request_name(request: &FigureRequest) -> String {
+    serde_json::to_value(request)
+        .ok()
+        .and_then(|v| v.get("figure").and_then(|f| f.as_str()).map(String::from))
+        .unwrap_or_default()
+}
+
 /// Which figure to draw.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "figure", rename_all = "snake_case")]
@@ -256,6 +266,8 @@ pub struct Workbook {
     electrodes: Option<Vec<crate::detect::voltage::ElectrodeRow>>,
     /// The stimulus protocol file, when one was given with the recording.
     stimuli: Option<(String, Vec<u8>)>,
+    /// Raw voltage: the voltage file itself (its digest comes from the shell, which holds it).
+    voltage_input: Option<InputFile>,
 }
 
 impl Workbook {
@@ -296,7 +308,49 @@ impl Workbook {
             events: None,
             electrodes: None,
             stimuli: None,
+            voltage_input: None,
         })
+    }
+
+    /// [`crate::analyze_file`] into a workbook: reads the activity (detecting spikes in raw
+    /// voltage, read in blocks), attaches the stimuli and runs the analysis. The command line
+    /// takes this path when it writes a report, so the report has the page's figures.
+    pub fn analyze_file(
+        mut file: crate::ActivityFile<'_>,
+        layout: (&str, &[u8]),
+        stimuli: Option<(&str, &[u8])>,
+        settings: StepSettings,
+        progress: &mut dyn FnMut(&str, u64, u64),
+    ) -> Result<Workbook, Error> {
+        use crate::import::InputKind;
+        let analysis = settings.analysis.clone();
+        let mut workbook = match crate::import::classify_input(file.name, file.head) {
+            InputKind::Wav | InputKind::VoltageSamples => {
+                let header = crate::import::read_voltage_header(
+                    file.name,
+                    file.head,
+                    file.len,
+                    file.sidecar,
+                    file.wav_uv_per_unit,
+                )?;
+                let mut frames = crate::import::frame_reader(&header, file.read);
+                Workbook::open_voltage(&header, &mut frames, layout, settings, &mut |d, t| {
+                    progress("detecting spikes", d, t)
+                })?
+                .0
+            }
+            _ => {
+                let bytes = crate::read_whole_table(&mut file, &settings.read.limits)?;
+                Workbook::open((file.name, &bytes), layout, settings)?
+            }
+        };
+        if let Some((name, bytes)) = stimuli {
+            workbook.attach_stimuli(name, bytes)?;
+        }
+        workbook.analyze(analysis, &mut |d, t| {
+            progress("analysing bursts", d as u64, t as u64)
+        })?;
+        Ok(workbook)
     }
 
     /// Gives the recording its stimulus protocol (a file of its own); the analysis must be
@@ -351,6 +405,12 @@ impl Workbook {
         );
         let mut workbook = Workbook::with_track(activity, layout, settings, recording)?;
         workbook.electrodes = Some(found.electrodes.clone());
+        workbook.voltage_input = Some(InputFile {
+            role: "voltage".into(),
+            name: header.file.clone(),
+            size_bytes: header.data_offset_bytes + header.frames * header.frame_bytes() as u64,
+            sha256: None,
+        });
         Ok((workbook, found))
     }
 
@@ -415,21 +475,37 @@ impl Workbook {
 
     /// The raster window: the user's, or the first 30 s of activity.
     pub fn window_s(&self) -> [f64; 2] {
-        if let Some(w) = self.settings.view.window_s {
+        self.window_in(&self.settings.view)
+    }
+
+    /// The raster window of `view`: its own, or the first 30 s of activity.
+    fn window_in(&self, view: &ViewSettings) -> [f64; 2] {
+        if let Some(w) = view.window_s {
             return w;
         }
         let first = self.recording.observed_span_s().map_or(0.0, |span| span.0);
         [first, first + 30.0]
     }
 
-    /// Draws a figure of the current results.
+    /// Draws a figure of the current results, in the page's view.
     pub fn figure(&self, request: &FigureRequest, size: Size) -> Result<Figure, FigureError> {
+        self.figure_in_view(request, &self.settings.view, size)
+    }
+
+    /// Draws a figure of the current results with the raster window and selected burst of
+    /// `view`.
+    pub fn figure_in_view(
+        &self,
+        request: &FigureRequest,
+        view: &ViewSettings,
+        size: Size,
+    ) -> Result<Figure, FigureError> {
         let need = || {
             self.report.as_ref().ok_or_else(|| FigureError {
                 message: "run the analysis first".into(),
             })
         };
-        let [from_s, to_s] = self.window_s();
+        let [from_s, to_s] = self.window_in(view);
         match request {
             FigureRequest::SiteMap => figures::site_map(&self.inspection, size),
             FigureRequest::Raster => {
@@ -478,7 +554,7 @@ impl Workbook {
             }
             FigureRequest::Activation => {
                 let r = need()?;
-                let burst = self.settings.view.burst;
+                let burst = view.burst;
                 let b = r
                     .bursts
                     .iter()
@@ -679,6 +755,110 @@ impl Workbook {
                 )
             }
         }
+    }
+
+    /// Records the SHA-256 of the raw voltage file (the shell reads it; the workbook keeps only
+    /// the spikes detected in it).
+    pub fn set_voltage_sha256(&mut self, sha256: String) {
+        if let Some(v) = &mut self.voltage_input {
+            v.sha256 = Some(sha256);
+        }
+    }
+
+    /// The input files with their sizes and digests: the raw voltage file (when the spikes
+    /// were detected here), the activity file, the layout and the stimulus protocol.
+    pub fn input_files(&self) -> Vec<InputFile> {
+        let file = |role: &str, (name, bytes): &(String, Vec<u8>)| InputFile {
+            role: role.into(),
+            name: name.clone(),
+            size_bytes: bytes.len() as u64,
+            sha256: Some(sha256_hex(bytes)),
+        };
+        let activity_role = if self.voltage_input.is_some() {
+            "detected spikes"
+        } else {
+            "activity"
+        };
+        self.voltage_input
+            .iter()
+            .cloned()
+            .chain([
+                file(activity_role, &self.activity),
+                file("layout", &self.layout),
+            ])
+            .chain(self.stimuli.as_ref().map(|f| file("stimuli", f)))
+            .collect()
+    }
+
+    /// The report of the last analysis as one document (see [`super::analysis_document`]).
+    /// Its figures use a fixed view (the first 30 s of activity; the first burst with a
+    /// front), so a report does not depend on where the page was scrolled or zoomed.
+    pub fn report_document(&self) -> Result<Document, FigureError> {
+        let report = self.report.as_ref().ok_or_else(|| FigureError {
+            message: "run the analysis first".into(),
+        })?;
+        let view = ViewSettings {
+            burst: report
+                .bursts
+                .iter()
+                .find(|b| b.front.is_some())
+                .map_or(1, |b| b.burst),
+            window_s: None,
+        };
+        let mut requests = vec![
+            (FigureRequest::SiteMap, "Map of the sites with the track"),
+            (FigureRequest::Raster, "Raster of the first 30 s of activity by site, with the bursts"),
+            (FigureRequest::PopulationRate, "Population rate with the detection threshold"),
+            (FigureRequest::IntervalHistogram, "Histogram of interburst intervals"),
+            (FigureRequest::Activation, "Activation time against position for the first burst with a front, with the fitted model"),
+            (FigureRequest::SpeedOverTime, "Front speed over the recording with 95% intervals"),
+            (FigureRequest::SpeedHistogram, "Histogram of front speeds"),
+            (FigureRequest::InitiationSites, "Where fronts start"),
+            (FigureRequest::Reliability, "Propagation reliability against distance"),
+            (FigureRequest::Leaders, "Share of bursts each site led"),
+            (FigureRequest::Recruitment, "Recruitment of the active sites over time in each burst"),
+            (FigureRequest::RateSpectrum, "Spectrum of the population rate with the Poisson floor"),
+            (FigureRequest::SiteFrequencies, "Each site's frequency on its own beside the network's burst frequency"),
+            (FigureRequest::SttcMatrix, "Spike time tiling coefficient of every pair of sites, in track order"),
+            (FigureRequest::Lags, "Lag between neighbouring sites against their distance along the track"),
+        ];
+        if report.response.is_some() {
+            requests.push((
+                FigureRequest::ResponseCurve { site: None },
+                "Share of sites responding at each stimulus amplitude, with the fitted cumulative Gaussian",
+            ));
+        }
+        let figures = requests
+            .into_iter()
+            .map(|(request, caption)| {
+                let name = request_name(&request);
+                match self.figure_in_view(&request, &view, Size::default()) {
+                    Ok(f) => Block::Figure {
+                        name,
+                        caption: caption.into(),
+                        svg: f.svg,
+                    },
+                    Err(e) => Block::MissingFigure {
+                        name,
+                        caption: caption.into(),
+                        reason: e.message,
+                    },
+                }
+            })
+            .collect();
+        let mut settings =
+            serde_json::to_value(self.settings.recording()).unwrap_or(serde_json::Value::Null);
+        if self.voltage_input.is_none() {
+            if let Some(map) = settings.as_object_mut() {
+                map.remove("voltage");
+            }
+        }
+        Ok(super::analysis_document::analysis_document(
+            report,
+            &self.input_files(),
+            &settings,
+            figures,
+        ))
     }
 
     /// The files of `ringline analyze --out`, as (name, contents); `None` before the analysis.
