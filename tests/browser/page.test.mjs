@@ -693,11 +693,21 @@ test('the report saved from the page equals `ringline analyze --report` and open
   assert.ok(figures.length >= 12, `only ${figures.length} figures`);
   for (const f of figures) assert.ok(f.ok, `figure not shown: ${f.alt}`);
   // Every burst has its row in the (collapsed) table, and the summary states the CLI's count.
-  const burstRows = await view.$$eval('details table tbody tr', (rows) => rows.length);
+  const burstRows = await view.$$eval('details', (all) => all
+    .find((d) => d.querySelector('summary').textContent.startsWith('Every burst'))
+    .querySelectorAll('tbody tr').length);
   assert.equal(burstRows, report.summary.burst_count);
   assert.match(await view.textContent('table.facts'), new RegExp(`Bursts\\s*${report.summary.burst_count}`));
   assert.match(await view.textContent('body'), /not for clinical or diagnostic use/);
   await view.screenshot({ path: join(artifacts, 'report-from-disk.png'), fullPage: false });
-  await view.pdf?.({ path: join(artifacts, 'report-a4.pdf'), format: 'A4' }).catch(() => {});
+  // Printed, the folded tables open, and the document lays out on A4 and Letter.
+  const lastSetting = view.locator('details tbody tr').last();
+  assert.equal(await lastSetting.isVisible(), false);
+  await view.emulateMedia({ media: 'print' });
+  assert.equal(await lastSetting.isVisible(), true);
+  for (const format of ['A4', 'Letter']) {
+    const pdf = await view.pdf({ path: join(artifacts, `report-${format}.pdf`), format });
+    assert.ok(pdf.length > 10000);
+  }
   await offline.close();
 });

@@ -234,6 +234,6 @@ fn settings_table(settings: &serde_json::Value) -> Table {
         caption: "Every setting (the keys of a settings file)".into(),
         header: vec!["setting".into(), "value".into()],
         rows,
-        collapsed: false,
+        collapsed: true,
     }
 }

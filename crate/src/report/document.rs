@@ -158,7 +158,7 @@ figcaption{font-size:.9rem;color:#333}
 ul.notices li{margin:.2rem 0}
 @page{margin:15mm}
 @media print{body{max-width:none;margin:0;padding:0;font-size:10pt}h2{break-after:avoid}tr{break-inside:avoid}
-figure img{max-width:185mm;max-height:120mm}details>summary{list-style:none}a{color:inherit}}
+figure img{max-width:185mm;max-height:120mm}details>summary{list-style:none}details::details-content{content-visibility:visible;display:block}a{color:inherit}}
 ";
 
 impl Document {
