@@ -13,7 +13,8 @@ use ringline::geometry::TrackSettings;
 use ringline::import::ReadOptions;
 use ringline::report::figures::{distance_from_origin_um, Size};
 use ringline::report::workbook::{
-    open_notebook, sha256_hex, FigureRequest, StepSettings, Workbook,
+    open_notebook, sha256_hex, supply_notebook_files, Embedding, FigureRequest, StepSettings,
+    Workbook,
 };
 
 fn analysed(name: &str) -> Workbook {
@@ -82,7 +83,7 @@ fn notebook_round_trip_gives_the_same_settings_and_results() {
     wb.analyze(settings.analysis.clone(), &mut |_, _| {})
         .unwrap();
     wb.settings.view.burst = 3;
-    let text = wb.notebook_json(None);
+    let text = wb.notebook_json(None, Embedding::UpToLimit);
     let opened = open_notebook("saved.ringline.json", text.as_bytes()).unwrap();
     assert_eq!(opened.files[0].sha256, sha256_hex(&spikes));
     assert_eq!(opened.files[1].sha256, sha256_hex(&layout));
@@ -98,8 +99,71 @@ fn notebook_round_trip_gives_the_same_settings_and_results() {
     let err = open_notebook("notes.json", b"{\"schema\": 1,,}").unwrap_err();
     assert!(err
         .message
-        .starts_with("notes.json: expected a ringline notebook"));
-    assert!(err.message.contains("line 1, column"));
+        .starts_with("notes.json: this is not a ringline notebook"));
+    assert_eq!(
+        err.message.matches("line 1, column").count(),
+        1,
+        "{}",
+        err.message
+    );
+    // A setting of the wrong type is named in words, not in Rust's type names.
+    let wrong = text.replacen("\"resamples\": 200", "\"resamples\": \"many\"", 1);
+    assert_ne!(wrong, text);
+    let err = open_notebook("saved.ringline.json", wrong.as_bytes()).unwrap_err();
+    assert!(
+        err.message.contains("expected a whole number"),
+        "{}",
+        err.message
+    );
+    assert!(
+        !err.message.contains("usize") && !err.message.contains(" at line "),
+        "{}",
+        err.message
+    );
+
+    // A notebook that refers to its files without holding them (what the page autosaves)
+    // re-opens only with the files, matched by SHA-256.
+    let bare = wb.notebook_json(None, Embedding::None);
+    assert_eq!(bare.matches("\"content\": null").count(), 2);
+    let mut refs = open_notebook("session.ringline.json", bare.as_bytes()).unwrap();
+    let err = Workbook::from_notebook(&refs, &mut |_, _| {}).unwrap_err();
+    assert!(
+        err.to_string()
+            .contains("drop it together with the notebook"),
+        "{err}"
+    );
+    let layout_only = vec![("layout.csv".to_string(), layout.clone())];
+    let err = supply_notebook_files("session", &mut refs.clone(), &layout_only).unwrap_err();
+    assert!(
+        err.message.contains("spikes.csv (activity file"),
+        "{}",
+        err.message
+    );
+    assert!(
+        err.message.contains(&sha256_hex(&spikes)),
+        "{}",
+        err.message
+    );
+    let mut changed = spikes.clone();
+    changed.push(b'\n');
+    let wrong_spikes = vec![
+        ("spikes.csv".to_string(), changed),
+        ("layout.csv".to_string(), layout.clone()),
+    ];
+    let err = supply_notebook_files("session", &mut refs.clone(), &wrong_spikes).unwrap_err();
+    assert!(
+        err.message.contains("its contents differ"),
+        "{}",
+        err.message
+    );
+    let both = vec![
+        ("a/renamed.csv".to_string(), spikes.clone()),
+        ("layout.csv".to_string(), layout.clone()),
+    ];
+    supply_notebook_files("session", &mut refs, &both).unwrap();
+    let restored = Workbook::from_notebook(&refs, &mut |_, _| {}).unwrap();
+    assert_eq!(restored.settings, wb.settings);
+    assert_eq!(restored.report(), wb.report());
 }
 
 /// A schema-1 notebook (written by the previous version, committed as a fixture) opens as
@@ -148,14 +212,14 @@ fn schema_1_notebooks_migrate_and_schema_2_keeps_the_study() {
         ],
         open: Some(0),
     };
-    let text = wb.notebook_json(Some(&study));
+    let text = wb.notebook_json(Some(&study), Embedding::UpToLimit);
     let again = open_notebook("new.ringline.json", text.as_bytes()).unwrap();
     assert_eq!(again.schema, 2);
     assert_eq!(again.study.as_ref(), Some(&study));
     // A study whose entries do not match its manifest is refused.
     let mut broken = study.clone();
     broken.recordings.pop();
-    let text = wb.notebook_json(Some(&broken));
+    let text = wb.notebook_json(Some(&broken), Embedding::UpToLimit);
     let err = open_notebook("bad.ringline.json", text.as_bytes()).unwrap_err();
     assert!(
         err.message.contains("one study entry per manifest row"),

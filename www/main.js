@@ -204,12 +204,16 @@ async function addFiles(list, { asStudy = false } = {}) {
   }
   // A new recording dropped without a protocol does not inherit the last one's.
   if (recordings.length && !added.some((f) => f.kind === 'stimuli')) state.stimuli = null;
+  const notebook = added.find((f) => f.kind === 'notebook');
+  if (notebook) {
+    // Files dropped with a notebook supply the ones it names without holding (by SHA-256).
+    const others = [];
+    for (const f of added) if (f !== notebook) others.push([f.file?.webkitRelativePath || f.name, await bytesOf(f)]);
+    renderFiles();
+    await openNotebook(notebook, others);
+    return;
+  }
   for (const entry of added) {
-    if (entry.kind === 'notebook') {
-      renderFiles();
-      await openNotebook(entry);
-      return;
-    }
     if (entry.kind === 'spike_list' || entry.kind === 'roi_traces') { state.activity = entry; state.voltage = null; }
     if (entry.kind === 'voltage') { state.voltage = entry; state.activity = null; }
     if (entry.kind === 'sidecar') state.sidecar = entry;
@@ -265,6 +269,7 @@ async function openVoltage({ keepSettings }) {
     fillForms();
     await renderTrack();
     $('step-bursts').hidden = false;
+    scheduleAutosave();
   } catch (e) {
     state.voltage.status = errorText(e);
     state.voltage.problem = true;
@@ -314,6 +319,7 @@ async function openWorkbook({ keepSettings }) {
     fillForms();
     await renderTrack();
     $('step-bursts').hidden = false;
+    scheduleAutosave();
   } catch (e) {
     for (const f of [state.activity, state.layout]) {
       f.status = 'not imported';
@@ -347,10 +353,10 @@ async function attachStimuli() {
   }
 }
 
-async function openNotebook(entry) {
+async function openNotebook(entry, files = null) {
   setBusy(true, 'Re-opening the notebook…');
   try {
-    const result = await call('openNotebook', { name: entry.name, bytes: entry.bytes.slice(0) }, showProgress);
+    const result = await call('openNotebook', { name: entry.name, bytes: entry.bytes.slice(0), files }, showProgress);
     const study = await call('notebookStudy', { name: entry.name, bytes: entry.bytes.slice(0) });
     state.study = study && {
       manifest: study.manifest,
@@ -365,11 +371,13 @@ async function openNotebook(entry) {
     state.inspection = result.inspection;
     state.report = result.report;
     entry.status = 'opened: files and settings restored, analysis re-run';
+    for (const f of state.files) if (f !== entry && !f.problem) f.status = 'used by the notebook';
     renderFiles();
     fillForms();
     await renderTrack();
     $('step-bursts').hidden = false;
     await renderResults();
+    scheduleAutosave();
   } catch (e) {
     entry.status = errorText(e);
     entry.problem = true;
@@ -546,6 +554,7 @@ async function refitTrack(event) {
     state.inspection = await call('setTrack', { track: readTrackForm() });
     state.settings = await call('settings');
     state.report = null;
+    scheduleAutosave();
     hideFrom('step-fronts');
     $('burst-results').hidden = true;
     await renderTrack();
@@ -580,6 +589,7 @@ async function runAnalysis(event) {
     state.settings = await call('settings');
     await renderResults();
     await updateOpenStudyRecording();
+    scheduleAutosave();
   } catch (e) {
     showError('analysis-error', e);
   } finally {
@@ -643,6 +653,7 @@ async function setWindow(event) {
   const view = { ...state.settings.view, window_s: (w.from.value !== '' && w.to.value !== '') ? [from, to] : null };
   await call('setView', { view });
   state.settings.view = view;
+  scheduleAutosave();
   for (const name of ['raster', 'population_rate']) await drawFigure(name);
 }
 
@@ -657,6 +668,7 @@ async function selectBurst(number) {
   const view = { ...state.settings.view, burst: n };
   await call('setView', { view });
   state.settings.view = view;
+  scheduleAutosave();
   $('burst-number').value = n;
   const b = bursts[n - 1];
   const f = b.front;
@@ -1085,6 +1097,158 @@ function studyForNotebook() {
 async function saveNotebook() {
   const text = await call('notebook', { study: studyForNotebook() });
   download(`${state.fileStem}.ringline.json`, text, 'application/json');
+  const left = await call('filesNotEmbedded');
+  const note = $('notebook-note');
+  note.hidden = left.length === 0;
+  note.textContent = left.length
+    ? `The notebook names ${left.map(([n, size]) => `${n} (${formatBytes(size)})`).join(' and ')} by its SHA-256 without holding it `
+      + '(too large, or not text). Keep that file with the notebook, and drop both together to re-open it.'
+    : '';
+}
+
+// ---------------------------------------------------------------- autosave
+
+// The session (the notebook of the open recording and study, which names its files by
+// SHA-256) is kept in this browser's IndexedDB as the user works; each file's bytes are kept
+// once, under its digest. Nothing leaves the computer.
+const SESSION_DB = 'ringline-session';
+let autosaveTimer = null;
+let autosaveRunning = Promise.resolve();
+let autosaveOff = false;
+
+function openSessionDb() {
+  return new Promise((resolve, reject) => {
+    if (typeof indexedDB === 'undefined') {
+      reject(new Error('this browser offers no IndexedDB here'));
+      return;
+    }
+    const request = indexedDB.open(SESSION_DB, 1);
+    request.onupgradeneeded = () => {
+      request.result.createObjectStore('files');
+      request.result.createObjectStore('session');
+    };
+    request.onsuccess = () => resolve(request.result);
+    request.onerror = () => reject(request.error);
+  });
+}
+
+/** Runs `work(stores)` in one transaction; resolves when it commits. */
+function inTransaction(db, mode, work) {
+  return new Promise((resolve, reject) => {
+    const t = db.transaction(['files', 'session'], mode);
+    let result;
+    t.oncomplete = () => resolve(result);
+    t.onabort = () => reject(t.error ?? new Error('the browser refused to store the session'));
+    t.onerror = () => {};
+    Promise.resolve(work({ files: t.objectStore('files'), session: t.objectStore('session') }))
+      .then((r) => { result = r; }, (e) => { try { t.abort(); } catch { /* already over */ } reject(e); });
+  });
+}
+
+const asPromise = (request) => new Promise((resolve, reject) => {
+  request.onsuccess = () => resolve(request.result);
+  request.onerror = () => reject(request.error);
+});
+
+function setAutosaveStatus(text, isProblem = false) {
+  const el = $('autosave-status');
+  el.textContent = text;
+  el.classList.toggle('problem', isProblem);
+}
+
+function scheduleAutosave() {
+  if (autosaveOff || !state.inspection) return;
+  clearTimeout(autosaveTimer);
+  autosaveTimer = setTimeout(() => {
+    autosaveRunning = autosaveRunning.then(autosave, autosave);
+  }, 400);
+}
+
+async function autosave() {
+  if (!state.inspection) return;
+  try {
+    const notebook = await call('notebook', { study: studyForNotebook(), embed: false });
+    const files = await call('inputFiles');
+    const db = await openSessionDb();
+    const stored = await inTransaction(db, 'readonly', ({ files: store }) => asPromise(store.getAllKeys()));
+    const fresh = [];
+    for (const f of files) {
+      if (!stored.includes(f.sha256)) fresh.push([f.sha256, { name: f.name, bytes: await call('inputBytes', { role: f.role }) }]);
+    }
+    const what = `${files.map((f) => f.name).join(' + ')}${state.report ? `, analysed (${state.report.bursts.length} bursts)` : ', not analysed yet'}`
+      + `${state.study ? `; a study of ${state.study.manifest.rows.length} recordings` : ''}`;
+    const savedAt = new Date();
+    await inTransaction(db, 'readwrite', ({ files: store, session }) => {
+      for (const [key, value] of fresh) store.put(value, key);
+      // Bytes no longer named by the session are let go.
+      for (const key of stored) if (!files.some((f) => f.sha256 === key)) store.delete(key);
+      session.put({ saved_at: savedAt.toISOString(), what, notebook, files }, 'current');
+    });
+    db.close();
+    setAutosaveStatus(`Session kept in this browser at ${savedAt.toLocaleTimeString()}.`);
+  } catch (e) {
+    if (e?.name === 'QuotaExceededError') {
+      autosaveOff = true;
+      setAutosaveStatus('Autosave stopped: this browser\'s storage for the page is full. '
+        + 'The open session is unaffected; save a notebook to keep it.', true);
+    } else {
+      setAutosaveStatus(`The session could not be kept in this browser (${e?.message ?? e}); save a notebook to keep it.`, true);
+    }
+  }
+}
+
+/** On load: offers the session kept in this browser, saying what and from when. */
+async function offerRestore() {
+  let kept;
+  try {
+    const db = await openSessionDb();
+    kept = await inTransaction(db, 'readonly', ({ session }) => asPromise(session.get('current')));
+    db.close();
+  } catch (e) {
+    setAutosaveStatus(`This browser does not let the page keep a session here (${e?.message ?? e}); `
+      + 'save a notebook to keep your work.', true);
+    autosaveOff = true;
+    return;
+  }
+  if (!kept) return;
+  $('restore-text').textContent = `A session kept in this browser on ${new Date(kept.saved_at).toLocaleString()}: ${kept.what}.`;
+  $('restore').hidden = false;
+  $('restore-button').focus();
+}
+
+async function restoreSession() {
+  $('restore').hidden = true;
+  try {
+    const db = await openSessionDb();
+    const { kept, files } = await inTransaction(db, 'readonly', async ({ files: store, session }) => {
+      const k = await asPromise(session.get('current'));
+      const bytes = [];
+      for (const f of k.files) {
+        const v = await asPromise(store.get(f.sha256));
+        if (v) bytes.push([v.name, v.bytes]);
+      }
+      return { kept: k, files: bytes };
+    });
+    db.close();
+    const entry = { name: 'the session kept in this browser', size: kept.notebook.length, bytes: new TextEncoder().encode(kept.notebook).buffer, kind: 'notebook', status: '' };
+    state.files = [entry];
+    await openNotebook(entry, files);
+    $('summary-table').focus();
+  } catch (e) {
+    showError('input-error', e);
+  }
+}
+
+async function clearSession() {
+  $('restore').hidden = true;
+  try {
+    const db = await openSessionDb();
+    await inTransaction(db, 'readwrite', ({ files, session }) => { files.clear(); session.clear(); });
+    db.close();
+    setAutosaveStatus('The kept session was cleared from this browser.');
+  } catch (e) {
+    setAutosaveStatus(`The kept session could not be cleared (${e?.message ?? e}).`, true);
+  }
 }
 
 // ---------------------------------------------------------------- wiring
@@ -1158,6 +1322,8 @@ function wire() {
   for (const b of document.querySelectorAll('[data-export]')) b.addEventListener('click', exportTable);
   for (const b of document.querySelectorAll('.svg-save')) b.addEventListener('click', exportSvg);
   $('save-notebook').addEventListener('click', saveNotebook);
+  $('restore-button').addEventListener('click', restoreSession);
+  $('restore-clear').addEventListener('click', clearSession);
   $('save-report').addEventListener('click', () => saveReport().catch((e) => showError('analysis-error', e)));
 }
 
@@ -1166,3 +1332,4 @@ window.ringline = { call, state, restartWorker };
 
 wire();
 startWorker();
+ready.then(offerRestore, () => {});

@@ -80,11 +80,12 @@ const ops = {
       layout.name, new Uint8Array(layout.bytes), settings ?? null);
     return { inspection: workbook.inspection(), settings: workbook.settings() };
   },
-  openNotebook: ({ name, bytes }, id) => {
+  openNotebook: ({ name, bytes, files }, id) => {
     workbook?.free();
     workbook = null;
     voltageFile = null;
-    workbook = core.Workbook.fromNotebook(name, new Uint8Array(bytes), progress(id));
+    const given = files ? files.map(([n, b]) => [n, new Uint8Array(b)]) : null;
+    workbook = core.Workbook.fromNotebook(name, new Uint8Array(bytes), given, progress(id));
     return { inspection: workbook.inspection(), settings: workbook.settings(), report: workbook.report() };
   },
   openVoltage: ({ file, sidecar, layout, settings }, id) => {
@@ -133,7 +134,10 @@ const ops = {
     }
     return book.reportHtml();
   },
-  notebook: ({ study }) => need().notebookJson(study ?? null),
+  notebook: ({ study, embed = true }) => need().notebookJson(study ?? null, embed),
+  inputFiles: () => need().inputFiles(),
+  filesNotEmbedded: () => need().filesNotEmbedded(),
+  inputBytes: ({ role }) => need().inputBytes(role),
   notebookStudy: ({ name, bytes }) => core.notebookStudy(name, new Uint8Array(bytes)),
   compareTruth: ({ truth }) => need().compareTruth(truth),
   simulate: ({ scenario }, id) => core.simulate(scenario, (stage, done, total) => postMessage({ id, progress: [done, total], stage })),

@@ -231,14 +231,27 @@ impl WasmWorkbook {
         .map_err(|e| located(&e))
     }
 
-    /// Re-opens a notebook file and runs its analysis.
+    /// Re-opens a notebook file and runs its analysis. `files` (`[[name, Uint8Array], ...]`
+    /// or null) supplies the files the notebook refers to without holding them, matched by
+    /// SHA-256.
     #[wasm_bindgen(js_name = fromNotebook)]
     pub fn from_notebook(
         name: &str,
         bytes: &[u8],
+        files: JsValue,
         progress: Option<js_sys::Function>,
     ) -> Result<WasmWorkbook, JsValue> {
-        let nb = open_notebook(name, bytes).map_err(|e| message(&e))?;
+        let mut nb = open_notebook(name, bytes).map_err(|e| message(&e))?;
+        let mut supplied: Vec<(String, Vec<u8>)> = Vec::new();
+        if let Some(list) = files.dyn_ref::<js_sys::Array>() {
+            for pair in list.iter() {
+                let pair = js_sys::Array::from(&pair);
+                let name = pair.get(0).as_string().unwrap_or_default();
+                supplied.push((name, js_sys::Uint8Array::new(&pair.get(1)).to_vec()));
+            }
+        }
+        crate::report::workbook::supply_notebook_files(name, &mut nb, &supplied)
+            .map_err(|e| message(&e))?;
         let mut report = progress_fn(&progress);
         Workbook::from_notebook(&nb, &mut |done, total| report(done as f64, total as f64))
             .map(|inner| WasmWorkbook {
@@ -431,6 +444,46 @@ impl WasmWorkbook {
         self::study_entry(&manifest, manifest_row, result)
     }
 
+    /// The input files as a notebook names them: `[{ role, name, size_bytes, sha256 }]`.
+    #[wasm_bindgen(js_name = inputFiles)]
+    pub fn input_files(&self) -> Result<JsValue, JsValue> {
+        #[derive(Serialize)]
+        struct Named<'a> {
+            role: &'a str,
+            name: &'a str,
+            size_bytes: usize,
+            sha256: &'a str,
+        }
+        let files: Vec<Named<'_>> = self
+            .inner
+            .input_bytes()
+            .into_iter()
+            .map(|(role, name, bytes, sha256)| Named {
+                role,
+                name,
+                size_bytes: bytes.len(),
+                sha256,
+            })
+            .collect();
+        to_js(&files)
+    }
+
+    /// The input files a shared notebook cannot hold: `[[name, size_bytes], ...]`.
+    #[wasm_bindgen(js_name = filesNotEmbedded)]
+    pub fn files_not_embedded(&self) -> Result<JsValue, JsValue> {
+        to_js(&self.inner.files_not_embedded())
+    }
+
+    /// The bytes of the input file with this role (`activity`, `layout`, `stimuli`).
+    #[wasm_bindgen(js_name = inputBytes)]
+    pub fn input_bytes(&self, role: &str) -> Option<Vec<u8>> {
+        self.inner
+            .input_bytes()
+            .into_iter()
+            .find(|f| f.0 == role)
+            .map(|f| f.2.to_vec())
+    }
+
     /// The self-contained HTML report of the last analysis (the bytes of `ringline analyze
     /// --report`).
     #[wasm_bindgen(js_name = reportHtml)]
@@ -455,7 +508,7 @@ impl WasmWorkbook {
     /// The notebook file (JSON text), holding `study` (a `StudyNotebook` object) when the
     /// page has one.
     #[wasm_bindgen(js_name = notebookJson)]
-    pub fn notebook_json(&self, study: JsValue) -> Result<String, JsValue> {
+    pub fn notebook_json(&self, study: JsValue, embed: bool) -> Result<String, JsValue> {
         let study: Option<crate::report::workbook::StudyNotebook> =
             if study.is_null() || study.is_undefined() {
                 None
@@ -465,7 +518,12 @@ impl WasmWorkbook {
                         .map_err(|e| plain_error(format!("study: {e}")))?,
                 )
             };
-        Ok(self.inner.notebook_json(study.as_ref()))
+        let embedding = if embed {
+            crate::report::workbook::Embedding::UpToLimit
+        } else {
+            crate::report::workbook::Embedding::None
+        };
+        Ok(self.inner.notebook_json(study.as_ref(), embedding))
     }
 }
 

@@ -711,3 +711,103 @@ test('the report saved from the page equals `ringline analyze --report` and open
   }
   await offline.close();
 });
+
+/** Waits until the page says it kept the session after `since` (ms, page clock). */
+async function sessionKept(page) {
+  await page.waitForFunction(() => /kept in this browser at/.test(document.getElementById('autosave-status').textContent), null, { timeout: 20000 });
+}
+
+async function keptFileCount(page) {
+  return page.evaluate(() => new Promise((resolve, reject) => {
+    const open = indexedDB.open('ringline-session', 1);
+    open.onsuccess = () => {
+      const count = open.result.transaction('files').objectStore('files').count();
+      count.onsuccess = () => { open.result.close(); resolve(count.result); };
+      count.onerror = () => reject(count.error);
+    };
+    open.onerror = () => reject(open.error);
+  }));
+}
+
+test('the session is kept in the browser, offered after a reload with what and when, restored and cleared', async () => {
+  const { page, context, errors } = await openPage(base);
+  await page.click('#demo-button');
+  await analyse(page);
+  const speed = await summaryValue(page, 'speed');
+  await page.fill('#burst-number', '3');
+  await page.dispatchEvent('#burst-number', 'change');
+  await page.waitForFunction(() => document.getElementById('burst-number').value === '3');
+  await page.evaluate(() => { document.getElementById('autosave-status').textContent = ''; });
+  await sessionKept(page);
+  assert.equal(await keptFileCount(page), 2, 'the two files are kept once each');
+  await page.evaluate(() => { document.getElementById('autosave-status').textContent = ''; });
+  await page.click('#analyze-button'); // the same files analysed again: still kept once
+  await sessionKept(page);
+  assert.equal(await keptFileCount(page), 2);
+
+  await page.reload();
+  await page.waitForFunction(() => window.ringlineCoreReadyAt !== undefined);
+  await page.locator('#restore').waitFor({ state: 'visible' });
+  const offer = await page.textContent('#restore-text');
+  assert.match(offer, /spikes\.csv \+ layout\.csv, analysed \(\d+ bursts\)/);
+  assert.match(offer, new RegExp(String(new Date().getFullYear())));
+  assert.equal(await page.evaluate(() => document.activeElement.id), 'restore-button');
+  await page.keyboard.press('Enter');
+  await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
+  assert.equal(await summaryValue(page, 'speed'), speed);
+  assert.equal(await page.inputValue('#burst-number'), '3');
+  assert.equal(await page.evaluate(() => document.activeElement.id), 'summary-table');
+  await shoot(page, 'restored-session');
+
+  await page.reload();
+  await page.waitForFunction(() => window.ringlineCoreReadyAt !== undefined);
+  await page.locator('#restore').waitFor({ state: 'visible' });
+  await page.click('#restore-clear');
+  await page.waitForFunction(() => /cleared/.test(document.getElementById('autosave-status').textContent));
+  assert.equal(await keptFileCount(page), 0);
+  await page.reload();
+  await page.waitForFunction(() => window.ringlineCoreReadyAt !== undefined);
+  await page.waitForTimeout(500);
+  assert.ok(await page.locator('#restore').isHidden());
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
+test('a full browser storage stops the autosave with a message and leaves the open session alone', async () => {
+  const { page, context, errors } = await openPage(base);
+  const cdp = await context.newCDPSession(page);
+  await cdp.send('Storage.overrideQuotaForOrigin', { origin: new URL(base).origin, quotaSize: 1024 });
+  await page.click('#demo-button');
+  await analyse(page);
+  await page.waitForFunction(() => /storage for the page is full/.test(document.getElementById('autosave-status').textContent), null, { timeout: 20000 });
+  assert.ok((await summaryValue(page, 'speed')) > 0);
+  await page.click('#next-burst');
+  await page.waitForFunction(() => document.getElementById('burst-number').value === '2');
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
+test('the single file opened from disk keeps and restores its session', async () => {
+  const { page, context, errors } = await openPage(pathToFileURL(join(repo, 'www/dist/ringline.html')).href);
+  await page.click('#demo-button');
+  await analyse(page);
+  const speed = await summaryValue(page, 'speed');
+  const status = await page.waitForFunction(() => {
+    const t = document.getElementById('autosave-status').textContent;
+    return /kept in this browser at|does not let the page keep/.test(t) && t;
+  }, null, { timeout: 20000 });
+  const said = await status.jsonValue();
+  if (/does not let/.test(said)) {
+    // Where the browser refuses storage to pages from disk, the page says so (and that is all).
+    console.log(`single file: ${said}`);
+  } else {
+    await page.reload();
+    await page.waitForFunction(() => window.ringlineCoreReadyAt !== undefined);
+    await page.locator('#restore').waitFor({ state: 'visible' });
+    await page.click('#restore-button');
+    await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
+    assert.equal(await summaryValue(page, 'speed'), speed);
+  }
+  assert.deepEqual(errors, []);
+  await context.close();
+});

@@ -152,17 +152,47 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
         .collect()
 }
 
-/// Reads a notebook file: checks the schema, that both inputs are embedded, and that their
-/// SHA-256 matches.
+/// A JSON reading error in words: serde's type names become plain words, and the location is
+/// given once, by the caller.
+fn json_error_words(e: &serde_json::Error) -> String {
+    let text = e.to_string();
+    let text = match text.rfind(" at line ") {
+        Some(at) => &text[..at],
+        None => &text,
+    };
+    let mut text = text
+        .replace("invalid type: ", "")
+        .replace("invalid value: ", "");
+    for (jargon, words) in [
+        ("usize", "a whole number (0 or more)"),
+        ("u64", "a whole number (0 or more)"),
+        ("u32", "a whole number (0 or more)"),
+        ("f64", "a number"),
+        ("a sequence", "a list [...]"),
+        ("a map", "an object {...}"),
+    ] {
+        text = text.replace(&format!("expected {jargon}"), &format!("expected {words}"));
+        text = text.replace(
+            &format!("expected struct {jargon}"),
+            &format!("expected {words}"),
+        );
+    }
+    text
+}
+
+/// Reads a notebook file: checks the schema, the study, and that every embedded file matches
+/// its SHA-256. Files the notebook only refers to (too large to embed, or an autosaved session
+/// whose files are kept apart) are filled in by [`supply_notebook_files`].
 pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, NotebookError> {
     let fail = |message: String| NotebookError {
         message: format!("{name}: {message}"),
     };
     let nb: OpenedNotebook = serde_json::from_slice(bytes).map_err(|e| {
         fail(format!(
-            "expected a ringline notebook (JSON), found something else at line {}, column {}: {e}",
+            "this is not a ringline notebook, or it was changed by hand: line {}, column {}: {}",
             e.line(),
-            e.column()
+            e.column(),
+            json_error_words(&e)
         ))
     })?;
     let mut nb = nb;
@@ -186,26 +216,92 @@ pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, Noteboo
         }
     }
     for role in ["activity", "layout"] {
-        let f = nb.files.iter().find(|f| f.role == role).ok_or_else(|| {
-            fail(format!(
-                "expected an {role} file in the notebook, found none"
-            ))
-        })?;
-        let content = f.content.as_ref().ok_or_else(|| {
-            fail(format!(
-                "the {role} file {} was too large to embed; open it and the layout directly",
-                f.name
-            ))
-        })?;
-        let digest = sha256_hex(content.as_bytes());
-        if digest != f.sha256 {
+        if !nb.files.iter().any(|f| f.role == role) {
             return Err(fail(format!(
-                "the embedded {role} file {} does not match its SHA-256 (expected {}, found {digest})",
-                f.name, f.sha256
+                "expected an {role} file in the notebook, found none"
             )));
         }
     }
+    for f in &nb.files {
+        if let Some(content) = &f.content {
+            let digest = sha256_hex(content.as_bytes());
+            if digest != f.sha256 {
+                return Err(fail(format!(
+                    "the embedded {} file {} does not match its SHA-256 (expected {}, found {digest})",
+                    f.role, f.name, f.sha256
+                )));
+            }
+        }
+    }
     Ok(nb)
+}
+
+/// Fills in the files a notebook refers to without holding them, from `supplied` (name,
+/// bytes) matched by SHA-256. A notebook re-opens only when every file is there; otherwise the
+/// error names each missing file with its size and digest.
+pub fn supply_notebook_files(
+    name: &str,
+    nb: &mut OpenedNotebook,
+    supplied: &[(String, Vec<u8>)],
+) -> Result<(), NotebookError> {
+    let digests: Vec<String> = supplied.iter().map(|(_, b)| sha256_hex(b)).collect();
+    let mut missing = Vec::new();
+    for f in nb.files.iter_mut().filter(|f| f.content.is_none()) {
+        match digests.iter().position(|d| *d == f.sha256) {
+            Some(k) => match String::from_utf8(supplied[k].1.clone()) {
+                Ok(text) => f.content = Some(text),
+                Err(_) => missing.push(format!(
+                    "{} ({} file) matches its SHA-256 but is not UTF-8 text",
+                    supplied[k].0, f.role
+                )),
+            },
+            None => {
+                let differs = supplied
+                    .iter()
+                    .any(|(n, _)| n.rsplit(['/', '\\']).next() == Some(f.name.as_str()));
+                missing.push(format!(
+                    "{} ({} file, {} bytes, SHA-256 {}){}",
+                    f.name,
+                    f.role,
+                    f.size_bytes,
+                    f.sha256,
+                    if differs {
+                        ": a file of that name was given, but its contents differ"
+                    } else {
+                        ""
+                    }
+                ));
+            }
+        }
+    }
+    if missing.is_empty() {
+        Ok(())
+    } else {
+        Err(NotebookError {
+            message: format!(
+                "{name} refers to files it does not hold; drop them together with the notebook: {}",
+                missing.join("; ")
+            ),
+        })
+    }
+}
+
+/// A file's text when a notebook can hold it: UTF-8 and at most [`EMBED_LIMIT_BYTES`].
+fn embeddable(bytes: &[u8]) -> Option<String> {
+    if bytes.len() > EMBED_LIMIT_BYTES {
+        return None;
+    }
+    String::from_utf8(bytes.to_vec()).ok()
+}
+
+/// What the notebook file keeps of each input.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Embedding {
+    /// Files up to [`EMBED_LIMIT_BYTES`] that are UTF-8 text are embedded (a notebook to share).
+    UpToLimit,
+    /// No file is embedded; each is named with its size and SHA-256 (the page's autosave keeps
+    /// the bytes apart, once per digest).
+    None,
 }
 
 /// A figure request's name as the page and the report use it (`site_map`, `raster`, ...).
@@ -268,6 +364,8 @@ pub struct Workbook {
     stimuli: Option<(String, Vec<u8>)>,
     /// Raw voltage: the voltage file itself (its digest comes from the shell, which holds it).
     voltage_input: Option<InputFile>,
+    /// SHA-256 of the activity, layout and stimulus files, computed when first asked for.
+    digests: [std::cell::OnceCell<String>; 3],
 }
 
 impl Workbook {
@@ -309,6 +407,7 @@ impl Workbook {
             electrodes: None,
             stimuli: None,
             voltage_input: None,
+            digests: Default::default(),
         })
     }
 
@@ -363,6 +462,7 @@ impl Workbook {
         crate::attach_stimuli(&mut recording, name, bytes, &self.settings.read)?;
         self.recording = recording;
         self.stimuli = Some((name.to_string(), bytes.to_vec()));
+        self.digests[2] = Default::default();
         self.report = None;
         Ok(())
     }
@@ -757,6 +857,42 @@ impl Workbook {
         }
     }
 
+    /// The input files by role: (role, name, bytes, SHA-256). What a notebook names and an
+    /// autosave keeps apart from the notebook that refers to them.
+    pub fn input_bytes(&self) -> Vec<(&'static str, &str, &[u8], &str)> {
+        [
+            Some(("activity", &self.activity, &self.digests[0])),
+            Some(("layout", &self.layout, &self.digests[1])),
+            self.stimuli
+                .as_ref()
+                .map(|f| ("stimuli", f, &self.digests[2])),
+        ]
+        .into_iter()
+        .flatten()
+        .map(|(role, (name, bytes), digest)| {
+            (
+                role,
+                name.as_str(),
+                bytes.as_slice(),
+                digest.get_or_init(|| sha256_hex(bytes)).as_str(),
+            )
+        })
+        .collect()
+    }
+
+    /// The input files a shared notebook cannot hold (larger than [`EMBED_LIMIT_BYTES`] or
+    /// not UTF-8 text): (name, size in bytes). The notebook names them by SHA-256, and
+    /// re-opens when they are dropped with it.
+    pub fn files_not_embedded(&self) -> Vec<(String, usize)> {
+        self.input_bytes()
+            .into_iter()
+            .filter(|(_, _, bytes, _)| {
+                bytes.len() > EMBED_LIMIT_BYTES || std::str::from_utf8(bytes).is_err()
+            })
+            .map(|(_, name, bytes, _)| (name.to_string(), bytes.len()))
+            .collect()
+    }
+
     /// Records the SHA-256 of the raw voltage file (the shell reads it; the workbook keeps only
     /// the spikes detected in it).
     pub fn set_voltage_sha256(&mut self, sha256: String) {
@@ -768,25 +904,24 @@ impl Workbook {
     /// The input files with their sizes and digests: the raw voltage file (when the spikes
     /// were detected here), the activity file, the layout and the stimulus protocol.
     pub fn input_files(&self) -> Vec<InputFile> {
-        let file = |role: &str, (name, bytes): &(String, Vec<u8>)| InputFile {
-            role: role.into(),
-            name: name.clone(),
-            size_bytes: bytes.len() as u64,
-            sha256: Some(sha256_hex(bytes)),
-        };
-        let activity_role = if self.voltage_input.is_some() {
-            "detected spikes"
-        } else {
-            "activity"
-        };
+        let detected = self.voltage_input.is_some();
         self.voltage_input
             .iter()
             .cloned()
-            .chain([
-                file(activity_role, &self.activity),
-                file("layout", &self.layout),
-            ])
-            .chain(self.stimuli.as_ref().map(|f| file("stimuli", f)))
+            .chain(
+                self.input_bytes()
+                    .into_iter()
+                    .map(|(role, name, bytes, digest)| InputFile {
+                        role: if detected && role == "activity" {
+                            "detected spikes".into()
+                        } else {
+                            role.into()
+                        },
+                        name: name.into(),
+                        size_bytes: bytes.len() as u64,
+                        sha256: Some(digest.into()),
+                    }),
+            )
             .collect()
     }
 
@@ -868,27 +1003,24 @@ impl Workbook {
 
     /// The notebook file (JSON): both inputs with their SHA-256 (embedded when small enough),
     /// every setting, the results, and the study the page holds, if any.
-    pub fn notebook_json(&self, study: Option<&StudyNotebook>) -> String {
-        let file = |role: &str, (name, bytes): &(String, Vec<u8>)| NotebookFile {
-            role: role.into(),
-            name: name.clone(),
-            size_bytes: bytes.len(),
-            sha256: sha256_hex(bytes),
-            content: (bytes.len() <= EMBED_LIMIT_BYTES)
-                .then(|| String::from_utf8(bytes.clone()).ok())
-                .flatten(),
-        };
+    pub fn notebook_json(&self, study: Option<&StudyNotebook>, embedding: Embedding) -> String {
         let nb = Notebook {
             schema: NOTEBOOK_SCHEMA,
             program: format!("ringline {}", env!("CARGO_PKG_VERSION")),
-            files: [
-                Some(file("activity", &self.activity)),
-                Some(file("layout", &self.layout)),
-                self.stimuli.as_ref().map(|f| file("stimuli", f)),
-            ]
-            .into_iter()
-            .flatten()
-            .collect(),
+            files: self
+                .input_bytes()
+                .into_iter()
+                .map(|(role, name, bytes, digest)| NotebookFile {
+                    role: role.into(),
+                    name: name.into(),
+                    size_bytes: bytes.len(),
+                    sha256: digest.into(),
+                    content: match embedding {
+                        Embedding::UpToLimit => embeddable(bytes),
+                        Embedding::None => None,
+                    },
+                })
+                .collect(),
             settings: &self.settings,
             results: self.report.as_ref(),
             study,
@@ -904,6 +1036,17 @@ impl Workbook {
         nb: &OpenedNotebook,
         progress: &mut dyn FnMut(usize, usize),
     ) -> Result<Workbook, Error> {
+        if let Some(f) = nb.files.iter().find(|f| f.content.is_none()) {
+            return Err(crate::import::ImportError::new(
+                crate::place::Place::file(&f.name),
+                crate::import::ImportProblem::BadOption,
+                format!(
+                    "the notebook does not hold this {} file ({} bytes, SHA-256 {}); drop it together with the notebook",
+                    f.role, f.size_bytes, f.sha256
+                ),
+            )
+            .into());
+        }
         let get = |role: &str| {
             nb.files
                 .iter()
