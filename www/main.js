@@ -81,7 +81,7 @@ async function restartWorker(why) {
   setStatus(why, true);
   state.report = null;
   if (state.voltage && state.layout) {
-    setStatus(`${why} Open the recording again to detect its spikes.`, true);
+    setStatus(`${why} To detect its spikes, drop or choose the voltage file again.`, true);
   } else if (state.activity && state.layout) {
     try {
       await openWorkbook({ keepSettings: true });
@@ -197,6 +197,15 @@ async function addFiles(list, { asStudy = false } = {}) {
     added.push(entry);
   }
   const recordings = added.filter((f) => ACTIVITY_KINDS.includes(f.kind));
+  // A new recording (or notebook) replaces the last one in the file table; the companions
+  // still in use (layout, sidecar, protocol) stay until they are replaced too.
+  if (recordings.length || added.some((f) => f.kind === 'notebook')) {
+    const replaced = (kind) => added.some((f) => f.kind === kind);
+    const inUse = [
+      !replaced('layout') && state.layout, !replaced('sidecar') && state.sidecar, !replaced('stimuli') && state.stimuli,
+    ];
+    state.files = state.files.filter((f) => added.includes(f) || inUse.includes(f));
+  }
   if (asStudy && (added.some((f) => f.kind === 'manifest') || recordings.length > 1)) {
     renderFiles();
     await openStudy(added);
@@ -246,6 +255,7 @@ async function openChosen() {
 async function openVoltage({ keepSettings }) {
   clearError('input-error');
   state.report = null;
+  state.inspection = null;
   hideFrom('step-track');
   setBusy(true, 'Detecting spikes…');
   try {
@@ -269,6 +279,7 @@ async function openVoltage({ keepSettings }) {
     fillForms();
     await renderTrack();
     $('step-bursts').hidden = false;
+    $('track-text').focus();
     scheduleAutosave();
   } catch (e) {
     state.voltage.status = errorText(e);
@@ -319,6 +330,7 @@ async function openWorkbook({ keepSettings }) {
     fillForms();
     await renderTrack();
     $('step-bursts').hidden = false;
+    $('track-text').focus();
     scheduleAutosave();
   } catch (e) {
     for (const f of [state.activity, state.layout]) {
@@ -442,6 +454,8 @@ function fillForms() {
   const s = state.settings;
   const track = $('track-form').elements;
   track.kind.value = s.track.kind;
+  track.waypoints.value = (s.track.waypoints_um ?? []).map(([x, y]) => `${x},${y}`).join('; ');
+  $('waypoints-field').hidden = s.track.kind !== 'polyline';
   const select = track.start_site;
   select.replaceChildren(new Option('(default end)', ''));
   for (const site of state.inspection?.sites ?? []) select.add(new Option(site.site, site.site));
@@ -459,9 +473,16 @@ function fillForms() {
 
 function readTrackForm() {
   const f = $('track-form').elements;
+  const waypoints = f.kind.value === 'polyline'
+    ? f.waypoints.value.split(';').filter((p) => p.trim() !== '').map((p) => p.split(',').map((v) => Number(v.trim())))
+    : [];
+  if (waypoints.some((p) => p.length !== 2 || p.some((v) => !Number.isFinite(v)))) {
+    throw { message: 'Waypoints: expected X,Y pairs in micrometres separated by semicolons, for example 0,0; 2000,0; 2000,1500.' };
+  }
   return {
     ...state.settings.track,
     kind: f.kind.value,
+    waypoints_um: waypoints,
     start_site: f.start_site.value || null,
     reverse: f.reverse.checked,
   };
@@ -588,6 +609,7 @@ async function runAnalysis(event) {
     state.report = await call('analyze', { analysis: readAnalysisForm() }, showProgress);
     state.settings = await call('settings');
     await renderResults();
+    $('burst-text').focus();
     await updateOpenStudyRecording();
     scheduleAutosave();
   } catch (e) {
@@ -678,7 +700,8 @@ async function selectBurst(number) {
       + `from site ${f.origin_site}${f.travel ? `, travelling towards ${f.travel} track coordinate` : ''}${f.rotation ? `, rotation ${f.rotation}` : ''}; `
       + `${f.sites_used} sites, residual ${fmt(f.residual_rms_ms, 2, 'ms')} RMS${f.failed ? '; stopped short (propagation failure)' : ''}.`
     : `Burst ${b.burst} (${fmt(b.start_s, 3, 's')} to ${fmt(b.end_s, 3, 's')}): no front: ${b.no_front_reason}.`;
-  $('readout').textContent = 'Point at a site to read its values.';
+  $('readout').textContent = READOUT_HINT;
+  readoutIndex = -1;
   await drawFigure('activation');
 }
 
@@ -1253,10 +1276,38 @@ async function clearSession() {
 
 // ---------------------------------------------------------------- wiring
 
+const READOUT_HINT = 'Point at a site, or focus the figure and press Up or Down, to read its values.';
+let readoutIndex = -1;
+
+/** Up and Down on the focused activation figure read its sites one by one (announced). */
+async function stepReadout(delta) {
+  const first = await call('readoutPoint', { index: 0 });
+  if (!first) return;
+  readoutIndex = (readoutIndex + delta + first.count) % first.count;
+  const point = await call('readoutPoint', { index: readoutIndex });
+  $('readout').textContent = `${readoutIndex + 1} of ${first.count}: ${point.label}`;
+}
+
+/** Every Save SVG button is named after its figure, for screen readers and voice control. */
+function nameSaveButtons() {
+  for (const b of document.querySelectorAll('.svg-save')) {
+    const img = b.closest('figure')?.querySelector('img');
+    if (img && !b.hasAttribute('aria-label')) b.setAttribute('aria-label', `Save SVG: ${img.alt.split(';')[0]}`);
+  }
+}
+
 function wire() {
   const drop = $('drop-zone');
   drop.addEventListener('dragover', (e) => { e.preventDefault(); drop.classList.add('over'); });
   drop.addEventListener('dragleave', () => drop.classList.remove('over'));
+  drop.addEventListener('keydown', (e) => {
+    if (e.target === drop && (e.key === 'Enter' || e.key === ' ')) {
+      e.preventDefault();
+      $('file-input').click();
+    }
+  });
+  $('choose-button').addEventListener('click', () => $('file-input').click());
+  nameSaveButtons();
   drop.addEventListener('drop', (e) => {
     e.preventDefault();
     drop.classList.remove('over');
@@ -1281,6 +1332,7 @@ function wire() {
     });
   }
   $('track-form').addEventListener('submit', refitTrack);
+  $('track-form').elements.kind.addEventListener('change', (e) => { $('waypoints-field').hidden = e.target.value !== 'polyline'; });
   $('burst-form').addEventListener('submit', runAnalysis);
   $('window-form').addEventListener('submit', setWindow);
   $('study-run').addEventListener('click', () => runStudy());
@@ -1301,7 +1353,10 @@ function wire() {
   }
   $('cancel-button').addEventListener('click', () => {
     setBusy(false);
-    restartWorker('Cancelled; the files are still open, run the analysis again when ready.');
+    const detecting = state.voltage && !state.inspection;
+    restartWorker(detecting
+      ? 'Spike detection cancelled.'
+      : 'Cancelled; the files are still open, run the analysis again when ready.');
   });
   $('prev-burst').addEventListener('click', () => selectBurst(Number($('burst-number').value) - 1));
   $('next-burst').addEventListener('click', () => selectBurst(Number($('burst-number').value) + 1));
@@ -1312,12 +1367,18 @@ function wire() {
     if (e.key === 'ArrowRight') selectBurst(Number($('burst-number').value) + 1);
   });
   const activation = $('fig-activation');
+  activation.addEventListener('keydown', (e) => {
+    if (e.key === 'ArrowDown' || e.key === 'ArrowUp') {
+      e.preventDefault();
+      stepReadout(e.key === 'ArrowDown' ? 1 : -1).catch((err) => showError('analysis-error', err));
+    }
+  });
   activation.addEventListener('pointermove', async (e) => {
     const box = activation.getBoundingClientRect();
     const x = (e.clientX - box.left) * (Number(activation.dataset.widthPx) / box.width);
     const y = (e.clientY - box.top) * (Number(activation.dataset.heightPx) / box.height);
     const label = await call('readout', { x, y });
-    $('readout').textContent = label ?? 'Point at a site to read its values.';
+    $('readout').textContent = label ?? READOUT_HINT;
   });
   for (const b of document.querySelectorAll('[data-export]')) b.addEventListener('click', exportTable);
   for (const b of document.querySelectorAll('.svg-save')) b.addEventListener('click', exportSvg);

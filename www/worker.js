@@ -115,6 +115,7 @@ const ops = {
   settings: () => need().settings(),
   figure: ({ figure, width, height, extra }) => need().figure({ figure, ...(extra ?? {}) }, width, height),
   readout: ({ x, y }) => need().readout(x, y) ?? null,
+  readoutPoint: ({ index }) => need().readoutPoint(index) ?? null,
   exports: () => need().exports(),
   summaryFacts: () => need().summaryFacts(),
   reportHtml: (_, id) => {

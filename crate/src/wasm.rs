@@ -410,6 +410,23 @@ impl WasmWorkbook {
             .map(|p| p.label.clone())
     }
 
+    /// The `index`-th read-out point of the last activation figure (sites in the figure's
+    /// order): `{ label, count }`, or null when there is none.
+    #[wasm_bindgen(js_name = readoutPoint)]
+    pub fn readout_point(&self, index: usize) -> Result<JsValue, JsValue> {
+        #[derive(Serialize)]
+        struct Point<'a> {
+            label: &'a str,
+            count: usize,
+        }
+        to_js(&self.activation.as_ref().and_then(|f| {
+            f.points.get(index).map(|p| Point {
+                label: &p.label,
+                count: f.points.len(),
+            })
+        }))
+    }
+
     /// `{ bursts_csv, fronts_csv, activation_csv, leaders_csv, summary_json }`, as `ringline analyze --out`
     /// writes them; null before the analysis.
     pub fn exports(&self) -> Result<JsValue, JsValue> {

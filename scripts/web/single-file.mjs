@@ -46,7 +46,7 @@ const csp = [
   `script-src ${hash(main)} 'wasm-unsafe-eval'`,
   'worker-src blob:',
   "connect-src 'none'",
-  'img-src blob:',
+  'img-src blob: data:',
   `style-src ${hash(css)}`,
   "base-uri 'none'",
   "form-action 'none'",

@@ -50,8 +50,8 @@ function cliAnalysis(spikes, layout, extra = []) {
 }
 
 /** Opens a page, records every request it makes, and waits for the core. */
-async function openPage(url) {
-  const context = await browser.newContext({ acceptDownloads: true, viewport: { width: 1100, height: 900 } });
+async function openPage(url, options = {}) {
+  const context = await browser.newContext({ acceptDownloads: true, viewport: { width: 1100, height: 900 }, ...options });
   const page = await context.newPage();
   const requests = [];
   page.on('request', (r) => requests.push(r.url()));
@@ -808,6 +808,60 @@ test('the single file opened from disk keeps and restores its session', async ()
     await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
     assert.equal(await summaryValue(page, 'speed'), speed);
   }
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
+/** Presses Tab until the element with `id` has focus (at most 80 presses). */
+async function tabTo(page, selector) {
+  for (let k = 0; k < 80; k += 1) {
+    if (await page.evaluate((s) => document.activeElement?.matches(s), selector)) return;
+    await page.keyboard.press('Tab');
+  }
+  throw new Error(`Tab never reached ${selector}`);
+}
+
+/** axe-core's audit of the page as it is; returns the serious and critical violations. */
+async function auditViolations(page) {
+  await page.addScriptTag({ path: join(import.meta.dirname, 'node_modules/axe-core/axe.min.js') });
+  const result = await page.evaluate(() => window.axe.run(document, { resultTypes: ['violations'] }));
+  return result.violations
+    .filter((v) => v.impact === 'serious' || v.impact === 'critical')
+    .map((v) => `${v.id} (${v.impact}): ${v.nodes.map((n) => n.target.join(' ')).join(', ')}`);
+}
+
+test('the keyboard alone takes a user from the file chooser to the analysis, a read-out and an export; axe finds no serious violation', async () => {
+  // The audit script is injected, which the page's CSP would refuse: this context bypasses it.
+  const { page, context, errors } = await openPage(base, { bypassCSP: true });
+  assert.deepEqual(await auditViolations(page), [], 'on the empty page');
+  await tabTo(page, '#drop-zone');
+  const [chooser] = await Promise.all([page.waitForEvent('filechooser'), page.keyboard.press('Enter')]);
+  await chooser.setFiles([demo.spikes, demo.layout]);
+  await page.locator('#fig-site_map').waitFor({ state: 'visible' });
+  await page.waitForFunction(() => document.activeElement?.id === 'track-text');
+  await tabTo(page, '#analyze-button');
+  await page.keyboard.press('Enter');
+  await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
+  await page.waitForFunction(() => document.activeElement?.id === 'burst-text');
+  // The activation figure's sites, one by one, announced in the live read-out.
+  await tabTo(page, '#fig-activation');
+  await page.keyboard.press('ArrowDown');
+  await page.waitForFunction(() => /^1 of \d+: /.test(document.getElementById('readout').textContent));
+  const first = await page.textContent('#readout');
+  await page.keyboard.press('ArrowDown');
+  await page.waitForFunction(() => /^2 of \d+: /.test(document.getElementById('readout').textContent));
+  assert.notEqual(await page.textContent('#readout'), first);
+  assert.match(first, /site /);
+  // Every Save SVG button has its own accessible name.
+  const names = await page.$$eval('.svg-save', (bs) => bs.map((b) => b.getAttribute('aria-label')));
+  assert.equal(new Set(names).size, names.length);
+  assert.ok(names.every((n) => n && n.includes('SVG')), names.join(' | '));
+  // An export with Enter.
+  await tabTo(page, '[data-export="fronts_csv"]');
+  const [download] = await Promise.all([page.waitForEvent('download'), page.keyboard.press('Enter')]);
+  assert.equal(download.suggestedFilename(), 'fronts.csv');
+  assert.deepEqual(await auditViolations(page), [], 'after the analysis');
+  await shoot(page, 'keyboard-only');
   assert.deepEqual(errors, []);
   await context.close();
 });

@@ -24,7 +24,8 @@ pub const EXIT_BAD_INPUT: i32 = 2;
 #[command(
     name = "ringline",
     version,
-    about = "Fronts of network bursts in patterned neuronal cultures: import, track geometry, analysis."
+    about = "Fronts of network bursts in patterned neuronal cultures: import, track geometry, analysis.",
+    after_help = "The same core runs in a web page that needs no installation: `scripts/start` serves it, and www/dist/ringline.html opens from disk. Everything is computed in the tab; no file leaves the computer."
 )]
 struct Cli {
     #[command(subcommand)]
@@ -69,8 +70,8 @@ struct AnalyzeArgs {
     #[arg(long)]
     json: bool,
     /// Write the output files into this folder: bursts.csv, fronts.csv, activation.csv,
-    /// leaders.csv, spectrum.csv, sttc.csv, sites.csv, summary.json (and electrodes.csv for
-    /// raw voltage).
+    /// leaders.csv, spectrum.csv, sttc.csv, lags.csv, sites.csv, summary.json (electrodes.csv
+    /// for raw voltage; responses.csv and curves.csv with --stimuli).
     #[arg(long, value_name = "DIR")]
     out: Option<String>,
     /// Ground truth of a simulated recording (the truth.json of `ringline simulate`): each
@@ -224,11 +225,13 @@ fn percolation(args: &PercolationArgs) -> Result<i32, Failure> {
 }
 
 #[derive(clap::ValueEnum, Clone, Copy, Debug)]
+#[value(rename_all = "snake_case")]
 enum AdjustArg {
     /// Holm: the family-wise error rate.
     Holm,
     /// Benjamini-Hochberg: the false discovery rate.
-    Bh,
+    #[value(alias = "bh")]
+    BenjaminiHochberg,
 }
 
 /// Whether a CSV file is a study manifest (it names each recording's data file) rather than
@@ -283,7 +286,7 @@ fn compare(args: &CompareArgs) -> Result<i32, Failure> {
         metrics: args.metrics.clone(),
         adjustment: match args.adjust {
             AdjustArg::Holm => crate::study::inference::Adjustment::Holm,
-            AdjustArg::Bh => crate::study::inference::Adjustment::BenjaminiHochberg,
+            AdjustArg::BenjaminiHochberg => crate::study::inference::Adjustment::BenjaminiHochberg,
         },
         ..Default::default()
     };
@@ -394,18 +397,27 @@ enum PolarityArg {
     Both,
 }
 
+/// The choices of the command line are spelt as in the settings JSON and the page.
 #[derive(ValueEnum, Clone, Copy, Debug)]
+#[value(rename_all = "snake_case")]
 enum DetectorArg {
     /// Thresholded population rate.
-    Rate,
+    #[value(alias = "rate")]
+    PopulationRate,
     /// Per-site ISI_N bursts joined across sites.
+    #[value(alias = "isi-n")]
     IsiN,
 }
 
 #[derive(ValueEnum, Clone, Copy, Debug)]
+#[value(rename_all = "snake_case")]
 enum EstimatorArg {
+    /// Theil-Sen: the median of pairwise slopes.
+    #[value(alias = "theil-sen")]
     TheilSen,
+    /// Huber M-estimation by IRLS.
     Huber,
+    /// Ordinary least squares.
     Ols,
 }
 
@@ -723,7 +735,7 @@ fn analysis_settings(args: &AnalysisArgs) -> Result<crate::fronts::AnalysisSetti
     };
     if let Some(d) = args.detector {
         settings.bursts.detector = match d {
-            DetectorArg::Rate => BurstDetector::PopulationRate,
+            DetectorArg::PopulationRate => BurstDetector::PopulationRate,
             DetectorArg::IsiN => BurstDetector::IsiN,
         };
     }

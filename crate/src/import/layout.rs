@@ -141,7 +141,7 @@ fn find_axis(
             ImportError::new(
                 table.place_column(None, *i),
                 ImportProblem::BadHeader,
-                format!("the {axis} column has no unit; name it {axis}_um or {axis}_mm, or give the length unit as an option"),
+                format!("the {axis} column has no unit; name it {axis}_um or {axis}_mm, or, on the command line, give --length-unit"),
             )
         }),
         (None, Some((i, UnitHeader::UnknownUnit(text)))) => Err(ImportError::new(

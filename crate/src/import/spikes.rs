@@ -322,7 +322,7 @@ pub(crate) fn find_time_column(
             ImportError::new(
                 table.place_column(None, index),
                 ImportProblem::BadHeader,
-                "the time column has no unit; name it time_s, time_ms or time_us, or give the time unit as an option",
+                "the time column has no unit; name it time_s, time_ms or time_us, or, on the command line, give --time-unit",
             )
         })?,
     };
