@@ -64,7 +64,10 @@ fn a_new_track_clears_the_analysis() {
     wb.set_track(reversed).unwrap();
     assert!(wb.report().is_none());
     assert!(wb.exports().is_none());
-    let err = wb.figure(&FigureRequest::SpeedHistogram, Size::default());
+    let err = wb.figure(
+        &FigureRequest::SpeedHistogram { bins: None },
+        Size::default(),
+    );
     assert!(err.unwrap_err().message.contains("run the analysis first"));
 }
 
@@ -369,10 +372,10 @@ fn drawn_model_matches_the_fitted_front() {
             FigureRequest::SiteMap,
             FigureRequest::Raster,
             FigureRequest::PopulationRate,
-            FigureRequest::IntervalHistogram,
+            FigureRequest::IntervalHistogram { bins: None },
             FigureRequest::Activation,
             FigureRequest::SpeedOverTime,
-            FigureRequest::SpeedHistogram,
+            FigureRequest::SpeedHistogram { bins: None },
             FigureRequest::InitiationSites,
             FigureRequest::Reliability,
         ] {
@@ -466,4 +469,60 @@ fn imaging_recordings_get_an_event_raster_and_rate() {
     assert_eq!(ticks, in_window);
     let rate_figure = wb.figure(&FigureRequest::PopulationRate, size).unwrap();
     assert!(rate_figure.svg.contains("rate (events/s)"));
+}
+
+/// Histogram bins against `numpy.histogram_bin_edges` (tests/fixtures/histogram_reference.json,
+/// made by scripts/reference/make_fixtures.py): Freedman-Diaconis as numpy's `bins='fd'`,
+/// Sturges as `bins='sturges'`, and Sturges where the IQR is zero (numpy's 'fd' gives one bin).
+#[test]
+fn histogram_bins_follow_numpy() {
+    use ringline::report::figures::{bin_edges, BinRule};
+    let fixture: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string("../tests/fixtures/histogram_reference.json").unwrap(),
+    )
+    .unwrap();
+    let floats = |v: &serde_json::Value| -> Vec<f64> {
+        v.as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_f64().unwrap())
+            .collect()
+    };
+    for case in fixture["cases"].as_array().unwrap() {
+        let name = case["name"].as_str().unwrap();
+        let values = floats(&case["values"]);
+        let fd = floats(&case["fd_edges"]);
+        let sturges = floats(&case["sturges_edges"]);
+        let ours_sturges = bin_edges(&values, BinRule::Sturges).unwrap();
+        assert_eq!(ours_sturges.len(), sturges.len(), "{name}: Sturges bins");
+        for (a, b) in ours_sturges.iter().zip(&sturges) {
+            assert!(
+                (a - b).abs() <= 1e-12 * b.abs().max(1.0),
+                "{name}: {a} vs {b}"
+            );
+        }
+        let ours = bin_edges(&values, BinRule::FreedmanDiaconis).unwrap();
+        let expected = if fd.len() == 2 { &sturges } else { &fd };
+        assert_eq!(ours.len(), expected.len(), "{name}: Freedman-Diaconis bins");
+        for (a, b) in ours.iter().zip(expected) {
+            assert!(
+                (a - b).abs() <= 1e-12 * b.abs().max(1.0),
+                "{name}: {a} vs {b}"
+            );
+        }
+    }
+    // A count is taken as given, within the bound.
+    assert_eq!(
+        bin_edges(&[1.0, 2.0, 3.0], BinRule::Count(7))
+            .unwrap()
+            .len(),
+        8
+    );
+    assert_eq!(
+        bin_edges(&[1.0, 2.0, 3.0], BinRule::Count(10_000))
+            .unwrap()
+            .len(),
+        201
+    );
+    assert!(bin_edges(&[f64::NAN], BinRule::FreedmanDiaconis).is_none());
 }

@@ -631,11 +631,13 @@ async function renderResults() {
   const [from, to] = state.settings.view.window_s ?? [null, null];
   const w = $('window-form').elements;
   if (from !== null) { w.from.value = from; w.to.value = to; }
-  for (const name of ['raster', 'population_rate', 'interval_histogram']) await drawFigure(name);
+  for (const name of ['raster', 'population_rate']) await drawFigure(name);
+  await drawHistogram('interval_histogram', 'interval-bins');
   $('step-fronts').hidden = false;
   $('burst-count').textContent = `of ${r.bursts.length}`;
   await selectBurst(state.settings.view.burst);
-  for (const name of ['speed_over_time', 'speed_histogram', 'initiation_sites', 'reliability', 'leaders', 'recruitment']) await drawFigure(name);
+  await drawHistogram('speed_histogram', 'speed-bins');
+  for (const name of ['speed_over_time', 'initiation_sites', 'reliability', 'leaders', 'recruitment']) await drawFigure(name);
   await renderRhythm();
   await renderResponse();
   await renderSummary();
@@ -703,6 +705,12 @@ async function selectBurst(number) {
   $('readout').textContent = READOUT_HINT;
   readoutIndex = -1;
   await drawFigure('activation');
+}
+
+/** A histogram with the bins the user asked for (Freedman-Diaconis when the field is empty). */
+function drawHistogram(name, field) {
+  const bins = Math.round(Number($(field).value));
+  return drawFigure(name, $(field).value !== '' && bins >= 1 ? { bins: Math.min(bins, 200) } : {});
 }
 
 /** Step 5: the numbers come from the report; this only words them and asks for figures. */
@@ -1332,6 +1340,9 @@ function wire() {
     });
   }
   $('track-form').addEventListener('submit', refitTrack);
+  for (const [name, field] of [['interval_histogram', 'interval-bins'], ['speed_histogram', 'speed-bins']]) {
+    $(field).addEventListener('change', () => drawHistogram(name, field).catch((e) => showError('analysis-error', e)));
+  }
   $('track-form').elements.kind.addEventListener('change', (e) => { $('waypoints-field').hidden = e.target.value !== 'polyline'; });
   $('burst-form').addEventListener('submit', runAnalysis);
   $('window-form').addEventListener('submit', setWindow);

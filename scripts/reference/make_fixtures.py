@@ -59,6 +59,7 @@ SPECTRUM_OUT = ROOT / "tests" / "fixtures" / "spectrum_reference.json"
 STTC_OUT = ROOT / "tests" / "fixtures" / "sttc_reference.json"
 PROBIT_OUT = ROOT / "tests/fixtures/probit_reference.json"
 COMPARE_OUT = ROOT / "tests" / "fixtures" / "compare_reference.json"
+HISTOGRAM_OUT = ROOT / "tests" / "fixtures" / "histogram_reference.json"
 SEED = 20261201
 
 
@@ -556,6 +557,23 @@ def probit_fixtures(rng):
             "cases": out}
 
 
+def histogram_fixtures(rng):
+    """numpy.histogram_bin_edges with bins='fd' (Freedman & Diaconis 1981: width 2 IQR n^(-1/3))
+    and bins='sturges' on seeded samples: interburst intervals (gamma), speeds (normal),
+    heavy tails (lognormal), small and tied samples."""
+    samples = [("gamma intervals, n = 33", rng.gamma(4.0, 2.5, 33)),
+               ("normal speeds, n = 120", rng.normal(25.0, 4.0, 120)),
+               ("lognormal, n = 400", rng.lognormal(1.0, 1.0, 400)),
+               ("five values", np.array([1.0, 2.0, 2.5, 4.0, 9.0])),
+               ("ties: IQR zero", np.array([3.0] * 20 + [4.0, 9.0]))]
+    out = []
+    for name, x in samples:
+        out.append({"name": name, "values": [float(v) for v in x],
+                    "fd_edges": [float(e) for e in np.histogram_bin_edges(x, bins="fd")],
+                    "sturges_edges": [float(e) for e in np.histogram_bin_edges(x, bins="sturges")]})
+    return {"versions": {"python": platform.python_version(), "numpy": np.__version__}, "cases": out}
+
+
 def main():
     outputs = [(OUT, build()), (STATS_OUT, stats_fixtures(np.random.default_rng(SEED + 1))),
                (FILTER_OUT, filter_fixtures(np.random.default_rng(SEED + 2))),
@@ -564,7 +582,8 @@ def main():
                (SPECTRUM_OUT, spectrum_fixtures(np.random.default_rng(SEED + 4))),
                (STTC_OUT, sttc_fixtures(np.random.default_rng(SEED + 5))),
                (COMPARE_OUT, compare_fixtures(np.random.default_rng(SEED + 6))),
-               (PROBIT_OUT, probit_fixtures(np.random.default_rng(SEED + 7)))]
+               (PROBIT_OUT, probit_fixtures(np.random.default_rng(SEED + 7))),
+               (HISTOGRAM_OUT, histogram_fixtures(np.random.default_rng(SEED + 8)))]
     if "--check" in sys.argv:
         failed = False
         for path, fresh in outputs:

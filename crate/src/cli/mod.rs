@@ -913,6 +913,10 @@ fn sha256_of_path(path: &str) -> Result<String, Failure> {
         .collect())
 }
 
+/// What is done with one recording's opened files: (activity, layout, stimulus protocol).
+type OpenedFiles<'r, T> = dyn FnMut(crate::ActivityFile<'_>, (&str, &[u8]), Option<(&str, &[u8])>) -> Result<T, crate::Error>
+    + 'r;
+
 /// Opens the files of one recording from paths and hands them to `run`: the activity file as
 /// an [`crate::ActivityFile`] (read in blocks), the layout and the stimulus protocol whole.
 fn open_paths<T>(
@@ -921,11 +925,7 @@ fn open_paths<T>(
     stimuli: Option<&str>,
     limits: &ImportLimits,
     wav_uv_per_unit: Option<f64>,
-    run: &mut dyn FnMut(
-        crate::ActivityFile<'_>,
-        (&str, &[u8]),
-        Option<(&str, &[u8])>,
-    ) -> Result<T, crate::Error>,
+    run: &mut OpenedFiles<'_, T>,
 ) -> Result<T, Failure> {
     use std::io::{Read, Seek, SeekFrom};
     let layout_bytes = read_file(layout, limits)?;

@@ -6,7 +6,7 @@
 //! deficiencies. Figures that offer a read-out return the pixel position and label of every
 //! data point, and [`Figure::nearest`] names the point under the pointer.
 
-use super::svg::{Colour, Plot};
+use super::svg::{Colour, LegendMark, Plot};
 use super::Inspection;
 use crate::detect::PopulationRate;
 use crate::fronts::{BurstResult, FrontReport};
@@ -400,67 +400,125 @@ pub fn population_rate(
             for (level, colour) in [(rate.threshold_hz, VERMILLION), (rate.edge_hz, ORANGE)] {
                 c.segment((from_s, level), (to_s, level), colour, 1.0);
             }
+            let threshold = format!("burst threshold ({:.1}/s)", rate.threshold_hz);
+            let edge = format!("burst edges ({:.1}/s)", rate.edge_hz);
+            c.legend(&[
+                ("population rate", BLUE, LegendMark::Line),
+                (&threshold, VERMILLION, LegendMark::Line),
+                (&edge, ORANGE, LegendMark::Line),
+            ]);
             Ok(Vec::new())
         },
     )
 }
 
-/// Bars of a histogram with `bins` equal bins over the values' range; returns (left edges,
-/// counts, width).
-fn histogram(values: &[f64], bins: usize) -> Option<(Vec<f64>, Vec<usize>, f64)> {
-    let lo = values.iter().copied().fold(f64::INFINITY, f64::min);
-    let hi = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    if !lo.is_finite() || !hi.is_finite() {
-        return None;
-    }
-    let bins = bins.max(1);
-    let width = if hi > lo {
-        (hi - lo) / bins as f64
-    } else {
-        lo.abs().max(1.0) * 0.1
-    };
-    let mut counts = vec![0usize; bins];
-    for &v in values {
-        let k = (((v - lo) / width) as usize).min(bins - 1);
-        counts[k] += 1;
-    }
-    Some((
-        (0..bins).map(|k| lo + k as f64 * width).collect(),
-        counts,
-        width,
-    ))
+/// Most bins a histogram draws (a bound on work and on bars too thin to see).
+pub const MAX_HISTOGRAM_BINS: usize = 200;
+
+/// How a histogram's bins are chosen.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BinRule {
+    /// Freedman & Diaconis (1981): width 2 IQR n^(-1/3), as numpy's `bins='fd'`; Sturges's
+    /// rule when the IQR is zero (numpy would draw one bar).
+    FreedmanDiaconis,
+    /// Sturges (1926): ceil(log2 n + 1) bins, as numpy's `bins='sturges'`.
+    Sturges,
+    /// This many equal bins (1 to [`MAX_HISTOGRAM_BINS`]).
+    Count(usize),
 }
 
-/// Bin count for a histogram of n values: the square-root choice, between 5 and 40
-/// (common practice, no source).
-fn bin_count(n: usize) -> usize {
-    ((n as f64).sqrt().ceil() as usize).clamp(5, 40)
+/// Bin edges of `values` under `rule`, as `numpy.histogram_bin_edges` computes them: equal
+/// bins from the smallest to the largest value. `None` without a finite value.
+pub fn bin_edges(values: &[f64], rule: BinRule) -> Option<Vec<f64>> {
+    let finite: Vec<f64> = values.iter().copied().filter(|v| v.is_finite()).collect();
+    let lo = finite.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = finite.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if finite.is_empty() {
+        return None;
+    }
+    // numpy widens an empty range to [lo - 0.5, hi + 0.5].
+    let (lo, hi) = if hi > lo {
+        (lo, hi)
+    } else {
+        (lo - 0.5, hi + 0.5)
+    };
+    let n = finite.len() as f64;
+    let sturges = || (n.log2() + 1.0).ceil().max(1.0) as usize;
+    let bins = match rule {
+        BinRule::Count(k) => k,
+        BinRule::Sturges => sturges(),
+        BinRule::FreedmanDiaconis => {
+            let mut sorted = finite.clone();
+            sorted.sort_by(f64::total_cmp);
+            let iqr = crate::stats::quantile_sorted(&sorted, 0.75)
+                - crate::stats::quantile_sorted(&sorted, 0.25);
+            let width = 2.0 * iqr * n.powf(-1.0 / 3.0);
+            if width > 0.0 {
+                ((hi - lo) / width).ceil() as usize
+            } else {
+                sturges()
+            }
+        }
+    }
+    .clamp(1, MAX_HISTOGRAM_BINS);
+    let step = (hi - lo) / bins as f64;
+    let mut edges: Vec<f64> = (0..bins).map(|k| lo + k as f64 * step).collect();
+    edges.push(hi);
+    Some(edges)
+}
+
+/// Counts of `values` in the bins of `edges` (the last bin holds its right edge, as numpy).
+fn histogram(values: &[f64], edges: &[f64]) -> Vec<usize> {
+    let bins = edges.len() - 1;
+    let (lo, hi) = (edges[0], edges[bins]);
+    let mut counts = vec![0usize; bins];
+    for &v in values.iter().filter(|v| v.is_finite()) {
+        let k = (((v - lo) / (hi - lo) * bins as f64) as usize).min(bins - 1);
+        // The arithmetic can land one bin off at an edge; settle it against the edges.
+        let k = if v < edges[k] {
+            k.saturating_sub(1)
+        } else if k + 1 < bins && v >= edges[k + 1] {
+            k + 1
+        } else {
+            k
+        };
+        counts[k] += 1;
+    }
+    counts
 }
 
 fn bars(
     values: &[f64],
+    rule: BinRule,
     size: Size,
     title: &str,
     x_label: &str,
     unit: &str,
     colour: Colour,
 ) -> Result<Figure, FigureError> {
-    let (edges, counts, width) =
-        histogram(values, bin_count(values.len())).ok_or_else(|| empty("no values"))?;
+    let edges = bin_edges(values, rule).ok_or_else(|| empty("no values"))?;
+    let counts = histogram(values, &edges);
     let top = counts.iter().copied().max().unwrap_or(1).max(1) as f64 * 1.1;
-    let (x0, x1) = (edges[0], edges[edges.len() - 1] + width);
-    chart(size, title, (x0, x1, x_label), (0.0, top, "count"), |c| {
-        for (&e, &k) in edges.iter().zip(&counts) {
-            c.rect((e, 0.0), (e + width, k as f64), colour, 1.0);
+    let (x0, x1) = (edges[0], edges[edges.len() - 1]);
+    let rule_words = match rule {
+        BinRule::FreedmanDiaconis => "Freedman-Diaconis bins".to_string(),
+        BinRule::Sturges => "Sturges bins".to_string(),
+        BinRule::Count(_) => format!("{} bins", counts.len()),
+    };
+    let title = format!("{title} ({}, {rule_words})", values.len());
+    chart(size, &title, (x0, x1, x_label), (0.0, top, "count"), |c| {
+        for (w, &k) in edges.windows(2).zip(&counts) {
+            c.rect((w[0], 0.0), (w[1], k as f64), colour, 1.0);
         }
         Ok(edges
-            .iter()
+            .windows(2)
             .zip(&counts)
-            .map(|(&e, &k)| {
+            .map(|(w, &k)| {
                 (
-                    e + width / 2.0,
+                    (w[0] + w[1]) / 2.0,
                     k as f64,
-                    format!("{e:.3}-{:.3} {unit}: {k}", e + width),
+                    format!("{:.3}-{:.3} {unit}: {k}", w[0], w[1]),
                 )
             })
             .collect())
@@ -468,12 +526,13 @@ fn bars(
 }
 
 /// Histogram of interburst intervals (from burst start to next burst start), seconds.
-pub fn interval_histogram(ibis: &[f64], size: Size) -> Result<Figure, FigureError> {
+pub fn interval_histogram(ibis: &[f64], rule: BinRule, size: Size) -> Result<Figure, FigureError> {
     if ibis.is_empty() {
         return Err(empty("fewer than two bursts, so no interburst intervals"));
     }
     bars(
         ibis,
+        rule,
         size,
         "Interburst intervals",
         "interval (s)",
@@ -483,12 +542,17 @@ pub fn interval_histogram(ibis: &[f64], size: Size) -> Result<Figure, FigureErro
 }
 
 /// Histogram of front speeds, mm/s.
-pub fn speed_histogram(speeds_mm_s: &[f64], size: Size) -> Result<Figure, FigureError> {
+pub fn speed_histogram(
+    speeds_mm_s: &[f64],
+    rule: BinRule,
+    size: Size,
+) -> Result<Figure, FigureError> {
     if speeds_mm_s.is_empty() {
         return Err(empty("no fronts"));
     }
     bars(
         speeds_mm_s,
+        rule,
         size,
         "Front speeds",
         "speed (mm/s)",

@@ -312,6 +312,11 @@ pub fn request_name(request: &FigureRequest) -> String {
         .unwrap_or_default()
 }
 
+/// The bins a histogram request asks for: a count, or Freedman-Diaconis.
+fn bin_rule(bins: Option<usize>) -> figures::BinRule {
+    bins.map_or(figures::BinRule::FreedmanDiaconis, figures::BinRule::Count)
+}
+
 /// Which figure to draw.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "figure", rename_all = "snake_case")]
@@ -319,10 +324,18 @@ pub enum FigureRequest {
     SiteMap,
     Raster,
     PopulationRate,
-    IntervalHistogram,
+    /// `bins`: how many equal bins; Freedman-Diaconis when absent.
+    IntervalHistogram {
+        #[serde(default)]
+        bins: Option<usize>,
+    },
     Activation,
     SpeedOverTime,
-    SpeedHistogram,
+    /// `bins`: how many equal bins; Freedman-Diaconis when absent.
+    SpeedHistogram {
+        #[serde(default)]
+        bins: Option<usize>,
+    },
     InitiationSites,
     Reliability,
     /// Where bursts start: how often each site led.
@@ -644,13 +657,13 @@ impl Workbook {
                 };
                 figures::population_rate(rate, kind, from_s, to_s, size)
             }
-            FigureRequest::IntervalHistogram => {
+            FigureRequest::IntervalHistogram { bins } => {
                 let ibis: Vec<f64> = need()?
                     .bursts
                     .windows(2)
                     .map(|w| w[1].start_s - w[0].start_s)
                     .collect();
-                figures::interval_histogram(&ibis, size)
+                figures::interval_histogram(&ibis, bin_rule(*bins), size)
             }
             FigureRequest::Activation => {
                 let r = need()?;
@@ -672,13 +685,13 @@ impl Workbook {
                     .collect();
                 figures::speed_over_time(&fronts, size)
             }
-            FigureRequest::SpeedHistogram => {
+            FigureRequest::SpeedHistogram { bins } => {
                 let speeds: Vec<f64> = need()?
                     .bursts
                     .iter()
                     .filter_map(|b| b.front.as_ref().map(|f| f.speed_mm_s))
                     .collect();
-                figures::speed_histogram(&speeds, size)
+                figures::speed_histogram(&speeds, bin_rule(*bins), size)
             }
             FigureRequest::InitiationSites => {
                 let r = need()?;
@@ -944,10 +957,10 @@ impl Workbook {
             (FigureRequest::SiteMap, "Map of the sites with the track"),
             (FigureRequest::Raster, "Raster of the first 30 s of activity by site, with the bursts"),
             (FigureRequest::PopulationRate, "Population rate with the detection threshold"),
-            (FigureRequest::IntervalHistogram, "Histogram of interburst intervals"),
+            (FigureRequest::IntervalHistogram { bins: None }, "Histogram of interburst intervals"),
             (FigureRequest::Activation, "Activation time against position for the first burst with a front, with the fitted model"),
             (FigureRequest::SpeedOverTime, "Front speed over the recording with 95% intervals"),
-            (FigureRequest::SpeedHistogram, "Histogram of front speeds"),
+            (FigureRequest::SpeedHistogram { bins: None }, "Histogram of front speeds"),
             (FigureRequest::InitiationSites, "Where fronts start"),
             (FigureRequest::Reliability, "Propagation reliability against distance"),
             (FigureRequest::Leaders, "Share of bursts each site led"),
