@@ -118,6 +118,10 @@ test('the served page analyses the dropped demo files exactly as the command lin
   assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
   assert.equal(await summaryValue(page, 'failures'), report.summary.failure_count);
   await shoot(page, '2-results');
+  // The README's picture of the page: the fronts step as a user sees it.
+  await page.locator('#step-fronts h2').scrollIntoViewIfNeeded();
+  await page.evaluate(() => document.getElementById('step-fronts').scrollIntoView());
+  await page.screenshot({ path: join(artifacts, 'readme-fronts.png') });
 
   // Exports: byte for byte the files of `ringline analyze --out`.
   for (const [button, file] of [['fronts_csv', 'fronts.csv'], ['bursts_csv', 'bursts.csv'], ['activation_csv', 'activation.csv'], ['leaders_csv', 'leaders.csv'], ['summary_json', 'summary.json']]) {

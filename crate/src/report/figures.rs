@@ -216,6 +216,21 @@ pub fn site_map(inspection: &Inspection, size: Size) -> Result<Figure, FigureErr
                     c.segment((sx, sy), (sx + dx * len, sy + dy * len), GREEN, 2.0);
                 }
             }
+            let mut legend = vec![("site", BLUE, LegendMark::Dot)];
+            if sites.iter().any(|s| s.silent) {
+                legend.push(("silent site", BLUE, LegendMark::Ring));
+            }
+            if sites.iter().any(|s| s.off_track) {
+                legend.push(("off the track", VERMILLION, LegendMark::Dot));
+            }
+            if track_path.len() >= 2 {
+                legend.push((
+                    "track (start and direction in green)",
+                    SKY_BLUE,
+                    LegendMark::Line,
+                ));
+            }
+            c.legend(&legend);
             let mut out = Vec::new();
             for s in sites {
                 let colour = if s.off_track { VERMILLION } else { BLUE };
@@ -1047,6 +1062,40 @@ pub fn activation_plot(b: &BurstResult, track: &Track, size: Size) -> Result<Fig
                 ActivationStatus::OffTrack => c.circle(*x, *y, 4.0, GREY, false),
             }
         }
+        // Only the marks this burst shows.
+        let mut legend: Vec<(&str, Colour, LegendMark)> =
+            vec![("site used", BLUE, LegendMark::Dot)];
+        if !fitted.is_empty() {
+            legend.push(("fitted front", VERMILLION, LegendMark::Line));
+        }
+        if !bounds.is_empty() {
+            legend.push(("95% interval of the speed", SKY_BLUE, LegendMark::Line));
+        }
+        if pts.iter().any(|p| p.2.status == ActivationStatus::Retimed) {
+            legend.push(("first spike, before re-timing", GREY, LegendMark::Ring));
+        }
+        if pts.iter().any(|p| {
+            matches!(
+                p.2.status,
+                ActivationStatus::EarlyOutlier | ActivationStatus::LateOutlier
+            )
+        }) {
+            legend.push(("set aside as an outlier", ORANGE, LegendMark::Ring));
+        }
+        if pts.iter().any(|p| p.2.status == ActivationStatus::OffTrack) {
+            legend.push(("off the track", GREY, LegendMark::Ring));
+        }
+        // In the upper corner the front leaves empty: left when times rise along x.
+        let mid = (x0 + x1) / 2.0;
+        let mean = |right: bool| {
+            let ys: Vec<f64> = pts
+                .iter()
+                .filter(|p| (p.0 > mid) == right)
+                .map(|p| p.1)
+                .collect();
+            ys.iter().sum::<f64>() / ys.len().max(1) as f64
+        };
+        c.legend_in(&legend, mean(false) <= mean(true));
         Ok(pts
             .iter()
             .map(|(x, y, a)| {
