@@ -257,7 +257,7 @@ async function openVoltage({ keepSettings }) {
   state.report = null;
   state.inspection = null;
   hideFrom('step-track');
-  setBusy(true, 'Detecting spikes…');
+  setBusy(true, 'Detecting spikes…', $('file-table'));
   try {
     const result = await call('openVoltage', {
       file: state.voltage.file,
@@ -366,7 +366,7 @@ async function attachStimuli() {
 }
 
 async function openNotebook(entry, files = null) {
-  setBusy(true, 'Re-opening the notebook…');
+  setBusy(true, 'Re-opening the notebook…', $('file-table'));
   try {
     const result = await call('openNotebook', { name: entry.name, bytes: entry.bytes.slice(0), files }, showProgress);
     const study = await call('notebookStudy', { name: entry.name, bytes: entry.bytes.slice(0) });
@@ -586,8 +586,13 @@ async function refitTrack(event) {
 
 // ---------------------------------------------------------------- step 3 to 5: analysis
 
-function setBusy(busy, text = '') {
-  $('progress').hidden = !busy;
+/** Shows the progress bar and Cancel inside the step that is working (`place`: the element
+ * they follow), kept in view while it runs (sticky at the bottom of the window). */
+function setBusy(busy, text = '', place = null) {
+  const bar = $('progress');
+  if (busy && place && bar.previousElementSibling !== place) place.after(bar);
+  bar.hidden = !busy;
+  if (busy) bar.scrollIntoView({ block: 'nearest' });
   $('analyze-button').disabled = busy;
   $('progress-text').textContent = text;
   if (busy) $('progress-bar').value = 0;
@@ -596,15 +601,16 @@ function setBusy(busy, text = '') {
 function showProgress(done, total, stage = 'analysing bursts') {
   $('progress-bar').max = Math.max(1, total);
   $('progress-bar').value = done;
-  $('progress-text').textContent = stage === 'detecting spikes'
-    ? `detecting spikes: ${Math.round((100 * done) / Math.max(1, total))}% of the file`
-    : `burst ${done} of ${total}`;
+  const percent = Math.round((100 * done) / Math.max(1, total));
+  $('progress-text').textContent = stage === 'analysing bursts'
+    ? `burst ${done} of ${total}`
+    : `${stage}: ${percent}% of the file`;
 }
 
 async function runAnalysis(event) {
   event?.preventDefault();
   clearError('analysis-error');
-  setBusy(true, 'Finding bursts…');
+  setBusy(true, 'Finding bursts…', $('burst-form'));
   try {
     state.report = await call('analyze', { analysis: readAnalysisForm() }, showProgress);
     state.settings = await call('settings');
@@ -705,6 +711,7 @@ async function selectBurst(number) {
   $('readout').textContent = READOUT_HINT;
   readoutIndex = -1;
   await drawFigure('activation');
+  await drawFigure('raster'); // its marks show the selected burst's activation times
 }
 
 /** A histogram with the bins the user asked for (Freedman-Diaconis when the field is empty). */
@@ -812,7 +819,8 @@ async function renderSummary() {
 }
 
 async function saveReport() {
-  const html = await call('reportHtml', {}, showProgress);
+  setBusy(true, 'Writing the report…', $('save-report').parentElement);
+  const html = await call('reportHtml', {}, showProgress).finally(() => setBusy(false));
   download(`${state.fileStem}-report.html`, html, 'text/html');
 }
 
@@ -942,7 +950,7 @@ async function runStudy() {
   if (!study) return;
   clearError('input-error');
   const n = study.manifest.rows.length;
-  setBusy(true, 'Analysing the study…');
+  setBusy(true, 'Analysing the study…', $('study-table'));
   $('study-run').disabled = true;
   try {
     for (let i = 0; i < n; i += 1) {

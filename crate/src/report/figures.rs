@@ -116,7 +116,19 @@ pub(crate) fn chart(
     {
         return Err(empty("the axes have no extent"));
     }
-    let mut plot = Plot::new(size.width_px, size.height_px, title, x, y);
+    chart_on(
+        Plot::new(size.width_px, size.height_px, title, x, y),
+        size,
+        draw,
+    )
+}
+
+/// [`chart`] on a plot already framed (for axes of names).
+pub(crate) fn chart_on(
+    mut plot: Plot,
+    size: Size,
+    draw: impl FnOnce(&mut Plot) -> Result<Vec<(f64, f64, String)>, FigureError>,
+) -> Result<Figure, FigureError> {
     let marks = draw(&mut plot)?;
     let points = marks
         .into_iter()
@@ -315,6 +327,7 @@ pub fn raster(
     rows: &[RasterRow<'_>],
     kind: TrainKind,
     bursts: &[BurstResult],
+    selected: Option<&BurstResult>,
     from_s: f64,
     to_s: f64,
     size: Size,
@@ -331,50 +344,90 @@ pub fn raster(
         key(a).total_cmp(&key(b)).then(a.cmp(&b))
     });
     let n = rows.len() as f64;
-    // Each row's ticks fill 80% of its height.
-    let row_half_px = 0.4 * f64::from(size.height_px.saturating_sub(82)) / n;
+    // Each row's ticks fill 80% of its height (the plot of rows is 100 px shorter than the
+    // figure: title, legend row and time axis).
+    let row_half_px = 0.4 * f64::from(size.height_px.saturating_sub(100)) / n;
     let ticks = match kind {
         TrainKind::Spikes => "Spikes",
         TrainKind::Events => "Calcium event onsets",
     };
     let title = format!("{ticks} by site (ordered along the track), {from_s:.1}-{to_s:.1} s");
-    chart(
-        size,
+    let names: Vec<String> = order.iter().map(|&i| rows[i].site.to_string()).collect();
+    let rank_of: std::collections::HashMap<&str, usize> = order
+        .iter()
+        .enumerate()
+        .map(|(rank, &i)| (rows[i].site, rank))
+        .collect();
+    let plot = Plot::with_rows(
+        size.width_px,
+        size.height_px,
         &title,
         (from_s, to_s, "time (s)"),
-        (-0.5, n - 0.5, "site rank along the track"),
-        |c| {
-            for b in bursts
-                .iter()
-                .filter(|b| b.end_s >= from_s && b.start_s <= to_s)
-            {
-                c.rect(
-                    (b.start_s.max(from_s), -0.5),
-                    (b.end_s.min(to_s), n - 0.5),
-                    ORANGE,
-                    0.25,
-                );
+        &names,
+        "site (ordered along the track)",
+    );
+    chart_on(plot, size, |c| {
+        for b in bursts
+            .iter()
+            .filter(|b| b.end_s >= from_s && b.start_s <= to_s)
+        {
+            c.rect(
+                (b.start_s.max(from_s), -0.5),
+                (b.end_s.min(to_s), n - 0.5),
+                ORANGE,
+                0.25,
+            );
+        }
+        for (rank, &i) in order.iter().enumerate() {
+            let y = rank as f64;
+            let spikes = rows[i].spikes_s;
+            let lo = spikes.partition_point(|&t| t < from_s);
+            let hi = spikes.partition_point(|&t| t <= to_s);
+            c.ticks(spikes[lo..hi].iter().map(|&t| (t, y)), row_half_px, BLACK);
+        }
+        let mut legend = vec![
+            (ticks, BLACK, LegendMark::Line),
+            ("network burst", ORANGE, LegendMark::Band),
+        ];
+        let mut marked = Vec::new();
+        let selected = selected.filter(|b| b.end_s >= from_s && b.start_s <= to_s);
+        let marks_label = selected.map(|b| format!("activation times of burst {}", b.burst));
+        if let (Some(b), Some(label)) = (selected, &marks_label) {
+            for a in &b.activations {
+                if let Some(&rank) = rank_of.get(a.site.as_str()) {
+                    let colour = if a.used { VERMILLION } else { GREY };
+                    c.circle(a.time_s, rank as f64, 3.5, colour, a.used);
+                    marked.push((a.time_s, rank as f64, a));
+                }
             }
-            for (rank, &i) in order.iter().enumerate() {
-                let y = rank as f64;
-                let spikes = rows[i].spikes_s;
-                let lo = spikes.partition_point(|&t| t < from_s);
-                let hi = spikes.partition_point(|&t| t <= to_s);
-                c.ticks(spikes[lo..hi].iter().map(|&t| (t, y)), row_half_px, BLACK);
-            }
-            Ok(order
-                .iter()
-                .enumerate()
-                .map(|(rank, &i)| {
-                    let along = rows[i]
-                        .along_um
-                        .map(|a| format!(" at {a:.0} µm"))
-                        .unwrap_or_default();
-                    (from_s, rank as f64, format!("site {}{along}", rows[i].site))
-                })
-                .collect())
-        },
-    )
+            legend.push((label, VERMILLION, LegendMark::Dot));
+        }
+        c.legend_above(&legend);
+        let mut points: Vec<(f64, f64, String)> = order
+            .iter()
+            .enumerate()
+            .map(|(rank, &i)| {
+                let along = rows[i]
+                    .along_um
+                    .map(|a| format!(" at {a:.0} µm"))
+                    .unwrap_or_default();
+                (from_s, rank as f64, format!("site {}{along}", rows[i].site))
+            })
+            .collect();
+        points.extend(marked.into_iter().map(|(t, y, a)| {
+            (
+                t,
+                y,
+                format!(
+                    "site {}: activation at {:.4} s ({})",
+                    a.site,
+                    a.time_s,
+                    a.status.describe()
+                ),
+            )
+        }));
+        Ok(points)
+    })
 }
 
 /// Smoothed population rate between `from_s` and `to_s` with the detector's threshold and

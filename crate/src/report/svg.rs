@@ -112,6 +112,30 @@ pub struct Plot {
     y: (f64, f64),
     /// Names drawn under x = 0, 1, 2, ... instead of numeric ticks.
     categories: Vec<String>,
+    /// Names drawn left of y = 0, 1, 2, ... instead of numeric ticks.
+    y_categories: Vec<String>,
+}
+
+/// Longest row name drawn on a y axis, in characters (longer ones end in "…").
+const MAX_ROW_NAME_CHARS: usize = 14;
+
+/// Smallest spacing of row names on a y axis, pixels (12 px text); rows closer than this are
+/// named every k-th.
+const MIN_ROW_NAME_SPACING_PX: f64 = 12.0;
+
+/// Extra room above the plot area of a plot of rows, for a legend in one line
+/// ([`Plot::legend_above`]) that covers no data.
+const ROOM_FOR_LEGEND_ROW_PX: f64 = 18.0;
+
+/// A row name shortened to [`MAX_ROW_NAME_CHARS`].
+fn row_name(name: &str) -> String {
+    if name.chars().count() <= MAX_ROW_NAME_CHARS {
+        name.to_string()
+    } else {
+        let mut short: String = name.chars().take(MAX_ROW_NAME_CHARS - 1).collect();
+        short.push('…');
+        short
+    }
 }
 
 const FONT: &str = "font-family=\"sans-serif\"";
@@ -167,6 +191,31 @@ impl Plot {
         Plot::build((width, height, 16.0), title, x, y, categories.to_vec())
     }
 
+    /// A plot whose y axis names `rows` at y = 0, 1, 2, ... (shown from -0.5 to n - 0.5,
+    /// the first row at the bottom), with x in [x0, x1]. Names are drawn when rows are at
+    /// least 12 px apart, else every k-th; the left margin widens for long names.
+    pub fn with_rows(
+        width: u32,
+        height: u32,
+        title: &str,
+        x: (f64, f64, &str),
+        rows: &[String],
+        y_label: &str,
+    ) -> Plot {
+        let n = rows.len().max(1) as f64;
+        let y = (-0.5, n - 0.5, y_label);
+        let names = rows.iter().map(|r| row_name(r)).collect();
+        Plot::build_with(
+            (width, height, 16.0),
+            title,
+            x,
+            y,
+            Vec::new(),
+            names,
+            ROOM_FOR_LEGEND_ROW_PX,
+        )
+    }
+
     /// The plot with its frame drawn: (width, height, right margin) in pixels.
     fn build(
         (width, height, right_px): (u32, u32, f64),
@@ -175,18 +224,47 @@ impl Plot {
         y: (f64, f64, &str),
         categories: Vec<String>,
     ) -> Plot {
+        Plot::build_with(
+            (width, height, right_px),
+            title,
+            x,
+            y,
+            categories,
+            Vec::new(),
+            0.0,
+        )
+    }
+
+    /// [`Plot::build`] with names on the y axis.
+    fn build_with(
+        (width, height, right_px): (u32, u32, f64),
+        title: &str,
+        x: (f64, f64, &str),
+        y: (f64, f64, &str),
+        categories: Vec<String>,
+        y_categories: Vec<String>,
+        extra_top_px: f64,
+    ) -> Plot {
         let (width, height) = (f64::from(width), f64::from(height));
+        // Room for the longest row name at about 7 px per character, and the axis label.
+        let longest = y_categories
+            .iter()
+            .map(|n| n.chars().count())
+            .max()
+            .unwrap_or(0);
+        let left = (34.0 + 7.0 * longest as f64).max(72.0).min(width / 3.0);
         let mut p = Plot {
             body: String::new(),
             width,
             height,
-            left: 72.0,
-            top: 34.0,
+            left,
+            top: 34.0 + extra_top_px,
             right: (width - right_px).max(73.0),
             bottom: height - 48.0,
             x: (x.0, x.1),
             y: (y.0, y.1),
             categories,
+            y_categories,
         };
         p.frame(title, x.2, y.2);
         p
@@ -219,7 +297,25 @@ impl Plot {
         } else {
             (Vec::new(), 0)
         };
-        let (yticks, ydec) = nice_ticks(self.y.0, self.y.1, 6);
+        let (yticks, ydec) = if self.y_categories.is_empty() {
+            nice_ticks(self.y.0, self.y.1, 6)
+        } else {
+            (Vec::new(), 0)
+        };
+        let row_px = (b - t) / (self.y.1 - self.y.0);
+        let every = (MIN_ROW_NAME_SPACING_PX / row_px.max(1e-9)).ceil().max(1.0) as usize;
+        for (k, name) in self.y_categories.iter().enumerate().step_by(every) {
+            let py = b - (k as f64 - self.y.0) / (self.y.1 - self.y.0) * (b - t);
+            let _ = write!(
+                self.body,
+                "<line x1=\"{l5:.1}\" y1=\"{py:.1}\" x2=\"{l:.1}\" y2=\"{py:.1}\" stroke=\"#000000\"/>\
+                 <text x=\"{l8:.1}\" y=\"{py4:.1}\" text-anchor=\"end\" font-size=\"12\" {FONT}>{}</text>",
+                escape(name),
+                l5 = l - 5.0,
+                l8 = l - 8.0,
+                py4 = py + 4.0,
+            );
+        }
         for (k, name) in self.categories.iter().enumerate() {
             let px = l + (k as f64 - self.x.0) / (self.x.1 - self.x.0) * (r - l);
             let _ = write!(
@@ -410,14 +506,7 @@ impl Plot {
         for (k, (label, colour, mark)) in entries.iter().enumerate() {
             let cy = y0 + 12.5 + 17.0 * k as f64;
             let (a, b) = (x0 + 6.0, x0 + 24.0);
-            let c = colour.hex();
-            let _ = match mark {
-                LegendMark::Line => write!(self.body, "<line x1=\"{a:.1}\" y1=\"{cy:.1}\" x2=\"{b:.1}\" y2=\"{cy:.1}\" stroke=\"{c}\" stroke-width=\"2\"/>"),
-                LegendMark::Dashed => write!(self.body, "<line x1=\"{a:.1}\" y1=\"{cy:.1}\" x2=\"{b:.1}\" y2=\"{cy:.1}\" stroke=\"{c}\" stroke-width=\"2\" stroke-dasharray=\"6 4\"/>"),
-                LegendMark::Dot => write!(self.body, "<circle cx=\"{:.1}\" cy=\"{cy:.1}\" r=\"4\" fill=\"{c}\"/>", (a + b) / 2.0),
-                LegendMark::Ring => write!(self.body, "<circle cx=\"{:.1}\" cy=\"{cy:.1}\" r=\"3.5\" fill=\"#ffffff\" stroke=\"{c}\" stroke-width=\"1.5\"/>", (a + b) / 2.0),
-                LegendMark::Band => write!(self.body, "<rect x=\"{a:.1}\" y=\"{:.1}\" width=\"18\" height=\"10\" fill=\"{c}\" fill-opacity=\"0.35\"/>", cy - 5.0),
-            };
+            self.legend_mark(*mark, *colour, (a, b), cy);
             let _ = write!(
                 self.body,
                 "<text x=\"{:.1}\" y=\"{:.1}\" font-size=\"12\" {FONT}>{}</text>",
@@ -427,6 +516,41 @@ impl Plot {
             );
         }
         self.body.push_str("</g>");
+    }
+
+    /// One legend entry's mark between x = a and b at height cy (pixels).
+    fn legend_mark(&mut self, mark: LegendMark, colour: Colour, (a, b): (f64, f64), cy: f64) {
+        let c = colour.hex();
+        let _ = match mark {
+            LegendMark::Line => write!(self.body, "<line x1=\"{a:.1}\" y1=\"{cy:.1}\" x2=\"{b:.1}\" y2=\"{cy:.1}\" stroke=\"{c}\" stroke-width=\"2\"/>"),
+            LegendMark::Dashed => write!(self.body, "<line x1=\"{a:.1}\" y1=\"{cy:.1}\" x2=\"{b:.1}\" y2=\"{cy:.1}\" stroke=\"{c}\" stroke-width=\"2\" stroke-dasharray=\"6 4\"/>"),
+            LegendMark::Dot => write!(self.body, "<circle cx=\"{:.1}\" cy=\"{cy:.1}\" r=\"4\" fill=\"{c}\"/>", (a + b) / 2.0),
+            LegendMark::Ring => write!(self.body, "<circle cx=\"{:.1}\" cy=\"{cy:.1}\" r=\"3.5\" fill=\"#ffffff\" stroke=\"{c}\" stroke-width=\"1.5\"/>", (a + b) / 2.0),
+            LegendMark::Band => write!(self.body, "<rect x=\"{a:.1}\" y=\"{:.1}\" width=\"18\" height=\"10\" fill=\"{c}\" fill-opacity=\"0.35\"/>", cy - 5.0),
+        };
+    }
+
+    /// A legend in one line above the plot area (plots of rows leave room for it), so it
+    /// hides no data.
+    pub fn legend_above(&mut self, entries: &[(&str, Colour, LegendMark)]) {
+        let cy = self.top - 10.0;
+        let mut x = self.left;
+        // Outside the plot area, so outside its clipping group.
+        self.body.push_str("</g><g class=\"legend\">");
+        for (label, colour, mark) in entries {
+            let (a, b) = (x, x + 18.0);
+            self.legend_mark(*mark, *colour, (a, b), cy);
+            let _ = write!(
+                self.body,
+                "<text x=\"{:.1}\" y=\"{:.1}\" font-size=\"12\" {FONT}>{}</text>",
+                b + 5.0,
+                cy + 4.0,
+                escape(label)
+            );
+            // About 6.5 px per character at 12 px, then a gap.
+            x = b + 5.0 + 6.5 * label.chars().count() as f64 + 16.0;
+        }
+        self.body.push_str("</g><g clip-path=\"url(#plot-area)\">");
     }
 
     /// A vertical colour bar in the right margin from `lo` (bottom) to `hi` (top), painted

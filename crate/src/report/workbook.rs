@@ -644,7 +644,8 @@ impl Workbook {
                     })
                     .collect();
                 let bursts = self.report.as_ref().map_or(&[][..], |r| &r.bursts[..]);
-                figures::raster(&rows, kind, bursts, from_s, to_s, size)
+                let selected = bursts.iter().find(|b| b.burst == view.burst);
+                figures::raster(&rows, kind, bursts, selected, from_s, to_s, size)
             }
             FigureRequest::PopulationRate => {
                 need()?;
