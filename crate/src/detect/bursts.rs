@@ -170,7 +170,13 @@ pub fn detect_bursts(trains_s: &[Vec<f64>], settings: &BurstSettings) -> BurstDe
     let rate = population_rate(trains_s, &settings.population_rate);
     let windows = match (settings.detector, &rate) {
         (BurstDetector::PopulationRate, Some(rate)) => {
+            // The smoothed rate runs past the first and last event (its padding); a burst
+            // does not start before the recording's first event or end after its last.
+            let (first, last) = crate::recording::trains_span_s(trains_s).unwrap_or((0.0, 0.0));
             rate_windows(rate, settings.population_rate.merge_gap_s)
+                .into_iter()
+                .map(|(a, b, peak)| (a.max(first), b.min(last), peak.clamp(first, last)))
+                .collect()
         }
         (BurstDetector::PopulationRate, None) => Vec::new(),
         (BurstDetector::IsiN, _) => isi_n_windows(trains_s, &settings.isi_n),

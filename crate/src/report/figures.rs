@@ -149,11 +149,27 @@ pub(crate) fn chart_on(
     })
 }
 
+/// Most sites a map names (beyond, names are read out by pointing).
+const MAX_NAMED_SITES: usize = 96;
+
+/// Sites closer than this on a map (pixels) are not named: a short name at 10 px needs it.
+const MIN_NAMED_SITE_SPACING_PX: f64 = 26.0;
+
 /// Widens the shorter of two axis ranges so that a micrometre is as long on both axes (a
 /// ring looks round, a line of sites stays a line).
 fn equal_scale(x: (f64, f64), y: (f64, f64), size: Size) -> ((f64, f64), (f64, f64)) {
+    equal_scale_in(x, y, size, 0.0)
+}
+
+/// [`equal_scale`] for a plot with `extra_top_px` above its area (a legend row).
+fn equal_scale_in(
+    x: (f64, f64),
+    y: (f64, f64),
+    size: Size,
+    extra_top_px: f64,
+) -> ((f64, f64), (f64, f64)) {
     let plot_w = f64::from(size.width_px.saturating_sub(100).max(1));
-    let plot_h = f64::from(size.height_px.saturating_sub(80).max(1));
+    let plot_h = (f64::from(size.height_px) - 82.0 - extra_top_px).max(1.0);
     let scale = ((x.1 - x.0) / plot_w).max((y.1 - y.0) / plot_h);
     let (cx, cy) = ((x.0 + x.1) / 2.0, (y.0 + y.1) / 2.0);
     let (hw, hh) = (scale * plot_w / 2.0, scale * plot_h / 2.0);
@@ -210,13 +226,18 @@ pub fn site_map(inspection: &Inspection, size: Size) -> Result<Figure, FigureErr
     let (x0, x1) = padded(xs).ok_or_else(|| empty("no finite site positions"))?;
     let (y0, y1) = padded(ys).ok_or_else(|| empty("no finite site positions"))?;
     // Equal scales on both axes, so a ring looks round.
-    let ((ex0, ex1), (ey0, ey1)) = equal_scale((x0, x1), (y0, y1), size);
+    let ((ex0, ex1), (ey0, ey1)) =
+        equal_scale_in((x0, x1), (y0, y1), size, super::svg::ROOM_FOR_LEGEND_ROW_PX);
     let title = format!("Sites and track ({})", inspection.track.kind);
-    chart(
+    chart_on(
+        Plot::with_legend_row(
+            size.width_px,
+            size.height_px,
+            &title,
+            (ex0, ex1, "x (µm)"),
+            (ey0, ey1, "y (µm)"),
+        ),
         size,
-        &title,
-        (ex0, ex1, "x (µm)"),
-        (ey0, ey1, "y (µm)"),
         |c| {
             if track_path.len() >= 2 {
                 c.polyline(&track_path, SKY_BLUE, 3.0);
@@ -242,7 +263,20 @@ pub fn site_map(inspection: &Inspection, size: Size) -> Result<Figure, FigureErr
                     LegendMark::Line,
                 ));
             }
-            c.legend(&legend);
+            c.legend_above(&legend);
+            // Site names beside the sites when no two sites are closer than a name needs.
+            let pixels: Vec<(f64, f64)> = sites.iter().map(|s| c.at(s.x_um, s.y_um)).collect();
+            let names_fit = sites.len() <= MAX_NAMED_SITES
+                && pixels.iter().enumerate().all(|(i, a)| {
+                    pixels[i + 1..]
+                        .iter()
+                        .all(|b| (a.0 - b.0).hypot(a.1 - b.1) >= MIN_NAMED_SITE_SPACING_PX)
+                });
+            if names_fit {
+                for s in sites {
+                    c.label(s.x_um, s.y_um, &s.site);
+                }
+            }
             let mut out = Vec::new();
             for s in sites {
                 let colour = if s.off_track { VERMILLION } else { BLUE };

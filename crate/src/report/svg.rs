@@ -125,7 +125,7 @@ const MIN_ROW_NAME_SPACING_PX: f64 = 12.0;
 
 /// Extra room above the plot area of a plot of rows, for a legend in one line
 /// ([`Plot::legend_above`]) that covers no data.
-const ROOM_FOR_LEGEND_ROW_PX: f64 = 18.0;
+pub(crate) const ROOM_FOR_LEGEND_ROW_PX: f64 = 18.0;
 
 /// A row name shortened to [`MAX_ROW_NAME_CHARS`].
 fn row_name(name: &str) -> String {
@@ -189,6 +189,26 @@ impl Plot {
         let n = categories.len().max(1) as f64;
         let x = (-0.5, n - 0.5, x_label);
         Plot::build((width, height, 16.0), title, x, y, categories.to_vec())
+    }
+
+    /// [`Plot::new`] with room above the plot area for [`Plot::legend_above`].
+    pub fn with_legend_row(
+        width: u32,
+        height: u32,
+        title: &str,
+        x: (f64, f64, &str),
+        y: (f64, f64, &str),
+    ) -> Plot {
+        let room = ROOM_FOR_LEGEND_ROW_PX;
+        Plot::build_with(
+            (width, height, 16.0),
+            title,
+            x,
+            y,
+            Vec::new(),
+            Vec::new(),
+            room,
+        )
     }
 
     /// A plot whose y axis names `rows` at y = 0, 1, 2, ... (shown from -0.5 to n - 0.5,
@@ -369,6 +389,18 @@ impl Plot {
             "<clipPath id=\"plot-area\"><rect x=\"{l:.1}\" y=\"{t:.1}\" width=\"{w:.1}\" height=\"{h:.1}\"/></clipPath><g clip-path=\"url(#plot-area)\">",
             w = r - l,
             h = b - t,
+        );
+    }
+
+    /// A short name beside a data point (10 px text, up and to the right of it).
+    pub fn label(&mut self, x: f64, y: f64, text: &str) {
+        let (u, v) = self.at(x, y);
+        let _ = write!(
+            self.body,
+            "<text x=\"{:.1}\" y=\"{:.1}\" font-size=\"10\" fill=\"#333333\" {FONT}>{}</text>",
+            u + 6.0,
+            v - 6.0,
+            escape(text)
         );
     }
 
