@@ -268,3 +268,48 @@ fn inspect_counts_calcium_events_not_frames() {
         );
     }
 }
+
+/// The evidence view on imaging: a ROI's dF/F around the selected burst shows the very event
+/// onsets the analysis timed the burst with (each site's activation is one of them), and the
+/// two event thresholds.
+#[test]
+fn the_evidence_view_shows_the_onsets_the_fronts_were_timed_with() {
+    use ringline::report::figures::Size;
+    use ringline::report::workbook::{StepSettings, Workbook};
+    let root =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../demo-data/network-strip-16");
+    let traces = std::fs::read(root.join("traces.csv")).unwrap();
+    let layout = std::fs::read(root.join("roi_layout.csv")).unwrap();
+    let mut wb = Workbook::open(
+        ("traces.csv", &traces),
+        ("roi_layout.csv", &layout),
+        StepSettings::default(),
+    )
+    .unwrap();
+    let settings = wb.settings.analysis.clone();
+    wb.analyze(settings, &mut |_, _| {}).unwrap();
+    let burst = wb
+        .report()
+        .unwrap()
+        .bursts
+        .iter()
+        .find(|b| b.activations.len() >= 5)
+        .unwrap()
+        .clone();
+    wb.settings.view.burst = burst.burst;
+    let mut checked = 0;
+    for a in &burst.activations {
+        let figure = wb.evidence(&a.site, None, Size::default()).unwrap();
+        assert!(figure.svg.contains("event must reach") && figure.svg.contains("event onset"));
+        let shown = format!("event onset at {:.3} s", a.first_spike_s);
+        assert!(
+            figure.points.iter().any(|p| p.label.ends_with(&shown)),
+            "ROI {}: {shown} not among {:?}",
+            a.site,
+            figure.points.iter().map(|p| &p.label).collect::<Vec<_>>()
+        );
+        checked += 1;
+    }
+    assert!(checked >= 5);
+    assert!(wb.evidence("no such ROI", None, Size::default()).is_err());
+}

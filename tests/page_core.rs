@@ -526,3 +526,38 @@ fn histogram_bins_follow_numpy() {
     );
     assert!(bin_edges(&[f64::NAN], BinRule::FreedmanDiaconis).is_none());
 }
+
+/// Dragging across the raster zooms to the data values under the pointer: the pixels map
+/// linearly onto the drawn time axis (the figure's own axis, read back from its SVG ticks'
+/// positions), and the redrawn raster shows that window.
+#[test]
+fn dragging_across_the_raster_zooms_to_the_time_under_the_pointer() {
+    let mut wb = analysed("strip-16");
+    let size = Size::default();
+    let raster = wb.figure(&FigureRequest::Raster, size).unwrap();
+    let axis = raster.x_axis.unwrap();
+    let [from, to] = wb.window_s();
+    assert_eq!((axis.from, axis.to), (from, to));
+    // A tick label's x position in the SVG is where its value lies on the axis.
+    let svg = &raster.svg;
+    let tick = svg.find(">10</text>").expect("a tick at 10 s");
+    let x_attr = svg[..tick].rfind("x=\"").unwrap();
+    let tick_px: f64 = svg[x_attr + 3..][..svg[x_attr + 3..].find('"').unwrap()]
+        .parse()
+        .unwrap();
+    assert!((axis.value_at(tick_px) - 10.0).abs() < 0.01 * (to - from));
+    let (a, b) = (
+        axis.from_px + 0.25 * (axis.to_px - axis.from_px),
+        axis.from_px + 0.75 * (axis.to_px - axis.from_px),
+    );
+    let window = wb.zoom_to_pixels(&raster, b, a).unwrap();
+    let expected = [from + 0.25 * (to - from), from + 0.75 * (to - from)];
+    assert!((window[0] - expected[0]).abs() < 1e-9 && (window[1] - expected[1]).abs() < 1e-9);
+    assert_eq!(wb.settings.view.window_s, Some(window));
+    let zoomed = wb.figure(&FigureRequest::Raster, size).unwrap();
+    assert!(zoomed
+        .svg
+        .contains(&format!("{:.1}-{:.1} s", window[0], window[1])));
+    // A click is not a drag.
+    assert!(wb.zoom_to_pixels(&zoomed, a, a).is_err());
+}

@@ -507,7 +507,9 @@ async function drawFigure(name, extra = {}) {
   const width = Math.max(360, Math.min(900, Math.round(img.parentElement.clientWidth || 760)));
   const height = name === 'raster' ? Math.max(300, Math.min(700, 80 + 14 * (state.inspection?.site_count ?? 16))) : 340;
   try {
-    const fig = await call('figure', { figure: name, width, height, extra });
+    const fig = name === 'evidence'
+      ? await call('evidence', { site: extra.site, width, height })
+      : await call('figure', { figure: name, width, height, extra });
     state.svgs[name] = fig.svg;
     const old = img.src;
     img.src = URL.createObjectURL(new Blob([fig.svg], { type: 'image/svg+xml' }));
@@ -712,6 +714,24 @@ async function selectBurst(number) {
   readoutIndex = -1;
   await drawFigure('activation');
   await drawFigure('raster'); // its marks show the selected burst's activation times
+  await renderEvidence();
+}
+
+/** The evidence view: voltage around a site's spikes, or a ROI's dF/F (not for spike lists). */
+async function renderEvidence() {
+  const r = state.report;
+  const shown = Boolean(r && (state.electrodes || r.files.some((f) => f.kind === 'roi_traces')));
+  $('evidence-block').hidden = !shown;
+  if (!shown) return;
+  const select = $('evidence-site');
+  const names = state.inspection.sites.map((s) => s.site);
+  if (select.dataset.sites !== names.join('\n')) {
+    select.dataset.sites = names.join('\n');
+    select.replaceChildren(...names.map((n) => new Option(n, n)));
+    const origin = r.bursts[state.settings.view.burst - 1]?.front?.origin_site;
+    if (origin) select.value = origin;
+  }
+  await drawFigure('evidence', { site: select.value });
 }
 
 /** A histogram with the bins the user asked for (Freedman-Diaconis when the field is empty). */
@@ -1304,6 +1324,68 @@ async function stepReadout(delta) {
   $('readout').textContent = `${readoutIndex + 1} of ${first.count}: ${point.label}`;
 }
 
+/** Drag across the raster or the rate to zoom both to that time span (the core turns the
+ * pixels into seconds and redraws); double-click to go back to the first 30 s. */
+function wireZoom(name) {
+  const img = $(`fig-${name}`);
+  const figure = img.closest('figure');
+  const band = document.createElement('div');
+  band.className = 'zoom-band';
+  band.hidden = true;
+  figure.append(band);
+  let start = null;
+  const figurePx = (e) => {
+    const box = img.getBoundingClientRect();
+    return { x: (e.clientX - box.left) * (Number(img.dataset.widthPx) / box.width), left: e.clientX - figure.getBoundingClientRect().left };
+  };
+  img.addEventListener('pointerdown', (e) => {
+    if (e.button !== 0 || !state.report) return;
+    e.preventDefault();
+    img.setPointerCapture(e.pointerId);
+    start = figurePx(e);
+    Object.assign(band.style, { left: `${start.left}px`, width: '0px', top: `${img.offsetTop}px`, height: `${img.offsetHeight}px` });
+    band.hidden = false;
+  });
+  img.addEventListener('pointermove', (e) => {
+    if (!start) return;
+    const now = figurePx(e);
+    band.style.left = `${Math.min(start.left, now.left)}px`;
+    band.style.width = `${Math.abs(now.left - start.left)}px`;
+  });
+  img.addEventListener('pointerup', async (e) => {
+    if (!start) return;
+    const from = start.x;
+    const to = figurePx(e).x;
+    start = null;
+    band.hidden = true;
+    if (Math.abs(to - from) < 4) return;
+    try {
+      state.settings.view = await call('zoom', { figure: name, from, to });
+      await showWindow();
+    } catch (err) {
+      showError('analysis-error', err);
+    }
+  });
+  img.addEventListener('dblclick', async () => {
+    if (!state.report) return;
+    const view = { ...state.settings.view, window_s: null };
+    await call('setView', { view });
+    state.settings.view = view;
+    await showWindow();
+  });
+}
+
+/** Redraws the raster and rate for the view's window and fills the window fields. */
+async function showWindow() {
+  const w = $('window-form').elements;
+  const [from, to] = state.settings.view.window_s ?? ['', ''];
+  w.from.value = from;
+  w.to.value = to;
+  scheduleAutosave();
+  for (const name of ['raster', 'population_rate']) await drawFigure(name);
+  await renderEvidence();
+}
+
 /** Every Save SVG button is named after its figure, for screen readers and voice control. */
 function nameSaveButtons() {
   for (const b of document.querySelectorAll('.svg-save')) {
@@ -1323,6 +1405,9 @@ function wire() {
     }
   });
   $('choose-button').addEventListener('click', () => $('file-input').click());
+  wireZoom('raster');
+  wireZoom('population_rate');
+  $('evidence-site').addEventListener('change', () => renderEvidence().catch((e) => showError('analysis-error', e)));
   nameSaveButtons();
   drop.addEventListener('drop', (e) => {
     e.preventDefault();

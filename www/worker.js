@@ -112,6 +112,12 @@ const ops = {
   attachStimuli: ({ name, bytes }) => need().attachStimuli(name, new Uint8Array(bytes)),
   analyze: ({ analysis }, id) => need().analyze(analysis, progress(id)),
   setView: ({ view }) => need().setView(view),
+  zoom: ({ figure, from, to }) => need().zoom(figure, from, to),
+  evidence: ({ site, width, height }) => {
+    const reader = voltageFile && new FileReaderSync();
+    const slice = voltageFile && ((a, b) => new Uint8Array(reader.readAsArrayBuffer(voltageFile.slice(a, b))));
+    return need().evidence(site, slice ?? undefined, width, height);
+  },
   settings: () => need().settings(),
   figure: ({ figure, width, height, extra }) => need().figure({ figure, ...(extra ?? {}) }, width, height),
   readout: ({ x, y }) => need().readout(x, y) ?? null,
@@ -131,7 +137,6 @@ const ops = {
       }
       book.setVoltageSha256(hash.finish());
       hash.free();
-      voltageFile = null;
     }
     return book.reportHtml();
   },

@@ -205,6 +205,8 @@ pub struct WasmWorkbook {
     inner: Workbook,
     /// The last activation figure, for the pointer read-out.
     activation: Option<Figure>,
+    /// The last raster and rate figures, for zooming by dragging across them.
+    zoomable: Vec<(String, Figure)>,
 }
 
 #[wasm_bindgen(js_class = Workbook)]
@@ -227,6 +229,7 @@ impl WasmWorkbook {
         .map(|inner| WasmWorkbook {
             inner,
             activation: None,
+            zoomable: Vec::new(),
         })
         .map_err(|e| located(&e))
     }
@@ -257,6 +260,7 @@ impl WasmWorkbook {
             .map(|inner| WasmWorkbook {
                 inner,
                 activation: None,
+                zoomable: Vec::new(),
             })
             .map_err(|e| located(&e))
     }
@@ -305,6 +309,7 @@ impl WasmWorkbook {
             workbook: Some(WasmWorkbook {
                 inner,
                 activation: None,
+                zoomable: Vec::new(),
             }),
             electrodes: to_js(&found.electrodes)?,
         })
@@ -397,8 +402,65 @@ impl WasmWorkbook {
         });
         if request == FigureRequest::Activation {
             self.activation = Some(figure);
+        } else if matches!(
+            request,
+            FigureRequest::Raster | FigureRequest::PopulationRate
+        ) {
+            let name = crate::report::workbook::request_name(&request);
+            self.zoomable.retain(|(n, _)| *n != name);
+            self.zoomable.push((name, figure));
         }
         out
+    }
+
+    /// The evidence behind a site's event times (`{ svg, width_px, height_px }`): for raw
+    /// voltage, `read(from_byte, to_byte)` reads the voltage file again around its spikes.
+    pub fn evidence(
+        &self,
+        site: &str,
+        read: Option<js_sys::Function>,
+        width_px: u32,
+        height_px: u32,
+    ) -> Result<JsValue, JsValue> {
+        let size = Size {
+            width_px: width_px.clamp(200, 4000),
+            height_px: height_px.clamp(150, 4000),
+        };
+        let figure = match (self.inner.voltage_header(), &read) {
+            (Some(header), Some(read)) => {
+                let mut bytes = js_byte_reader(&header.file, read);
+                let mut frames = crate::import::frame_reader(header, &mut bytes);
+                self.inner.evidence(site, Some(&mut frames), size)
+            }
+            _ => self.inner.evidence(site, None, size),
+        }
+        .map_err(|e| message(&e))?;
+        #[derive(Serialize)]
+        struct Drawn<'a> {
+            svg: &'a str,
+            width_px: u32,
+            height_px: u32,
+        }
+        to_js(&Drawn {
+            svg: &figure.svg,
+            width_px: figure.width_px,
+            height_px: figure.height_px,
+        })
+    }
+
+    /// Zooms the raster and rate to the time between two pixels of the named figure (`raster`
+    /// or `population_rate`, as last drawn); returns the view.
+    pub fn zoom(&mut self, figure: &str, from_px: f64, to_px: f64) -> Result<JsValue, JsValue> {
+        let drawn = self
+            .zoomable
+            .iter()
+            .find(|(n, _)| n == figure)
+            .map(|(_, f)| f.clone())
+            .ok_or_else(|| plain_error(format!("draw the {figure} figure first")))?;
+        self.inner
+            .zoom_to_pixels(&drawn, from_px, to_px)
+            .map_err(|e| message(&e))?;
+        to_js(&self.inner.settings.view)
     }
 
     /// The activation point nearest to (x, y) pixels of the last activation figure (within

@@ -869,3 +869,30 @@ test('the keyboard alone takes a user from the file chooser to the analysis, a r
   assert.deepEqual(errors, []);
   await context.close();
 });
+
+test('dragging across the raster zooms the raster and the rate to that span, double-click goes back', async () => {
+  const { page, context, errors } = await openPage(base);
+  await page.click('#demo-button');
+  await analyse(page);
+  const img = page.locator('#fig-raster');
+  await img.scrollIntoViewIfNeeded();
+  const box = await img.boundingBox();
+  const before = await page.evaluate(() => window.ringline.state.settings.view.window_s);
+  assert.equal(before, null);
+  await page.mouse.move(box.x + 0.4 * box.width, box.y + box.height / 2);
+  await page.mouse.down();
+  await page.mouse.move(box.x + 0.6 * box.width, box.y + box.height / 2, { steps: 5 });
+  await page.mouse.up();
+  await page.waitForFunction(() => window.ringline.state.settings.view.window_s !== null);
+  const [from, to] = await page.evaluate(() => window.ringline.state.settings.view.window_s);
+  assert.ok(to > from && to - from < 15, `${from}..${to}`);
+  assert.equal(Number(await page.inputValue('#window-form [name=from]')), from);
+  // Both figures redrawn for the window: the raster's title names it.
+  await page.waitForFunction((w) => JSON.parse(document.getElementById('fig-population_rate').dataset.view ?? '{}').window_s?.[0] === w, from);
+  const svg = await page.evaluate(() => window.ringline.state.svgs.raster);
+  assert.ok(svg.includes(`${from.toFixed(1)}-${to.toFixed(1)} s`));
+  await img.dblclick();
+  await page.waitForFunction(() => window.ringline.state.settings.view.window_s === null);
+  assert.deepEqual(errors, []);
+  await context.close();
+});

@@ -108,6 +108,38 @@ pub fn robust_sd(x: &[f64]) -> Option<f64> {
     crate::stats::mad_sd(&v)
 }
 
+/// The levels events are found at in one dF/F trace (dimensionless, as dF/F).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct EventLevels {
+    /// Median of the trace.
+    pub centre: f64,
+    /// An event lasts while dF/F stays above this...
+    pub low: f64,
+    /// ...and counts when it reaches this.
+    pub high: f64,
+}
+
+/// The median of a dF/F trace and the two thresholds `low_sd` and `high_sd` robust SDs above
+/// it; `None` for a trace without spread.
+pub fn event_levels(dff: &[f64], s: &CalciumSettings) -> Option<EventLevels> {
+    let sigma = robust_sd(dff)?;
+    if sigma <= 0.0 {
+        return None;
+    }
+    let centre = crate::stats::median(
+        &dff.iter()
+            .copied()
+            .filter(|v| !v.is_nan())
+            .collect::<Vec<_>>(),
+    )
+    .unwrap_or(0.0);
+    Some(EventLevels {
+        centre,
+        low: centre + s.low_sd * sigma,
+        high: centre + s.high_sd * sigma,
+    })
+}
+
 /// Onset times (seconds) of the events in one dF/F trace on the time base `time_s`: runs
 /// above `low_sd` noise SDs that reach `high_sd`, each timed on its rising edge by `onset`
 /// relative to its local baseline (the median of the second before the run).
@@ -117,20 +149,9 @@ pub fn event_onsets(
     frame_rate_hz: f64,
     s: &CalciumSettings,
 ) -> Vec<f64> {
-    let Some(sigma) = robust_sd(dff) else {
+    let Some(EventLevels { centre, low, high }) = event_levels(dff, s) else {
         return Vec::new();
     };
-    if sigma <= 0.0 {
-        return Vec::new();
-    }
-    let centre = crate::stats::median(
-        &dff.iter()
-            .copied()
-            .filter(|v| !v.is_nan())
-            .collect::<Vec<_>>(),
-    )
-    .unwrap_or(0.0);
-    let (high, low) = (centre + s.high_sd * sigma, centre + s.low_sd * sigma);
     let lookback = (frame_rate_hz.round() as usize).max(3);
     let at = |k: usize| -> f64 { time_s[k] };
     let mut onsets = Vec::new();

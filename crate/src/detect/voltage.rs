@@ -404,3 +404,85 @@ fn scan_channel(
         }
     }
 }
+
+/// Most spikes a voltage evidence view shows.
+pub const MAX_SNIPPETS: usize = 40;
+
+/// The band-passed voltage around some of a channel's detected spikes: the evidence behind
+/// its spike times.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Snippets {
+    /// Time of each sample from the spike, ms (shared by every snippet).
+    pub offsets_ms: Vec<f64>,
+    /// One band-passed trace per spike, µV.
+    pub traces_uv: Vec<Vec<f64>>,
+}
+
+/// Filters the voltage of `channel` around each of `times_s` (at most [`MAX_SNIPPETS`]) the
+/// way detection does (the same Butterworth band-pass, zero phase, with a margin long enough
+/// for the filter to settle), and cuts `window_ms` = [before, after] around each spike.
+/// `read(first_frame, end_frame)` returns the raw bytes of those frames.
+pub fn spike_snippets(
+    header: &crate::import::VoltageHeader,
+    channel: usize,
+    times_s: &[f64],
+    settings: &VoltageSettings,
+    window_ms: [f64; 2],
+    read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError>,
+) -> Result<Snippets, crate::import::ImportError> {
+    use super::filter::{butterworth_bandpass, settling_samples, sosfiltfilt};
+    use crate::import::{decode_channel, ImportError, ImportProblem};
+    let fs = header.sample_rate_hz;
+    let fail = |message: String| {
+        ImportError::new(
+            crate::place::Place::file(&header.file),
+            ImportProblem::BadOption,
+            message,
+        )
+    };
+    if channel >= header.channels {
+        return Err(fail(format!(
+            "there is no channel {} (the file has {})",
+            channel + 1,
+            header.channels
+        )));
+    }
+    let sos = butterworth_bandpass(
+        settings.filter_order,
+        settings.band_hz[0],
+        settings.band_hz[1],
+        fs,
+    )
+    .map_err(|e| fail(format!("spike filter: {e}")))?;
+    let margin = settling_samples(&sos, 1e-12).min(1 << 16) as u64;
+    let before = ((window_ms[0].clamp(0.0, 50.0) * 1e-3 * fs).round() as u64).max(1);
+    let after = ((window_ms[1].clamp(0.0, 50.0) * 1e-3 * fs).round() as u64).max(1);
+    let offsets_ms = (0..before + after + 1)
+        .map(|k| (k as f64 - before as f64) / fs * 1e3)
+        .collect();
+    let mut traces_uv = Vec::new();
+    let mut samples = Vec::new();
+    for &t in times_s.iter().take(MAX_SNIPPETS) {
+        let at = (t * fs).round();
+        if !(at >= 0.0 && at < header.frames as f64) {
+            continue;
+        }
+        let at = at as u64;
+        if at < before || at + after >= header.frames {
+            continue; // too near an end of the recording to show whole
+        }
+        let from = (at - before).saturating_sub(margin);
+        let to = (at + after + 1 + margin).min(header.frames);
+        let bytes = read(from, to)?;
+        samples.clear();
+        decode_channel(header, &bytes, channel, &mut samples);
+        let filtered =
+            sosfiltfilt(&sos, &samples).map_err(|e| fail(format!("spike filter: {e}")))?;
+        let start = (at - before - from) as usize;
+        traces_uv.push(filtered[start..start + (before + after + 1) as usize].to_vec());
+    }
+    Ok(Snippets {
+        offsets_ms,
+        traces_uv,
+    })
+}

@@ -434,6 +434,10 @@ pub fn read_voltage_header(
     }
 }
 
+/// Reads whole frames `[first, end)` of a raw voltage file as bytes (the shells read the file;
+/// the core asks for blocks).
+pub type FrameRead<'a> = dyn FnMut(u64, u64) -> Result<Vec<u8>, ImportError> + 'a;
+
 /// Frames `[from, to)` of a voltage file read through `read(from_byte, to_byte)` (a file, or
 /// the page's `File.slice`), checking that every byte came.
 pub fn frame_reader<'a>(

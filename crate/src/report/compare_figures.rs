@@ -167,6 +167,7 @@ pub fn estimation_plot(
         left,
     );
     Ok(Figure {
+        x_axis: Some(plot.x_span()),
         svg: plot.finish(),
         width_px: size.width_px,
         height_px: size.height_px,

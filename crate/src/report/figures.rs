@@ -34,6 +34,25 @@ pub struct Figure {
     pub height_px: u32,
     /// Data points a pointer can be read out at (empty for figures without a read-out).
     pub points: Vec<ReadoutPoint>,
+    /// Where the x axis lies in the figure, for turning a dragged span into data values.
+    pub x_axis: Option<AxisSpan>,
+}
+
+/// An axis's data range and where it is drawn, in figure pixels.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct AxisSpan {
+    pub from_px: f64,
+    pub to_px: f64,
+    pub from: f64,
+    pub to: f64,
+}
+
+impl AxisSpan {
+    /// The data value at pixel `px`, clamped to the axis.
+    pub fn value_at(&self, px: f64) -> f64 {
+        let f = ((px - self.from_px) / (self.to_px - self.from_px)).clamp(0.0, 1.0);
+        self.from + f * (self.to - self.from)
+    }
 }
 
 /// One data point's place in the figure and its description.
@@ -141,11 +160,13 @@ pub(crate) fn chart_on(
             }
         })
         .collect();
+    let x_axis = Some(plot.x_span());
     Ok(Figure {
         svg: plot.finish(),
         width_px: size.width_px,
         height_px: size.height_px,
         points,
+        x_axis,
     })
 }
 

@@ -5,6 +5,7 @@ mod analysis;
 pub mod analysis_document;
 pub mod compare_figures;
 pub mod document;
+pub mod evidence_figures;
 pub mod figures;
 mod inspection;
 pub mod response_figures;

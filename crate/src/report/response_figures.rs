@@ -87,6 +87,7 @@ pub fn response_curves(
         .collect();
     plot.legend_in(&entries, true);
     Ok(Figure {
+        x_axis: Some(plot.x_span()),
         svg: plot.finish(),
         width_px: size.width_px,
         height_px: size.height_px,
@@ -160,6 +161,7 @@ pub fn percolation_figure(
         true,
     );
     Ok(Figure {
+        x_axis: Some(plot.x_span()),
         svg: plot.finish(),
         width_px: size.width_px,
         height_px: size.height_px,
@@ -216,6 +218,7 @@ pub fn threshold_figure(
     }
     plot.legend_in(&legend, false);
     Ok(Figure {
+        x_axis: Some(plot.x_span()),
         svg: plot.finish(),
         width_px: size.width_px,
         height_px: size.height_px,

@@ -258,6 +258,7 @@ pub fn sttc_matrix(
         }
     }
     Ok(Figure {
+        x_axis: Some(plot.x_span()),
         svg: plot.finish(),
         width_px: size.width_px,
         height_px: size.height_px,

@@ -290,6 +290,16 @@ impl Plot {
         p
     }
 
+    /// The x axis: its pixel span and data range.
+    pub fn x_span(&self) -> crate::report::figures::AxisSpan {
+        crate::report::figures::AxisSpan {
+            from_px: self.left,
+            to_px: self.right,
+            from: self.x.0,
+            to: self.x.1,
+        }
+    }
+
     /// Pixel position of a data point.
     pub fn at(&self, x: f64, y: f64) -> (f64, f64) {
         let fx = (x - self.x.0) / (self.x.1 - self.x.0);

@@ -379,6 +379,8 @@ pub struct Workbook {
     voltage_input: Option<InputFile>,
     /// SHA-256 of the activity, layout and stimulus files, computed when first asked for.
     digests: [std::cell::OnceCell<String>; 3],
+    /// Raw voltage: the file's header, to read the voltage around spikes again.
+    voltage_header: Option<crate::import::VoltageHeader>,
 }
 
 impl Workbook {
@@ -421,6 +423,7 @@ impl Workbook {
             stimuli: None,
             voltage_input: None,
             digests: Default::default(),
+            voltage_header: None,
         })
     }
 
@@ -518,6 +521,7 @@ impl Workbook {
         );
         let mut workbook = Workbook::with_track(activity, layout, settings, recording)?;
         workbook.electrodes = Some(found.electrodes.clone());
+        workbook.voltage_header = Some(header.clone());
         workbook.voltage_input = Some(InputFile {
             role: "voltage".into(),
             name: header.file.clone(),
@@ -598,6 +602,111 @@ impl Workbook {
         }
         let first = self.recording.observed_span_s().map_or(0.0, |span| span.0);
         [first, first + 30.0]
+    }
+
+    /// Zooms the raster and the rate to the time between pixels `from_px` and `to_px` of
+    /// `figure` (one of them, as drawn), for a drag across it; returns the new window, s.
+    /// A span under 1 ms, or a figure without an axis, is refused.
+    pub fn zoom_to_pixels(
+        &mut self,
+        figure: &Figure,
+        from_px: f64,
+        to_px: f64,
+    ) -> Result<[f64; 2], FigureError> {
+        let axis = figure.x_axis.ok_or_else(|| FigureError {
+            message: "this figure has no axis to zoom".into(),
+        })?;
+        let (a, b) = (axis.value_at(from_px), axis.value_at(to_px));
+        let window = [a.min(b), a.max(b)];
+        if window[1] - window[0] < 1e-3 || !window.iter().all(|v| v.is_finite()) {
+            return Err(FigureError {
+                message: "drag across at least a millisecond to zoom".into(),
+            });
+        }
+        self.settings.view.window_s = Some(window);
+        Ok(window)
+    }
+
+    /// The header of the raw voltage file the spikes were detected in, if any.
+    pub fn voltage_header(&self) -> Option<&crate::import::VoltageHeader> {
+        self.voltage_header.as_ref()
+    }
+
+    /// The evidence behind a site's event times, in the page's view: for raw voltage, the
+    /// band-passed voltage around its spikes in the raster window with the detection
+    /// threshold (`read(first_frame, end_frame)` reads the voltage file again); for
+    /// imaging, the ROI's dF/F around the selected burst (2 s either side) with the event
+    /// thresholds and onsets. A spike list holds neither.
+    pub fn evidence(
+        &self,
+        site: &str,
+        read: Option<&mut crate::import::FrameRead<'_>>,
+        size: Size,
+    ) -> Result<Figure, FigureError> {
+        let fail = |message: String| FigureError { message };
+        let index = self
+            .recording
+            .sites
+            .iter()
+            .position(|s| s.id == site)
+            .ok_or_else(|| fail(format!("there is no site {site}")))?;
+        match (&self.recording.activity, &self.voltage_header) {
+            (Activity::Traces { time_s, frame_interval_s, values }, _) => {
+                let calcium = &self.settings.analysis.calcium;
+                let rate = 1.0 / frame_interval_s;
+                let dff = crate::detect::calcium::delta_f_over_f(&values[index], rate, calcium);
+                let levels = crate::detect::calcium::event_levels(&dff, calcium);
+                let onsets = match &self.events {
+                    Some(events) => events[index].clone(),
+                    None => crate::detect::calcium::event_onsets(&dff, time_s, rate, calcium),
+                };
+                let window = self
+                    .report
+                    .as_ref()
+                    .and_then(|r| r.bursts.iter().find(|b| b.burst == self.settings.view.burst))
+                    .map_or_else(|| self.window_s(), |b| [b.start_s - 2.0, b.end_s + 2.0]);
+                super::evidence_figures::fluorescence_trace(
+                    site, time_s, &dff, levels, &onsets, window, size,
+                )
+            }
+            (Activity::Spikes { trains_s }, Some(header)) => {
+                let read = read.ok_or_else(|| {
+                    fail("the voltage file is not open: drop it again to see its spikes".into())
+                })?;
+                let row = self
+                    .electrodes
+                    .iter()
+                    .flatten()
+                    .find(|r| r.site == site)
+                    .ok_or_else(|| fail(format!("no electrode records site {site}")))?;
+                let [from, to] = self.window_s();
+                let spikes: Vec<f64> = trains_s[index]
+                    .iter()
+                    .copied()
+                    .filter(|t| *t >= from && *t <= to)
+                    .collect();
+                let v = &self.settings.voltage;
+                let snippets = crate::detect::voltage::spike_snippets(
+                    header,
+                    row.channel - 1,
+                    &spikes,
+                    v,
+                    [1.0, 2.0],
+                    read,
+                )
+                .map_err(|e| fail(e.to_string()))?;
+                let k = v.threshold_sd * row.noise_uv;
+                let thresholds = match v.polarity {
+                    crate::detect::voltage::Polarity::Negative => vec![-k],
+                    crate::detect::voltage::Polarity::Positive => vec![k],
+                    crate::detect::voltage::Polarity::Both => vec![-k, k],
+                };
+                super::evidence_figures::voltage_snippets(site, &snippets, &thresholds, size)
+            }
+            (Activity::Spikes { .. }, None) => Err(fail(
+                "a spike list holds only spike times: the evidence view needs raw voltage or ROI traces".into(),
+            )),
+        }
     }
 
     /// Draws a figure of the current results, in the page's view.
