@@ -5,6 +5,7 @@
 import { after, before, test } from 'node:test';
 import assert from 'node:assert/strict';
 import { execFileSync } from 'node:child_process';
+import { createHash } from 'node:crypto';
 import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { basename, dirname, join, resolve } from 'node:path';
@@ -405,6 +406,15 @@ test('raw voltage dropped on the page gives the command line\'s electrodes and s
     assert.equal(await summaryValue(page, 'speed'), report.summary.median_speed_mm_s, files.join(' + '));
     assert.equal(await summaryValue(page, 'bursts'), report.summary.burst_count);
     if (files[0].endsWith('.wav')) await shoot(page, '6-voltage');
+    // The evidence behind the spike times: voltage read again from the file around them.
+    await page.locator('#fig-evidence').waitFor({ state: 'visible' });
+    await page.selectOption('#evidence-site', 'E2');
+    await page.waitForFunction(() => /site E2 \(band-passed\)/.test(window.ringline.state.svgs.evidence ?? ''));
+    assert.match(await page.evaluate(() => window.ringline.state.svgs.evidence), /detection threshold/);
+    // The report of a voltage recording names the voltage file by its SHA-256.
+    const html = await page.evaluate(() => window.ringline.call('reportHtml'));
+    const digest = createHash('sha256').update(readFileSync(join(dir, files[0]))).digest('hex');
+    assert.ok(html.includes(`<td>${files[0]}</td>`) && html.includes(digest), 'the voltage file and its SHA-256');
     assert.deepEqual(errors, []);
     await context.close();
   }
@@ -893,6 +903,23 @@ test('dragging across the raster zooms the raster and the rate to that span, dou
   assert.ok(svg.includes(`${from.toFixed(1)}-${to.toFixed(1)} s`));
   await img.dblclick();
   await page.waitForFunction(() => window.ringline.state.settings.view.window_s === null);
+  assert.deepEqual(errors, []);
+  await context.close();
+});
+
+test('imaging: the evidence view shows a ROI\'s dF/F with the onsets of the selected burst', async () => {
+  const root = join(repo, 'demo-data/network-strip-16');
+  const { page, context, errors } = await openPage(base);
+  await dropFiles(page, [
+    { name: 'traces.csv', path: join(root, 'traces.csv') },
+    { name: 'roi_layout.csv', path: join(root, 'roi_layout.csv') },
+  ]);
+  await analyse(page);
+  await page.locator('#fig-evidence').waitFor({ state: 'visible' });
+  const svg = await page.evaluate(() => window.ringline.state.svgs.evidence);
+  assert.match(svg, /dF\/F of ROI/);
+  assert.match(svg, /event must reach/);
+  await shoot(page, '11-evidence-imaging');
   assert.deepEqual(errors, []);
   await context.close();
 });
