@@ -561,3 +561,98 @@ fn dragging_across_the_raster_zooms_to_the_time_under_the_pointer() {
     // A click is not a drag.
     assert!(wb.zoom_to_pixels(&zoomed, a, a).is_err());
 }
+
+/// A reader that gives its bytes `step` at a time (as a large file arrives in pieces).
+struct Pieces {
+    bytes: Vec<u8>,
+    at: usize,
+    step: usize,
+}
+
+impl std::io::Read for Pieces {
+    fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.step.min(out.len()).min(self.bytes.len() - self.at);
+        out[..n].copy_from_slice(&self.bytes[self.at..self.at + n]);
+        self.at += n;
+        Ok(n)
+    }
+}
+
+/// A large file in the page is read as a stream, never held whole: the recording, its
+/// analysis and the located errors are those of reading it whole, however the pieces fall
+/// (pieces of 1, 3 and 7 bytes cut every multi-byte character and line end), and its
+/// SHA-256 is taken on the way (FIPS 180-4, as `sha256_hex` of the whole file).
+#[test]
+fn a_streamed_activity_file_reads_as_the_whole_file_does() {
+    let (spikes, layout) = demo_files("strip-16");
+    let whole = analysed("strip-16");
+    for step in [1, 3, 7, 4096] {
+        let reader = Pieces {
+            bytes: spikes.clone(),
+            at: 0,
+            step,
+        };
+        let mut wb = Workbook::open_stream(
+            "spikes.csv",
+            &spikes[..spikes.len().min(65536)],
+            spikes.len() as u64,
+            Box::new(reader),
+            ("layout.csv", &layout),
+            StepSettings::default(),
+            &mut |_, _| {},
+        )
+        .unwrap();
+        wb.analyze(AnalysisSettings::default(), &mut |_, _| {})
+            .unwrap();
+        assert_eq!(wb.report(), whole.report(), "pieces of {step} bytes");
+        let held = wb.held_files();
+        assert_eq!(held[0].sha256, sha256_hex(&spikes));
+        assert_eq!(held[0].size_bytes, spikes.len() as u64);
+        assert!(held[0].bytes.is_none());
+        assert_eq!(
+            wb.files_not_embedded(),
+            vec![("spikes.csv".to_string(), spikes.len() as u64)]
+        );
+    }
+    // Multi-byte site names cut by the pieces, and a byte that is not UTF-8 on line 5 (after a
+    // comment line): the same located error as reading the file whole.
+    let text = "# ünits: ms\nsite,time_ms\nélan,1.5\nñu,2.5\nzz\u{00e9}\u{00e9},3\n";
+    let mut bad = text.as_bytes().to_vec();
+    let at = bad.len() - 4;
+    bad[at] = 0xff;
+    let layout = "site,x_um,y_um\nélan,0,0\nñu,100,0\nzzéé,200,0\n";
+    for bytes in [text.as_bytes().to_vec(), bad] {
+        let whole = ringline::import::read_recording(
+            ("s.csv", &bytes),
+            ("l.csv", layout.as_bytes()),
+            &ReadOptions::default(),
+        );
+        for step in [1, 2, 3, 5] {
+            let streamed = ringline::import::read_recording_with(
+                (
+                    "s.csv",
+                    ringline::import::TextSource::Stream {
+                        head: &bytes,
+                        len: bytes.len() as u64,
+                        reader: Box::new(Pieces {
+                            bytes: bytes.clone(),
+                            at: 0,
+                            step,
+                        }),
+                    },
+                ),
+                ("l.csv", layout.as_bytes()),
+                &ReadOptions::default(),
+                &mut |_, _| {},
+            );
+            match (&whole, &streamed) {
+                (Ok(a), Ok(b)) => assert_eq!(a, b, "pieces of {step}"),
+                (Err(a), Err(b)) => {
+                    assert_eq!(a.to_string(), b.to_string(), "pieces of {step}");
+                    assert_eq!(a.place.line, Some(5), "{a}");
+                }
+                _ => panic!("pieces of {step}: {whole:?} against {streamed:?}"),
+            }
+        }
+    }
+}

@@ -311,11 +311,14 @@ async function openWorkbook({ keepSettings }) {
   state.report = null;
   hideFrom('step-bursts');
   try {
+    setBusy(true, 'Reading the recording…', $('file-table'));
+    state.importing = Boolean(state.activity.file);
     const result = await call('open', {
-      activity: await payload(state.activity),
+      // A recording goes to the worker as its File (read there in pieces, with progress).
+      activity: state.activity.file ? { name: state.activity.name, file: state.activity.file } : await payload(state.activity),
       layout: await payload(state.layout),
       settings: keepSettings ? state.settings : null,
-    });
+    }, showProgress).finally(() => { setBusy(false); state.importing = false; });
     state.settings = result.settings;
     state.inspection = result.inspection;
     state.electrodes = null;
@@ -333,11 +336,11 @@ async function openWorkbook({ keepSettings }) {
     $('track-text').focus();
     scheduleAutosave();
   } catch (e) {
-    for (const f of [state.activity, state.layout]) {
+    for (const f of [state.activity, state.layout].filter(Boolean)) {
       f.status = 'not imported';
     }
     const culprit = e?.detail?.detail?.place?.file;
-    for (const f of [state.activity, state.layout]) {
+    for (const f of [state.activity, state.layout].filter(Boolean)) {
       if (!culprit || f.name === culprit) {
         f.status = errorText(e);
         f.problem = true;
@@ -1231,8 +1234,14 @@ async function autosave() {
     const db = await openSessionDb();
     const stored = await inTransaction(db, 'readonly', ({ files: store }) => asPromise(store.getAllKeys()));
     const fresh = [];
+    // A file the page holds as a File is stored as that Blob (the browser copies it to disk,
+    // not through the tab's memory); others are asked of the core.
+    const held = { activity: state.activity?.file, layout: state.layout?.file, stimuli: state.stimuli?.file };
     for (const f of files) {
-      if (!stored.includes(f.sha256)) fresh.push([f.sha256, { name: f.name, bytes: await call('inputBytes', { role: f.role }) }]);
+      if (stored.includes(f.sha256)) continue;
+      const blob = held[f.role];
+      const bytes = blob && blob.size === f.size_bytes && blob.name === f.name ? blob : await call('inputBytes', { role: f.role });
+      fresh.push([f.sha256, { name: f.name, bytes }]);
     }
     const what = `${files.map((f) => f.name).join(' + ')}${state.report ? `, analysed (${state.report.bursts.length} bursts)` : ', not analysed yet'}`
       + `${state.study ? `; a study of ${state.study.manifest.rows.length} recordings` : ''}`;
@@ -1289,6 +1298,7 @@ async function restoreSession() {
       return { kept: k, files: bytes };
     });
     db.close();
+    for (const pair of files) if (pair[1] instanceof Blob) pair[1] = await pair[1].arrayBuffer();
     const entry = { name: 'the session kept in this browser', size: kept.notebook.length, bytes: new TextEncoder().encode(kept.notebook).buffer, kind: 'notebook', status: '' };
     state.files = [entry];
     await openNotebook(entry, files);
@@ -1457,6 +1467,14 @@ function wire() {
   }
   $('cancel-button').addEventListener('click', () => {
     setBusy(false);
+    if (state.importing) {
+      // Nothing to re-open: the recording was still being read.
+      state.activity.status = 'reading cancelled: drop or choose it again to open it';
+      state.activity = null;
+      renderFiles();
+      restartWorker('Reading cancelled.');
+      return;
+    }
     const detecting = state.voltage && !state.inspection;
     restartWorker(detecting
       ? 'Spike detection cancelled.'

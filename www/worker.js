@@ -72,12 +72,21 @@ const ops = {
   studyEntry: ({ manifest, row }) => need().studyEntry(manifest, row),
   combineStudy: ({ outputs }) => core.combineStudy(outputs),
   compareStudy: ({ recordings, fronts, bursts, settings }) => core.compareStudy(recordings, fronts, bursts, settings),
-  open: ({ activity, layout, settings }) => {
+  open: ({ activity, layout, settings }, id) => {
     workbook?.free();
     workbook = null;
     voltageFile = null;
-    workbook = new core.Workbook(activity.name, new Uint8Array(activity.bytes),
-      layout.name, new Uint8Array(layout.bytes), settings ?? null);
+    if (activity.file) {
+      // Read in pieces straight from the File: the page's main thread never holds it.
+      const reader = new FileReaderSync();
+      const slice = (a, b) => new Uint8Array(reader.readAsArrayBuffer(activity.file.slice(a, b)));
+      workbook = core.Workbook.fromFile(activity.name, activity.file.size, slice,
+        layout.name, new Uint8Array(layout.bytes), settings ?? null,
+        (stage, done, total) => postMessage({ id, progress: [done, total], stage }));
+    } else {
+      workbook = new core.Workbook(activity.name, new Uint8Array(activity.bytes),
+        layout.name, new Uint8Array(layout.bytes), settings ?? null);
+    }
     return { inspection: workbook.inspection(), settings: workbook.settings() };
   },
   openNotebook: ({ name, bytes, files }, id) => {

@@ -234,6 +234,84 @@ impl WasmWorkbook {
         .map_err(|e| located(&e))
     }
 
+    /// Reads the activity file from the page's `File` in pieces of 8 MiB through
+    /// `read(from_byte, to_byte)` (so the main thread never holds it and the tab holds it
+    /// once), then the layout, and fits the track. `progress(stage, done, total)`: "reading
+    /// the file" in bytes, then "reading rows" in bytes parsed.
+    #[allow(clippy::too_many_arguments)]
+    #[wasm_bindgen(js_name = fromFile)]
+    pub fn from_file(
+        name: &str,
+        len: f64,
+        read: js_sys::Function,
+        layout_name: &str,
+        layout_bytes: &[u8],
+        settings: JsValue,
+        progress: Option<js_sys::Function>,
+    ) -> Result<WasmWorkbook, JsValue> {
+        const PIECE: u64 = 8 << 20;
+        let settings: StepSettings = self::settings(settings, "notebook")?;
+        let len = len.max(0.0) as u64;
+        let limit = settings.read.limits.max_bytes as u64;
+        if len > limit {
+            return Err(located(&crate::Error::from(crate::import::ImportError::new(
+                crate::place::Place::file(name),
+                crate::import::ImportProblem::TooLarge,
+                format!("the file is {len} bytes, more than the limit of {limit} bytes; raise the limit if this file is expected"),
+            ))));
+        }
+        let mut report = staged_progress_fn(&progress);
+        let mut read_bytes = js_byte_reader(name, &read);
+        if len as usize > crate::report::workbook::EMBED_LIMIT_BYTES {
+            // Too large for a notebook to hold anyway: read as a stream, never held whole.
+            let head = read_bytes(0, len.min(65_536)).map_err(|e| located(&e.into()))?;
+            let pieces = JsPieces {
+                read: &mut read_bytes,
+                at: 0,
+                len,
+                piece: Vec::new(),
+                used: 0,
+                progress: &mut |done, total| report("reading the file", done as f64, total as f64),
+            };
+            return Workbook::open_stream(
+                name,
+                &head,
+                len,
+                Box::new(pieces),
+                (layout_name, layout_bytes),
+                settings,
+                &mut |_, _| {},
+            )
+            .map(|inner| WasmWorkbook {
+                inner,
+                activation: None,
+                zoomable: Vec::new(),
+            })
+            .map_err(|e| located(&e));
+        }
+        let mut bytes = Vec::with_capacity(len as usize);
+        let mut at = 0;
+        while at < len {
+            let to = (at + PIECE).min(len);
+            let piece = read_bytes(at, to).map_err(|e| located(&e.into()))?;
+            bytes.extend_from_slice(&piece);
+            at = to;
+            report("reading the file", at as f64, len as f64);
+        }
+        Workbook::open_owned(
+            (name.to_string(), bytes),
+            (layout_name, layout_bytes),
+            settings,
+            &mut |done, total| report("reading rows", done as f64, total as f64),
+        )
+        .map(|inner| WasmWorkbook {
+            inner,
+            activation: None,
+            zoomable: Vec::new(),
+        })
+        .map_err(|e| located(&e))
+    }
+
     /// Re-opens a notebook file and runs its analysis. `files` (`[[name, Uint8Array], ...]`
     /// or null) supplies the files the notebook refers to without holding them, matched by
     /// SHA-256.
@@ -530,18 +608,18 @@ impl WasmWorkbook {
         struct Named<'a> {
             role: &'a str,
             name: &'a str,
-            size_bytes: usize,
+            size_bytes: u64,
             sha256: &'a str,
         }
         let files: Vec<Named<'_>> = self
             .inner
-            .input_bytes()
+            .held_files()
             .into_iter()
-            .map(|(role, name, bytes, sha256)| Named {
-                role,
-                name,
-                size_bytes: bytes.len(),
-                sha256,
+            .map(|f| Named {
+                role: f.role,
+                name: f.name,
+                size_bytes: f.size_bytes,
+                sha256: f.sha256,
             })
             .collect();
         to_js(&files)
@@ -553,14 +631,15 @@ impl WasmWorkbook {
         to_js(&self.inner.files_not_embedded())
     }
 
-    /// The bytes of the input file with this role (`activity`, `layout`, `stimuli`).
+    /// The bytes of the input file with this role (`activity`, `layout`, `stimuli`); null
+    /// for a file read as a stream (the page holds it as a `File`).
     #[wasm_bindgen(js_name = inputBytes)]
     pub fn input_bytes(&self, role: &str) -> Option<Vec<u8>> {
         self.inner
-            .input_bytes()
+            .held_files()
             .into_iter()
-            .find(|f| f.0 == role)
-            .map(|f| f.2.to_vec())
+            .find(|f| f.role == role)
+            .and_then(|f| f.bytes.map(<[u8]>::to_vec))
     }
 
     /// The self-contained HTML report of the last analysis (the bytes of `ringline analyze
@@ -699,6 +778,39 @@ fn text_files(files: Vec<(String, Vec<u8>)>) -> Result<JsValue, JsValue> {
         .filter_map(|(name, bytes)| String::from_utf8(bytes).ok().map(|t| (name, t)))
         .collect();
     to_js(&text)
+}
+
+/// A file the page holds, read in pieces of 4 MiB as a stream.
+struct JsPieces<'a, 'r> {
+    read: &'a mut dyn FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError>,
+    at: u64,
+    len: u64,
+    piece: Vec<u8>,
+    used: usize,
+    progress: &'r mut dyn FnMut(u64, u64),
+}
+
+impl std::io::Read for JsPieces<'_, '_> {
+    fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+        if self.used == self.piece.len() {
+            if self.at >= self.len {
+                return Ok(0);
+            }
+            let to = (self.at + (4 << 20)).min(self.len);
+            self.piece =
+                (self.read)(self.at, to).map_err(|e| std::io::Error::other(e.to_string()))?;
+            self.used = 0;
+            self.at = to;
+            (self.progress)(self.at, self.len);
+            if self.piece.is_empty() {
+                return Ok(0);
+            }
+        }
+        let n = out.len().min(self.piece.len() - self.used);
+        out[..n].copy_from_slice(&self.piece[self.used..self.used + n]);
+        self.used += n;
+        Ok(n)
+    }
 }
 
 /// Bytes `[from, to)` of a file the page holds, through its `read(from_byte, to_byte)`

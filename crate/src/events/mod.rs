@@ -144,7 +144,7 @@ pub fn voltage_recording(
         notices: Vec::new(),
         stimuli: None,
     };
-    let mut recording = crate::recording::Recording::from_spike_list(&layout, &spikes)?;
+    let mut recording = crate::recording::Recording::from_spike_list(&layout, spikes)?;
     recording.metadata.sample_interval_s = Some(1.0 / header.sample_rate_hz);
     if let Some(source) = recording
         .metadata

@@ -11,7 +11,11 @@ impl Recording {
     ///
     /// Every site with spikes must have a position: otherwise the error lists the unplaced
     /// sites. Sites with a position but no spikes are kept as silent sites and reported.
-    pub fn from_spike_list(layout: &Layout, spikes: &SpikeList) -> Result<Recording, ImportError> {
+    /// The spike list's trains move into the recording (a large list is not held twice).
+    pub fn from_spike_list(
+        layout: &Layout,
+        mut spikes: SpikeList,
+    ) -> Result<Recording, ImportError> {
         let index = site_index(layout);
         let unplaced: Vec<&str> = spikes
             .sites
@@ -28,8 +32,10 @@ impl Recording {
             ));
         }
         let mut trains_s = vec![Vec::new(); layout.sites.len()];
-        for s in &spikes.sites {
-            trains_s[index[s.site.as_str()]] = s.times_s.clone();
+        for s in &mut spikes.sites {
+            let mut train = std::mem::take(&mut s.times_s);
+            train.shrink_to_fit();
+            trains_s[index[s.site.as_str()]] = train;
         }
         let mut notices: Vec<Notice> = layout.notices.clone();
         notices.extend(spikes.notices.iter().cloned());

@@ -38,7 +38,7 @@ pub use stimuli::{
     read_stimuli, AmplitudeUnit, Stimulus, StimulusProtocol, AMPLITUDE_COLUMN_BASES,
     STIMULUS_COLUMN_BASES,
 };
-pub use table::{ImportLimits, LengthUnit, TimeUnit};
+pub use table::{ImportLimits, LengthUnit, TextSource, TimeUnit};
 pub use traces::{
     read_roi_traces, RoiSeries, RoiTraceTable, TraceGap, TraceOptions, FRAME_COLUMN_NAMES,
 };
@@ -129,6 +129,22 @@ pub fn read_recording(
     layout: (&str, &[u8]),
     options: &ReadOptions,
 ) -> Result<crate::recording::Recording, ImportError> {
+    read_recording_with(
+        (activity.0, TextSource::Bytes(activity.1)),
+        layout,
+        options,
+        &mut |_, _| {},
+    )
+}
+
+/// [`read_recording`], telling `progress(bytes read, bytes in all)` as the activity file's
+/// rows are read.
+pub fn read_recording_with(
+    activity: (&str, TextSource<'_>),
+    layout: (&str, &[u8]),
+    options: &ReadOptions,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<crate::recording::Recording, ImportError> {
     let layout = read_layout(
         layout.1,
         layout.0,
@@ -137,32 +153,34 @@ pub fn read_recording(
             limits: options.limits,
         },
     )?;
-    let (name, bytes) = activity;
+    let (name, source) = activity;
     let kind = match options.kind {
         Some(kind) => kind,
-        None => sniff_file_kind(bytes).unwrap_or(FileKind::SpikeList),
+        None => sniff_file_kind(source.head()).unwrap_or(FileKind::SpikeList),
     };
     match kind {
         FileKind::SpikeList => {
-            let spikes = read_spike_list(
-                bytes,
+            let spikes = spikes::read_spike_list_with(
+                source,
                 name,
                 &SpikeListOptions {
                     time_unit: options.time_unit,
                     limits: options.limits,
                 },
+                progress,
             )?;
-            crate::recording::Recording::from_spike_list(&layout, &spikes)
+            crate::recording::Recording::from_spike_list(&layout, spikes)
         }
         FileKind::RoiTraces => {
-            let traces = read_roi_traces(
-                bytes,
+            let traces = traces::read_roi_traces_with(
+                source,
                 name,
                 &TraceOptions {
                     time_unit: options.time_unit,
                     frame_rate_hz: options.frame_rate_hz,
                     limits: options.limits,
                 },
+                progress,
             )?;
             crate::recording::Recording::from_roi_traces(&layout, &traces)
         }

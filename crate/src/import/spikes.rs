@@ -1,7 +1,9 @@
 //! Spike lists: one row per spike, a site column and a time column.
 
 use super::error::{ImportError, ImportProblem};
-use super::table::{decimal_places, time_header, ImportLimits, Row, Table, TimeUnit, UnitHeader};
+use super::table::{
+    decimal_places, time_header, ImportLimits, Row, Table, TextSource, TimeUnit, UnitHeader,
+};
 use crate::place::{Notice, Place};
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
@@ -82,7 +84,18 @@ pub fn read_spike_list(
     file: &str,
     options: &SpikeListOptions,
 ) -> Result<SpikeList, ImportError> {
-    let mut table = Table::open(bytes, file, options.limits)?;
+    read_spike_list_with(TextSource::Bytes(bytes), file, options, &mut |_, _| {})
+}
+
+/// [`read_spike_list`] from a [`TextSource`], telling `progress(bytes read, bytes in all)` as
+/// it goes.
+pub fn read_spike_list_with(
+    source: TextSource<'_>,
+    file: &str,
+    options: &SpikeListOptions,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<SpikeList, ImportError> {
+    let mut table = Table::open_source(source, file, options.limits)?.with_progress(progress);
     let site_col = find_site_column(&table)?;
     let Some((time_col, time_unit)) = find_time_column(&table, options.time_unit, true, "")? else {
         unreachable!("a required time column is found or reported")

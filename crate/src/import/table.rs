@@ -190,59 +190,220 @@ impl Row {
     }
 }
 
+/// The bytes of a file on their way to the csv reader: checked as UTF-8 as they pass, and
+/// kept from the last counted line on, so line numbers come out right without the file
+/// being held whole (see [`Table::open_stream`]).
+#[derive(Default)]
+struct Window {
+    /// Offset in the text (after the byte-order mark) of `bytes[0]`.
+    start: usize,
+    bytes: Vec<u8>,
+    /// The tail of the last piece when it ended inside a UTF-8 sequence.
+    carry: Vec<u8>,
+    /// Offset of the first byte that is not UTF-8, once seen.
+    not_utf8_at: Option<usize>,
+}
+
+impl Window {
+    fn end(&self) -> usize {
+        self.start + self.bytes.len()
+    }
+
+    /// Takes in the next piece of the text; false when it holds a byte sequence that is not
+    /// UTF-8 (its offset is kept).
+    fn take(&mut self, piece: &[u8], at_end: bool) -> bool {
+        // The carried bytes are already in `bytes`: check from them on.
+        let checked_from = self.end() - self.carry.len();
+        self.bytes.extend_from_slice(piece);
+        let pending = &self.bytes[checked_from - self.start..];
+        let (carry, bad) = match std::str::from_utf8(pending) {
+            Ok(_) => (0, None),
+            // A sequence cut by the end of the piece: checked with the next one.
+            Err(e) if e.error_len().is_none() && !at_end => (pending.len() - e.valid_up_to(), None),
+            Err(e) => (0, Some(checked_from + e.valid_up_to())),
+        };
+        self.carry = self.bytes[self.bytes.len() - carry..].to_vec();
+        if bad.is_some() {
+            self.not_utf8_at = bad;
+        }
+        bad.is_none()
+    }
+}
+
+/// A reader that passes the text to the csv reader through a [`Window`].
+struct Feed<'a> {
+    source: Box<dyn std::io::Read + 'a>,
+    window: std::rc::Rc<std::cell::RefCell<Window>>,
+}
+
+impl std::io::Read for Feed<'_> {
+    fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.source.read(out)?;
+        if !self.window.borrow_mut().take(&out[..n], n == 0) {
+            return Err(std::io::Error::new(
+                std::io::ErrorKind::InvalidData,
+                "not UTF-8",
+            ));
+        }
+        Ok(n)
+    }
+}
+
+/// Where a table's text comes from: the whole file in memory, or a reader that gives it in
+/// pieces (a large file in the page), with its first bytes for telling what it holds.
+pub enum TextSource<'a> {
+    Bytes(&'a [u8]),
+    Stream {
+        /// The first bytes of the file (64 KiB is plenty), for sniffing.
+        head: &'a [u8],
+        /// Bytes in all.
+        len: u64,
+        /// The whole file from its start.
+        reader: Box<dyn std::io::Read + 'a>,
+    },
+}
+
+impl<'a> TextSource<'a> {
+    /// The file's first bytes (all of them, in memory).
+    pub fn head(&self) -> &[u8] {
+        match self {
+            TextSource::Bytes(b) => b,
+            TextSource::Stream { head, .. } => head,
+        }
+    }
+}
+
+/// Longest header line read before giving up, bytes.
+const MAX_HEADER_BYTES: usize = 1 << 20;
+
+/// Bytes of the window kept behind the counted line before they are let go.
+const WINDOW_SLACK_BYTES: usize = 1 << 16;
+
 /// An open delimited table: header read, rows still to come.
 pub(crate) struct Table<'a> {
     file: String,
-    /// The text after the byte-order mark; record byte offsets index into it.
-    text: &'a [u8],
+    /// The text after the byte-order mark as it streams past; record byte offsets index it.
+    window: std::rc::Rc<std::cell::RefCell<Window>>,
+    /// Bytes of text in all (the file less its byte-order mark), for progress.
+    text_len: usize,
     /// Line counting: the byte offset reached so far and the line number there.
     counted_to: usize,
     counted_line: u64,
     header_line: u64,
     headers: Vec<String>,
-    reader: csv::Reader<&'a [u8]>,
+    reader: csv::Reader<Feed<'a>>,
     decimal_comma: bool,
     limits: ImportLimits,
     rows_read: usize,
+    /// Told (bytes read, bytes in all) every [`PROGRESS_ROWS`] rows.
+    progress: Option<&'a mut dyn FnMut(u64, u64)>,
 }
 
+/// Rows between two progress reports of a table being read.
+pub(crate) const PROGRESS_ROWS: usize = 1 << 16;
+
 impl<'a> Table<'a> {
+    /// The table, telling `progress(bytes read, bytes in all)` as its rows are read.
+    pub fn with_progress(mut self, progress: &'a mut dyn FnMut(u64, u64)) -> Self {
+        self.progress = Some(progress);
+        self
+    }
+
     /// Opens `bytes` (the whole file) as a table with a header line.
     ///
     /// Accepts a UTF-8 byte-order mark, CRLF or LF line ends, `#` comment lines and blank
     /// lines. The delimiter is detected from the header line: tab, comma or semicolon.
     /// With a semicolon delimiter, a decimal comma in numbers is accepted.
     pub fn open(bytes: &'a [u8], file: &str, limits: ImportLimits) -> Result<Self, ImportError> {
+        Table::open_stream(Box::new(bytes), bytes.len() as u64, file, limits)
+    }
+
+    /// [`Table::open`] or [`Table::open_stream`], as the source is.
+    pub fn open_source(
+        source: TextSource<'a>,
+        file: &str,
+        limits: ImportLimits,
+    ) -> Result<Self, ImportError> {
+        match source {
+            TextSource::Bytes(bytes) => Table::open(bytes, file, limits),
+            TextSource::Stream { len, reader, .. } => Table::open_stream(reader, len, file, limits),
+        }
+    }
+
+    /// [`Table::open`] on a file read as it goes from `source` (`len` bytes in all): the file
+    /// is never held whole, only the line being read and the csv reader's buffer.
+    pub fn open_stream(
+        mut source: Box<dyn std::io::Read + 'a>,
+        len: u64,
+        file: &str,
+        limits: ImportLimits,
+    ) -> Result<Self, ImportError> {
+        use std::io::Read;
         let place = Place::file(file);
-        if bytes.len() > limits.max_bytes {
+        if len > limits.max_bytes as u64 {
             return Err(ImportError::new(
                 place,
                 ImportProblem::TooLarge,
                 format!(
-                    "the file is {} bytes, more than the limit of {} bytes; raise the limit if this file is expected",
-                    bytes.len(),
+                    "the file is {len} bytes, more than the limit of {} bytes; raise the limit if this file is expected",
                     limits.max_bytes
                 ),
             ));
         }
-        if let Err(e) = std::str::from_utf8(bytes) {
-            let at = e.valid_up_to();
-            let line = bytes[..at].iter().filter(|&&b| b == b'\n').count() as u64 + 1;
-            return Err(ImportError::new(
-                place.at_line(line),
-                ImportProblem::NotText,
-                "expected UTF-8 text, found a byte sequence that is not (is this a binary file or another text encoding?)",
-            ));
-        }
-        let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
-        let Some((header_line, header_text)) = first_content_line(bytes) else {
+        let read_failed = |e: std::io::Error| {
+            ImportError::new(
+                Place::file(file),
+                ImportProblem::BadValue,
+                format!("the file could not be read: {e}"),
+            )
+        };
+        // The head: up to the end of the first line that is neither blank nor a comment.
+        let mut head = Vec::new();
+        let mut at_end = false;
+        let header = loop {
+            let text = head.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(&head);
+            if let Some((line, header_text, complete)) = first_content_line(text) {
+                if complete || at_end {
+                    break Some((line, detect_delimiter(header_text)));
+                }
+            } else if at_end {
+                break None;
+            }
+            if head.len() >= MAX_HEADER_BYTES {
+                return Err(ImportError::new(
+                    place,
+                    ImportProblem::BadHeader,
+                    format!("expected a header line within the first {MAX_HEADER_BYTES} bytes, found none that ends there"),
+                ));
+            }
+            let mut piece = vec![0u8; 1 << 16];
+            let n = source.read(&mut piece).map_err(read_failed)?;
+            head.extend_from_slice(&piece[..n]);
+            at_end = n == 0;
+        };
+        let bom = if head.starts_with(b"\xEF\xBB\xBF") {
+            3
+        } else {
+            0
+        };
+        let window = std::rc::Rc::new(std::cell::RefCell::new(Window::default()));
+        let feed = Feed {
+            source: Box::new(std::io::Cursor::new(head.split_off(bom)).chain(source)),
+            window: window.clone(),
+        };
+        let Some((header_line, delimiter)) = header else {
+            // Nothing but blank and comment lines: the bytes must still be text.
+            let mut check = feed;
+            let _ = std::io::copy(&mut check, &mut std::io::sink());
+            if let Some(at) = window.borrow().not_utf8_at {
+                return Err(not_text(file, line_of(&window.borrow(), 0, 1, at)));
+            }
             return Err(ImportError::new(
                 place,
                 ImportProblem::Empty,
                 "the file is empty (no header line and no data)",
             ));
         };
-        let delimiter = detect_delimiter(header_text);
         let mut reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
             .comment(Some(b'#'))
@@ -250,14 +411,20 @@ impl<'a> Table<'a> {
             .trim(csv::Trim::None)
             .flexible(true)
             .has_headers(true)
-            .from_reader(bytes);
+            .from_reader(feed);
         let headers: Vec<String> = match reader.headers() {
             Ok(h) => h.iter().map(|f| f.trim().to_string()).collect(),
-            Err(e) => return Err(csv_error(file, Some(header_line), e)),
+            Err(e) => {
+                if let Some(at) = window.borrow().not_utf8_at {
+                    return Err(not_text(file, line_of(&window.borrow(), 0, 1, at)));
+                }
+                return Err(csv_error(file, Some(header_line), e));
+            }
         };
         let table = Table {
             file: file.to_string(),
-            text: bytes,
+            window,
+            text_len: (len as usize).saturating_sub(bom),
             counted_to: 0,
             counted_line: 1,
             header_line,
@@ -266,6 +433,7 @@ impl<'a> Table<'a> {
             decimal_comma: delimiter == b';',
             limits,
             rows_read: 0,
+            progress: None,
         };
         table.check_header()?;
         Ok(table)
@@ -318,8 +486,9 @@ impl<'a> Table<'a> {
     /// The csv reader reports a record's position from where it began reading, before the
     /// empty and `#` comment lines it skipped; this moves past them to the record itself.
     fn skip_ignored_lines(&self, mut offset: usize) -> usize {
-        while offset < self.text.len() {
-            let rest = &self.text[offset..];
+        let window = self.window.borrow();
+        while offset >= window.start && offset < window.end() {
+            let rest = &window.bytes[offset - window.start..];
             let end = rest.iter().position(|&b| b == b'\n');
             let line = &rest[..end.unwrap_or(rest.len())];
             let ignored = line.is_empty() || line == b"\r" || line.starts_with(b"#");
@@ -338,20 +507,36 @@ impl<'a> Table<'a> {
 
     /// Line number (from 1) of a byte offset, counting every line: the csv reader's own line
     /// count skips comment and blank lines, which would send the user to the wrong line.
-    /// Offsets arrive in increasing order, so counting resumes where it stopped.
+    /// Offsets arrive in increasing order, so counting resumes where it stopped, and the text
+    /// before it is let go.
     fn line_at(&mut self, offset: usize) -> u64 {
-        let offset = self.skip_ignored_lines(offset.min(self.text.len()));
-        if offset < self.counted_to {
-            self.counted_to = 0;
-            self.counted_line = 1;
+        let offset = self.skip_ignored_lines(offset);
+        if offset <= self.counted_to {
+            return self.counted_line;
         }
-        let newlines = self.text[self.counted_to..offset]
-            .iter()
-            .filter(|&&b| b == b'\n')
-            .count() as u64;
-        self.counted_line += newlines;
-        self.counted_to = offset;
+        let mut window = self.window.borrow_mut();
+        self.counted_line = line_of(&window, self.counted_to, self.counted_line, offset);
+        self.counted_to = offset.min(window.end());
+        if self.counted_to - window.start > WINDOW_SLACK_BYTES {
+            let drop = self.counted_to - window.start;
+            window.bytes.drain(..drop);
+            window.start = self.counted_to;
+        }
         self.counted_line
+    }
+
+    /// The located error for text that is not UTF-8, if the window saw such bytes.
+    fn not_text_error(&mut self) -> Option<ImportError> {
+        let at = self.window.borrow().not_utf8_at?;
+        Some(not_text(
+            &self.file,
+            line_of(
+                &self.window.borrow(),
+                self.counted_to,
+                self.counted_line,
+                at,
+            ),
+        ))
     }
 
     /// Reads the next data row; `None` at the end of the file. Lines of only spaces or
@@ -361,11 +546,20 @@ impl<'a> Table<'a> {
         loop {
             match self.reader.read_record(record) {
                 Ok(false) => return None,
+                Err(_) if self.window.borrow().not_utf8_at.is_some() => {
+                    return self.not_text_error().map(Err);
+                }
                 Err(e) => {
                     let line = e.position().map(|p| self.line_at(p.byte() as usize));
                     return Some(Err(csv_error(&self.file, line, e)));
                 }
-                Ok(true) if record.iter().all(|f| f.trim().is_empty()) => continue,
+                Ok(true) if record.iter().all(|f| f.trim().is_empty()) => {
+                    // Counted all the same, so the window lets go of it.
+                    if let Some(p) = record.position() {
+                        self.line_at(p.byte() as usize);
+                    }
+                    continue;
+                }
                 Ok(true) => break,
             }
         }
@@ -373,6 +567,12 @@ impl<'a> Table<'a> {
             .position()
             .map_or(0, |p| self.line_at(p.byte() as usize));
         self.rows_read += 1;
+        if self.rows_read % PROGRESS_ROWS == 0 {
+            let total = self.text_len as u64;
+            if let (Some(report), Some(p)) = (self.progress.as_mut(), record.position()) {
+                report(p.byte(), total);
+            }
+        }
         if self.rows_read > self.limits.max_rows {
             return Some(Err(ImportError::new(
                 self.place_line(line),
@@ -464,17 +664,38 @@ fn shorten(text: &str) -> String {
     }
 }
 
-/// First line that is neither blank nor a `#` comment, with its line number (from 1).
-fn first_content_line(bytes: &[u8]) -> Option<(u64, &[u8])> {
+/// First line that is neither blank nor a `#` comment, with its line number (from 1) and
+/// whether a line end follows it (else it may go on in bytes not yet read).
+fn first_content_line(bytes: &[u8]) -> Option<(u64, &[u8], bool)> {
+    let lines = bytes.split(|&b| b == b'\n').count();
     bytes
         .split(|&b| b == b'\n')
-        .map(|line| line.strip_suffix(b"\r").unwrap_or(line))
         .enumerate()
+        .map(|(i, line)| (i, line.strip_suffix(b"\r").unwrap_or(line)))
         .find(|(_, line)| {
             let trimmed = line.trim_ascii();
             !trimmed.is_empty() && !trimmed.starts_with(b"#")
         })
-        .map(|(i, line)| (i as u64 + 1, line))
+        .map(|(i, line)| (i as u64 + 1, line, i + 1 < lines))
+}
+
+/// The line number at byte offset `to`, counting the line ends after `from` (at line
+/// `line`) in the window's bytes.
+fn line_of(window: &Window, from: usize, line: u64, to: usize) -> u64 {
+    let a = from.max(window.start).min(window.end()) - window.start;
+    let b = to.max(window.start).min(window.end()) - window.start;
+    line + window.bytes[a..b.max(a)]
+        .iter()
+        .filter(|&&c| c == b'\n')
+        .count() as u64
+}
+
+fn not_text(file: &str, line: u64) -> ImportError {
+    ImportError::new(
+        Place::file(file).at_line(line),
+        ImportProblem::NotText,
+        "expected UTF-8 text, found a byte sequence that is not (is this a binary file or another text encoding?)",
+    )
 }
 
 /// Tab if the header has one, else comma, else semicolon, else comma (a single column).

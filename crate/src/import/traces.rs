@@ -2,7 +2,7 @@
 
 use super::error::{ImportError, ImportProblem};
 use super::spikes::{find_time_column, unit_words};
-use super::table::{ImportLimits, Row, Table, TimeUnit};
+use super::table::{ImportLimits, Row, Table, TextSource, TimeUnit};
 use crate::place::{Notice, Place};
 use serde::{Deserialize, Serialize};
 
@@ -74,6 +74,17 @@ pub fn read_roi_traces(
     file: &str,
     options: &TraceOptions,
 ) -> Result<RoiTraceTable, ImportError> {
+    read_roi_traces_with(TextSource::Bytes(bytes), file, options, &mut |_, _| {})
+}
+
+/// [`read_roi_traces`] from a [`TextSource`], telling `progress(bytes read, bytes in all)` as
+/// it goes.
+pub fn read_roi_traces_with(
+    source: TextSource<'_>,
+    file: &str,
+    options: &TraceOptions,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<RoiTraceTable, ImportError> {
     if let Some(rate) = options.frame_rate_hz {
         if !(rate.is_finite() && rate > 0.0) {
             return Err(ImportError::new(
@@ -83,7 +94,7 @@ pub fn read_roi_traces(
             ));
         }
     }
-    let mut table = Table::open(bytes, file, options.limits)?;
+    let mut table = Table::open_source(source, file, options.limits)?.with_progress(progress);
     let time = find_time_column(
         &table,
         options.time_unit,

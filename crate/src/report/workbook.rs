@@ -14,7 +14,7 @@ use super::{inspect, AnalysisReport, Inspection};
 use crate::detect::PopulationRate;
 use crate::fronts::AnalysisSettings;
 use crate::geometry::{fit_track, TrackFit, TrackSettings};
-use crate::import::{read_recording, ReadOptions};
+use crate::import::ReadOptions;
 use crate::recording::{Activity, Recording};
 use crate::report::figures::TrainKind;
 use crate::Error;
@@ -312,6 +312,20 @@ pub fn request_name(request: &FigureRequest) -> String {
         .unwrap_or_default()
 }
 
+/// A reader that takes the SHA-256 of what passes through it.
+struct Hashing<'r> {
+    inner: Box<dyn std::io::Read + 'r>,
+    hash: std::rc::Rc<std::cell::RefCell<Sha256>>,
+}
+
+impl std::io::Read for Hashing<'_> {
+    fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(out)?;
+        self.hash.borrow_mut().update(&out[..n]);
+        Ok(n)
+    }
+}
+
 /// The bins a histogram request asks for: a count, or Freedman-Diaconis.
 fn bin_rule(bins: Option<usize>) -> figures::BinRule {
     bins.map_or(figures::BinRule::FreedmanDiaconis, figures::BinRule::Count)
@@ -381,6 +395,21 @@ pub struct Workbook {
     digests: [std::cell::OnceCell<String>; 3],
     /// Raw voltage: the file's header, to read the voltage around spikes again.
     voltage_header: Option<crate::import::VoltageHeader>,
+    /// The activity file's size when it was read as a stream and is not held.
+    streamed_activity_bytes: Option<u64>,
+}
+
+/// One input file as the workbook knows it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct HeldFile<'a> {
+    /// `activity`, `layout` or `stimuli`.
+    pub role: &'static str,
+    pub name: &'a str,
+    pub size_bytes: u64,
+    /// SHA-256, lower-case hex.
+    pub sha256: &'a str,
+    /// Its bytes, unless it was read as a stream.
+    pub bytes: Option<&'a [u8]>,
 }
 
 impl Workbook {
@@ -391,13 +420,25 @@ impl Workbook {
         layout: (&str, &[u8]),
         settings: StepSettings,
     ) -> Result<Workbook, Error> {
-        let recording = read_recording(activity, layout, &settings.read)?;
-        Workbook::with_track(
-            (activity.0.to_string(), activity.1.to_vec()),
+        let activity = (activity.0.to_string(), activity.1.to_vec());
+        Workbook::open_owned(activity, layout, settings, &mut |_, _| {})
+    }
+
+    /// [`Workbook::open`] taking the activity file's bytes over (no second copy of a large
+    /// file), telling `progress(bytes read, bytes in all)` as its rows are read.
+    pub fn open_owned(
+        activity: (String, Vec<u8>),
+        layout: (&str, &[u8]),
+        settings: StepSettings,
+        progress: &mut dyn FnMut(u64, u64),
+    ) -> Result<Workbook, Error> {
+        let recording = crate::import::read_recording_with(
+            (&activity.0, crate::import::TextSource::Bytes(&activity.1)),
             layout,
-            settings,
-            recording,
-        )
+            &settings.read,
+            progress,
+        )?;
+        Workbook::with_track(activity, layout, settings, recording)
     }
 
     /// The workbook of a read recording: fits the track; no analysis yet.
@@ -424,6 +465,7 @@ impl Workbook {
             voltage_input: None,
             digests: Default::default(),
             voltage_header: None,
+            streamed_activity_bytes: None,
         })
     }
 
@@ -465,6 +507,51 @@ impl Workbook {
         workbook.analyze(analysis, &mut |d, t| {
             progress("analysing bursts", d as u64, t as u64)
         })?;
+        Ok(workbook)
+    }
+
+    /// [`Workbook::open`] on an activity file read as a stream (a large file in the page):
+    /// `head` is its first bytes, `reader` gives the whole file from its start (`len` bytes).
+    /// The file is never held whole: its SHA-256 is taken as it passes and kept with its size,
+    /// so notebooks name it by digest. `progress(bytes read, bytes in all)` as rows are read.
+    #[allow(clippy::too_many_arguments)]
+    pub fn open_stream(
+        name: &str,
+        head: &[u8],
+        len: u64,
+        reader: Box<dyn std::io::Read + '_>,
+        layout: (&str, &[u8]),
+        settings: StepSettings,
+        progress: &mut dyn FnMut(u64, u64),
+    ) -> Result<Workbook, Error> {
+        let hash = std::rc::Rc::new(std::cell::RefCell::new(Sha256::new()));
+        let hashing = Hashing {
+            inner: reader,
+            hash: hash.clone(),
+        };
+        let recording = crate::import::read_recording_with(
+            (
+                name,
+                crate::import::TextSource::Stream {
+                    head,
+                    len,
+                    reader: Box::new(hashing),
+                },
+            ),
+            layout,
+            &settings.read,
+            progress,
+        )?;
+        let mut workbook =
+            Workbook::with_track((name.to_string(), Vec::new()), layout, settings, recording)?;
+        let digest: String = hash
+            .take()
+            .finalize()
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect();
+        let _ = workbook.digests[0].set(digest);
+        workbook.streamed_activity_bytes = Some(len);
         Ok(workbook)
     }
 
@@ -980,9 +1067,9 @@ impl Workbook {
         }
     }
 
-    /// The input files by role: (role, name, bytes, SHA-256). What a notebook names and an
-    /// autosave keeps apart from the notebook that refers to them.
-    pub fn input_bytes(&self) -> Vec<(&'static str, &str, &[u8], &str)> {
+    /// The input files by role, with their sizes, digests and (when the workbook holds them)
+    /// bytes: what a notebook names and an autosave keeps apart from the notebook.
+    pub fn held_files(&self) -> Vec<HeldFile<'_>> {
         [
             Some(("activity", &self.activity, &self.digests[0])),
             Some(("layout", &self.layout, &self.digests[1])),
@@ -993,26 +1080,30 @@ impl Workbook {
         .into_iter()
         .flatten()
         .map(|(role, (name, bytes), digest)| {
-            (
+            // A streamed activity file is not held: its size and digest were kept instead.
+            let streamed = role == "activity" && self.streamed_activity_bytes.is_some();
+            HeldFile {
                 role,
-                name.as_str(),
-                bytes.as_slice(),
-                digest.get_or_init(|| sha256_hex(bytes)).as_str(),
-            )
+                name: name.as_str(),
+                size_bytes: match (streamed, self.streamed_activity_bytes) {
+                    (true, Some(size)) => size,
+                    _ => bytes.len() as u64,
+                },
+                sha256: digest.get_or_init(|| sha256_hex(bytes)).as_str(),
+                bytes: (!streamed).then_some(bytes.as_slice()),
+            }
         })
         .collect()
     }
 
-    /// The input files a shared notebook cannot hold (larger than [`EMBED_LIMIT_BYTES`] or
-    /// not UTF-8 text): (name, size in bytes). The notebook names them by SHA-256, and
-    /// re-opens when they are dropped with it.
-    pub fn files_not_embedded(&self) -> Vec<(String, usize)> {
-        self.input_bytes()
+    /// The input files a shared notebook cannot hold (larger than [`EMBED_LIMIT_BYTES`], not
+    /// UTF-8 text, or read as a stream): (name, size in bytes). The notebook names them by
+    /// SHA-256, and re-opens when they are dropped with it.
+    pub fn files_not_embedded(&self) -> Vec<(String, u64)> {
+        self.held_files()
             .into_iter()
-            .filter(|(_, _, bytes, _)| {
-                bytes.len() > EMBED_LIMIT_BYTES || std::str::from_utf8(bytes).is_err()
-            })
-            .map(|(_, name, bytes, _)| (name.to_string(), bytes.len()))
+            .filter(|f| f.bytes.and_then(embeddable).is_none())
+            .map(|f| (f.name.to_string(), f.size_bytes))
             .collect()
     }
 
@@ -1031,20 +1122,16 @@ impl Workbook {
         self.voltage_input
             .iter()
             .cloned()
-            .chain(
-                self.input_bytes()
-                    .into_iter()
-                    .map(|(role, name, bytes, digest)| InputFile {
-                        role: if detected && role == "activity" {
-                            "detected spikes".into()
-                        } else {
-                            role.into()
-                        },
-                        name: name.into(),
-                        size_bytes: bytes.len() as u64,
-                        sha256: Some(digest.into()),
-                    }),
-            )
+            .chain(self.held_files().into_iter().map(|f| InputFile {
+                role: if detected && f.role == "activity" {
+                    "detected spikes".into()
+                } else {
+                    f.role.into()
+                },
+                name: f.name.into(),
+                size_bytes: f.size_bytes,
+                sha256: Some(f.sha256.into()),
+            }))
             .collect()
     }
 
@@ -1131,15 +1218,15 @@ impl Workbook {
             schema: NOTEBOOK_SCHEMA,
             program: format!("ringline {}", env!("CARGO_PKG_VERSION")),
             files: self
-                .input_bytes()
+                .held_files()
                 .into_iter()
-                .map(|(role, name, bytes, digest)| NotebookFile {
-                    role: role.into(),
-                    name: name.into(),
-                    size_bytes: bytes.len(),
-                    sha256: digest.into(),
+                .map(|f| NotebookFile {
+                    role: f.role.into(),
+                    name: f.name.into(),
+                    size_bytes: f.size_bytes as usize,
+                    sha256: f.sha256.into(),
                     content: match embedding {
-                        Embedding::UpToLimit => embeddable(bytes),
+                        Embedding::UpToLimit => f.bytes.and_then(embeddable),
                         Embedding::None => None,
                     },
                 })
