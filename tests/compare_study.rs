@@ -59,6 +59,47 @@ fn run_compare(
 }
 
 /// The study in `dir/study` compared on one metric, into `dir/METRIC/`: its comparisons.csv.
+/// The study report: no script and nothing fetched; the study table it read named by its
+/// SHA-256 (against coreutils' `sha256sum`); every comparison of comparisons.csv and every
+/// recording of the manifest in its tables; every estimation plot and level curve drawn.
+fn check_study_report(dir: &std::path::Path) {
+    let html = std::fs::read_to_string(dir.join("study-report.html")).unwrap();
+    assert!(!html.to_lowercase().contains("<script"));
+    assert!(
+        html.contains("content=\"default-src 'none'; style-src 'unsafe-inline'; img-src data:\"")
+    );
+    let digest = std::process::Command::new("sha256sum")
+        .arg(dir.join("study/recordings.csv"))
+        .output()
+        .unwrap();
+    let digest = String::from_utf8(digest.stdout).unwrap()[..64].to_string();
+    assert!(html.contains(&format!("<td>{digest}</td>")));
+    let (_, rows) = comparisons(&dir.join("study/comparisons.csv"));
+    let table = |caption: &str| {
+        let at = html.find(&format!("<caption>{caption}")).unwrap();
+        let end = at + html[at..].find("</table>").unwrap();
+        html[at..end].matches("<tr>").count() - 1 // less the header row
+    };
+    assert_eq!(table("Comparisons"), rows.len());
+    let manifest = std::fs::read_to_string(dir.join("study.csv")).unwrap();
+    assert_eq!(table("Recordings"), manifest.lines().count() - 1);
+    let svgs = std::fs::read_dir(dir.join("study"))
+        .unwrap()
+        .filter(|e| {
+            e.as_ref()
+                .unwrap()
+                .path()
+                .extension()
+                .is_some_and(|x| x == "svg")
+        })
+        .count();
+    assert!(svgs >= 3);
+    assert_eq!(
+        html.matches("src=\"data:image/svg+xml;base64,").count(),
+        svgs
+    );
+}
+
 fn compare_one(dir: &std::path::Path, metric: &str) -> (csv::StringRecord, Vec<csv::StringRecord>) {
     run_compare(dir, "study", metric, metric, &[]);
     comparisons(&dir.join(metric).join("comparisons.csv"))
@@ -98,8 +139,9 @@ fn an_ordered_calcium_series_shows_its_change_at_the_culture_level() {
         "study.csv",
         "study",
         "median_speed_mm_s,burst_rate_per_min",
-        &[],
+        &["--report", "study-report.html"],
     );
+    check_study_report(&dir);
     assert!(dir.join("study/recordings/ca0-c0-r0/fronts.csv").is_file());
     let text = String::from_utf8_lossy(&stdout);
     eprintln!("{text}");

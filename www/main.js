@@ -1102,6 +1102,7 @@ async function compareStudy(event) {
   for (const m of r.units) select.append(new Option(m.metric, m.metric));
   $('compare-results').hidden = false;
   $('compare-save').disabled = false;
+  $('compare-report').disabled = false;
   showEstimation();
 }
 
@@ -1454,6 +1455,9 @@ function wire() {
   $('compare-form').addEventListener('submit', (e) => compareStudy(e).catch((err) => showError('input-error', err)));
   $('compare-metric').addEventListener('change', showEstimation);
   $('response-site').addEventListener('change', () => drawResponseCurve().catch((e) => showError('input-error', e)));
+  $('compare-report').addEventListener('click', () => {
+    if (state.comparison) download('study-report.html', state.comparison.report_html, 'text/html');
+  });
   $('compare-save').addEventListener('click', () => {
     const file = state.comparison?.files.find((x) => x[0] === 'comparisons.csv');
     if (file) download('comparisons.csv', file[1], 'text/csv');

@@ -1035,12 +1035,17 @@ pub fn compare_study(
         report: crate::study::compare::CompareReport,
         text: String,
         files: Vec<(String, String)>,
+        /// The study report (the bytes of `ringline compare --report`).
+        report_html: String,
     }
     let files = crate::report::compare_figures::compare_output_files(&report);
+    let report_html =
+        crate::report::study_document::study_document(&report, &texts, &files).to_html();
     to_js(&Compared {
         text: report.to_text(),
         report,
         files,
+        report_html,
     })
 }
 

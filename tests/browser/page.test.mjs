@@ -532,8 +532,8 @@ test('an ordered calcium series compared in the page shows its rising speed, as 
   });
   writeFileSync(join(dir, 'study.csv'), manifest);
   const metrics = 'median_speed_mm_s,speed_mm_s';
-  execFileSync(cli, ['compare', 'study.csv', '--out', 'cli', '--by', 'calcium_mM', '--unit', 'culture', '--metrics', metrics],
-    { cwd: dir, stdio: 'ignore' });
+  execFileSync(cli, ['compare', 'study.csv', '--out', 'cli', '--by', 'calcium_mM', '--unit', 'culture', '--metrics', metrics,
+    '--report', 'study-report.html'], { cwd: dir, stdio: 'ignore' });
 
   const { page, context, errors } = await openPage(base);
   await dropFiles(page, [{ name: 'study.csv', text: manifest }, ...files]);
@@ -551,6 +551,9 @@ test('an ordered calcium series compared in the page shows its rising speed, as 
   for (const name of ['comparisons.csv', 'estimation-median_speed_mm_s.svg', 'levels-median_speed_mm_s.svg', 'levels-speed_mm_s.svg']) {
     assert.equal(files2[name], readFileSync(join(dir, 'cli', name), 'utf8'), `${name} differs from ringline compare`);
   }
+  // The study report: the command line's bytes, saved from the page.
+  const report = await downloadText(page, '#compare-report');
+  assert.equal(report, readFileSync(join(dir, 'study-report.html'), 'utf8'), 'the study report differs from ringline compare --report');
   // The ordered change against the truth: both effects positive and rising, each interval
   // holding its true difference, and the trend test's exact p small (3 ordered groups of 3:
   // a perfect order has two-sided p 2/1680; Jonckheere 1954).

@@ -153,6 +153,11 @@ struct CompareArgs {
     /// Print one JSON document on stdout instead of text.
     #[arg(long)]
     json: bool,
+    /// Write one self-contained HTML study report (the study tables' SHA-256, every setting,
+    /// the comparisons, the estimation plots and level curves, the recordings, what was left
+    /// out); the page's "Save the study report" writes the same bytes.
+    #[arg(long, value_name = "FILE")]
+    report: Option<String>,
     /// Recordings analysed at once when STUDY is a manifest [default: one per core].
     #[arg(long, value_name = "N")]
     jobs: Option<usize>,
@@ -310,6 +315,11 @@ fn compare(args: &CompareArgs) -> Result<i32, Failure> {
     let files = crate::report::compare_figures::compare_output_files(&report);
     for (name, text) in &files {
         std::fs::write(out.join(name), text).map_err(Failure::Output)?;
+    }
+    if let Some(path) = &args.report {
+        let document = crate::report::study_document::study_document(&report, &texts, &files);
+        std::fs::write(path, document.to_html()).map_err(Failure::Output)?;
+        eprintln!("wrote the study report to {path}");
     }
     if args.json {
         println!("{}", report.to_json());

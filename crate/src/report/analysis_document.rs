@@ -40,27 +40,7 @@ pub fn analysis_document(
     sections.push(Section {
         heading: "Inputs".into(),
         blocks: vec![
-            Block::Table(Table {
-                caption: "Files read".into(),
-                header: vec![
-                    "role".into(),
-                    "file".into(),
-                    "size (bytes)".into(),
-                    "SHA-256".into(),
-                ],
-                rows: inputs
-                    .iter()
-                    .map(|f| {
-                        vec![
-                            f.role.clone(),
-                            f.name.clone(),
-                            f.size_bytes.to_string(),
-                            f.sha256.clone().unwrap_or_else(|| "not computed".into()),
-                        ]
-                    })
-                    .collect(),
-                collapsed: false,
-            }),
+            Block::Table(inputs_table(inputs)),
             Block::Paragraph {
                 text: format!(
                     "Analysed by ringline {} (analysis document schema {}).",
@@ -150,6 +130,31 @@ pub fn analysis_document(
     }
 }
 
+/// The files read, with their sizes and SHA-256.
+pub(crate) fn inputs_table(inputs: &[InputFile]) -> Table {
+    Table {
+        caption: "Files read".into(),
+        header: vec![
+            "role".into(),
+            "file".into(),
+            "size (bytes)".into(),
+            "SHA-256".into(),
+        ],
+        rows: inputs
+            .iter()
+            .map(|f| {
+                vec![
+                    f.role.clone(),
+                    f.name.clone(),
+                    f.size_bytes.to_string(),
+                    f.sha256.clone().unwrap_or_else(|| "not computed".into()),
+                ]
+            })
+            .collect(),
+        collapsed: false,
+    }
+}
+
 /// Every burst with its front (or why it has none).
 fn fronts_table(report: &AnalysisReport) -> Table {
     let header = [
@@ -210,7 +215,7 @@ fn fronts_table(report: &AnalysisReport) -> Table {
 }
 
 /// Every key of a settings JSON document as `a.b.c = value`, in the document's order.
-fn settings_table(settings: &serde_json::Value) -> Table {
+pub(crate) fn settings_table(settings: &serde_json::Value) -> Table {
     fn walk(prefix: &str, value: &serde_json::Value, rows: &mut Vec<Vec<String>>) {
         match value {
             serde_json::Value::Object(map) => {

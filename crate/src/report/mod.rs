@@ -11,6 +11,7 @@ mod inspection;
 pub mod response_figures;
 mod response_tables;
 pub mod rhythm_figures;
+pub mod study_document;
 mod svg;
 pub mod truth;
 pub mod workbook;
