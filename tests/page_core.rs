@@ -656,3 +656,47 @@ fn a_streamed_activity_file_reads_as_the_whole_file_does() {
         }
     }
 }
+
+/// The page's sentences state the report's numbers with their units (one wording, in the
+/// core): the track, every burst's front, the step paragraphs (the text report's lines).
+#[test]
+fn the_page_sentences_state_the_reports_numbers_with_units() {
+    use ringline::report::page_text::{burst_sentence, step_texts, track_sentence};
+    let wb = analysed("strip-16");
+    let r = wb.report().unwrap();
+    let track = track_sentence(wb.inspection());
+    assert!(
+        track.starts_with(&format!("{} sites", wb.inspection().site_count)),
+        "{track}"
+    );
+    assert!(
+        track.contains(&format!("track: {}", r.track.kind)),
+        "{track}"
+    );
+    for b in &r.bursts {
+        let s = burst_sentence(b);
+        assert!(
+            s.starts_with(&format!(
+                "Burst {} ({:.3} s to {:.3} s)",
+                b.burst, b.start_s, b.end_s
+            )),
+            "{s}"
+        );
+        match &b.front {
+            Some(f) => assert!(
+                s.contains(&format!("front at {:.1} mm/s", f.speed_mm_s)),
+                "{s}"
+            ),
+            None => assert!(s.contains("no front"), "{s}"),
+        }
+    }
+    let steps = step_texts(r);
+    let text = r.to_text();
+    for (paragraph, label) in [(&steps.rhythm, "Rhythm"), (&steps.synchrony, "Synchrony")] {
+        let line = text.lines().find(|l| l.starts_with(label)).unwrap();
+        assert_eq!(*paragraph, format!("{label}: {}.", line[15..].trim()));
+    }
+    assert!(steps
+        .bursts
+        .starts_with(&format!("Bursts: {}", r.summary.burst_count)));
+}

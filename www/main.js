@@ -538,9 +538,14 @@ async function drawFigure(name, extra = {}) {
 
 // ---------------------------------------------------------------- step 2: track
 
-function fmt(value, digits = 1, unit = '') {
-  if (value === null || value === undefined || Number.isNaN(value)) return '—';
-  return `${Number(value).toFixed(digits)}${unit ? ` ${unit}` : ''}`;
+/** Fills a table's body with the rows of a core table (`{ header, rows }`), as text. */
+function fillTable(table, { rows }) {
+  const body = table.tBodies[0];
+  body.replaceChildren();
+  for (const cells of rows) {
+    const row = body.insertRow();
+    for (const text of cells) row.insertCell().textContent = text;
+  }
 }
 
 function fillNotices(listId, notices) {
@@ -557,18 +562,7 @@ function fillNotices(listId, notices) {
 
 async function renderTrack() {
   const i = state.inspection;
-  const t = i.track;
-  const parts = [
-    `${i.site_count} sites (${i.silent_sites.length} silent)`,
-    `${i.spike_count ?? 0} spikes over ${fmt(i.duration_s, 1, 's')}`,
-    `track: ${t.kind} (${t.chosen_by === 'auto' ? 'detected' : 'chosen'}; ${t.reason})`,
-  ];
-  if (t.length_um !== null) parts.push(`length ${fmt(t.length_um, 0, 'µm')}`);
-  if (t.radius_um !== null) parts.push(`radius ${fmt(t.radius_um, 0, 'µm')}`);
-  if (t.residual_rms_um !== null) parts.push(`residual ${fmt(t.residual_rms_um, 1, 'µm')} RMS`);
-  if (t.site_spacing_um !== null) parts.push(`site spacing ${fmt(t.site_spacing_um, 0, 'µm')}`);
-  if (t.off_track_sites.length) parts.push(`off the track: ${t.off_track_sites.join(', ')}`);
-  $('track-text').textContent = `${parts.join('; ')}.`;
+  $('track-text').textContent = (await call('words', {})).track;
   fillNotices('track-notices', i.notices);
   $('step-track').hidden = false;
   await drawFigure('site_map');
@@ -636,9 +630,7 @@ async function renderResults() {
   const s = r.summary;
   document.querySelector('[data-name="electrodes.csv"]').hidden = !r.electrodes;
   $('burst-results').hidden = false;
-  $('burst-text').textContent = `${s.burst_count} bursts (${fmt(s.burst_rate_per_min, 2, 'per min')}); `
-    + `median interburst interval ${fmt(s.ibi.median_s, 2, 's')} (IQR ${fmt(s.ibi.iqr_s, 2, 's')}, CV ${fmt(s.ibi.cv, 2)}); `
-    + `${s.front_count} with a front, ${s.no_front_count} without (${s.synchronous_count} synchronous, ${s.unresolved_count} too fast to resolve).`;
+  $('burst-text').textContent = (await call('words', {})).steps.bursts;
   const [from, to] = state.settings.view.window_s ?? [null, null];
   const w = $('window-form').elements;
   if (from !== null) { w.from.value = from; w.to.value = to; }
@@ -661,22 +653,8 @@ async function renderTruth() {
   $('truth-block').hidden = true;
   if (!state.truthText) return;
   const c = await call('compareTruth', { truth: state.truthText });
-  $('truth-text').textContent = `${c.true_fronts} true fronts, ${c.measured} measured; `
-    + `median speed ${fmt(c.median_speed_mm_s, 1, 'mm/s')} against ${fmt(c.median_true_speed_mm_s, 1, 'mm/s')} true; `
-    + `median |error| ${fmt(c.median_abs_relative_error === null ? null : 100 * c.median_abs_relative_error, 1, '%')}; `
-    + `the 95% interval holds the true speed for ${fmt(c.interval_coverage === null ? null : 100 * c.interval_coverage, 0, '%')} of measured fronts.`;
-  const body = $('truth-table').tBodies[0];
-  body.replaceChildren();
-  for (const r of c.rows) {
-    const row = body.insertRow();
-    const cells = [
-      String(r.truth_burst), fmt(r.true_start_s, 3), fmt(r.true_speed_mm_s, 1),
-      r.burst === null ? '—' : String(r.burst), fmt(r.speed_mm_s, 1),
-      r.speed_ci95_mm_s ? `${fmt(r.speed_ci95_mm_s[0], 1)} to ${fmt(r.speed_ci95_mm_s[1], 1)}` : '—',
-      r.relative_error === null ? '—' : `${r.relative_error >= 0 ? '+' : ''}${fmt(100 * r.relative_error, 1)}%`,
-    ];
-    for (const text of cells) row.insertCell().textContent = text;
-  }
+  $('truth-text').textContent = c.sentence;
+  fillTable($('truth-table'), c.table);
   $('truth-block').hidden = false;
 }
 
@@ -705,14 +683,7 @@ async function selectBurst(number) {
   state.settings.view = view;
   scheduleAutosave();
   $('burst-number').value = n;
-  const b = bursts[n - 1];
-  const f = b.front;
-  $('front-text').textContent = f
-    ? `Burst ${b.burst} (${fmt(b.start_s, 3, 's')} to ${fmt(b.end_s, 3, 's')}): ${f.model.replaceAll('_', ' ')} front at `
-      + `${fmt(f.speed_mm_s, 1, 'mm/s')} (95% interval ${fmt(f.speed_ci95_mm_s[0], 1)} to ${fmt(f.speed_ci95_mm_s[1], 1, 'mm/s')}), `
-      + `from site ${f.origin_site}${f.travel ? `, travelling towards ${f.travel} track coordinate` : ''}${f.rotation ? `, rotation ${f.rotation}` : ''}; `
-      + `${f.sites_used} sites, residual ${fmt(f.residual_rms_ms, 2, 'ms')} RMS${f.failed ? '; stopped short (propagation failure)' : ''}.`
-    : `Burst ${b.burst} (${fmt(b.start_s, 3, 's')} to ${fmt(b.end_s, 3, 's')}): no front: ${b.no_front_reason}.`;
+  $('front-text').textContent = (await call('words', { burst: n })).burst;
   $('readout').textContent = READOUT_HINT;
   readoutIndex = -1;
   await drawFigure('activation');
@@ -745,34 +716,10 @@ function drawHistogram(name, field) {
 
 /** Step 5: the numbers come from the report; this only words them and asks for figures. */
 async function renderRhythm() {
-  const r = state.report;
-  const sp = r.rhythm;
-  $('rhythm-text').textContent = sp
-    ? `Spectrum peak at ${fmt(sp.peak_frequency_hz, 3, 'Hz')} (bandwidth ${fmt(sp.peak_bandwidth_hz, 3, 'Hz')}), `
-      + `${fmt(sp.peak_over_floor, 1)} times the Poisson floor and ${fmt(sp.peak_over_local, 1)} times its surroundings `
-      + `(a rhythm needs ${fmt(sp.rhythm_threshold, 1)} times both): ${sp.is_rhythm ? 'a rhythm' : 'no rhythm'}. `
-      + `Resolution ${fmt(sp.resolution_hz, 4, 'Hz')} from ${sp.segments_used} segments of ${fmt(sp.segment_s, 0, 's')}.`
-    : 'No spectrum: the recording is shorter than one segment.';
-  const st = r.site_rhythms;
-  $('sites-text').textContent = st
-    ? `${st.regular_sites} sites fire regularly on their own (outside network bursts)`
-      + (st.mean_frequency_alone_hz !== null ? `, at ${fmt(st.mean_frequency_alone_hz, 3, 'Hz')} on average`
-        + (st.mean_frequency_alone_ci95_hz ? ` (95% interval ${fmt(st.mean_frequency_alone_ci95_hz[0], 3)} to ${fmt(st.mean_frequency_alone_ci95_hz[1], 3, 'Hz')})` : '') : '')
-      + `; network bursts at ${fmt(st.network_frequency_hz, 3, 'Hz')}. `
-      + `${st.sites_bursting} sites burst on their own (MaxInterval), a median ${fmt(st.median_site_burst_rate_per_min, 2, 'bursts per min')} per site.`
-    : '';
-  const y = r.synchrony;
-  const o = y?.order;
-  $('synchrony-text').textContent = y
-    ? `Mean STTC ${fmt(y.mean_sttc, 3)} over ${y.pairs} pairs (window ${fmt(1000 * y.sttc_dt_s, 0, 'ms')})`
-      + (o ? `; Kuramoto R ${fmt(o.mean_r, 3)} against ${fmt(o.chance_r, 3)} for independent phases of ${fmt(o.mean_sites_with_phase, 0)} sites.` : '.')
-    : '';
-  const l = y?.lags;
-  $('lags-text').textContent = l
-    ? `${l.pairs_with_lag} of ${l.pairs} neighbouring pairs have a lag; they imply ${fmt(l.implied_speed_mm_s, 1, 'mm/s')}`
-      + (l.implied_speed_ci95_mm_s ? ` (95% interval ${fmt(l.implied_speed_ci95_mm_s[0], 1)} to ${l.implied_speed_ci95_mm_s[1] === null ? 'no upper bound' : fmt(l.implied_speed_ci95_mm_s[1], 1, 'mm/s')})` : '')
-      + `, beside the fronts' median ${fmt(r.summary.median_speed_mm_s, 1, 'mm/s')}.`
-    : 'No lags: they need sites on a track.';
+  const { steps } = await call('words', {});
+  for (const [id, text] of [['rhythm-text', steps.rhythm], ['sites-text', steps.sites], ['synchrony-text', steps.synchrony], ['lags-text', steps.lags]]) {
+    $(id).textContent = text;
+  }
   $('step-rhythm').hidden = false;
   for (const name of ['rate_spectrum', 'site_frequencies', 'sttc_matrix', 'lags']) await drawFigure(name);
 }
@@ -782,33 +729,9 @@ async function renderResponse() {
   const r = state.report?.response;
   $('step-response').hidden = !r;
   if (!r) return;
-  const unit = { volt: 'V', millivolt: 'mV', volt_per_metre: 'V/m', microampere: 'µA', milliampere: 'mA' }[r.unit];
-  const f = r.population.fit;
-  const ci = (c) => (c ? ` (95% profile interval ${fmt(c[0], 4)} to ${fmt(c[1], 4, unit)})` : '');
-  const fit = {
-    fitted: () => `50% of sites respond at ${fmt(f.threshold, 4, unit)}${ci(f.threshold_ci)}; thresholds spread ${fmt(f.width, 4, unit)} (SD); deviance ${fmt(f.deviance, 2)} on ${f.degrees_of_freedom} degrees of freedom`,
-    separated: () => `an all-or-none step between ${fmt(f.below, 4)} and ${fmt(f.above, 4, unit)}: the threshold lies there, and no curve can be fitted`,
-    none_responded: () => `no response above chance: the threshold is above ${fmt(f.highest, 4, unit)}`,
-    all_responded: () => `every site responded: the threshold is below ${fmt(f.lowest, 4, unit)}`,
-    one_amplitude: () => `one amplitude only: no curve`,
-    no_rise: () => 'the share responding does not rise with the amplitude',
-    not_fitted: () => `not fitted: ${f.reason}`,
-  }[f.kind]();
-  $('response-text').textContent = `${r.stimuli.length} stimuli from ${r.protocol_file}; a site responds with an event `
-    + `${fmt(r.settings.blank_ms, 1)} to ${fmt(r.settings.window_ms, 0, 'ms')} after a stimulus. `
-    + `Spontaneous chance of an event in such a window: ${fmt(r.population.spontaneous_probability, 3)} `
-    + `(from the ${fmt(r.baseline_s, 1, 's')} before the first stimulus). ${fit}.`;
-  const body = $('response-table').tBodies[0];
-  body.replaceChildren();
-  for (const p of r.population.points) {
-    const tr = body.insertRow();
-    const n = r.stimuli.filter((s) => s.amplitude === p.amplitude).length;
-    for (const text of [fmt(p.amplitude, 4, unit), String(n),
-      `${fmt(p.fraction, 3)} (${p.responders} of ${p.trials})${p.fraction_ci ? ` [${fmt(p.fraction_ci[0], 3)}, ${fmt(p.fraction_ci[1], 3)}]` : ''}`,
-      fmt(p.median_latency_ms, 1), p.chance_p === null ? '—' : fmt(p.chance_p, 4)]) {
-      tr.insertCell().textContent = text;
-    }
-  }
+  const { response } = await call('words', {});
+  $('response-text').textContent = response.sentence;
+  fillTable($('response-table'), response.table);
   const select = $('response-site');
   const keep = select.value;
   select.replaceChildren(new Option('all sites', ''));

@@ -133,6 +133,7 @@ const ops = {
   readoutPoint: ({ index }) => need().readoutPoint(index) ?? null,
   exports: () => need().exports(),
   summaryFacts: () => need().summaryFacts(),
+  words: ({ burst }) => need().words(burst ?? 0),
   reportHtml: (_, id) => {
     const book = need();
     if (voltageFile) {

@@ -582,7 +582,17 @@ impl WasmWorkbook {
             .inner
             .compare_with_truth(truth_json)
             .map_err(|e| message(&e))?;
-        to_js(&comparison)
+        #[derive(Serialize)]
+        struct Compared<'a> {
+            comparison: &'a crate::report::truth::TruthComparison,
+            sentence: String,
+            table: crate::report::document::Table,
+        }
+        to_js(&Compared {
+            sentence: crate::report::page_text::truth_sentence(&comparison),
+            table: crate::report::page_text::truth_table(&comparison),
+            comparison: &comparison,
+        })
     }
 
     /// This workbook's analysis as a study recording (`row` of `manifest`), for the study
@@ -648,6 +658,37 @@ impl WasmWorkbook {
     pub fn report_html(&self) -> Result<String, JsValue> {
         let document = self.inner.report_document().map_err(|e| message(&e))?;
         Ok(document.to_html())
+    }
+
+    /// The page's wording of the open recording, its analysis and burst `burst` (from 1):
+    /// `{ track, burst, steps: { bursts, rhythm, sites, synchrony, lags } | null,
+    /// response: { sentence, table } | null }`.
+    pub fn words(&self, burst: usize) -> Result<JsValue, JsValue> {
+        use crate::report::page_text;
+        #[derive(Serialize)]
+        struct Response {
+            sentence: String,
+            table: crate::report::document::Table,
+        }
+        #[derive(Serialize)]
+        struct Words {
+            track: String,
+            burst: Option<String>,
+            steps: Option<page_text::StepTexts>,
+            response: Option<Response>,
+        }
+        let report = self.inner.report();
+        to_js(&Words {
+            track: page_text::track_sentence(self.inner.inspection()),
+            burst: report
+                .and_then(|r| r.bursts.iter().find(|b| b.burst == burst))
+                .map(page_text::burst_sentence),
+            steps: report.map(page_text::step_texts),
+            response: report.and_then(|r| r.response.as_ref()).map(|r| Response {
+                sentence: page_text::response_sentence(r),
+                table: page_text::response_table(r),
+            }),
+        })
     }
 
     /// The summary as labelled facts `[{ key, label, text, value }]` (the text report's

@@ -143,9 +143,13 @@ test('the served page analyses the dropped demo files exactly as the command lin
   }
   // Rhythm and synchrony: the step's numbers are the command line's, and its four figures
   // save as SVG with their legends (and the matrix its colour bar with the unit).
-  assert.match(await page.textContent('#rhythm-text'), new RegExp(`^Spectrum peak at ${report.rhythm.peak_frequency_hz.toFixed(3)} Hz`));
+  assert.match(await page.textContent('#rhythm-text'), new RegExp(`^Rhythm: spectrum peak at ${report.rhythm.peak_frequency_hz.toFixed(3)} Hz`));
   assert.match(await page.textContent('#lags-text'), new RegExp(`imply ${report.synchrony.lags.implied_speed_mm_s.toFixed(1)} mm/s`));
-  assert.match(await page.textContent('#synchrony-text'), new RegExp(`^Mean STTC ${report.synchrony.mean_sttc.toFixed(3)} over ${report.synchrony.pairs} pairs`));
+  assert.match(await page.textContent('#synchrony-text'), new RegExp(`^Synchrony: mean STTC ${report.synchrony.mean_sttc.toFixed(3)} \\(median [^)]*\\) over ${report.synchrony.pairs} site pairs`));
+  // The page's paragraphs are the lines of the command line's text report.
+  const cliText = execFileSync(cli, ['analyze', basename(demo.spikes), '--layout', basename(demo.layout)], { encoding: 'utf8', cwd: dirname(demo.spikes) });
+  const rhythmLine = cliText.split('\n').find((l) => l.startsWith('Rhythm')).replace(/^Rhythm\s+/, '');
+  assert.equal(await page.textContent('#rhythm-text'), `Rhythm: ${rhythmLine}.`);
   for (const [name, expected] of [['rate_spectrum', /Poisson floor, 2 x mean rate/], ['site_frequencies', /network bursts \(1 \/ median interval\)/],
     ['sttc_matrix', /STTC \(no unit; grey: undefined\)/], ['lags', /implied speed/]]) {
     await page.locator(`#fig-${name}`).waitFor({ state: 'visible' });

@@ -8,6 +8,7 @@ pub mod document;
 pub mod evidence_figures;
 pub mod figures;
 mod inspection;
+pub mod page_text;
 pub mod response_figures;
 mod response_tables;
 pub mod rhythm_figures;

@@ -149,7 +149,7 @@ impl ResponseReport {
 }
 
 /// A curve's fit in words.
-fn describe(fit: &CurveFit, unit: &str) -> String {
+pub(crate) fn describe(fit: &CurveFit, unit: &str) -> String {
     let bound = |v: Option<f64>| v.map_or("open".to_string(), |v| format!("{v:.4}"));
     match fit {
         CurveFit::Fitted(f) => format!(

@@ -1,0 +1,264 @@
+//! The page's sentences and tables, worded here so the page only places them: the track, a
+//! burst's front, the bursts, rhythm and synchrony paragraphs (the lines of the text report),
+//! the responses and the comparison with a simulation's truth. Every number carries its unit.
+
+use super::document::{FactKey, Table};
+use super::{AnalysisReport, Inspection};
+use crate::fronts::BurstResult;
+use serde::Serialize;
+
+/// A value with `digits` decimals and its unit, or a dash when there is none.
+fn num(value: Option<f64>, digits: usize, unit: &str) -> String {
+    match value.filter(|v| v.is_finite()) {
+        Some(v) if unit.is_empty() => format!("{v:.digits$}"),
+        Some(v) => format!("{v:.digits$} {unit}"),
+        None => "—".into(),
+    }
+}
+
+/// A serialised enum's name in words (`line_one_way` -> `line one way`).
+fn words<T: Serialize>(value: &T) -> String {
+    serde_json::to_value(value)
+        .ok()
+        .and_then(|v| v.as_str().map(|s| s.replace('_', " ")))
+        .unwrap_or_default()
+}
+
+/// The layout and track step: sites, events, span and the track with its fit.
+pub fn track_sentence(i: &Inspection) -> String {
+    let t = &i.track;
+    let mut parts = vec![
+        format!("{} sites ({} silent)", i.site_count, i.silent_sites.len()),
+        format!(
+            "{} spikes over {}",
+            i.spike_count.unwrap_or(0),
+            num(i.duration_s, 1, "s")
+        ),
+        format!(
+            "track: {} ({}; {})",
+            t.kind,
+            if t.chosen_by == "auto" {
+                "detected"
+            } else {
+                "chosen"
+            },
+            t.reason
+        ),
+    ];
+    let mut add = |label: &str, v: Option<f64>, digits: usize, unit: &str| {
+        if v.is_some() {
+            parts.push(format!("{label} {}", num(v, digits, unit)));
+        }
+    };
+    add("length", t.length_um, 0, "µm");
+    add("radius", t.radius_um, 0, "µm");
+    add("residual", t.residual_rms_um, 1, "µm RMS");
+    add("site spacing", t.site_spacing_um, 0, "µm");
+    if !t.off_track_sites.is_empty() {
+        parts.push(format!("off the track: {}", t.off_track_sites.join(", ")));
+    }
+    format!("{}.", parts.join("; "))
+}
+
+/// One burst and its front (or why it has none).
+pub fn burst_sentence(b: &BurstResult) -> String {
+    let when = format!(
+        "Burst {} ({} to {})",
+        b.burst,
+        num(Some(b.start_s), 3, "s"),
+        num(Some(b.end_s), 3, "s")
+    );
+    match &b.front {
+        Some(f) => {
+            let mut text = format!(
+                "{when}: {} front at {} (95% interval {} to {}), from site {}",
+                words(&f.model),
+                num(Some(f.speed_mm_s), 1, "mm/s"),
+                num(Some(f.speed_ci95_mm_s[0]), 1, ""),
+                num(Some(f.speed_ci95_mm_s[1]), 1, "mm/s"),
+                f.origin_site
+            );
+            if let Some(t) = &f.travel {
+                text.push_str(&format!(
+                    ", travelling towards {} track coordinate",
+                    words(t)
+                ));
+            }
+            if let Some(r) = &f.rotation {
+                text.push_str(&format!(", rotation {}", words(r)));
+            }
+            text.push_str(&format!(
+                "; {} sites, residual {} RMS{}.",
+                f.sites_used,
+                num(Some(f.residual_rms_ms), 2, "ms"),
+                if f.failed {
+                    "; stopped short (propagation failure)"
+                } else {
+                    ""
+                }
+            ));
+            text
+        }
+        None => format!(
+            "{when}: no front: {}.",
+            b.no_front_reason.as_deref().unwrap_or("no reason given")
+        ),
+    }
+}
+
+/// The paragraphs of the bursts and rhythm steps: the text report's lines.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StepTexts {
+    pub bursts: String,
+    pub rhythm: String,
+    pub sites: String,
+    pub synchrony: String,
+    pub lags: String,
+}
+
+/// The step paragraphs of an analysis, from [`AnalysisReport::facts`].
+pub fn step_texts(r: &AnalysisReport) -> StepTexts {
+    let facts = r.facts();
+    let say = |keys: &[FactKey]| -> String {
+        facts
+            .iter()
+            .filter(|f| keys.contains(&f.key))
+            .map(|f| format!("{}: {}.", f.label, f.text))
+            .collect::<Vec<_>>()
+            .join(" ")
+    };
+    let lags = say(&[FactKey::Lags]);
+    StepTexts {
+        bursts: say(&[FactKey::Bursts, FactKey::Interburst, FactKey::Fronts]),
+        rhythm: say(&[FactKey::Rhythm]),
+        sites: say(&[FactKey::SitesAlone, FactKey::SiteBursts]),
+        synchrony: say(&[FactKey::Synchrony]),
+        lags: if lags.is_empty() {
+            "No lags: they need sites on a track (a line or a ring).".into()
+        } else {
+            lags
+        },
+    }
+}
+
+/// The response step's sentence: the protocol, the window, the chance level and the fit.
+pub fn response_sentence(r: &crate::response::ResponseReport) -> String {
+    format!(
+        "{} stimuli from {}; a site responds with an event {} to {} after a stimulus. Spontaneous chance of an event in such a window: {} (from the {} before the first stimulus). Population: {}.",
+        r.stimuli.len(),
+        r.protocol_file,
+        num(Some(r.settings.blank_ms), 1, ""),
+        num(Some(r.settings.window_ms), 0, "ms"),
+        num(r.population.spontaneous_probability, 3, ""),
+        num(Some(r.baseline_s), 1, "s"),
+        super::response_tables::describe(&r.population.fit, r.unit.symbol())
+    )
+}
+
+/// The response step's table: one row per amplitude.
+pub fn response_table(r: &crate::response::ResponseReport) -> Table {
+    let unit = r.unit.symbol();
+    Table {
+        caption: format!("Share of sites responding at each amplitude ({unit})"),
+        header: [
+            "amplitude",
+            "stimuli",
+            "sites responding [95% CI]",
+            "median latency (ms)",
+            "chance of as many from spontaneous firing",
+        ]
+        .map(String::from)
+        .to_vec(),
+        rows: r
+            .population
+            .points
+            .iter()
+            .map(|p| {
+                let n = r
+                    .stimuli
+                    .iter()
+                    .filter(|s| s.amplitude == p.amplitude)
+                    .count();
+                let ci = p.fraction_ci.map_or(String::new(), |c| {
+                    format!(" [{}, {}]", num(Some(c[0]), 3, ""), num(Some(c[1]), 3, ""))
+                });
+                vec![
+                    num(Some(p.amplitude), 4, unit),
+                    n.to_string(),
+                    format!(
+                        "{} ({} of {}){ci}",
+                        num(Some(p.fraction), 3, ""),
+                        p.responders,
+                        p.trials
+                    ),
+                    num(p.median_latency_ms, 1, ""),
+                    num(p.chance_p, 4, ""),
+                ]
+            })
+            .collect(),
+        collapsed: false,
+    }
+}
+
+/// The comparison with a simulation's truth, in one sentence.
+pub fn truth_sentence(c: &super::truth::TruthComparison) -> String {
+    format!(
+        "{} true fronts, {} measured; median speed {} against {} true; median |error| {}; the 95% interval holds the true speed for {} of measured fronts.",
+        c.true_fronts,
+        c.measured,
+        num(c.median_speed_mm_s, 1, "mm/s"),
+        num(c.median_true_speed_mm_s, 1, "mm/s"),
+        num(c.median_abs_relative_error.map(|e| 100.0 * e), 1, "%"),
+        num(c.interval_coverage.map(|e| 100.0 * e), 0, "%"),
+    )
+}
+
+/// Every true front beside the measured one.
+pub fn truth_table(c: &super::truth::TruthComparison) -> Table {
+    Table {
+        caption: "Every true front beside the measured one".into(),
+        header: [
+            "true front",
+            "start (s)",
+            "true speed (mm/s)",
+            "burst",
+            "measured (mm/s)",
+            "95% CI (mm/s)",
+            "error",
+        ]
+        .map(String::from)
+        .to_vec(),
+        rows: c
+            .rows
+            .iter()
+            .map(|r| {
+                vec![
+                    r.truth_burst.to_string(),
+                    num(Some(r.true_start_s), 3, ""),
+                    num(Some(r.true_speed_mm_s), 1, ""),
+                    r.burst.map_or("—".into(), |b| b.to_string()),
+                    num(r.speed_mm_s, 1, ""),
+                    r.speed_ci95_mm_s.map_or("—".into(), |[a, b]| {
+                        format!("{} to {}", num(Some(a), 1, ""), num(Some(b), 1, ""))
+                    }),
+                    r.relative_error
+                        .map_or("—".into(), |e| format!("{:+.1}%", 100.0 * e)),
+                ]
+            })
+            .collect(),
+        collapsed: false,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_carry_their_units_and_a_dash_when_missing() {
+        assert_eq!(num(Some(12.345), 1, "mm/s"), "12.3 mm/s");
+        assert_eq!(num(Some(0.5), 2, ""), "0.50");
+        assert_eq!(num(None, 1, "s"), "—");
+        assert_eq!(num(Some(f64::NAN), 1, "s"), "—");
+    }
+}
