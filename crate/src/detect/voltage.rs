@@ -212,22 +212,14 @@ pub fn detect_voltage_spikes(
     read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError>,
     progress: &mut dyn FnMut(u64, u64),
 ) -> Result<VoltageSpikes, crate::import::ImportError> {
-    use super::filter::{
-        butterworth_bandpass, filtfilt_padded, pad_length, settling_samples, LANES,
-    };
+    use super::filter::{filtfilt_padded, pad_length, settling_samples, LANES};
     use crate::import::{decode_lanes, ImportError, ImportProblem};
     use crate::place::Place;
     let fs = header.sample_rate_hz;
     let option_error = |message: String| {
         ImportError::new(Place::file(&header.file), ImportProblem::BadOption, message)
     };
-    let sos = butterworth_bandpass(
-        settings.filter_order,
-        settings.band_hz[0],
-        settings.band_hz[1],
-        fs,
-    )
-    .map_err(|e| option_error(format!("spike filter: {e}")))?;
+    let sos = spike_filter(header, settings)?;
     if !(settings.threshold_sd > 0.0 && settings.dead_time_s >= 0.0) {
         return Err(option_error(format!(
             "spike threshold: expected threshold_sd above 0 and dead_time_s 0 or more, found {} and {}",
@@ -405,6 +397,27 @@ fn scan_channel(
     }
 }
 
+/// The band-pass of spike detection for this file's sample rate, or the located reason it
+/// cannot be built (a band outside the Nyquist range, an order of 0).
+fn spike_filter(
+    header: &crate::import::VoltageHeader,
+    settings: &VoltageSettings,
+) -> Result<Vec<super::filter::Section>, crate::import::ImportError> {
+    super::filter::butterworth_bandpass(
+        settings.filter_order,
+        settings.band_hz[0],
+        settings.band_hz[1],
+        header.sample_rate_hz,
+    )
+    .map_err(|e| {
+        crate::import::ImportError::new(
+            crate::place::Place::file(&header.file),
+            crate::import::ImportProblem::BadOption,
+            format!("spike filter: {e}"),
+        )
+    })
+}
+
 /// Most spikes a voltage evidence view shows.
 pub const MAX_SNIPPETS: usize = 40;
 
@@ -430,7 +443,7 @@ pub fn spike_snippets(
     window_ms: [f64; 2],
     read: &mut dyn FnMut(u64, u64) -> Result<Vec<u8>, crate::import::ImportError>,
 ) -> Result<Snippets, crate::import::ImportError> {
-    use super::filter::{butterworth_bandpass, settling_samples, sosfiltfilt};
+    use super::filter::{settling_samples, sosfiltfilt};
     use crate::import::{decode_channel, ImportError, ImportProblem};
     let fs = header.sample_rate_hz;
     let fail = |message: String| {
@@ -447,13 +460,7 @@ pub fn spike_snippets(
             header.channels
         )));
     }
-    let sos = butterworth_bandpass(
-        settings.filter_order,
-        settings.band_hz[0],
-        settings.band_hz[1],
-        fs,
-    )
-    .map_err(|e| fail(format!("spike filter: {e}")))?;
+    let sos = spike_filter(header, settings)?;
     let margin = settling_samples(&sos, 1e-12).min(1 << 16) as u64;
     let before = ((window_ms[0].clamp(0.0, 50.0) * 1e-3 * fs).round() as u64).max(1);
     let after = ((window_ms[1].clamp(0.0, 50.0) * 1e-3 * fs).round() as u64).max(1);

@@ -128,20 +128,10 @@ pub fn facts_text(facts: &[Fact]) -> String {
     out
 }
 
-/// Escapes text for HTML element content and double-quoted attributes.
+/// Escapes text for HTML element content and quoted attributes: the SVG writer's escaping
+/// (the five markup characters, and control characters as spaces), which HTML 5 reads alike.
 pub fn escape_html(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        match c {
-            '&' => out.push_str("&amp;"),
-            '<' => out.push_str("&lt;"),
-            '>' => out.push_str("&gt;"),
-            '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&#39;"),
-            _ => out.push(c),
-        }
-    }
-    out
+    super::svg::escape(text)
 }
 
 /// The report's style sheet: readable on screen, and printed on A4 or Letter (the narrower
@@ -366,7 +356,7 @@ mod tests {
         // "Serializing HTML fragments", escaping a string).
         assert_eq!(
             escape_html("<a href=\"x\">'&'</a>"),
-            "&lt;a href=&quot;x&quot;&gt;&#39;&amp;&#39;&lt;/a&gt;"
+            "&lt;a href=&quot;x&quot;&gt;&apos;&amp;&apos;&lt;/a&gt;"
         );
     }
 
