@@ -129,17 +129,37 @@ pub(crate) fn chart(
     y: (f64, f64, &str),
     draw: impl FnOnce(&mut Plot) -> Result<Vec<(f64, f64, String)>, FigureError>,
 ) -> Result<Figure, FigureError> {
+    check_axes(x, y)?;
+    chart_on(
+        Plot::new(size.width_px, size.height_px, title, x, y),
+        size,
+        draw,
+    )
+}
+
+/// Refuses axes without a finite, positive extent.
+fn check_axes(x: (f64, f64, &str), y: (f64, f64, &str)) -> Result<(), FigureError> {
     if !(x.0.is_finite() && x.1.is_finite() && y.0.is_finite() && y.1.is_finite())
         || x.1 <= x.0
         || y.1 <= y.0
     {
         return Err(empty("the axes have no extent"));
     }
-    chart_on(
-        Plot::new(size.width_px, size.height_px, title, x, y),
-        size,
-        draw,
-    )
+    Ok(())
+}
+
+/// [`chart`] with a row above the plot area for a legend ([`Plot::legend_above`]), so the
+/// legend hides no data.
+pub(crate) fn chart_with_legend_row(
+    size: Size,
+    title: &str,
+    x: (f64, f64, &str),
+    y: (f64, f64, &str),
+    draw: impl FnOnce(&mut Plot) -> Result<Vec<(f64, f64, String)>, FigureError>,
+) -> Result<Figure, FigureError> {
+    check_axes(x, y)?;
+    let plot = Plot::with_legend_row(size.width_px, size.height_px, title, x, y);
+    chart_on(plot, size, draw)
 }
 
 /// [`chart`] on a plot already framed (for axes of names).
@@ -177,12 +197,8 @@ const MAX_NAMED_SITES: usize = 96;
 const MIN_NAMED_SITE_SPACING_PX: f64 = 26.0;
 
 /// Widens the shorter of two axis ranges so that a micrometre is as long on both axes (a
-/// ring looks round, a line of sites stays a line).
-fn equal_scale(x: (f64, f64), y: (f64, f64), size: Size) -> ((f64, f64), (f64, f64)) {
-    equal_scale_in(x, y, size, 0.0)
-}
-
-/// [`equal_scale`] for a plot with `extra_top_px` above its area (a legend row).
+/// ring looks round, a line of sites stays a line), for a plot with `extra_top_px` above its
+/// area (a legend row).
 fn equal_scale_in(
     x: (f64, f64),
     y: (f64, f64),
@@ -701,12 +717,16 @@ pub fn speed_over_time(
         .filter(|v| v.is_finite())
         .fold(0.0, f64::max)
         * 1.1;
-    chart(
+    chart_with_legend_row(
         size,
         "Front speed over the recording (95% intervals)",
         (t0, t1, "front start (s)"),
         (0.0, top.max(1e-9), "speed (mm/s)"),
         |c| {
+            c.legend_above(&[
+                ("front speed", BLUE, LegendMark::Dot),
+                ("95% interval", SKY_BLUE, LegendMark::Line),
+            ]);
             for (_, f) in fronts {
                 c.segment(
                     (f.start_s, f.speed_ci95_mm_s[0]),
@@ -858,19 +878,23 @@ pub fn leader_map(points: &[LeaderPoint], size: Size) -> Result<Figure, FigureEr
     }
     let x = padded(points.iter().map(|p| p.x_um)).ok_or_else(|| empty("no positions"))?;
     let y = padded(points.iter().map(|p| p.y_um)).ok_or_else(|| empty("no positions"))?;
-    let ((x0, x1), (y0, y1)) = equal_scale(x, y, size);
+    let ((x0, x1), (y0, y1)) = equal_scale_in(x, y, size, super::svg::ROOM_FOR_LEGEND_ROW_PX);
     let top = points
         .iter()
         .map(|p| p.bursts_leading)
         .max()
         .unwrap_or(0)
         .max(1) as f64;
-    chart(
+    chart_with_legend_row(
         size,
         "Where bursts start: disc area = share of bursts the site led",
         (x0, x1, "x (µm)"),
         (y0, y1, "y (µm)"),
         |c| {
+            c.legend_above(&[
+                ("led bursts (area = share)", VERMILLION, LegendMark::Dot),
+                ("never led", GREY, LegendMark::Ring),
+            ]);
             for p in points {
                 if p.bursts_leading == 0 {
                     c.circle(p.x_um, p.y_um, 2.5, GREY, false);
@@ -934,15 +958,16 @@ pub fn recruitment(bursts: &[Vec<f64>], size: Size) -> Result<Figure, FigureErro
             crate::stats::median(&times).map(|t| (t, f))
         })
         .collect();
-    chart(
+    chart_with_legend_row(
         size,
-        &format!(
-            "Recruitment of the active sites ({} bursts; blue: median)",
-            usable.len()
-        ),
+        &format!("Recruitment of the active sites ({} bursts)", usable.len()),
         (0.0, x1, "time since the burst's first activation (ms)"),
         (0.0, 1.05, "fraction of active sites activated"),
         |c| {
+            c.legend_above(&[
+                ("each burst", GREY, LegendMark::Line),
+                ("median over bursts", BLUE, LegendMark::Line),
+            ]);
             for b in usable.iter().take(RECRUITMENT_CURVES_DRAWN) {
                 let n = b.len() as f64;
                 let mut steps = Vec::with_capacity(2 * b.len());
