@@ -36,6 +36,15 @@ pub fn escape(text: &str) -> String {
     out
 }
 
+/// Font size of a title, pixels: 15, or smaller (down to 9) so that a long title fits the
+/// figure's width with 8 px either side. Without measuring text (there is none in a worker),
+/// a sans-serif character is taken as 0.56 of the font size wide on average (common
+/// practice, no source), which errs towards fitting.
+fn title_font_px(title: &str, width: f64) -> f64 {
+    let chars = title.chars().count().max(1) as f64;
+    ((width - 16.0) / (0.56 * chars)).clamp(9.0, 15.0)
+}
+
 /// Ticks at nice numbers (1, 2 or 5 times a power of ten) covering [lo, hi], about `target`
 /// of them (Heckbert 1990). Returns the tick values and the decimals needed to print them.
 pub fn nice_ticks(lo: f64, hi: f64, target: usize) -> (Vec<f64>, usize) {
@@ -316,10 +325,11 @@ impl Plot {
         let _ = write!(
             body,
             "<rect width=\"{w}\" height=\"{h}\" fill=\"#ffffff\"/>\
-             <text x=\"{cx:.1}\" y=\"20\" text-anchor=\"middle\" font-size=\"15\" {FONT}>{title}</text>",
+             <text x=\"{cx:.1}\" y=\"20\" text-anchor=\"middle\" font-size=\"{size:.1}\" {FONT}>{title}</text>",
             w = self.width,
             h = self.height,
             cx = self.width / 2.0,
+            size = title_font_px(title, self.width),
             title = escape(title)
         );
         let (xticks, xdec) = if self.categories.is_empty() {
@@ -684,6 +694,15 @@ mod tests {
             assert!(t.iter().all(|&v| v >= lo - 1e-12 && v <= hi + 1e-12));
             assert!((t[t.len() - 1] - t[0]) >= 0.5 * (hi - lo));
         }
+    }
+
+    #[test]
+    fn long_titles_shrink_to_fit_and_short_ones_keep_15_px() {
+        assert_eq!(title_font_px("Population rate (all sites)", 760.0), 15.0);
+        let long = "x".repeat(120);
+        let size = title_font_px(&long, 760.0);
+        assert!(size < 15.0 && 0.56 * size * 120.0 <= 760.0 - 16.0 + 1e-9);
+        assert_eq!(title_font_px(&"x".repeat(1000), 300.0), 9.0);
     }
 
     #[test]
