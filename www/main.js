@@ -996,30 +996,8 @@ async function compareStudy(event) {
   const compared = await call('compareStudy', { recordings, fronts, bursts, settings });
   state.comparison = compared;
   const r = compared.report;
-  $('compare-text').textContent = `Conditions ${r.conditions.join(', ')} (${r.ordered ? 'ordered' : 'not ordered'}), `
-    + `compared with ${r.conditions[0]} by ${r.settings.by}, one value per ${r.settings.unit ?? 'recording'}`
-    + `${r.settings.paired ? ', paired' : ''}; p-values adjusted by ${r.settings.adjustment === 'holm' ? 'Holm' : 'Benjamini-Hochberg'}`
-    + `${r.left_out.length ? `; left out: ${r.left_out.join('; ')}` : ''}.`;
-  const body = $('compare-table').tBodies[0];
-  body.replaceChildren();
-  const num = (v) => (v === null || v === undefined ? '—' : Number(v).toPrecision(4));
-  const ci = (v) => (v ? ` [${num(v[0])}, ${num(v[1])}]` : '');
-  for (const c of r.comparisons) {
-    const o = c.outcome;
-    const trend = c.test === 'jonckheere_terpstra';
-    const cells = [
-      c.metric, trend ? `trend over ${r.conditions.join(' < ')}` : `${c.condition} vs ${c.reference}`,
-      `${c.n_condition} and ${c.n_reference}`, trend ? '—' : `${num(c.effect)}${ci(c.effect_ci)}`,
-      trend ? '—' : `${num(c.shift)}${ci(c.shift_ci)}`,
-      { mann_whitney: 'Mann-Whitney U', wilcoxon_signed_rank: 'Wilcoxon signed-rank', jonckheere_terpstra: 'Jonckheere-Terpstra' }[c.test],
-      o.kind === 'computed' ? num(o.p) : '—', num(c.p_adjusted),
-      o.kind === 'computed' ? (o.method === 'exact' ? 'exact' : 'normal approximation')
-        : (o.kind === 'degenerate' ? `not tested: ${o.reason}` : `not tested: ${o.given} units, ${o.needed} needed`),
-      { units: 'one value per unit', nested_fronts: 'every front, nested (hierarchical bootstrap)', nested_bursts: 'every burst, nested (hierarchical bootstrap)' }[c.values],
-    ];
-    const tr = body.insertRow();
-    for (const text of cells) tr.insertCell().textContent = text;
-  }
+  $('compare-text').textContent = compared.sentence;
+  fillTable($('compare-table'), compared.table);
   const select = $('compare-metric');
   select.replaceChildren();
   for (const m of r.units) select.append(new Option(m.metric, m.metric));

@@ -1078,12 +1078,17 @@ pub fn compare_study(
         files: Vec<(String, String)>,
         /// The study report (the bytes of `ringline compare --report`).
         report_html: String,
+        /// The page's sentence and table.
+        sentence: String,
+        table: crate::report::document::Table,
     }
     let files = crate::report::compare_figures::compare_output_files(&report);
     let report_html =
         crate::report::study_document::study_document(&report, &texts, &files).to_html();
     to_js(&Compared {
         text: report.to_text(),
+        sentence: crate::report::page_text::compare_sentence(&report),
+        table: crate::report::page_text::compare_table(&report),
         report,
         files,
         report_html,

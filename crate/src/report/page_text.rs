@@ -250,9 +250,143 @@ pub fn truth_table(c: &super::truth::TruthComparison) -> Table {
     }
 }
 
+/// A number with (at least) four significant digits and no exponent, or a dash.
+fn sig4(value: Option<f64>) -> String {
+    match value.filter(|v| v.is_finite()) {
+        Some(0.0) => "0".into(),
+        Some(v) => {
+            let digits = (3 - v.abs().log10().floor() as i32).max(0) as usize;
+            format!("{v:.digits$}")
+        }
+        None => "—".into(),
+    }
+}
+
+/// The comparison of conditions in one sentence: the conditions, the reference, the unit,
+/// the adjustment and what was left out.
+pub fn compare_sentence(r: &crate::study::compare::CompareReport) -> String {
+    use crate::study::inference::Adjustment;
+    let mut text = format!(
+        "Conditions {} ({}), compared with {} by {}, one value per {}{}; p-values adjusted by {}",
+        r.conditions.join(", "),
+        if r.ordered { "ordered" } else { "not ordered" },
+        r.conditions.first().map_or("", String::as_str),
+        r.settings.by,
+        r.settings.unit.as_deref().unwrap_or("recording"),
+        if r.settings.paired { ", paired" } else { "" },
+        match r.settings.adjustment {
+            Adjustment::Holm => "Holm",
+            Adjustment::BenjaminiHochberg => "Benjamini-Hochberg",
+        }
+    );
+    if !r.left_out.is_empty() {
+        text.push_str(&format!("; left out: {}", r.left_out.join("; ")));
+    }
+    text.push('.');
+    text
+}
+
+/// The comparisons as the page shows them: effect and shift with their intervals, the test,
+/// p and adjusted p, and what each effect was computed on.
+pub fn compare_table(r: &crate::study::compare::CompareReport) -> Table {
+    use crate::study::compare::{TestKind, ValueLevel};
+    use crate::study::inference::{PMethod, TestOutcome};
+    let ci = |v: Option<[f64; 2]>| {
+        v.map_or(String::new(), |[a, b]| {
+            format!(" [{}, {}]", sig4(Some(a)), sig4(Some(b)))
+        })
+    };
+    let rows = r
+        .comparisons
+        .iter()
+        .map(|c| {
+            let trend = c.test == TestKind::JonckheereTerpstra;
+            let (p, method) = match &c.outcome {
+                TestOutcome::Computed { p, method, .. } => (
+                    sig4(Some(*p)),
+                    match method {
+                        PMethod::Exact => "exact".to_string(),
+                        PMethod::Normal => "normal approximation".to_string(),
+                    },
+                ),
+                TestOutcome::Degenerate { reason } => ("—".into(), format!("not tested: {reason}")),
+                TestOutcome::TooFew { needed, given } => (
+                    "—".into(),
+                    format!("not tested: {given} units, {needed} needed"),
+                ),
+            };
+            vec![
+                c.metric.clone(),
+                if trend {
+                    format!("trend over {}", r.conditions.join(" < "))
+                } else {
+                    format!("{} vs {}", c.condition, c.reference)
+                },
+                format!("{} and {}", c.n_condition, c.n_reference),
+                if trend {
+                    "—".into()
+                } else {
+                    format!("{}{}", sig4(c.effect), ci(c.effect_ci))
+                },
+                if trend {
+                    "—".into()
+                } else {
+                    format!("{}{}", sig4(c.shift), ci(c.shift_ci))
+                },
+                match c.test {
+                    TestKind::MannWhitney => "Mann-Whitney U",
+                    TestKind::WilcoxonSignedRank => "Wilcoxon signed-rank",
+                    TestKind::JonckheereTerpstra => "Jonckheere-Terpstra",
+                }
+                .into(),
+                p,
+                sig4(c.p_adjusted),
+                method,
+                match c.values {
+                    ValueLevel::Units => "one value per unit",
+                    ValueLevel::NestedFronts => "every front, nested (hierarchical bootstrap)",
+                    ValueLevel::NestedBursts => "every burst, nested (hierarchical bootstrap)",
+                }
+                .into(),
+            ]
+        })
+        .collect();
+    Table {
+        caption: "Comparisons".into(),
+        header: [
+            "metric",
+            "condition vs reference",
+            "units (n)",
+            "effect [95% CI]",
+            "Hodges-Lehmann shift [95% CI]",
+            "test",
+            "p",
+            "adjusted p",
+            "method",
+            "effect computed on",
+        ]
+        .map(String::from)
+        .to_vec(),
+        rows,
+        collapsed: false,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn four_significant_digits_without_exponents() {
+        // Decimal places so that four significant digits show (more for 10,000 and up, never
+        // an exponent); Rust's formatting rounds the exact binary value.
+        assert_eq!(sig4(Some(7.25)), "7.250");
+        assert_eq!(sig4(Some(0.0123456)), "0.01235");
+        assert_eq!(sig4(Some(1234.4)), "1234");
+        assert_eq!(sig4(Some(123456.7)), "123457");
+        assert_eq!(sig4(Some(-2.71838)), "-2.718");
+        assert_eq!(sig4(None), "—");
+    }
 
     #[test]
     fn numbers_carry_their_units_and_a_dash_when_missing() {
