@@ -349,7 +349,8 @@ fn analyze_bad_settings_exit_2_and_flat_traces_have_no_events() {
         dir.path(),
     );
     assert_eq!(out.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&out.stderr).contains("at least 100"));
+    assert!(String::from_utf8_lossy(&out.stderr)
+        .contains("expected 100 to 100000 bootstrap resamples, found 10"));
     // Traces are analysed through their events; flat traces have none, and the report says so.
     write(dir.path(), "traces.csv", b"time_s,A,B\n0,1,2\n0.1,1,2\n");
     let out = ringline(

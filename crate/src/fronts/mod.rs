@@ -219,6 +219,7 @@ pub fn analyze(
         p.smooth_sd_s = p.smooth_sd_s.max(5.0 * frame_interval_s);
     }
     let settings: &AnalysisSettings = &settings;
+    check_span(recording, trains_s, settings)?;
     let mut detection = detect_bursts(trains_s, &settings.bursts);
     if detection.chance_windows_rejected > 0 {
         notices.push(Notice::new(
@@ -332,6 +333,67 @@ fn transit_notice(results: &[BurstResult], track: &TrackFit, frame_s: f64) -> Op
     })
 }
 
+/// Most bootstrap resamples per front (work and memory grow with them; 100,000 gives a 95%
+/// interval's ends to well within their own sampling error).
+pub const MAX_RESAMPLES: usize = 100_000;
+
+/// Most time bins any step of the analysis lays over a recording (the population rate, the
+/// spectrum, the STTC, the phases): 2^25, 46 hours of 5 ms bins. A span beyond this is almost
+/// always one far-out time (a unit mistake or a stray row), and it would otherwise ask for
+/// gigabytes.
+pub const MAX_TIME_BINS: usize = 1 << 25;
+
+/// A time for a message: plain up to a million seconds, in exponent form beyond.
+fn seconds(v: f64) -> String {
+    if v.abs() < 1e6 {
+        format!("{v} s")
+    } else {
+        format!("{v:.3e} s")
+    }
+}
+
+/// Refuses a recording whose events span more time bins than [`MAX_TIME_BINS`] at any of the
+/// analysis's time steps, naming the span, the latest event's site and the step.
+fn check_span(
+    recording: &Recording,
+    trains_s: &[Vec<f64>],
+    s: &AnalysisSettings,
+) -> Result<(), AnalysisError> {
+    let Some((first, last)) = crate::recording::trains_span_s(trains_s) else {
+        return Ok(());
+    };
+    let latest_site = trains_s
+        .iter()
+        .enumerate()
+        .filter_map(|(i, t)| t.last().map(|&v| (i, v)))
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+        .and_then(|(i, _)| recording.sites.get(i))
+        .map_or_else(String::new, |site| site.id.clone());
+    let span = last - first;
+    for (name, step) in [
+        (
+            "bursts.population_rate.bin_s",
+            s.bursts.population_rate.bin_s,
+        ),
+        ("spectrum.bin_s", s.spectrum.bin_s),
+        ("synchrony.sttc_dt_s", s.synchrony.sttc_dt_s),
+        ("synchrony.phase_step_s", s.synchrony.phase_step_s),
+    ] {
+        let bins = span / step;
+        if !(bins <= MAX_TIME_BINS as f64) {
+            return Err(AnalysisError {
+                message: format!(
+                    "the events span {} (from {} to {}, the latest at site {latest_site}); in bins of {name} = {step} s that is {bins:.3e} bins, more than the limit of {MAX_TIME_BINS}: look for a far-out time (a unit mistake or a stray row), or give a coarser {name}",
+                    seconds(span),
+                    seconds(first),
+                    seconds(last)
+                ),
+            });
+        }
+    }
+    Ok(())
+}
+
 fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     let bad = |m: String| Err(AnalysisError { message: m });
     let p = &s.bursts.population_rate;
@@ -372,10 +434,19 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
             s.spectrum.false_alarm
         ));
     }
-    if s.fronts.resamples < 100 {
+    if !(100..=MAX_RESAMPLES).contains(&s.fronts.resamples) {
         return bad(format!(
-            "fronts.resamples: expected at least 100 bootstrap resamples, found {}",
+            "fronts.resamples: expected 100 to {MAX_RESAMPLES} bootstrap resamples, found {}",
             s.fronts.resamples
+        ));
+    }
+    let p = &s.bursts.population_rate;
+    if p.smooth_sd_s / p.bin_s > MAX_TIME_BINS as f64 {
+        return bad(format!(
+            "bursts.population_rate.smooth_sd_s: {} s is {:.0} bins of {} s, more than the limit of {MAX_TIME_BINS}",
+            p.smooth_sd_s,
+            p.smooth_sd_s / p.bin_s,
+            p.bin_s
         ));
     }
     if !(0.0..=1.0).contains(&s.bursts.min_site_fraction) {
