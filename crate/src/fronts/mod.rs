@@ -380,7 +380,7 @@ fn check_span(
         ("synchrony.phase_step_s", s.synchrony.phase_step_s),
     ] {
         let bins = span / step;
-        if !(bins <= MAX_TIME_BINS as f64) {
+        if bins.is_nan() || bins > MAX_TIME_BINS as f64 {
             return Err(AnalysisError {
                 message: format!(
                     "the events span {} (from {} to {}, the latest at site {latest_site}); in bins of {name} = {step} s that is {bins:.3e} bins, more than the limit of {MAX_TIME_BINS}: look for a far-out time (a unit mistake or a stray row), or give a coarser {name}",
