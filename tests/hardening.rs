@@ -77,3 +77,39 @@ fn resamples_and_smoothing_are_bounded() {
         &["smooth_sd_s", "33554432"],
     );
 }
+
+/// Misspelt keys (`resample`, `burst`) and a settings file that is a list used to run with
+/// the defaults; a value of the wrong kind was worded in Rust's type names. Now each is
+/// refused with the file, the key and words a scientist reads.
+#[test]
+fn settings_files_with_unknown_keys_or_wrong_kinds_are_refused_by_name() {
+    let dir = tempfile::tempdir().unwrap();
+    demo_copy(dir.path());
+    for (text, expect) in [
+        (
+            r#"{"fronts": {"resample": 200}}"#,
+            vec!["s.json", "fronts.resample"],
+        ),
+        (r#"{"burst": {}}"#, vec!["s.json", "burst"]),
+        ("[]", vec!["s.json", "expected a JSON object"]),
+        (
+            r#"{"fronts": {"resamples": "many"}}"#,
+            vec!["s.json", "expected a whole number"],
+        ),
+    ] {
+        std::fs::write(dir.path().join("s.json"), text).unwrap();
+        refused(dir.path(), &["--settings", "s.json"], &expect);
+        let out = common::ringline(
+            &[
+                "analyze",
+                "spikes.csv",
+                "--layout",
+                "layout.csv",
+                "--settings",
+                "s.json",
+            ],
+            dir.path(),
+        );
+        assert!(!String::from_utf8_lossy(&out.stderr).contains("usize"));
+    }
+}

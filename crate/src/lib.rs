@@ -62,6 +62,34 @@ pub enum Error {
     Analysis(#[from] fronts::AnalysisError),
 }
 
+/// A JSON reading error in words: serde's type names become plain words, and the location is
+/// given once, by the caller.
+pub(crate) fn json_error_words(e: &serde_json::Error) -> String {
+    let text = e.to_string();
+    let text = match text.rfind(" at line ") {
+        Some(at) => &text[..at],
+        None => &text,
+    };
+    let mut text = text
+        .replace("invalid type: ", "")
+        .replace("invalid value: ", "");
+    for (jargon, words) in [
+        ("usize", "a whole number (0 or more)"),
+        ("u64", "a whole number (0 or more)"),
+        ("u32", "a whole number (0 or more)"),
+        ("f64", "a number"),
+        ("a sequence", "a list [...]"),
+        ("a map", "an object {...}"),
+    ] {
+        text = text.replace(&format!("expected {jargon}"), &format!("expected {words}"));
+        text = text.replace(
+            &format!("expected struct {jargon}"),
+            &format!("expected {words}"),
+        );
+    }
+    text
+}
+
 /// Reads an activity file and a layout, fits the track and summarises both: the whole of
 /// `ringline inspect`, shared by the command line and the page.
 pub fn inspect_files(

@@ -733,13 +733,8 @@ fn analysis_settings(args: &AnalysisArgs) -> Result<crate::fronts::AnalysisSetti
     let mut settings = match &args.settings {
         Some(path) => {
             let text = read_text(path, "JSON text")?;
-            serde_json::from_str::<AnalysisSettings>(&text).map_err(|e| {
-                Failure::Input(format!(
-                    "{path}, line {}, column {}: {e}",
-                    e.line(),
-                    e.column()
-                ))
-            })?
+            crate::study::analysis_settings_over(&AnalysisSettings::default(), path, &text)
+                .map_err(|e| Failure::Input(e.to_string()))?
         }
         None => AnalysisSettings::default(),
     };

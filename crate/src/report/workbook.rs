@@ -152,34 +152,6 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
         .collect()
 }
 
-/// A JSON reading error in words: serde's type names become plain words, and the location is
-/// given once, by the caller.
-fn json_error_words(e: &serde_json::Error) -> String {
-    let text = e.to_string();
-    let text = match text.rfind(" at line ") {
-        Some(at) => &text[..at],
-        None => &text,
-    };
-    let mut text = text
-        .replace("invalid type: ", "")
-        .replace("invalid value: ", "");
-    for (jargon, words) in [
-        ("usize", "a whole number (0 or more)"),
-        ("u64", "a whole number (0 or more)"),
-        ("u32", "a whole number (0 or more)"),
-        ("f64", "a number"),
-        ("a sequence", "a list [...]"),
-        ("a map", "an object {...}"),
-    ] {
-        text = text.replace(&format!("expected {jargon}"), &format!("expected {words}"));
-        text = text.replace(
-            &format!("expected struct {jargon}"),
-            &format!("expected {words}"),
-        );
-    }
-    text
-}
-
 /// Reads a notebook file: checks the schema, the study, and that every embedded file matches
 /// its SHA-256. Files the notebook only refers to (too large to embed, or an autosaved session
 /// whose files are kept apart) are filled in by [`supply_notebook_files`].
@@ -192,7 +164,7 @@ pub fn open_notebook(name: &str, bytes: &[u8]) -> Result<OpenedNotebook, Noteboo
             "this is not a ringline notebook, or it was changed by hand: line {}, column {}: {}",
             e.line(),
             e.column(),
-            json_error_words(&e)
+            crate::json_error_words(&e)
         ))
     })?;
     let mut nb = nb;

@@ -547,33 +547,64 @@ pub fn recording_settings(
         settings.track.start_site = Some(site.clone());
     }
     if let Some((file, text)) = settings_file {
-        let place = |line: usize| Place::file(file).at_line(line as u64);
-        let layer: Value = serde_json::from_str(text).map_err(|e| {
-            StudyError::new(place(e.line()), format!("expected JSON settings: {e}"))
-        })?;
-        if !layer.is_object() {
-            return Err(StudyError::new(
-                place(1),
-                "expected a JSON object of analysis settings (keys as in the report's \"settings\")",
-            ));
-        }
-        let mut merged = serde_json::to_value(&settings.analysis).unwrap_or(Value::Null);
-        let mut unknown = Vec::new();
-        lay_over(&mut merged, &layer, "", &mut unknown);
-        if !unknown.is_empty() {
-            return Err(StudyError::new(
-                place(1),
-                format!(
-                    "expected analysis settings, found keys the analysis does not have: {} (check the spelling against the report's \"settings\")",
-                    unknown.join(", ")
-                ),
-            ));
-        }
-        settings.analysis = serde_json::from_value(merged).map_err(|e| {
-            StudyError::new(place(1), format!("expected usable analysis settings: {e}"))
-        })?;
+        settings.analysis = analysis_settings_over(&settings.analysis, file, text)?;
     }
     Ok(settings)
+}
+
+/// A settings file (JSON, any subset of the report's `settings` keys) laid over `base`: the
+/// one reader of analysis settings files (`analyze --settings`, a manifest's settings
+/// column). Misspelt or unknown keys are refused by name, as scenario files refuse them, and
+/// a value of the wrong kind is named in words.
+pub fn analysis_settings_over(
+    base: &crate::fronts::AnalysisSettings,
+    file: &str,
+    text: &str,
+) -> Result<crate::fronts::AnalysisSettings, StudyError> {
+    let place = |line: usize| Place::file(file).at_line(line as u64);
+    let layer: Value = serde_json::from_str(text).map_err(|e| {
+        StudyError::new(
+            place(e.line()),
+            format!("expected JSON settings: {}", crate::json_error_words(&e)),
+        )
+    })?;
+    if !layer.is_object() {
+        return Err(StudyError::new(
+            place(1),
+            "expected a JSON object of analysis settings (keys as in the report's \"settings\")",
+        ));
+    }
+    let mut merged = serde_json::to_value(base).unwrap_or(Value::Null);
+    let mut unknown = Vec::new();
+    lay_over(&mut merged, &layer, "", &mut unknown);
+    if !unknown.is_empty() {
+        return Err(StudyError::new(
+            place(1),
+            format!(
+                "expected analysis settings, found keys the analysis does not have: {} (check the spelling against the report's \"settings\")",
+                unknown.join(", ")
+            ),
+        ));
+    }
+    // A value of the wrong kind, located at its line (the layered value has no lines).
+    if let Err(e) = serde_json::from_str::<crate::fronts::AnalysisSettings>(text) {
+        return Err(StudyError::new(
+            place(e.line()),
+            format!(
+                "expected usable analysis settings: {}",
+                crate::json_error_words(&e)
+            ),
+        ));
+    }
+    serde_json::from_value(merged).map_err(|e| {
+        StudyError::new(
+            place(1),
+            format!(
+                "expected usable analysis settings: {}",
+                crate::json_error_words(&e)
+            ),
+        )
+    })
 }
 
 /// Lays `layer` over `base` key by key; keys of `layer` that `base` lacks are collected in
