@@ -113,3 +113,85 @@ fn settings_files_with_unknown_keys_or_wrong_kinds_are_refused_by_name() {
         assert!(!String::from_utf8_lossy(&out.stderr).contains("usize"));
     }
 }
+
+/// `1e308` in an `x_mm` column became infinite after the mm-to-µm conversion and panicked in
+/// the track fit; 1e300 µm gave speeds of 300 digits. Positions beyond a kilometre are refused
+/// at their line, column and site.
+#[test]
+fn far_out_positions_are_refused_at_their_place() {
+    let dir = tempfile::tempdir().unwrap();
+    demo_copy(dir.path());
+    let layout = std::fs::read_to_string(dir.path().join("layout.csv")).unwrap();
+    for (header, far) in [("site,x_mm,y_mm", "1e308"), ("site,x_um,y_um", "1e300")] {
+        let mut lines: Vec<String> = layout.lines().map(String::from).collect();
+        lines[0] = header.into();
+        lines[3] = format!("e03,{far},0");
+        std::fs::write(dir.path().join("layout.csv"), lines.join("\n") + "\n").unwrap();
+        refused(
+            dir.path(),
+            &[],
+            &["layout.csv", "line 4", "e03", "kilometre"],
+        );
+    }
+}
+
+/// A dead time of 1e300 ms overflowed an integer and looped to 4 GB.
+#[test]
+fn a_far_out_dead_time_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let samples: Vec<u8> = (0..20_000i16)
+        .flat_map(|k| ((k % 50) - 25).to_le_bytes())
+        .collect();
+    std::fs::write(dir.path().join("v.raw"), samples).unwrap();
+    std::fs::write(
+        dir.path().join("v.json"),
+        r#"{"sample_rate_hz": 20000, "channels": 1, "sample_type": "int16", "scale_uv": 1}"#,
+    )
+    .unwrap();
+    std::fs::write(dir.path().join("layout.csv"), "site,x_um,y_um\na,0,0\n").unwrap();
+    let out = common::ringline(
+        &[
+            "analyze",
+            "v.raw",
+            "--layout",
+            "layout.csv",
+            "--dead-time-ms",
+            "1e300",
+        ],
+        dir.path(),
+    );
+    let message = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{message}");
+    assert!(message.contains("dead_time_s 0 to 1 s"), "{message}");
+}
+
+/// ROI traces at 1 ps a frame asked for an 80 TB baseline window; it is now capped at the
+/// trace's length and the analysis runs to its end.
+#[test]
+fn a_picosecond_frame_interval_does_not_size_the_baseline_window() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut traces = String::from("time_s,A,B\n");
+    for k in 0..200 {
+        traces.push_str(&format!(
+            "{:e},{},{}\n",
+            k as f64 * 1e-12,
+            1.0 + (k % 7) as f64 * 0.01,
+            1.0
+        ));
+    }
+    std::fs::write(dir.path().join("traces.csv"), traces).unwrap();
+    std::fs::write(
+        dir.path().join("rois.csv"),
+        "site,x_um,y_um\nA,0,0\nB,100,0\n",
+    )
+    .unwrap();
+    let out = common::ringline(
+        &["analyze", "traces.csv", "--layout", "rois.csv"],
+        dir.path(),
+    );
+    assert!(
+        matches!(out.status.code(), Some(0) | Some(2)),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}

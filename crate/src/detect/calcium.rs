@@ -94,7 +94,11 @@ pub fn running_percentile(f: &[f64], window: usize, percentile: f64) -> Vec<f64>
 
 /// dF/F = (F - F0) / F0 with F0 the running low percentile.
 pub fn delta_f_over_f(f: &[f64], frame_rate_hz: f64, s: &CalciumSettings) -> Vec<f64> {
-    let window = ((s.baseline_window_s * frame_rate_hz).round() as usize).max(3);
+    // Never wider than the trace (a window of 1e9 s, or a 1 ps frame interval, would
+    // otherwise ask for terabytes).
+    let window = ((s.baseline_window_s * frame_rate_hz).round() as usize)
+        .min(f.len())
+        .max(3);
     let f0 = running_percentile(f, window, s.baseline_percentile);
     f.iter()
         .zip(&f0)

@@ -220,9 +220,9 @@ pub fn detect_voltage_spikes(
         ImportError::new(Place::file(&header.file), ImportProblem::BadOption, message)
     };
     let sos = spike_filter(header, settings)?;
-    if !(settings.threshold_sd > 0.0 && settings.dead_time_s >= 0.0) {
+    if !(settings.threshold_sd > 0.0 && (0.0..=1.0).contains(&settings.dead_time_s)) {
         return Err(option_error(format!(
-            "spike threshold: expected threshold_sd above 0 and dead_time_s 0 or more, found {} and {}",
+            "spike threshold: expected threshold_sd above 0 and dead_time_s 0 to 1 s, found {} and {}",
             settings.threshold_sd, settings.dead_time_s
         )));
     }

@@ -33,8 +33,13 @@ pub struct Layout {
     pub notices: Vec<Notice>,
 }
 
+/// Farthest a site may lie from the layout's origin, µm: a kilometre, far beyond any dish,
+/// so a unit mistake or a stray number is named instead of giving speeds of 300 digits.
+pub const MAX_POSITION_UM: f64 = 1e9;
+
 /// Reads a layout from the bytes of a CSV or TSV file with columns `site, x_um, y_um`
-/// (or `x_mm`, `y_mm`; or `x`, `y` with [`LayoutOptions::length_unit`]).
+/// (or `x_mm`, `y_mm`; or `x`, `y` with [`LayoutOptions::length_unit`]). Positions beyond
+/// [`MAX_POSITION_UM`] are refused.
 ///
 /// A site listed twice is an error that names both lines. Positions must be finite.
 pub fn read_layout(
@@ -91,6 +96,17 @@ pub fn read_layout(
         seen.insert(id.to_string(), row.line);
         let x = table.number(&row, x_col, &format!("an x position in {unit_name}"))?;
         let y = table.number(&row, y_col, &format!("a y position in {unit_name}"))?;
+        for (col, v) in [(x_col, x), (y_col, y)] {
+            if (v * scale).abs() > MAX_POSITION_UM {
+                return Err(ImportError::new(
+                    table.place_column(Some(row.line), col).at_site(id),
+                    ImportProblem::BadValue,
+                    format!(
+                        "expected a position within {MAX_POSITION_UM:e} µm (a kilometre) of the origin, found {v} {unit_name}"
+                    ),
+                ));
+            }
+        }
         sites.push(Site {
             id: id.to_string(),
             x_um: x * scale,
