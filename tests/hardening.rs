@@ -195,3 +195,91 @@ fn a_picosecond_frame_interval_does_not_size_the_baseline_window() {
         String::from_utf8_lossy(&out.stderr)
     );
 }
+
+/// A mono 16-bit PCM WAV of `n` samples at 20 kHz (RIFF header by hand, per the WAVE format
+/// of the Microsoft Multimedia Programming Interface 1.0, 1991).
+fn wav(n: usize) -> Vec<u8> {
+    let data: Vec<u8> = (0..n as i32)
+        .flat_map(|k| (((k % 40) - 20) as i16).to_le_bytes())
+        .collect();
+    let mut out = Vec::new();
+    out.extend(b"RIFF");
+    out.extend(&(36 + data.len() as u32).to_le_bytes());
+    out.extend(b"WAVEfmt ");
+    out.extend(&16u32.to_le_bytes());
+    out.extend(&1u16.to_le_bytes()); // PCM
+    out.extend(&1u16.to_le_bytes()); // one channel
+    out.extend(&20_000u32.to_le_bytes());
+    out.extend(&40_000u32.to_le_bytes());
+    out.extend(&2u16.to_le_bytes());
+    out.extend(&16u16.to_le_bytes());
+    out.extend(b"data");
+    out.extend(&(data.len() as u32).to_le_bytes());
+    out.extend(data);
+    out
+}
+
+/// `--uv-per-unit` 0 or NaN made every electrode flat, and -1 turned the spikes over, all with
+/// exit 0; duplicate `channel_sites` in a sidecar silently dropped channels while the report
+/// called them usable. Each is refused, naming the option or key.
+#[test]
+fn voltage_scales_and_channel_sites_that_make_no_sense_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("v.wav"), wav(40_000)).unwrap();
+    std::fs::write(
+        dir.path().join("layout.csv"),
+        "site,x_um,y_um\na,0,0\nb,100,0\n",
+    )
+    .unwrap();
+    for scale in ["0", "NaN", "-1"] {
+        let out = common::ringline(
+            &[
+                "analyze",
+                "v.wav",
+                "--layout",
+                "layout.csv",
+                &format!("--uv-per-unit={scale}"),
+            ],
+            dir.path(),
+        );
+        let message = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{scale}: {message}");
+        assert!(
+            message.contains("--uv-per-unit") && message.contains("v.wav"),
+            "{message}"
+        );
+    }
+    let samples: Vec<u8> = (0..40_000i32)
+        .flat_map(|k| (((k % 40) - 20) as i16).to_le_bytes())
+        .collect();
+    std::fs::write(dir.path().join("r.raw"), samples).unwrap();
+    std::fs::write(
+        dir.path().join("r.json"),
+        r#"{"sample_rate_hz": 20000, "channels": 2, "sample_type": "int16", "scale_uv": 1, "channel_sites": ["a", "a"]}"#,
+    )
+    .unwrap();
+    let out = common::ringline(&["analyze", "r.raw", "--layout", "layout.csv"], dir.path());
+    let message = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{message}");
+    assert!(
+        message.contains("r.json") && message.contains("channels 1 and 2"),
+        "{message}"
+    );
+}
+
+/// `edge_fraction: -1e308` turned 34 bursts into 1 with exit 0.
+#[test]
+fn an_edge_fraction_outside_its_range_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    demo_copy(dir.path());
+    std::fs::write(
+        dir.path().join("s.json"),
+        r#"{"bursts": {"population_rate": {"edge_fraction": -1e308}}}"#,
+    )
+    .unwrap();
+    refused(
+        dir.path(),
+        &["--settings", "s.json"],
+        &["edge_fraction", "below 1"],
+    );
+}

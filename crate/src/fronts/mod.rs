@@ -449,6 +449,12 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
             p.bin_s
         ));
     }
+    if !(0.0..1.0).contains(&s.bursts.population_rate.edge_fraction) {
+        return bad(format!(
+            "bursts.population_rate.edge_fraction: expected 0 or more and below 1 (the share of the way from the baseline to the threshold), found {}",
+            s.bursts.population_rate.edge_fraction
+        ));
+    }
     if !(0.0..=1.0).contains(&s.bursts.min_site_fraction) {
         return bad(format!(
             "bursts.min_site_fraction: expected 0 to 1, found {}",

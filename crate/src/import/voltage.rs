@@ -145,6 +145,21 @@ pub fn read_sidecar(
                 ),
             ));
         }
+        // Two channels on one site would leave one of them out of the recording.
+        let mut seen = std::collections::HashMap::new();
+        for (k, site) in sites.iter().enumerate() {
+            if let Some(first) = seen.insert(site.as_str(), k) {
+                return Err(bad(
+                    place(),
+                    ImportProblem::BadValue,
+                    format!(
+                        "channel_sites: expected a different site for every channel, found {site} for channels {} and {}",
+                        first + 1,
+                        k + 1
+                    ),
+                ));
+            }
+        }
     }
     let frame = (s.channels * s.sample_type.bytes()) as u64;
     if data_len % frame != 0 {
@@ -419,6 +434,15 @@ pub fn read_voltage_header(
     wav_uv_per_unit: f64,
 ) -> Result<VoltageHeader, ImportError> {
     if looks_like_wav(head) {
+        if !(wav_uv_per_unit.is_finite() && wav_uv_per_unit > 0.0) {
+            return Err(ImportError::new(
+                Place::file(name),
+                ImportProblem::BadOption,
+                format!(
+                    "expected a WAV scale (--uv-per-unit) above 0 microvolts per unit, found {wav_uv_per_unit}: 0 or NaN would make every electrode flat, and a negative scale would turn spikes over"
+                ),
+            ));
+        }
         return read_wav_header(name, head, len, wav_uv_per_unit);
     }
     match sidecar {
