@@ -661,23 +661,81 @@ fn largest_gap(points: &[[f64; 2]], centre: [f64; 2]) -> (f64, f64, f64) {
 }
 
 /// Median over sites of the distance to the nearest other site at a different position
-/// (micrometres); `None` when no two sites differ in position. O(n^2), fine for the few
-/// hundred sites of an array or an imaging field.
+/// (micrometres); `None` when no two sites differ in position. Each site's neighbour is found
+/// on a grid of about one site per cell, searched ring by ring outwards until no closer site
+/// can remain: about linear in the sites (20,000 sites took 10 s with the all-pairs search).
 pub fn median_nearest_neighbour(points: &[[f64; 2]]) -> Option<f64> {
-    let mut nearest: Vec<f64> = points
-        .iter()
-        .enumerate()
-        .filter_map(|(i, p)| {
-            points
-                .iter()
-                .enumerate()
-                .filter(|(j, _)| *j != i)
-                .map(|(_, q)| libm::hypot(p[0] - q[0], p[1] - q[1]))
-                .filter(|&d| d > 0.0)
-                .reduce(f64::min)
-        })
+    let mut nearest: Vec<f64> = nearest_neighbour_distances(points)
+        .into_iter()
+        .flatten()
         .collect();
     median(&mut nearest)
+}
+
+/// Each point's distance to its nearest point at a different position (`None` when all
+/// share its position), by a grid search.
+pub(crate) fn nearest_neighbour_distances(points: &[[f64; 2]]) -> Vec<Option<f64>> {
+    let finite = |p: &&[f64; 2]| p[0].is_finite() && p[1].is_finite();
+    let (mut x0, mut y0, mut x1, mut y1) = (
+        f64::INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::NEG_INFINITY,
+    );
+    for p in points.iter().filter(finite) {
+        x0 = x0.min(p[0]);
+        y0 = y0.min(p[1]);
+        x1 = x1.max(p[0]);
+        y1 = y1.max(p[1]);
+    }
+    let extent = (x1 - x0).max(y1 - y0);
+    if points.len() < 2 || extent.is_nan() || extent <= 0.0 {
+        return vec![None; points.len()];
+    }
+    let cell = extent / (points.len() as f64).sqrt().ceil();
+    let side = ((extent / cell).floor() as i64 + 1).max(1);
+    let key = |p: &[f64; 2]| {
+        (
+            (((p[0] - x0) / cell).floor() as i64).clamp(0, side - 1),
+            (((p[1] - y0) / cell).floor() as i64).clamp(0, side - 1),
+        )
+    };
+    let mut grid: std::collections::HashMap<(i64, i64), Vec<usize>> =
+        std::collections::HashMap::new();
+    for (i, p) in points.iter().enumerate().filter(|(_, p)| finite(p)) {
+        grid.entry(key(p)).or_default().push(i);
+    }
+    points
+        .iter()
+        .map(|p| {
+            if !finite(&p) {
+                return None;
+            }
+            let (cx, cy) = key(p);
+            let mut best = f64::INFINITY;
+            for r in 0..=side {
+                // Every point in ring r or beyond is at least r - 1 whole cells away.
+                if r >= 1 && best <= (r - 1) as f64 * cell {
+                    break;
+                }
+                for gx in cx - r..=cx + r {
+                    for gy in cy - r..=cy + r {
+                        if (gx - cx).abs() != r && (gy - cy).abs() != r {
+                            continue; // inside the ring: already searched
+                        }
+                        for &j in grid.get(&(gx, gy)).map_or(&[][..], Vec::as_slice) {
+                            let q = points[j];
+                            let d = libm::hypot(p[0] - q[0], p[1] - q[1]);
+                            if d > 0.0 && d < best {
+                                best = d;
+                            }
+                        }
+                    }
+                }
+            }
+            best.is_finite().then_some(best)
+        })
+        .collect()
 }
 
 fn median(values: &mut [f64]) -> Option<f64> {
@@ -726,4 +784,53 @@ fn min_max(values: &[f64]) -> (f64, f64) {
 fn span(values: &[f64]) -> f64 {
     let (lo, hi) = min_max(values);
     hi - lo
+}
+
+#[cfg(test)]
+mod nearest_tests {
+    use super::nearest_neighbour_distances;
+    use rand::{Rng, SeedableRng};
+
+    /// The all-pairs search, the reference.
+    fn brute(points: &[[f64; 2]]) -> Vec<Option<f64>> {
+        points
+            .iter()
+            .enumerate()
+            .map(|(i, p)| {
+                points
+                    .iter()
+                    .enumerate()
+                    .filter(|(j, _)| *j != i)
+                    .map(|(_, q)| libm::hypot(p[0] - q[0], p[1] - q[1]))
+                    .filter(|&d| d > 0.0)
+                    .reduce(f64::min)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn the_grid_search_equals_the_all_pairs_search() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(17);
+        for case in 0..40 {
+            let n = 2 + case * 7;
+            let mut points: Vec<[f64; 2]> = (0..n)
+                .map(|_| [rng.random::<f64>() * 3000.0, rng.random::<f64>() * 300.0])
+                .collect();
+            match case % 4 {
+                1 => points.iter_mut().for_each(|p| p[0] = 100.0), // a vertical line
+                2 => points[0] = points[1],                        // a coincident pair
+                3 => points.push([1e6, -1e6]),                     // one far away
+                _ => {}
+            }
+            assert_eq!(
+                nearest_neighbour_distances(&points),
+                brute(&points),
+                "case {case}"
+            );
+        }
+        assert_eq!(
+            nearest_neighbour_distances(&[[1.0, 1.0], [1.0, 1.0]]),
+            vec![None, None]
+        );
+    }
 }
