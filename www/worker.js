@@ -9,6 +9,7 @@ const loadCore = () => init({ module_or_path: new URL('./pkg/ringline_bg.wasm', 
 
 let workbook = null;
 let voltageFile = null; // the raw voltage File the open workbook's spikes came from
+let voltageHashed = false; // its SHA-256 is in the workbook (read once, not per report)
 
 function reply(id, value) {
   postMessage({ id, ok: true, value });
@@ -113,6 +114,7 @@ const ops = {
     );
     workbook = opened.takeWorkbook();
     voltageFile = file;
+    voltageHashed = false;
     const electrodes = opened.electrodes();
     opened.free();
     return { inspection: workbook.inspection(), settings: workbook.settings(), electrodes };
@@ -136,8 +138,8 @@ const ops = {
   words: ({ burst }) => need().words(burst ?? 0),
   reportHtml: (_, id) => {
     const book = need();
-    if (voltageFile) {
-      // The report names the voltage file by its SHA-256: read it in 8 MiB pieces.
+    if (voltageFile && !voltageHashed) {
+      // The report names the voltage file by its SHA-256: read it in 8 MiB pieces, once.
       const reader = new FileReaderSync();
       const hash = new core.Sha256Stream();
       const piece = 8 << 20;
@@ -147,6 +149,7 @@ const ops = {
       }
       book.setVoltageSha256(hash.finish());
       hash.free();
+      voltageHashed = true;
     }
     return book.reportHtml();
   },

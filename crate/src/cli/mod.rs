@@ -799,9 +799,7 @@ fn analyze(args: &AnalyzeArgs) -> Result<(), Failure> {
                     )
                 },
             )?;
-            if crate::import::classify_input(&args.recording, &read_head(&args.recording)?)
-                .is_voltage()
-            {
+            if workbook.voltage_header().is_some() {
                 workbook.set_voltage_sha256(sha256_of_path(&args.recording)?);
             }
             let document = workbook
@@ -880,21 +878,6 @@ fn analyze_paths(
         wav_uv_per_unit,
         &mut |file, layout, stimuli| crate::analyze_file(file, layout, stimuli, settings, progress),
     )
-}
-
-/// The first 64 KiB of a file (what tells its kind).
-fn read_head(path: &str) -> Result<Vec<u8>, Failure> {
-    use std::io::Read;
-    let fail = |e: std::io::Error| {
-        ImportError::new(Place::file(path), ImportProblem::BadOption, io_words(&e))
-    };
-    let mut head = Vec::new();
-    std::fs::File::open(path)
-        .map_err(fail)?
-        .take(65_536)
-        .read_to_end(&mut head)
-        .map_err(fail)?;
-    Ok(head)
 }
 
 /// SHA-256 of a file, read in 1 MiB pieces (raw voltage can be gigabytes).
