@@ -23,7 +23,10 @@ fn demo_recordings_regenerate_byte_for_byte() {
             Scenario::Fronts(s) => s.name.clone(),
             Scenario::Network(s) => s.name.clone(),
         };
-        for (name, content) in simulation_files(&scenario, &mut |_, _, _| {}).unwrap() {
+        for (name, content) in simulation_files(&scenario, &mut |_, _, _| {})
+            .unwrap()
+            .files
+        {
             let committed =
                 std::fs::read(demo_dir().join(&folder).join(&name)).unwrap_or_else(|_| {
                     panic!("{folder}/{name} is missing; run scripts/make-demo-data")

@@ -330,3 +330,185 @@ fn wide_headers_and_many_sites_are_read_in_linear_time() {
     );
     assert!(text.contains("50000"), "{text}");
 }
+
+/// `ringline simulate scenario.json` with one field of the demo's network strip replaced
+/// (a JSON pointer and its value) must be refused: exit 2, every word of `expect` in the
+/// message, and no output folder.
+fn scenario_refused(edits: &[(&str, serde_json::Value)], expect: &[&str]) {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../demo-data/scenarios");
+    let text = std::fs::read_to_string(root.join("network-strip-16.json")).unwrap();
+    let mut scenario: serde_json::Value = serde_json::from_str(&text).unwrap();
+    for (pointer, value) in edits {
+        let (parent, key) = pointer.rsplit_once('/').unwrap();
+        let parent = if parent.is_empty() {
+            &mut scenario
+        } else {
+            scenario.pointer_mut(parent).unwrap()
+        };
+        parent[key] = value.clone();
+    }
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("s.json"), scenario.to_string()).unwrap();
+    let out = common::ringline(&["simulate", "s.json", "--out", "out"], dir.path());
+    let message = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{edits:?}: {message}");
+    for word in expect {
+        assert!(
+            message.contains(word),
+            "{edits:?}: '{word}' not in: {message}"
+        );
+    }
+    assert!(
+        !dir.path().join("out").exists(),
+        "something was written to --out"
+    );
+}
+
+/// The simulator's crashes and endless runs (issue 17): 10^9 electrodes, imaging at 1e300
+/// frames/s, voltage at 1e12 samples/s, a footprint of 1e-300 µm, a chain past the neuron
+/// cap, a noise rate of 1e12 Hz and a duration of 1e12 s; and values that make no physical
+/// sense (a negative in-degree or refractory period, more inputs than other neurons).
+#[test]
+fn network_scenarios_beyond_a_machine_or_physics_are_refused_by_field() {
+    use serde_json::json;
+    scenario_refused(
+        &[("/electrodes/layout/count", json!(1_000_000_000u64))],
+        &["electrodes.layout", "100000 electrodes", "1000000000"],
+    );
+    scenario_refused(
+        &[("/imaging/frame_rate_hz", json!(1e300))],
+        &["imaging", "200000000"],
+    );
+    scenario_refused(
+        &[("/electrodes/sampling_rate_hz", json!(1e12))],
+        &["electrodes.sampling_rate_hz", "10000000000 Hz"],
+    );
+    scenario_refused(
+        &[
+            ("/electrodes/sampling_rate_hz", json!(1e6)),
+            (
+                "/electrodes/voltage",
+                json!({"noise_uv": 5.0, "spike_uv": 80.0}),
+            ),
+        ],
+        &["electrodes.voltage", "1.920e9 samples", "200000000"],
+    );
+    scenario_refused(
+        &[("/connectivity/sigma_um", json!(1e-300))],
+        &["connectivity.sigma_um", "at least 1 µm"],
+    );
+    scenario_refused(
+        &[(
+            "/pattern",
+            json!({"shape": "chain", "length_um": 900000.0, "spacing_um": 0.1}),
+        )],
+        &["9000001 neurons", "2 million"],
+    );
+    scenario_refused(
+        &[("/noise/rate_hz", json!(1e12))],
+        &["noise.rate_hz", "2000000000"],
+    );
+    scenario_refused(&[("/duration_s", json!(1e12))], &["duration_s", "86400 s"]);
+    scenario_refused(
+        &[("/connectivity/mean_in_degree", json!(-5.0))],
+        &["connectivity.mean_in_degree", "-5"],
+    );
+    scenario_refused(
+        &[("/neuron/refractory_s", json!(-0.001))],
+        &["neuron.refractory_s", "-0.001"],
+    );
+    scenario_refused(
+        &[
+            ("/pattern/length_um", json!(1000.0)),
+            ("/pattern/width_um", json!(400.0)),
+            ("/connectivity/mean_in_degree", json!(10_000.0)),
+            ("/electrodes/layout/pitch_um", json!(50.0)),
+        ],
+        &[
+            "at most one input from each of the other 599 neurons",
+            "10000",
+        ],
+    );
+    scenario_refused(
+        &[
+            ("/pattern/width_um", json!(-300.0)),
+            ("/pattern/length_um", json!(-6000.0)),
+        ],
+        &["pattern.length_um", "-6000"],
+    );
+    scenario_refused(
+        &[("/synaptic_delay_s", json!(1e-300))],
+        &["synaptic_delay_s", "0.00001 s"],
+    );
+    scenario_refused(
+        &[("/axon_speed_mm_s", json!(1e-9))],
+        &["axon_speed_mm_s", "faster axon"],
+    );
+}
+
+/// A kinematic scenario sampled at 1e-300 Hz wrote every spike at 0.00 ms; one running for
+/// 1e12 s drew bursts without end.
+#[test]
+fn kinematic_scenarios_with_a_sampling_rate_or_length_beyond_sense_are_refused() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../demo-data/scenarios");
+    let text = std::fs::read_to_string(root.join("strip-16.json")).unwrap();
+    for (field, value, expect) in [
+        ("sampling_rate_hz", 1e-300, "100 Hz to 10000000000 Hz"),
+        ("duration_s", 1e12, "bursts"),
+    ] {
+        let mut scenario: serde_json::Value = serde_json::from_str(&text).unwrap();
+        scenario[field] = serde_json::json!(value);
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("s.json"), scenario.to_string()).unwrap();
+        let out = common::ringline(&["simulate", "s.json", "--out", "out"], dir.path());
+        let message = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{message}");
+        assert!(
+            message.contains(field) || message.contains(expect),
+            "{message}"
+        );
+        assert!(message.contains(expect), "'{expect}' not in: {message}");
+        assert!(!dir.path().join("out").exists());
+    }
+}
+
+/// A mean in-degree the culture cannot hold within the footprint's reach (800 inputs where a
+/// neuron has about 500 neighbours within 4 sigma) used to be realised as a fraction of it with no
+/// word. The run goes on, and says so: on stderr and in truth.json, with the realised value.
+#[test]
+fn an_in_degree_beyond_the_footprint_is_a_notice_with_the_realised_value() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = common::ringline(
+        &[
+            "simulate",
+            "--pattern",
+            "strip",
+            "--length-um",
+            "2000",
+            "--in-degree",
+            "800",
+            "--duration",
+            "0.5",
+            "--out",
+            "out",
+        ],
+        dir.path(),
+    );
+    let message = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{message}");
+    let truth: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out/truth.json")).unwrap())
+            .unwrap();
+    let realised = truth["graph"]["mean_in_degree"].as_f64().unwrap();
+    assert!(realised < 720.0, "realised {realised}");
+    let notice = truth["notices"][0].as_str().unwrap();
+    assert!(
+        notice.contains(&format!("mean in-degree of {realised:.1}")),
+        "{notice}"
+    );
+    assert!(notice.contains("800 asked for"), "{notice}");
+    assert!(
+        message.contains(notice),
+        "the notice is not on stderr: {message}"
+    );
+}

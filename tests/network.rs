@@ -51,6 +51,7 @@ fn isolated_lif_rate_matches_the_closed_form() {
             neuron: &neuron,
             synapse: &synapse,
             noise: &noise,
+            most_spikes: usize::MAX,
         };
         let run = integrate(
             &net,
@@ -144,6 +145,7 @@ fn chain_front_speed_matches_the_threshold_condition() {
             neuron: &neuron,
             synapse: &synapse,
             noise: &noise,
+            most_spikes: usize::MAX,
         };
         // Start: the first 10 sigma fire at t = 0.
         let forced: Vec<(u32, f64)> = (0..n)
@@ -390,6 +392,7 @@ fn noise_driven_rate_converges_to_siegert() {
                 neuron: &neuron,
                 synapse: &synapse,
                 noise: &noise,
+                most_spikes: usize::MAX,
             };
             let run = integrate(&net, duration, &[], &mut ChaCha8Rng::seed_from_u64(7), &mut |_| {});
             let measured = run.spikes.len() as f64 / (n as f64 * duration);

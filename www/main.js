@@ -432,7 +432,8 @@ async function simulateCulture(event) {
     });
     state.simulated = Object.fromEntries(files);
     const truth = JSON.parse(state.simulated['truth.json']);
-    $('sim-result-text').textContent = `Simulated ${truth.neurons} neurons for ${truth.scenario.duration_s} s: ${truth.spikes} spikes, ${truth.bursts.length} bursts.`;
+    $('sim-result-text').textContent = [`Simulated ${truth.neurons} neurons for ${truth.scenario.duration_s} s: ${truth.spikes} spikes, ${truth.bursts.length} bursts.`,
+      ...(truth.notices ?? []).map((n) => `Notice: ${n}.`)].join(' ');
     $('sim-result').hidden = false;
     const make = (name) => new File([state.simulated[name]], name, { type: 'text/csv' });
     await addFiles([make('spikes.csv'), make('layout.csv')]);

@@ -789,9 +789,9 @@ pub fn simulate(
     let scenario = crate::simulate::parse_scenario(scenario_json)
         .map_err(|e| plain_error(format!("scenario: {e}")))?;
     let mut report = staged_progress_fn(&progress);
-    let files = crate::simulate::simulation_files(&scenario, &mut report)
+    let output = crate::simulate::simulation_files(&scenario, &mut report)
         .map_err(|e| plain_error(format!("scenario: {e}")))?;
-    text_files(files)
+    text_files(output.files)
 }
 
 /// `ringline simulate` with culture options instead of a scenario file (an object with the
@@ -807,9 +807,9 @@ pub fn simulate_culture(
     let options: crate::simulate::network::CultureOptions = serde_wasm_bindgen::from_value(options)
         .map_err(|e| plain_error(format!("culture options: {e}")))?;
     let mut report = staged_progress_fn(&progress);
-    let files = crate::simulate::culture_files(&options, &mut report)
+    let output = crate::simulate::culture_files(&options, &mut report)
         .map_err(|e| plain_error(format!("culture options: {e}")))?;
-    text_files(files)
+    text_files(output.files)
 }
 
 /// The text files among `files`, as `[[name, content], ...]` for JavaScript.

@@ -409,7 +409,7 @@ pub fn simulate_strip(
         .expect("the scenario simulates");
     let folder = dir.join(name);
     std::fs::create_dir_all(&folder).expect("a folder");
-    for (file, bytes) in files {
+    for (file, bytes) in files.files {
         std::fs::write(folder.join(file), bytes).expect("a file");
     }
 }

@@ -1090,7 +1090,7 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
             eprint!("\r{stage}: {done:.0} of {total:.0} s simulated   ");
         }
     };
-    let files = match &scenario {
+    let output = match &scenario {
         Source::File(s) => crate::simulate::simulation_files(s, &mut progress),
         Source::Options(o) => crate::simulate::culture_files(o, &mut progress),
     }
@@ -1098,6 +1098,10 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     if show {
         eprintln!();
     }
+    for notice in &output.notices {
+        eprintln!("notice: {notice}");
+    }
+    let files = output.files;
     let out = std::path::Path::new(&args.out);
     std::fs::create_dir_all(out).map_err(Failure::Output)?;
     for (name, content) in files {

@@ -155,16 +155,42 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
             return Err(format!("{name}: expected a number of 0 or more, found {v}"));
         }
     }
+    // Upper ends that keep every drawn time finite (a limit we chose, no source).
+    for (name, v, most) in [
+        ("speed_mm_s", s.speed_mm_s, 1e6),
+        ("speed_cv", s.speed_cv, 10.0),
+        ("activation_jitter_s", s.activation_jitter_s, 1e3),
+        ("burst_spread_s", s.burst_spread_s, 1e3),
+        ("extra_interval_s", s.extra_interval_s, 1e6),
+    ] {
+        if v > most {
+            return Err(format!("{name}: expected at most {most}, found {v}"));
+        }
+    }
     if !(0.0..=1.0).contains(&s.failure_probability) {
         return Err(format!(
             "failure_probability: expected 0 to 1, found {}",
             s.failure_probability
         ));
     }
+    s.electrodes.check("electrodes")?;
+    check_sampling_rate("sampling_rate_hz", s.sampling_rate_hz)?;
     let count = electrode_count(&s.electrodes);
-    if !(2..=100_000).contains(&count) {
+    if count < 2 {
         return Err(format!(
-            "electrodes: expected 2 to 100000 electrodes, found {count}"
+            "electrodes: expected 2 to {MAX_SIMULATED_ELECTRODES} electrodes, found {count}"
+        ));
+    }
+    if s.position_jitter_um > MAX_SIMULATED_EXTENT_UM {
+        return Err(format!(
+            "position_jitter_um: expected at most {MAX_SIMULATED_EXTENT_UM:.0} µm, found {}",
+            s.position_jitter_um
+        ));
+    }
+    let bursts = s.duration_s / s.min_interval_s;
+    if bursts > MAX_SIMULATED_BURSTS {
+        return Err(format!(
+            "the scenario would draw up to {bursts:.3e} bursts (duration_s / min_interval_s), more than the limit of {MAX_SIMULATED_BURSTS:.0}"
         ));
     }
     if let Some(&bad) = s.dead_electrodes.iter().find(|&&i| i >= count) {
@@ -180,6 +206,85 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
     }
     Ok(())
 }
+
+/// Most electrodes a simulated layout may have (the largest arrays hold a few thousand; a
+/// limit we chose, common practice, no source).
+pub const MAX_SIMULATED_ELECTRODES: usize = 100_000;
+
+/// Furthest a simulated position may lie from the origin, micrometres (1 m: far beyond any
+/// dish; it keeps every distance finite and printable).
+pub const MAX_SIMULATED_EXTENT_UM: f64 = 1e6;
+
+/// Slowest and fastest spike sampling rates a simulation takes, Hz: below 100 Hz spike times
+/// would be rounded by more than a burst's spread (common practice, no source); up to 10 GHz
+/// (a 0.1 ns quantum, for checks that want times almost unrounded), beyond which a day's
+/// times no longer round exactly in double precision.
+pub const SIMULATED_SAMPLING_RANGE_HZ: (f64, f64) = (100.0, 1e10);
+
+impl ElectrodeLayout {
+    /// How many electrodes the layout holds (saturating).
+    pub fn count(&self) -> usize {
+        electrode_count(self)
+    }
+
+    /// Checks the layout's numbers; `field` names it in the message (`electrodes`,
+    /// `electrodes.layout`).
+    pub fn check(&self, field: &str) -> Result<(), String> {
+        let count = electrode_count(self);
+        if !(1..=MAX_SIMULATED_ELECTRODES).contains(&count) {
+            return Err(format!(
+                "{field}: expected 1 to {MAX_SIMULATED_ELECTRODES} electrodes, found {count}"
+            ));
+        }
+        let (name, length, reach) = match *self {
+            ElectrodeLayout::Row {
+                count, pitch_um, ..
+            } => ("pitch_um", pitch_um, pitch_um * count as f64),
+            ElectrodeLayout::Circle { radius_um, .. } => ("radius_um", radius_um, radius_um),
+            ElectrodeLayout::Grid {
+                rows,
+                columns,
+                pitch_um,
+            } => (
+                "pitch_um",
+                pitch_um,
+                pitch_um * rows.max(columns) as f64 * std::f64::consts::SQRT_2,
+            ),
+        };
+        if !(length.is_finite() && length > 0.0) {
+            return Err(format!(
+                "{field}.{name}: expected a length above 0 µm, found {length}"
+            ));
+        }
+        if reach > MAX_SIMULATED_EXTENT_UM {
+            return Err(format!(
+                "{field}: the electrodes would reach {reach:.3e} µm from the first, more than the limit of {MAX_SIMULATED_EXTENT_UM:.0} µm (1 m)"
+            ));
+        }
+        if let ElectrodeLayout::Row { angle_deg, .. } = self {
+            if !angle_deg.is_finite() {
+                return Err(format!(
+                    "{field}.angle_deg: expected a finite angle, found {angle_deg}"
+                ));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Checks a spike sampling rate against [`SIMULATED_SAMPLING_RANGE_HZ`].
+pub fn check_sampling_rate(field: &str, rate_hz: f64) -> Result<(), String> {
+    let (lo, hi) = SIMULATED_SAMPLING_RANGE_HZ;
+    if !(rate_hz >= lo && rate_hz <= hi) {
+        return Err(format!(
+            "{field}: expected a sampling rate of {lo:.0} Hz to {hi:.0} Hz, found {rate_hz} Hz"
+        ));
+    }
+    Ok(())
+}
+
+/// Most bursts a kinematic scenario may draw (duration over the shortest interval).
+pub const MAX_SIMULATED_BURSTS: f64 = 1e7;
 
 fn electrode_count(layout: &ElectrodeLayout) -> usize {
     match layout {

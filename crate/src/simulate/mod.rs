@@ -48,6 +48,14 @@ pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
     })
 }
 
+/// What a simulation gives: its files, as (file name, content), and the notices of what it
+/// could not do as asked (also in `truth.json`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SimulationOutput {
+    pub files: Vec<(String, Vec<u8>)>,
+    pub notices: Vec<String>,
+}
+
 /// The files a simulation writes, as (file name, content): `spikes.csv` (times in ms with
 /// two decimals, i.e. a 10 us quantum) and `layout.csv` for electrodes, with `voltage.raw`
 /// and `voltage.json` when the electrodes write voltage; `traces.csv` and `roi_layout.csv`
@@ -55,7 +63,7 @@ pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
 pub fn simulation_files(
     scenario: &Scenario,
     progress: &mut dyn FnMut(&str, f64, f64),
-) -> Result<Vec<(String, Vec<u8>)>, String> {
+) -> Result<SimulationOutput, String> {
     match scenario {
         Scenario::Network(s) => {
             let rec = network::simulate_network(s, progress)?;
@@ -106,12 +114,15 @@ pub fn simulation_files(
             }
             let truth = serde_json::to_string_pretty(&rec.truth).map_err(|e| e.to_string())? + "\n";
             files.push(("truth.json".to_string(), truth.into_bytes()));
-            Ok(files)
+            Ok(SimulationOutput {
+                files,
+                notices: rec.truth.notices,
+            })
         }
         Scenario::Fronts(s) => {
             let sim = simulate_fronts(s)?;
             let truth = serde_json::to_string_pretty(&sim.truth).map_err(|e| e.to_string())? + "\n";
-            Ok(vec![
+            let files = vec![
                 (
                     "spikes.csv".into(),
                     crate::import::write_spike_list_as(
@@ -126,7 +137,11 @@ pub fn simulation_files(
                     crate::import::write_layout(&sim.sites).into_bytes(),
                 ),
                 ("truth.json".into(), truth.into_bytes()),
-            ])
+            ];
+            Ok(SimulationOutput {
+                files,
+                notices: Vec::new(),
+            })
         }
     }
 }
@@ -137,10 +152,12 @@ pub fn simulation_files(
 pub fn culture_files(
     options: &network::CultureOptions,
     progress: &mut dyn FnMut(&str, f64, f64),
-) -> Result<Vec<(String, Vec<u8>)>, String> {
+) -> Result<SimulationOutput, String> {
     let scenario = Scenario::Network(Box::new(network::scenario_from_options(options)?));
-    let mut files = simulation_files(&scenario, progress)?;
+    let mut output = simulation_files(&scenario, progress)?;
     let text = serde_json::to_string_pretty(&scenario).map_err(|e| e.to_string())? + "\n";
-    files.push(("scenario.json".to_string(), text.into_bytes()));
-    Ok(files)
+    output
+        .files
+        .push(("scenario.json".to_string(), text.into_bytes()));
+    Ok(output)
 }

@@ -53,6 +53,124 @@ impl Pattern {
         um2 / 1e6
     }
 
+    /// Checks the pattern's lengths: finite, above 0 (a chain's length 0 or more) and no
+    /// point further than [`crate::simulate::fronts::MAX_SIMULATED_EXTENT_UM`] from the
+    /// origin. The message names the field.
+    pub fn check(&self) -> Result<(), String> {
+        use crate::simulate::fronts::MAX_SIMULATED_EXTENT_UM as MOST;
+        let positive = |name: &str, v: f64| -> Result<(), String> {
+            if !(v.is_finite() && v > 0.0) {
+                return Err(format!(
+                    "pattern.{name}: expected a length above 0 µm, found {v}"
+                ));
+            }
+            if v > MOST {
+                return Err(format!(
+                    "pattern.{name}: expected at most {MOST:.0} µm (1 m), found {v}"
+                ));
+            }
+            Ok(())
+        };
+        match self {
+            Pattern::Strip {
+                length_um,
+                width_um,
+            } => {
+                positive("length_um", *length_um)?;
+                positive("width_um", *width_um)
+            }
+            Pattern::Annulus {
+                radius_um,
+                width_um,
+            } => {
+                positive("radius_um", *radius_um)?;
+                positive("width_um", *width_um)?;
+                if width_um > &(2.0 * radius_um) {
+                    return Err(format!(
+                        "pattern.width_um: a ring {width_um} µm wide cannot have a mid-radius of {radius_um} µm (at most twice the radius)"
+                    ));
+                }
+                Ok(())
+            }
+            Pattern::PolylineStrip {
+                waypoints_um,
+                width_um,
+            } => {
+                positive("width_um", *width_um)?;
+                if waypoints_um.len() < 2 || waypoints_um.len() > 10_000 {
+                    return Err(format!(
+                        "pattern.waypoints_um: expected 2 to 10000 waypoints, found {}",
+                        waypoints_um.len()
+                    ));
+                }
+                if let Some((i, w)) = waypoints_um
+                    .iter()
+                    .enumerate()
+                    .find(|(_, w)| !w.iter().all(|v| v.is_finite() && v.abs() <= MOST))
+                {
+                    return Err(format!(
+                        "pattern.waypoints_um: waypoint {} ({}, {}) is not a position within {MOST:.0} µm of the origin",
+                        i + 1,
+                        w[0],
+                        w[1]
+                    ));
+                }
+                positive(
+                    "waypoints_um (length)",
+                    crate::geometry::polyline_length_um(waypoints_um),
+                )
+            }
+            Pattern::Rectangle {
+                width_um,
+                height_um,
+            } => {
+                positive("width_um", *width_um)?;
+                positive("height_um", *height_um)
+            }
+            Pattern::Disk { radius_um } => positive("radius_um", *radius_um),
+            Pattern::Chain {
+                length_um,
+                spacing_um,
+            } => {
+                positive("spacing_um", *spacing_um)?;
+                if !(length_um.is_finite() && *length_um >= 0.0 && *length_um <= MOST) {
+                    return Err(format!(
+                        "pattern.length_um: expected 0 to {MOST:.0} µm, found {length_um}"
+                    ));
+                }
+                Ok(())
+            }
+        }
+    }
+
+    /// How many neurons the pattern holds at `density_per_mm2` (a chain: one per spacing,
+    /// whatever the density). Checked patterns only.
+    pub fn neuron_count(&self, density_per_mm2: f64) -> f64 {
+        match self {
+            Pattern::Chain {
+                length_um,
+                spacing_um,
+            } => (length_um / spacing_um).floor() + 1.0,
+            _ => density_per_mm2 * self.area_mm2(),
+        }
+    }
+
+    /// About how many other neurons lie within `reach_um` of a neuron (the candidates the
+    /// wiring visits), at `density_per_mm2`. Checked patterns only.
+    pub fn neighbours_within(&self, density_per_mm2: f64, reach_um: f64) -> f64 {
+        let n = self.neuron_count(density_per_mm2);
+        let near = match self {
+            Pattern::Chain { spacing_um, .. } => 2.0 * reach_um / spacing_um,
+            _ => density_per_mm2 / 1e6 * std::f64::consts::PI * reach_um * reach_um,
+        };
+        near.min(n - 1.0).max(0.0)
+    }
+
+    /// The pattern's bounding box, µm: (lowest x and y, highest x and y).
+    pub fn bounding_box_um(&self) -> ([f64; 2], [f64; 2]) {
+        self.bounds()
+    }
+
     fn bounds(&self) -> ([f64; 2], [f64; 2]) {
         match self {
             Pattern::Strip {
@@ -406,6 +524,18 @@ impl CellGrid {
     /// A grid over `points` with square cells `cell` micrometres wide.
     pub(crate) fn new(points: &[[f64; 2]], cell: f64) -> Self {
         let (lo, hi) = bounding_box(points);
+        // Cells are only a sieve (every search reaches as many cells as its radius needs), so
+        // a grid that would have far more cells than points takes wider cells instead: a tiny
+        // footprint over a wide dish must not ask for billions of empty cells.
+        let most_cells = (points.len().saturating_mul(8)).max(1 << 22) as f64;
+        let mut cell = cell;
+        while !points.is_empty()
+            && cell.is_finite()
+            && (((hi[0] - lo[0]) / cell).floor() + 1.0) * (((hi[1] - lo[1]) / cell).floor() + 1.0)
+                > most_cells
+        {
+            cell *= 2.0;
+        }
         let nx = (((hi[0] - lo[0]) / cell).floor() as usize + 1).max(1);
         let ny = (((hi[1] - lo[1]) / cell).floor() as usize + 1).max(1);
         let key = |p: &[f64; 2]| {

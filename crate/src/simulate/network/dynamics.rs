@@ -89,6 +89,8 @@ pub struct Run {
     pub spikes: Vec<Spike>,
     /// Synaptic arrivals delivered (not counting noise kicks).
     pub synaptic_events: u64,
+    /// When the run stopped early because it reached [`Network::most_spikes`], s.
+    pub stopped_at_s: Option<f64>,
 }
 
 /// A spike whose synapse row is being delivered: each bucket takes the links whose arrival
@@ -157,6 +159,9 @@ pub struct Network<'a> {
     pub neuron: &'a NeuronParams,
     pub synapse: &'a SynapseParams,
     pub noise: &'a NoiseParams,
+    /// The run stops (with [`Run::stopped_at_s`]) once it has fired more spikes than this:
+    /// a bound on memory when a scenario fires far faster than expected.
+    pub most_spikes: usize,
 }
 
 /// Buckets of `width` seconds in a ring spanning the longest delay: threshold crossings and
@@ -469,7 +474,12 @@ pub fn integrate(
     let total_buckets = e.q.bucket_of(duration_s) + 1;
     let mut next_report = 1.0;
     let mut events: Vec<Event> = Vec::new();
+    let mut stopped_at_s = None;
     for b in 0..total_buckets {
+        if e.spikes.len() > net.most_spikes {
+            stopped_at_s = Some(b as f64 * width);
+            break;
+        }
         e.q.pull_near(b);
         let slot = (b & e.q.mask) as usize;
         std::mem::swap(&mut events, &mut e.q.events[slot]);
@@ -513,6 +523,7 @@ pub fn integrate(
     Run {
         spikes,
         synaptic_events: e.synaptic_events,
+        stopped_at_s,
     }
 }
 

@@ -168,6 +168,10 @@ pub struct NetworkTruth {
     /// [`super::stimulation::percolated_giant_fraction`]).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub block_giant_component_fraction: Option<f64>,
+    /// What the run could not do as asked (for example fewer inputs per neuron than the
+    /// target mean in-degree), in sentences.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub notices: Vec<String>,
 }
 
 /// The neurons behind one recorded site.
@@ -192,7 +196,31 @@ pub struct NetworkRecording {
     pub truth: NetworkTruth,
 }
 
-/// Checks a scenario; the message names the field.
+/// Longest culture time a network scenario may run, s (one day: a limit we chose, no source).
+pub const MAX_NETWORK_DURATION_S: f64 = 86_400.0;
+/// Most neurons a network scenario may grow.
+pub const MAX_NEURONS: f64 = 2e6;
+/// Most synapses a network scenario may wire.
+pub const MAX_SYNAPSES: f64 = 1.2e8;
+/// Most neuron pairs the wiring may consider (pairs within the footprint's cut-off).
+pub const MAX_CANDIDATE_PAIRS: f64 = 2e9;
+/// Most background kicks a run may draw (neurons x noise rate x duration).
+pub const MAX_NOISE_KICKS: f64 = 2e9;
+/// Most spikes a run may fire before it stops with an error (16 bytes each).
+pub const MAX_NETWORK_SPIKES: usize = 200_000_000;
+/// Most samples of written voltage (electrodes x sampling rate x duration).
+pub const MAX_VOLTAGE_SAMPLES: f64 = 2e8;
+/// Most values of imaging (ROIs x frames).
+pub const MAX_IMAGING_VALUES: f64 = 2e8;
+/// Shortest synaptic delay, s: the integrator's time step follows it (10 µs, a tenth of the
+/// fastest synapses; common practice, no source).
+pub const MIN_SYNAPTIC_DELAY_S: f64 = 1e-5;
+/// Smallest footprint length, µm (a neuron's own body is about 10 µm; from memory).
+pub const MIN_SIGMA_UM: f64 = 1.0;
+
+/// Checks a scenario before anything runs: every number finite and physically meaningful,
+/// and the work (neurons, candidate pairs, synapses, noise kicks, delays, samples) within
+/// the limits above. The message names the field, its value and the limit.
 pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
     for (name, v) in [
         ("duration_s", s.duration_s),
@@ -202,10 +230,62 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         ("axon_speed_mm_s", s.axon_speed_mm_s),
         ("neuron.tau_m_s", s.neuron.tau_m_s),
         ("neuron.threshold_mv", s.neuron.threshold_mv),
+        ("synapse.recovery_s", s.synapse.recovery_s),
     ] {
         if !(v.is_finite() && v > 0.0) {
             return Err(format!("{name}: expected a number above 0, found {v}"));
         }
+    }
+    for (name, v) in [
+        ("neuron.refractory_s", s.neuron.refractory_s),
+        ("connectivity.mean_in_degree", s.connectivity.mean_in_degree),
+        ("drive.sd_mv", s.drive.sd_mv),
+        ("noise.rate_hz", s.noise.rate_hz),
+        ("synapse.excitatory_mv", s.synapse.excitatory_mv),
+        ("synapse.inhibitory_mv", s.synapse.inhibitory_mv),
+    ] {
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(format!("{name}: expected a number of 0 or more, found {v}"));
+        }
+    }
+    for (name, v) in [
+        ("neuron.reset_mv", s.neuron.reset_mv),
+        ("drive.mean_mv", s.drive.mean_mv),
+        ("noise.amplitude_mv", s.noise.amplitude_mv),
+    ] {
+        if !v.is_finite() {
+            return Err(format!("{name}: expected a finite number, found {v}"));
+        }
+    }
+    if s.duration_s > MAX_NETWORK_DURATION_S {
+        return Err(format!(
+            "duration_s: expected at most {MAX_NETWORK_DURATION_S:.0} s (one day of culture time), found {}",
+            s.duration_s
+        ));
+    }
+    if !(MIN_SYNAPTIC_DELAY_S..=1.0).contains(&s.synaptic_delay_s) {
+        return Err(format!(
+            "synaptic_delay_s: expected {MIN_SYNAPTIC_DELAY_S} s to 1 s, found {}",
+            s.synaptic_delay_s
+        ));
+    }
+    if s.connectivity.sigma_um < MIN_SIGMA_UM {
+        return Err(format!(
+            "connectivity.sigma_um: expected at least {MIN_SIGMA_UM} µm (a footprint smaller than a cell body), found {}",
+            s.connectivity.sigma_um
+        ));
+    }
+    if s.neuron.refractory_s > 1.0 || s.neuron.tau_m_s > 10.0 {
+        return Err(format!(
+            "neuron: expected refractory_s of at most 1 s and tau_m_s of at most 10 s, found {} and {}",
+            s.neuron.refractory_s, s.neuron.tau_m_s
+        ));
+    }
+    if !(0.0..=1.0).contains(&s.synapse.depression_u) {
+        return Err(format!(
+            "synapse.depression_u: expected a fraction of 0 to 1, found {}",
+            s.synapse.depression_u
+        ));
     }
     if !(0.0..=1.0).contains(&s.excitatory_fraction) {
         return Err(format!(
@@ -216,25 +296,63 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
     if s.neuron.reset_mv >= s.neuron.threshold_mv {
         return Err("neuron.reset_mv: expected a reset below the threshold".into());
     }
-    let neurons = s.density_per_mm2 * s.pattern.area_mm2();
-    if neurons > 2e6 {
+    s.pattern.check()?;
+    let neurons = s.pattern.neuron_count(s.density_per_mm2);
+    if neurons > MAX_NEURONS {
         return Err(format!(
             "the pattern would hold {neurons:.0} neurons, more than the 2 million allowed"
         ));
     }
     let synapses = neurons * s.connectivity.mean_in_degree;
-    if synapses > 1.2e8 {
+    if synapses > MAX_SYNAPSES {
         return Err(format!(
             "the wiring would make {synapses:.0} synapses, more than the 120 million allowed"
         ));
     }
+    if s.connectivity.mean_in_degree > (neurons - 1.0).max(0.0) {
+        return Err(format!(
+            "connectivity.mean_in_degree: a neuron can have at most one input from each of the other {:.0} neurons, found {}",
+            (neurons - 1.0).max(0.0),
+            s.connectivity.mean_in_degree
+        ));
+    }
+    let cutoff = s.connectivity.footprint.cutoff(s.connectivity.sigma_um);
+    if cutoff.is_finite() {
+        let pairs = neurons * s.pattern.neighbours_within(s.density_per_mm2, cutoff);
+        if pairs > MAX_CANDIDATE_PAIRS {
+            return Err(format!(
+                "connectivity.sigma_um: a footprint of {} µm reaches about {pairs:.3e} neuron pairs, more than the limit of {MAX_CANDIDATE_PAIRS:.0}; give a shorter footprint or fewer neurons",
+                s.connectivity.sigma_um
+            ));
+        }
+        if s.connectivity.weighted && pairs > MAX_SYNAPSES {
+            return Err(format!(
+                "connectivity.weighted: connecting every pair within the cut-off would make about {pairs:.0} synapses, more than the 120 million allowed"
+            ));
+        }
+    }
+    // The integrator's event ring spans the longest delay in steps of the shortest (at most
+    // 0.1 ms); the longest is the synaptic delay plus the axon's time over the cut-off (or
+    // over the whole pattern when the footprint has none).
+    let (lo, hi) = s.pattern.bounding_box_um();
+    let span_um = libm::hypot(hi[0] - lo[0], hi[1] - lo[1]);
+    let longest_s = s.synaptic_delay_s + cutoff.min(span_um) / (s.axon_speed_mm_s * 1e3);
+    let steps = longest_s / s.synaptic_delay_s.min(1e-4);
+    if !(steps <= 4_194_304.0) {
+        return Err(format!(
+            "axon_speed_mm_s: at {} mm/s the longest delay would be {longest_s:.3e} s, more than 4194304 steps of the integrator; give a faster axon",
+            s.axon_speed_mm_s
+        ));
+    }
+    let kicks = neurons * s.noise.rate_hz * s.duration_s;
+    if kicks > MAX_NOISE_KICKS {
+        return Err(format!(
+            "noise.rate_hz: {} Hz on {neurons:.0} neurons for {} s is {kicks:.3e} kicks, more than the limit of {MAX_NOISE_KICKS:.0}",
+            s.noise.rate_hz, s.duration_s
+        ));
+    }
     if let Some(e) = &s.electrodes {
-        if !(0.0..=1.0).contains(&e.detection_probability) {
-            return Err("electrodes.detection_probability: expected 0 to 1".into());
-        }
-        if !(e.sampling_rate_hz > 0.0 && e.pickup_radius_um > 0.0) {
-            return Err("electrodes: sampling_rate_hz and pickup_radius_um must be above 0".into());
-        }
+        check_electrodes(e, s.duration_s)?;
     }
     if !(s.excitatory_scale.is_finite() && (0.0..=1.0).contains(&s.excitatory_scale)) {
         return Err(format!(
@@ -270,11 +388,104 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         st.check(s.duration_s, neurons)?;
     }
     if let Some(i) = &s.imaging {
-        if !(i.frame_rate_hz > 0.0 && i.decay_s > 0.0 && i.noise_sd >= 0.0) {
-            return Err(
-                "imaging: frame_rate_hz and decay_s must be above 0, noise_sd 0 or more".into(),
-            );
+        check_imaging(i, s.duration_s, neurons)?;
+    }
+    Ok(())
+}
+
+/// The electrodes' part of [`check_network_scenario`].
+fn check_electrodes(e: &Electrodes, duration_s: f64) -> Result<(), String> {
+    use crate::simulate::fronts::MAX_SIMULATED_EXTENT_UM;
+    e.layout.check("electrodes.layout")?;
+    crate::simulate::fronts::check_sampling_rate(
+        "electrodes.sampling_rate_hz",
+        e.sampling_rate_hz,
+    )?;
+    if !(0.0..=1.0).contains(&e.detection_probability) {
+        return Err(format!(
+            "electrodes.detection_probability: expected 0 to 1, found {}",
+            e.detection_probability
+        ));
+    }
+    if !(e.pickup_radius_um.is_finite()
+        && e.pickup_radius_um > 0.0
+        && e.pickup_radius_um <= MAX_SIMULATED_EXTENT_UM)
+    {
+        return Err(format!(
+            "electrodes.pickup_radius_um: expected a length above 0 µm and at most {MAX_SIMULATED_EXTENT_UM:.0} µm, found {}",
+            e.pickup_radius_um
+        ));
+    }
+    if !e
+        .offset_um
+        .iter()
+        .all(|v| v.is_finite() && v.abs() <= MAX_SIMULATED_EXTENT_UM)
+    {
+        return Err(format!(
+            "electrodes.offset_um: expected a shift within {MAX_SIMULATED_EXTENT_UM:.0} µm, found ({}, {})",
+            e.offset_um[0], e.offset_um[1]
+        ));
+    }
+    let count = e.layout.count();
+    if let Some(&bad) = e.dead.iter().find(|&&i| i >= count) {
+        return Err(format!(
+            "electrodes.dead: electrode {bad} does not exist (there are {count}, counted from 0)"
+        ));
+    }
+    if let Some(v) = &e.voltage {
+        for (name, x) in [
+            ("electrodes.voltage.noise_uv", v.noise_uv),
+            ("electrodes.voltage.spike_uv", v.spike_uv),
+        ] {
+            if !(x.is_finite() && x >= 0.0) {
+                return Err(format!("{name}: expected a number of 0 or more, found {x}"));
+            }
         }
+        if !(v.scale_uv.is_finite() && v.scale_uv > 0.0) {
+            return Err(format!(
+                "electrodes.voltage.scale_uv: expected a number above 0, found {}",
+                v.scale_uv
+            ));
+        }
+        let samples = count as f64 * e.sampling_rate_hz * duration_s;
+        if samples > MAX_VOLTAGE_SAMPLES {
+            return Err(format!(
+                "electrodes.voltage: {count} electrodes at {} Hz for {duration_s} s is {samples:.3e} samples, more than the limit of {MAX_VOLTAGE_SAMPLES:.0}; shorten the run or write spikes only",
+                e.sampling_rate_hz
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The imaging part of [`check_network_scenario`].
+fn check_imaging(i: &Imaging, duration_s: f64, neurons: f64) -> Result<(), String> {
+    for (name, v) in [
+        ("imaging.frame_rate_hz", i.frame_rate_hz),
+        ("imaging.decay_s", i.decay_s),
+    ] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(format!("{name}: expected a number above 0, found {v}"));
+        }
+    }
+    if !(i.noise_sd.is_finite() && i.noise_sd >= 0.0 && i.amplitude.is_finite()) {
+        return Err(format!(
+            "imaging: expected a finite amplitude and a noise_sd of 0 or more, found {} and {}",
+            i.amplitude, i.noise_sd
+        ));
+    }
+    if i.rois == 0 || i.rois as f64 > neurons {
+        return Err(format!(
+            "imaging.rois: expected 1 to {neurons:.0} ROIs (one neuron each), found {}",
+            i.rois
+        ));
+    }
+    let values = i.rois as f64 * i.frame_rate_hz * duration_s;
+    if values > MAX_IMAGING_VALUES {
+        return Err(format!(
+            "imaging: {} ROIs at {} frames/s for {duration_s} s is {values:.3e} values, more than the limit of {MAX_IMAGING_VALUES:.0}; give fewer ROIs or frames",
+            i.rois, i.frame_rate_hz
+        ));
     }
     Ok(())
 }
@@ -302,6 +513,10 @@ pub fn simulate_network(
         &mut rng,
     );
     let graph = graph_stats(n, &synapses);
+    let mut notices = Vec::new();
+    if let Some(notice) = in_degree_shortfall(s, graph.mean_in_degree) {
+        notices.push(notice);
+    }
     let block_giant_component_fraction = (s.excitatory_scale < 1.0).then(|| {
         super::stimulation::percolated_giant_fraction(
             &synapses,
@@ -320,6 +535,7 @@ pub fn simulate_network(
         neuron: &s.neuron,
         synapse: &synapse,
         noise: &s.noise,
+        most_spikes: MAX_NETWORK_SPIKES,
     };
     let duration = s.duration_s;
     let stimulated = s.stimulation.as_ref().map(|st| {
@@ -336,6 +552,11 @@ pub fn simulate_network(
     });
     drop(forced);
     drop(synapses);
+    if let Some(t) = run.stopped_at_s {
+        return Err(format!(
+            "the network fired more than {MAX_NETWORK_SPIKES} spikes by {t:.1} s of the {duration} s asked for, more than can be kept; shorten duration_s, or weaken the drive, noise or coupling"
+        ));
+    }
 
     let mut trains: Vec<Vec<f64>> = vec![Vec::new(); n];
     for sp in &run.spikes {
@@ -418,8 +639,24 @@ pub fn simulate_network(
             roi_neurons,
             stimulation,
             block_giant_component_fraction,
+            notices,
         },
     })
+}
+
+/// A sentence when the wiring made clearly fewer inputs per neuron than asked for: the
+/// footprint reaches too few neighbours to give every neuron `mean_in_degree` inputs (the
+/// connection probability is capped at 1). `None` within 10% of the target.
+pub fn in_degree_shortfall(s: &NetworkScenario, realised: f64) -> Option<String> {
+    let target = s.connectivity.mean_in_degree;
+    if s.connectivity.weighted || target < 1.0 || realised >= 0.9 * target {
+        return None;
+    }
+    let cutoff = s.connectivity.footprint.cutoff(s.connectivity.sigma_um);
+    let near = s.pattern.neighbours_within(s.density_per_mm2, cutoff);
+    Some(format!(
+        "the wiring made a mean in-degree of {realised:.1}, not the {target} asked for: within the footprint's reach ({cutoff:.0} µm) a neuron has about {near:.0} neighbours, and each is connected with probability at most 1; widen connectivity.sigma_um or raise the density to reach {target}"
+    ))
 }
 
 /// A culture before wiring, and the generator as wiring finds it.
