@@ -338,7 +338,7 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
     let span_um = libm::hypot(hi[0] - lo[0], hi[1] - lo[1]);
     let longest_s = s.synaptic_delay_s + cutoff.min(span_um) / (s.axon_speed_mm_s * 1e3);
     let steps = longest_s / s.synaptic_delay_s.min(1e-4);
-    if !(steps <= 4_194_304.0) {
+    if steps > 4_194_304.0 || steps.is_nan() {
         return Err(format!(
             "axon_speed_mm_s: at {} mm/s the longest delay would be {longest_s:.3e} s, more than 4194304 steps of the integrator; give a faster axon",
             s.axon_speed_mm_s
