@@ -169,7 +169,7 @@ pub(crate) fn read_whole_table(
             place::Place::file(file.name),
             import::ImportProblem::TooLarge,
             format!(
-                "the file is {} bytes, more than the limit of {limit} bytes; raise the limit if this file is expected",
+                "the file is {} bytes, more than the limit of {limit} bytes (read.limits.max_bytes, --max-mib); raise the limit if this file is expected",
                 file.len
             ),
         )

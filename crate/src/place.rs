@@ -128,3 +128,45 @@ impl fmt::Display for Notice {
         }
     }
 }
+
+/// A number as a message shows it: plain between 0.0001 and a billion (and 0), in exponent
+/// form beyond (`1e300`, not three hundred digits), always the shortest form that reads back
+/// as the same double.
+pub fn number(v: f64) -> String {
+    let a = v.abs();
+    if v == 0.0 || (1e-4..1e9).contains(&a) || !v.is_finite() {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
+}
+
+#[cfg(test)]
+mod number_tests {
+    use super::number;
+
+    /// Round trip through Rust's own parser (the shortest representation that reads back,
+    /// as Rust's `Display` and `LowerExp` promise), and the plain range.
+    #[test]
+    fn numbers_are_short_and_read_back() {
+        for v in [
+            0.0,
+            1.5,
+            -1.0,
+            1e-300,
+            1e300,
+            f64::MAX,
+            f64::MIN_POSITIVE,
+            123_456_789.0,
+            2e9,
+            1e-5,
+        ] {
+            let shown = number(v);
+            assert!(shown.len() <= 24, "{shown}");
+            assert_eq!(shown.parse::<f64>().unwrap(), v);
+        }
+        assert_eq!(number(0.02), "0.02");
+        assert_eq!(number(1e300), "1e300");
+        assert_eq!(number(-1e-12), "-1e-12");
+    }
+}

@@ -1264,7 +1264,7 @@ fn read_file(path: &str, limits: &ImportLimits) -> Result<Vec<u8>, Failure> {
             place,
             ImportProblem::TooLarge,
             format!(
-                "the file is {} bytes, more than the limit of {} bytes; raise it with --max-mib if this file is expected",
+                "the file is {} bytes, more than the limit of {} bytes (read.limits.max_bytes); raise it with --max-mib if this file is expected",
                 meta.len(),
                 limits.max_bytes
             ),

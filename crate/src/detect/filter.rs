@@ -84,13 +84,17 @@ pub fn butterworth_bandpass(
     let nyquist = sample_rate_hz / 2.0;
     if !(1..=12).contains(&order) {
         return Err(FilterError {
-            message: format!("filter order: expected 1 to 12, found {order}"),
+            message: format!(
+                "voltage.filter_order (--filter-order): expected 1 to 12, found {order}"
+            ),
         });
     }
     if !(sample_rate_hz.is_finite() && low_hz > 0.0 && low_hz < high_hz && high_hz < nyquist) {
         return Err(FilterError {
             message: format!(
-                "band-pass edges: expected 0 < low < high < {nyquist} Hz (half the sample rate), found {low_hz} to {high_hz} Hz"
+                "voltage.band_hz (--band): expected edges 0 < low < high < {nyquist} Hz (half the sample rate), found {} to {} Hz",
+                crate::place::number(low_hz),
+                crate::place::number(high_hz)
             ),
         });
     }

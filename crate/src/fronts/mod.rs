@@ -394,6 +394,12 @@ fn check_span(
     Ok(())
 }
 
+/// Longest lead before a burst in which its activations are sought, s (a limit we chose).
+pub const MAX_LEAD_S: f64 = 3600.0;
+
+/// Most zones the initiation counts may divide a track into.
+pub const MAX_INITIATION_ZONES: usize = 10_000;
+
 fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     let bad = |m: String| Err(AnalysisError { message: m });
     let p = &s.bursts.population_rate;
@@ -407,7 +413,10 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
         ("synchrony.phase_step_s", s.synchrony.phase_step_s),
     ] {
         if !(v.is_finite() && v > 0.0) {
-            return bad(format!("{name}: expected a time above 0 s, found {v}"));
+            return bad(format!(
+                "{name}: expected a time above 0 s, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     if !(s.fronts.confidence > 0.5 && s.fronts.confidence < 1.0) {
@@ -425,7 +434,10 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
         ),
     ] {
         if !(v.is_finite() && v > 0.0) {
-            return bad(format!("{name}: expected a number above 0, found {v}"));
+            return bad(format!(
+                "{name}: expected a number above 0, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     if !(s.spectrum.false_alarm > 0.0 && s.spectrum.false_alarm <= 0.5) {
@@ -443,10 +455,10 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     let p = &s.bursts.population_rate;
     if p.smooth_sd_s / p.bin_s > MAX_TIME_BINS as f64 {
         return bad(format!(
-            "bursts.population_rate.smooth_sd_s: {} s is {:.0} bins of {} s, more than the limit of {MAX_TIME_BINS}",
-            p.smooth_sd_s,
-            p.smooth_sd_s / p.bin_s,
-            p.bin_s
+            "bursts.population_rate.smooth_sd_s = {} s is {} bins of bursts.population_rate.bin_s = {} s, more than the limit of {MAX_TIME_BINS}",
+            crate::place::number(p.smooth_sd_s),
+            crate::place::number((p.smooth_sd_s / p.bin_s).round()),
+            crate::place::number(p.bin_s)
         ));
     }
     if !(0.0..1.0).contains(&s.bursts.population_rate.edge_fraction) {
@@ -454,6 +466,61 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
             "bursts.population_rate.edge_fraction: expected 0 or more and below 1 (the share of the way from the baseline to the threshold), found {}",
             s.bursts.population_rate.edge_fraction
         ));
+    }
+    let a = &s.activation;
+    if !(a.lead_s.is_finite() && (0.0..=MAX_LEAD_S).contains(&a.lead_s)) {
+        return bad(format!(
+            "activation.lead_s: expected 0 to {MAX_LEAD_S} s before the burst, found {}",
+            crate::place::number(a.lead_s)
+        ));
+    }
+    // Counts that size a loop or a sum: bounded so that no sum overflows (limits we chose).
+    for (name, v, most) in [
+        ("activation.cluster_spikes", a.cluster_spikes, 10_000),
+        ("activation.median_of_first", a.median_of_first, 10_000),
+        (
+            "order.compare_with_next",
+            s.order.compare_with_next,
+            100_000,
+        ),
+        ("order.min_common_sites", s.order.min_common_sites, 1 << 30),
+        (
+            "synchrony.lags.neighbours",
+            s.synchrony.lags.neighbours,
+            100_000,
+        ),
+        (
+            "synchrony.lags.min_bursts",
+            s.synchrony.lags.min_bursts,
+            1 << 30,
+        ),
+        (
+            "synchrony.lags.direction_sites",
+            s.synchrony.lags.direction_sites,
+            100_000,
+        ),
+        (
+            "synchrony.lags.max_burst_spikes",
+            s.synchrony.lags.max_burst_spikes,
+            1 << 20,
+        ),
+        (
+            "synchrony.lags.resamples",
+            s.synchrony.lags.resamples,
+            MAX_RESAMPLES,
+        ),
+        ("synchrony.max_sites", s.synchrony.max_sites, 1 << 20),
+    ] {
+        if v > most {
+            return bad(format!("{name}: expected at most {most}, found {v}"));
+        }
+    }
+    if let Some(zones) = s.initiation_zones {
+        if !(1..=MAX_INITIATION_ZONES).contains(&zones) {
+            return bad(format!(
+                "initiation_zones: expected 1 to {MAX_INITIATION_ZONES} zones along the track, found {zones}"
+            ));
+        }
     }
     if !(0.0..=1.0).contains(&s.bursts.min_site_fraction) {
         return bad(format!(

@@ -367,7 +367,7 @@ fn check_settings(settings: &TrackSettings) -> Result<(), GeometryError> {
     if let Some(c) = settings.ring_centre_um {
         if !(c[0].is_finite() && c[1].is_finite()) {
             return Err(bad(
-                "ring centre",
+                "track.ring_centre_um (--ring-centre)",
                 format!("expected finite micrometres, found {c:?}"),
             ));
         }
@@ -375,13 +375,13 @@ fn check_settings(settings: &TrackSettings) -> Result<(), GeometryError> {
     if let Some(r) = settings.ring_radius_um {
         if !(r.is_finite() && r > 0.0) {
             return Err(bad(
-                "ring radius",
-                format!("expected a radius above 0 um, found {r}"),
+                "track.ring_radius_um (--ring-radius)",
+                format!("expected a radius above 0 µm, found {r}"),
             ));
         }
         if settings.ring_centre_um.is_none() {
             return Err(bad(
-                "ring radius",
+                "track.ring_radius_um (--ring-radius)",
                 "a radius needs a centre too; give both, or neither to fit them".into(),
             ));
         }
@@ -389,7 +389,7 @@ fn check_settings(settings: &TrackSettings) -> Result<(), GeometryError> {
     if settings.kind == TrackChoice::Polyline {
         if settings.waypoints_um.len() < 2 {
             return Err(bad(
-                "waypoints",
+                "track.waypoints_um (--waypoints)",
                 format!(
                     "a polyline track needs at least two waypoints, found {}",
                     settings.waypoints_um.len()
@@ -402,18 +402,21 @@ fn check_settings(settings: &TrackSettings) -> Result<(), GeometryError> {
             .flatten()
             .any(|v| !v.is_finite())
         {
-            return Err(bad("waypoints", "expected finite micrometres".into()));
+            return Err(bad(
+                "track.waypoints_um (--waypoints)",
+                "expected finite micrometres".into(),
+            ));
         }
         if track::polyline_length(&settings.waypoints_um) <= 0.0 {
             return Err(bad(
-                "waypoints",
+                "track.waypoints_um (--waypoints)",
                 "the waypoints all lie at one point".into(),
             ));
         }
     }
     if !(settings.max_relative_residual.is_finite() && settings.max_relative_residual > 0.0) {
         return Err(bad(
-            "maximum relative residual",
+            "track.max_relative_residual",
             format!(
                 "expected a number above 0, found {}",
                 settings.max_relative_residual
@@ -422,7 +425,7 @@ fn check_settings(settings: &TrackSettings) -> Result<(), GeometryError> {
     }
     if !(settings.off_track_spacings.is_finite() && settings.off_track_spacings > 0.0) {
         return Err(bad(
-            "off-track distance",
+            "track.off_track_spacings",
             format!(
                 "expected a number of site spacings above 0, found {}",
                 settings.off_track_spacings

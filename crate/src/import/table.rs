@@ -345,7 +345,7 @@ impl<'a> Table<'a> {
                 place,
                 ImportProblem::TooLarge,
                 format!(
-                    "the file is {len} bytes, more than the limit of {} bytes; raise the limit if this file is expected",
+                    "the file is {len} bytes, more than the limit of {} bytes (read.limits.max_bytes, --max-mib); raise the limit if this file is expected",
                     limits.max_bytes
                 ),
             ));
@@ -591,7 +591,7 @@ impl<'a> Table<'a> {
                 self.place_line(line),
                 ImportProblem::TooLarge,
                 format!(
-                    "the file has more than {} data rows, the configured limit; raise the limit if this file is expected",
+                    "the file has more than {} data rows, the limit (read.limits.max_rows, --max-rows); raise the limit if this file is expected",
                     self.limits.max_rows
                 ),
             )));

@@ -90,7 +90,10 @@ pub fn read_roi_traces_with(
             return Err(ImportError::new(
                 Place::file(file),
                 ImportProblem::BadOption,
-                format!("expected a frame rate above 0 frames/s, found {rate}"),
+                format!(
+                    "read.frame_rate_hz (--frame-rate): expected a frame rate above 0 frames/s, found {}",
+                    crate::place::number(rate)
+                ),
             ));
         }
     }
