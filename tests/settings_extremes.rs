@@ -80,6 +80,15 @@ fn inputs() -> &'static Inputs {
     })
 }
 
+/// One run's files: activity name and bytes, sidecar, layout, stimuli.
+type Case<'a> = (
+    &'a str,
+    &'a [u8],
+    Option<&'a [u8]>,
+    &'a [u8],
+    Option<&'a [u8]>,
+);
+
 /// Every numeric (or absent, `null`) leaf of the default settings, as a JSON pointer.
 fn numeric_leaves(v: &Value, at: &str, out: &mut Vec<String>) {
     match v {
@@ -116,13 +125,7 @@ fn run(leaf: &str, value: &Value) -> Option<Result<(), String>> {
     *settings.pointer_mut(leaf).unwrap() = value.clone();
     let settings: RecordingSettings = serde_json::from_value(settings).ok()?;
     let inputs = inputs();
-    let (name, bytes, sidecar, layout, stimuli): (
-        &str,
-        &[u8],
-        Option<&[u8]>,
-        &[u8],
-        Option<&[u8]>,
-    ) = if leaf.starts_with("/voltage") {
+    let (name, bytes, sidecar, layout, stimuli): Case<'_> = if leaf.starts_with("/voltage") {
         let v = &inputs.voltage;
         ("voltage.raw", &v.0, Some(&v.1), &v.2, None)
     } else if leaf.starts_with("/analysis/calcium") || leaf == "/read/frame_rate_hz" {
