@@ -512,3 +512,57 @@ fn an_in_degree_beyond_the_footprint_is_a_notice_with_the_realised_value() {
         "the notice is not on stderr: {message}"
     );
 }
+
+/// Sites on a line a few nanometres long gave fronts of "0.0 mm/s (95% CI 0.0 to 0.0)". The
+/// speeds now keep two significant digits, and a notice asks for the layout's unit. The
+/// speeds scale with the layout: the same spikes on a layout 2^20 times smaller (a power of
+/// two, so the scaling itself is exact in binary) give every front's speed 2^20 times smaller
+/// (speed is distance over time). The origin search used to stop at an absolute 0.001 µm,
+/// which broke this for two-way fronts by up to 14%.
+#[test]
+fn a_nanometre_layout_gives_speeds_in_its_scale_and_a_notice() {
+    let dir = tempfile::tempdir().unwrap();
+    demo_copy(dir.path());
+    let layout = std::fs::read_to_string(dir.path().join("layout.csv")).unwrap();
+    let mut shrunk = String::from("site,x_um,y_um\n");
+    for line in layout.lines().skip(1) {
+        let f: Vec<&str> = line.split(',').collect();
+        let x: f64 = f[1].parse().unwrap();
+        let y: f64 = f[2].parse().unwrap();
+        let scale = (-20f64).exp2();
+        shrunk.push_str(&format!("{},{:?},{:?}\n", f[0], x * scale, y * scale));
+    }
+    std::fs::write(dir.path().join("nm.csv"), shrunk).unwrap();
+    let run = |layout: &str, out: &str| {
+        let o = common::ringline(
+            &["analyze", "spikes.csv", "--layout", layout, "--out", out],
+            dir.path(),
+        );
+        assert_eq!(o.status.code(), Some(0));
+        let summary: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(dir.path().join(out).join("summary.json")).unwrap(),
+        )
+        .unwrap();
+        (String::from_utf8_lossy(&o.stdout).to_string(), summary)
+    };
+    let (_, plain) = run("layout.csv", "plain");
+    let (text, tiny) = run("nm.csv", "tiny");
+    let speed = |s: &serde_json::Value| s["summary"]["median_speed_mm_s"].as_f64().unwrap();
+    let ratio = speed(&plain) / speed(&tiny);
+    assert!((ratio / 1048576.0 - 1.0).abs() < 1e-9, "ratio {ratio}");
+    let fronts = |out: &str| common::csv_rows(&dir.path().join(out).join("fronts.csv"));
+    for (a, b) in fronts("plain").iter().zip(fronts("tiny").iter()) {
+        let speed = |r: &common::CsvRow| r["speed_mm_s"].parse::<f64>().ok();
+        assert_eq!(speed(a).is_some(), speed(b).is_some());
+        if let (Some(va), Some(vb)) = (speed(a), speed(b)) {
+            assert!(
+                (va / vb / 1048576.0 - 1.0).abs() < 1e-9,
+                "{va} against {vb}"
+            );
+        }
+    }
+    assert!(!text.contains("median 0.0 mm/s"), "{text}");
+    assert!(text.contains("check the layout's length unit"), "{text}");
+    let shown = format!("median {} mm/s", ringline::report::speed_text(speed(&tiny)));
+    assert!(text.contains(&shown), "'{shown}' not in {text}");
+}

@@ -448,8 +448,11 @@ fn refine<F: Fn(f64) -> Option<(Candidate, f64)>>(
 ) {
     let g = (5f64.sqrt() - 1.0) / 2.0;
     let (mut a, mut b) = (lo, hi);
+    // Relative to the bracket, so that the origin found does not depend on the layout's
+    // scale (an absolute tolerance in µm stopped early on a layout in the wrong unit).
+    let tolerance = 1e-6 * (hi - lo).abs();
     for _ in 0..30 {
-        if (b - a).abs() < 1e-3 {
+        if (b - a).abs() <= tolerance {
             break;
         }
         let c = b - g * (b - a);

@@ -169,6 +169,10 @@ fn error(problem: GeometryProblem, message: impl Into<String>) -> GeometryError 
     }
 }
 
+/// Below this median spacing the layout cannot be of electrodes or cells (the densest arrays
+/// have a pitch of about 10 µm; common practice, no source): a notice asks for the unit.
+pub const MIN_PLAUSIBLE_SPACING_UM: f64 = 1.0;
+
 /// Fits or builds the track for `sites` and places every site on it.
 ///
 /// Detection (settings kind `auto`), in order:
@@ -194,6 +198,14 @@ pub fn fit_track(sites: &[Site], settings: &TrackSettings) -> Result<TrackFit, G
     let points: Vec<[f64; 2]> = sites.iter().map(Site::position_um).collect();
     let spacing = median_nearest_neighbour(&points);
     let mut notices = Vec::new();
+    if let Some(d) = spacing.filter(|&d| d < MIN_PLAUSIBLE_SPACING_UM) {
+        notices.push(Notice::new(
+            Place::default(),
+            format!(
+                "the sites lie a median {d:.2e} µm from their nearest neighbours, closer than any two electrodes or cells can be (under {MIN_PLAUSIBLE_SPACING_UM} µm): check the layout's length unit; speeds are in the layout's scale"
+            ),
+        ));
+    }
     let line = fit_line_tls(&points);
     let ring = if points.len() >= 3 {
         fit_ring(&points)

@@ -488,12 +488,13 @@ impl AnalysisReport {
             );
         }
         if let Some(m) = s.median_speed_mm_s {
-            let mut text = format!("median {m:.1} mm/s");
+            let v = super::speed_text;
+            let mut text = format!("median {} mm/s", v(m));
             if let Some([a, b]) = s.median_speed_ci95_mm_s {
-                let _ = write!(text, " (95% CI {a:.1} to {b:.1} mm/s)");
+                let _ = write!(text, " (95% CI {} to {} mm/s)", v(a), v(b));
             }
             if let (Some(a), Some(b)) = (s.speed_q25_mm_s, s.speed_q75_mm_s) {
-                let _ = write!(text, ", IQR {a:.1} to {b:.1} mm/s");
+                let _ = write!(text, ", IQR {} to {} mm/s", v(a), v(b));
             }
             fact(FactKey::Speed, "Speed", text, Some(m));
         }
@@ -637,11 +638,12 @@ impl AnalysisReport {
             if let Some(l) = &y.lags {
                 let speed = match (l.implied_speed_mm_s, l.implied_speed_ci95_mm_s) {
                     (Some(v), Some([lo, hi])) => format!(
-                        "imply {v:.1} mm/s (95% CI {} to {})",
-                        lo.map_or("-".into(), |x| format!("{x:.1}")),
-                        hi.map_or("no upper bound".into(), |x| format!("{x:.1}"))
+                        "imply {} mm/s (95% CI {} to {})",
+                        super::speed_text(v),
+                        lo.map_or("-".into(), super::speed_text),
+                        hi.map_or("no upper bound".into(), super::speed_text)
                     ),
-                    (Some(v), None) => format!("imply {v:.1} mm/s"),
+                    (Some(v), None) => format!("imply {} mm/s", super::speed_text(v)),
                     _ => "imply no speed".into(),
                 };
                 let forward = l.forward_share.map_or(String::new(), |f| {
@@ -673,13 +675,13 @@ impl AnalysisReport {
                 Some(f) => {
                     let _ = writeln!(
                         out,
-                        "{:>5} {:>11.3}  {:<14} {:>12.1}   {:>7.1} to {:<7.1} {:<8} {:>5}{}",
+                        "{:>5} {:>11.3}  {:<14} {:>12}   {:>7} to {:<7} {:<8} {:>5}{}",
                         b.burst,
                         b.start_s,
                         f.model,
-                        f.speed_mm_s,
-                        f.speed_ci95_mm_s[0],
-                        f.speed_ci95_mm_s[1],
+                        super::speed_text(f.speed_mm_s),
+                        super::speed_text(f.speed_ci95_mm_s[0]),
+                        super::speed_text(f.speed_ci95_mm_s[1]),
                         f.origin_site,
                         f.sites_used,
                         if f.failed { "  stopped" } else { "" }

@@ -745,8 +745,12 @@ pub fn speed_over_time(
                         f.start_s,
                         f.speed_mm_s,
                         format!(
-                            "burst {} at {:.2} s: {:.1} mm/s (95% {:.1}-{:.1})",
-                            b, f.start_s, f.speed_mm_s, f.speed_ci95_mm_s[0], f.speed_ci95_mm_s[1]
+                            "burst {} at {:.2} s: {} mm/s (95% {}-{})",
+                            b,
+                            f.start_s,
+                            super::speed_text(f.speed_mm_s),
+                            super::speed_text(f.speed_ci95_mm_s[0]),
+                            super::speed_text(f.speed_ci95_mm_s[1])
                         ),
                     )
                 })
@@ -1152,12 +1156,12 @@ pub fn activation_plot(b: &BurstResult, track: &Track, size: Size) -> Result<Fig
     let (y0, y1) = padded(ys).ok_or_else(|| empty("no times"))?;
     let title = match front {
         Some(f) => format!(
-            "Burst {}: {} front, {:.1} mm/s (95% {:.1}-{:.1})",
+            "Burst {}: {} front, {} mm/s (95% {}-{})",
             b.burst,
             f.model.to_string().replace('_', " "),
-            f.speed_mm_s,
-            f.speed_ci95_mm_s[0],
-            f.speed_ci95_mm_s[1]
+            super::speed_text(f.speed_mm_s),
+            super::speed_text(f.speed_ci95_mm_s[0]),
+            super::speed_text(f.speed_ci95_mm_s[1])
         ),
         None => format!(
             "Burst {}: no front ({})",

@@ -21,6 +21,21 @@ pub use analysis::{AnalysisReport, ANALYSIS_SCHEMA};
 pub use inspection::{inspect, Inspection, SiteRow, TrackSummary};
 
 /// `electrodes.csv`: one row per channel of a voltage recording.
+/// A speed (mm/s) as reports show it: one decimal from 1 mm/s up, two significant digits
+/// below (0.012, 0.00034), exponent form under 1e-4 (a layout in the wrong unit must not
+/// print as "0.0 mm/s").
+pub fn speed_text(v: f64) -> String {
+    let a = v.abs();
+    if a >= 0.95 || v == 0.0 || !v.is_finite() {
+        format!("{v:.1}")
+    } else if a >= 1e-4 {
+        let decimals = (-a.log10()).ceil() as usize + 1;
+        format!("{v:.decimals$}")
+    } else {
+        format!("{v:.1e}")
+    }
+}
+
 pub fn electrodes_csv(rows: &[crate::detect::voltage::ElectrodeRow]) -> String {
     let mut out = crate::csv_out::CsvOut::new([
         "channel",
@@ -70,4 +85,20 @@ pub fn electrodes_text(rows: &[crate::detect::voltage::ElectrodeRow]) -> String 
         ));
     }
     out
+}
+
+#[cfg(test)]
+mod speed_text_tests {
+    use super::speed_text;
+
+    /// Two significant digits below 1 mm/s, one decimal above (the text report's columns).
+    #[test]
+    fn small_speeds_keep_two_significant_digits() {
+        assert_eq!(speed_text(21.34), "21.3");
+        assert_eq!(speed_text(0.0), "0.0");
+        assert_eq!(speed_text(0.5), "0.50");
+        assert_eq!(speed_text(0.0123), "0.012");
+        assert_eq!(speed_text(-0.00034), "-0.00034");
+        assert_eq!(speed_text(3.7e-9), "3.7e-9");
+    }
 }

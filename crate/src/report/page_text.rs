@@ -16,6 +16,15 @@ fn num(value: Option<f64>, digits: usize, unit: &str) -> String {
     }
 }
 
+/// A speed with [`super::speed_text`]'s digits, its unit, or a dash when missing.
+fn speed(value: Option<f64>, unit: &str) -> String {
+    match value.filter(|v| v.is_finite()) {
+        Some(v) if unit.is_empty() => super::speed_text(v),
+        Some(v) => format!("{} {unit}", super::speed_text(v)),
+        None => "—".into(),
+    }
+}
+
 /// A serialised enum's name in words (`line_one_way` -> `line one way`).
 fn words<T: Serialize>(value: &T) -> String {
     serde_json::to_value(value)
@@ -73,9 +82,9 @@ pub fn burst_sentence(b: &BurstResult) -> String {
             let mut text = format!(
                 "{when}: {} front at {} (95% interval {} to {}), from site {}",
                 words(&f.model),
-                num(Some(f.speed_mm_s), 1, "mm/s"),
-                num(Some(f.speed_ci95_mm_s[0]), 1, ""),
-                num(Some(f.speed_ci95_mm_s[1]), 1, "mm/s"),
+                speed(Some(f.speed_mm_s), "mm/s"),
+                speed(Some(f.speed_ci95_mm_s[0]), ""),
+                speed(Some(f.speed_ci95_mm_s[1]), "mm/s"),
                 f.origin_site
             );
             if let Some(t) = &f.travel {
@@ -206,8 +215,8 @@ pub fn truth_sentence(c: &super::truth::TruthComparison) -> String {
         "{} true fronts, {} measured; median speed {} against {} true; median |error| {}; the 95% interval holds the true speed for {} of measured fronts.",
         c.true_fronts,
         c.measured,
-        num(c.median_speed_mm_s, 1, "mm/s"),
-        num(c.median_true_speed_mm_s, 1, "mm/s"),
+        speed(c.median_speed_mm_s, "mm/s"),
+        speed(c.median_true_speed_mm_s, "mm/s"),
         num(c.median_abs_relative_error.map(|e| 100.0 * e), 1, "%"),
         num(c.interval_coverage.map(|e| 100.0 * e), 0, "%"),
     )
@@ -235,9 +244,9 @@ pub fn truth_table(c: &super::truth::TruthComparison) -> Table {
                 vec![
                     r.truth_burst.to_string(),
                     num(Some(r.true_start_s), 3, ""),
-                    num(Some(r.true_speed_mm_s), 1, ""),
+                    speed(Some(r.true_speed_mm_s), ""),
                     r.burst.map_or("—".into(), |b| b.to_string()),
-                    num(r.speed_mm_s, 1, ""),
+                    speed(r.speed_mm_s, ""),
                     r.speed_ci95_mm_s.map_or("—".into(), |[a, b]| {
                         format!("{} to {}", num(Some(a), 1, ""), num(Some(b), 1, ""))
                     }),
