@@ -42,17 +42,67 @@ fn refused(dir: &Path, extra: &[&str], expect: &[&str]) {
 }
 
 /// One far-out spike time (1e300 ms, and 1e15 ms) used to be binned into a rate over the
-/// whole span: a capacity overflow, or an abort asking for petabytes.
+/// whole span: a capacity overflow, or an abort asking for petabytes. A few such times are now
+/// set aside with a notice naming their line and site, and the rest is analysed as if they
+/// were not there (the same bursts and fronts, byte for byte). Many far-out times (more than
+/// 16) are not "a few": the span check refuses them, naming the latest site and the limit.
 #[test]
-fn one_far_out_spike_time_is_named_not_binned() {
+fn one_far_out_spike_time_is_set_aside_by_line_and_many_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    demo_copy(dir.path());
+    let plain = std::fs::read_to_string(dir.path().join("spikes.csv")).unwrap();
+    let lines = plain.lines().count();
+    let ok = common::ringline(
+        &[
+            "analyze",
+            "spikes.csv",
+            "--layout",
+            "layout.csv",
+            "--out",
+            "plain",
+        ],
+        dir.path(),
+    );
+    assert_eq!(ok.status.code(), Some(0));
     for time in ["1e300", "1e15"] {
-        let dir = tempfile::tempdir().unwrap();
-        demo_copy(dir.path());
-        let mut text = std::fs::read_to_string(dir.path().join("spikes.csv")).unwrap();
+        let mut text = plain.clone();
         text.push_str(&format!("e05,{time}\n"));
-        std::fs::write(dir.path().join("spikes.csv"), text).unwrap();
-        refused(dir.path(), &[], &["far-out time", "site e05", "33554432"]);
+        std::fs::write(dir.path().join("far.csv"), text).unwrap();
+        let out = common::ringline(
+            &[
+                "analyze",
+                "far.csv",
+                "--layout",
+                "layout.csv",
+                "--out",
+                "far",
+            ],
+            dir.path(),
+        );
+        let message = String::from_utf8_lossy(&out.stdout).to_string()
+            + &String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(0), "{message}");
+        assert!(
+            message.contains(&format!("line {}", lines + 1)) && message.contains("e05"),
+            "the notice names neither line {} nor e05: {message}",
+            lines + 1
+        );
+        assert!(message.contains("set aside"), "{message}");
+        for file in ["bursts.csv", "fronts.csv", "activation.csv"] {
+            assert_eq!(
+                std::fs::read(dir.path().join("plain").join(file)).unwrap(),
+                std::fs::read(dir.path().join("far").join(file)).unwrap(),
+                "{file} differs"
+            );
+        }
+        std::fs::remove_dir_all(dir.path().join("far")).unwrap();
     }
+    let mut text = plain.clone();
+    for k in 0..20 {
+        text.push_str(&format!("e05,{}\n", 1e15 + k as f64));
+    }
+    std::fs::write(dir.path().join("spikes.csv"), text).unwrap();
+    refused(dir.path(), &[], &["far-out time", "site e05", "33554432"]);
 }
 
 /// Resamples of 1e12 crashed and 1e8 ran on for minutes; a smoothing SD of 1e9 s asked for a

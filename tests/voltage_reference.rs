@@ -274,7 +274,10 @@ fn wav_files_decode_as_scipy_reads_them() {
     for case in cases {
         let name = case["file"].as_str().unwrap();
         let bytes = std::fs::read(format!("{dir}/wav/{name}")).unwrap();
-        let header = read_wav_header(name, &bytes, bytes.len() as u64, 1.0).unwrap();
+        let header = read_wav_header(name, &bytes, bytes.len() as u64, 1.0, &mut |a, b| {
+            Ok(bytes[a as usize..b as usize].to_vec())
+        })
+        .unwrap();
         assert_eq!(
             header.sample_rate_hz,
             case["sample_rate_hz"].as_f64().unwrap()
@@ -305,11 +308,62 @@ fn wav_files_decode_as_scipy_reads_them() {
     }
     // A file whose data chunk claims more bytes than there are: a located, worded error.
     let bytes = std::fs::read(format!("{dir}/wav/pcm16_wave_module.wav")).unwrap();
-    let err = read_wav_header("short.wav", &bytes[..200], 200, 1.0).unwrap_err();
+    let err = read_wav_header("short.wav", &bytes[..200], 200, 1.0, &mut |a, b| {
+        Ok(bytes[a as usize..(b as usize).min(200)].to_vec())
+    })
+    .unwrap_err();
     assert!(err.to_string().starts_with("short.wav"));
     assert!(err.message.contains("truncated"), "{}", err.message);
-    let err = read_wav_header("notes.wav", b"hello, this is not a wav", 24, 1.0).unwrap_err();
+    let err = read_wav_header(
+        "notes.wav",
+        b"hello, this is not a wav",
+        24,
+        1.0,
+        &mut |_, _| Ok(Vec::new()),
+    )
+    .unwrap_err();
     assert!(err.message.contains("expected a WAV file"));
+}
+
+/// A valid WAV file with a 100 KiB metadata chunk (`LIST`) between its format and its data
+/// used to be refused as "truncated or damaged": only the first 64 KiB were looked at. The
+/// chunk walk now reads the chunk headers it needs from the file, and the samples decode as
+/// those of the same file without the metadata (Python's `wave` module wrote it).
+#[test]
+fn a_wav_file_with_a_long_metadata_chunk_reads_like_one_without() {
+    use ringline::import::{decode_channel, read_wav_header};
+    let dir = format!("{}/../tests/fixtures", env!("CARGO_MANIFEST_DIR"));
+    let plain = std::fs::read(format!("{dir}/wav/pcm16_wave_module.wav")).unwrap();
+    let data_at = plain.windows(4).position(|w| w == b"data").unwrap();
+    let mut long = plain[..data_at].to_vec();
+    let metadata = vec![b'm'; 100 * 1024];
+    long.extend_from_slice(b"LIST");
+    long.extend_from_slice(&(metadata.len() as u32).to_le_bytes());
+    long.extend_from_slice(&metadata);
+    long.extend_from_slice(&plain[data_at..]);
+    let riff = (long.len() - 8) as u32;
+    long[4..8].copy_from_slice(&riff.to_le_bytes());
+    let header_of = |bytes: &[u8]| {
+        let head = &bytes[..bytes.len().min(65_536)];
+        read_wav_header("long.wav", head, bytes.len() as u64, 1.0, &mut |a, b| {
+            Ok(bytes[a as usize..b as usize].to_vec())
+        })
+        .unwrap()
+    };
+    let (a, b) = (header_of(&plain), header_of(&long));
+    assert_eq!(b.data_offset_bytes, a.data_offset_bytes + 8 + 100 * 1024);
+    assert_eq!(
+        (b.frames, b.channels, b.sample_rate_hz),
+        (a.frames, a.channels, a.sample_rate_hz)
+    );
+    let samples = |h: &ringline::import::VoltageHeader, bytes: &[u8]| {
+        let start = h.data_offset_bytes as usize;
+        let data = &bytes[start..start + h.frames as usize * h.frame_bytes()];
+        let mut out = Vec::new();
+        decode_channel(h, data, 0, &mut out);
+        out
+    };
+    assert_eq!(samples(&a, &plain), samples(&b, &long));
 }
 
 /// Filtering channels side by side gives every lane exactly the single-channel result.

@@ -136,6 +136,7 @@ pub fn analyze_file(
             file.len,
             file.sidecar,
             file.wav_uv_per_unit,
+            file.read,
         )?,
         _ => {
             let bytes = read_whole_table(&mut file, &settings.read.limits)?;

@@ -364,15 +364,16 @@ impl WasmWorkbook {
     ) -> Result<VoltageOpened, JsValue> {
         let settings: StepSettings = self::settings(settings, "notebook")?;
         let sidecar = sidecar_name.as_deref().zip(sidecar_bytes.as_deref());
+        let mut read_bytes = js_byte_reader(name, &read);
         let header = crate::import::read_voltage_header(
             name,
             head,
             file_len.max(0.0) as u64,
             sidecar,
             settings.voltage_wav_scale_uv(),
+            &mut read_bytes,
         )
         .map_err(|e| message(&e))?;
-        let mut read_bytes = js_byte_reader(name, &read);
         let mut read_frames = crate::import::frame_reader(&header, &mut read_bytes);
         let mut report = progress_fn(&progress);
         let (inner, found) = Workbook::open_voltage(

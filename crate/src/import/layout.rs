@@ -76,14 +76,7 @@ pub fn read_layout(
     let mut row = Row::default();
     while let Some(next) = table.next_row(&mut row) {
         next?;
-        let id = row.field(site_col);
-        if id.is_empty() {
-            return Err(ImportError::new(
-                table.place_column(Some(row.line), site_col),
-                ImportProblem::BadValue,
-                "expected a site identifier, found an empty field",
-            ));
-        }
+        let id = super::table::site_name(&table, &row, site_col)?;
         if let Some(first) = seen.get(id) {
             return Err(ImportError::new(
                 table.place_column(Some(row.line), site_col).at_site(id),

@@ -154,6 +154,25 @@ pub fn read_recording_with(
         },
     )?;
     let (name, source) = activity;
+    // Raw voltage (a WAV file, or samples by their extension) is not a table: say what it
+    // is, not that it is not UTF-8 text.
+    let head = source.head();
+    let voltage = match classify_input(name, &head[..head.len().min(65_536)]) {
+        InputKind::Wav => Some("a WAV file of raw voltage"),
+        InputKind::VoltageSamples if looks_like_samples_by_name(name) => {
+            Some("raw voltage samples (by its extension)")
+        }
+        _ => None,
+    };
+    if let Some(what) = voltage {
+        return Err(ImportError::new(
+            crate::place::Place::file(name),
+            ImportProblem::NotText,
+            format!(
+                "this is {what}, not a spike list or ROI traces: `ringline analyze` and the page detect its spikes first (raw samples need their JSON sidecar beside them)"
+            ),
+        ));
+    }
     let kind = match options.kind {
         Some(kind) => kind,
         None => sniff_file_kind(source.head()).unwrap_or(FileKind::SpikeList),
@@ -179,6 +198,7 @@ pub fn read_recording_with(
                     time_unit: options.time_unit,
                     frame_rate_hz: options.frame_rate_hz,
                     limits: options.limits,
+                    kind_was_guessed: options.kind.is_none(),
                 },
                 progress,
             )?;
@@ -260,6 +280,12 @@ impl InputKind {
 
 /// Extensions of raw sample files (compared without case).
 pub const SAMPLE_EXTENSIONS: [&str; 5] = ["raw", "bin", "dat", "i16", "f32"];
+
+/// Whether the name ends in one of [`SAMPLE_EXTENSIONS`].
+fn looks_like_samples_by_name(name: &str) -> bool {
+    name.rsplit_once('.')
+        .is_some_and(|(_, e)| SAMPLE_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str()))
+}
 
 /// Judges a file from its name and its first bytes (the first 64 KiB are plenty; a longer
 /// prefix is fine).

@@ -119,6 +119,7 @@ pub fn read_spike_list_with(
     let mut row_count = 0usize;
 
     let mut stimuli = Vec::new();
+    let mut extremes = Extremes::default();
     let mut row = Row::default();
     while let Some(next) = table.next_row(&mut row) {
         next?;
@@ -136,14 +137,7 @@ pub fn read_spike_list_with(
             )?);
             continue;
         }
-        let site = row.field(site_col);
-        if site.is_empty() {
-            return Err(ImportError::new(
-                table.place_column(Some(row.line), site_col),
-                ImportProblem::BadValue,
-                "expected a site identifier, found an empty field",
-            ));
-        }
+        let site = super::table::site_name(&table, &row, site_col)?;
         let value = table.number(&row, time_col, &what)?;
         if value < 0.0 {
             return Err(ImportError::new(
@@ -178,6 +172,7 @@ pub fn read_spike_list_with(
             out_of_order += 1;
         }
         train.push(time_s);
+        extremes.offer(time_s, row.line, index);
         row_count += 1;
     }
     if row_count == 0 {
@@ -189,6 +184,25 @@ pub fn read_spike_list_with(
     }
 
     let mut notices = Vec::new();
+    for far in extremes.far_out(row_count) {
+        let train = &mut sites[far.site].times_s;
+        if let Some(at) = train.iter().position(|&t| t == far.time_s) {
+            train.remove(at);
+            row_count -= 1;
+        }
+        notices.push(Notice::new(
+            table
+                .place_column(Some(far.line), time_col)
+                .at_site(&sites[far.site].site),
+            format!(
+                "a spike time of {} s lies far from all the others (most lie between {} s and {} s), so it was set aside: look for a unit mistake or a stray row",
+                crate::place::number(far.time_s),
+                crate::place::number(far.bulk_s[0]),
+                crate::place::number(far.bulk_s[1])
+            ),
+        ));
+    }
+    sites.retain(|s| !s.times_s.is_empty());
     for name in &ignored_columns {
         let index = table.headers().iter().position(|h| h == name).unwrap_or(0);
         notices.push(Notice::new(
@@ -230,6 +244,111 @@ pub fn read_spike_list_with(
         notices,
         stimuli,
     })
+}
+
+/// How many of the earliest and the latest spike times are kept with their lines, so that a
+/// few far-out times can be set aside by line (more than this many are not "a few").
+const EXTREMES_KEPT: usize = 16;
+
+/// A time counts as far out when it lies further beyond the bulk of the others than this many
+/// times the bulk's own span (and the span is taken as at least 1 s). Common practice, no
+/// source: ten spans is far beyond any gap between sessions recorded as one file.
+const FAR_OUT_SPANS: f64 = 10.0;
+
+/// A spike time with its line and site index.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Placed {
+    time_s: f64,
+    line: u64,
+    site: usize,
+}
+
+impl Eq for Placed {}
+impl PartialOrd for Placed {
+    fn partial_cmp(&self, other: &Self) -> Option<std::cmp::Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for Placed {
+    fn cmp(&self, other: &Self) -> std::cmp::Ordering {
+        self.time_s
+            .total_cmp(&other.time_s)
+            .then(self.line.cmp(&other.line))
+    }
+}
+
+/// The `EXTREMES_KEPT + 1` earliest and latest spike times of a list, with their lines.
+#[derive(Debug, Default)]
+struct Extremes {
+    /// The latest, as a min-heap (its top is the earliest of them).
+    latest: std::collections::BinaryHeap<std::cmp::Reverse<Placed>>,
+    /// The earliest, as a max-heap.
+    earliest: std::collections::BinaryHeap<Placed>,
+}
+
+/// A time set aside as far out, with the bulk it lies far from.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct FarOut {
+    time_s: f64,
+    line: u64,
+    site: usize,
+    bulk_s: [f64; 2],
+}
+
+impl Extremes {
+    fn offer(&mut self, time_s: f64, line: u64, site: usize) {
+        let p = Placed { time_s, line, site };
+        if self.latest.len() <= EXTREMES_KEPT {
+            self.latest.push(std::cmp::Reverse(p));
+        } else if self.latest.peek().is_some_and(|r| p > r.0) {
+            self.latest.pop();
+            self.latest.push(std::cmp::Reverse(p));
+        }
+        if self.earliest.len() <= EXTREMES_KEPT {
+            self.earliest.push(p);
+        } else if self.earliest.peek().is_some_and(|q| p < *q) {
+            self.earliest.pop();
+            self.earliest.push(p);
+        }
+    }
+
+    /// The times that lie far beyond the bulk: beyond the (k+1)-th earliest or latest time by
+    /// more than [`FAR_OUT_SPANS`] times the span between those two. None when they would be
+    /// more than 1% of the `count` spikes (then they are not a few strays, and the analysis's
+    /// span check decides), or when the earliest and latest kept overlap.
+    fn far_out(&self, count: usize) -> Vec<FarOut> {
+        let (Some(lo), Some(hi)) = (self.earliest.peek(), self.latest.peek().map(|r| r.0)) else {
+            return Vec::new();
+        };
+        if self.latest.len() <= EXTREMES_KEPT || lo.time_s >= hi.time_s {
+            return Vec::new();
+        }
+        let span = (hi.time_s - lo.time_s).max(1.0);
+        let bulk_s = [lo.time_s, hi.time_s];
+        let mut far: Vec<FarOut> = self
+            .latest
+            .iter()
+            .map(|r| r.0)
+            .filter(|p| p.time_s > hi.time_s + FAR_OUT_SPANS * span)
+            .chain(
+                self.earliest
+                    .iter()
+                    .copied()
+                    .filter(|p| p.time_s < lo.time_s - FAR_OUT_SPANS * span),
+            )
+            .map(|p| FarOut {
+                time_s: p.time_s,
+                line: p.line,
+                site: p.site,
+                bulk_s,
+            })
+            .collect();
+        if far.len() * 100 > count {
+            return Vec::new();
+        }
+        far.sort_by_key(|f| f.line);
+        far
+    }
 }
 
 pub(crate) fn unit_words(unit: TimeUnit) -> &'static str {

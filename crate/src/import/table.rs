@@ -457,6 +457,19 @@ impl<'a> Table<'a> {
             first_of.entry(name.to_ascii_lowercase()).or_insert(i);
         }
         for (i, name) in self.headers.iter().enumerate() {
+            if name.chars().count() > MAX_NAME_CHARS {
+                let mut place = Place::file(&self.file);
+                place.line = Some(self.header_line);
+                return Err(ImportError::new(
+                    place.at_column(i + 1, None),
+                    ImportProblem::BadHeader,
+                    format!(
+                        "expected a column name of at most {MAX_NAME_CHARS} characters, found one of {} starting '{}'",
+                        name.chars().count(),
+                        shorten(name)
+                    ),
+                ));
+            }
             if name.is_empty() {
                 return Err(ImportError::new(
                     self.place_column(None, i),
@@ -665,6 +678,39 @@ pub(crate) fn decimal_places(text: &str) -> Option<u32> {
         Some(i) => Some(text[i + 1..].chars().filter(char::is_ascii_digit).count() as u32),
         None => Some(0),
     }
+}
+
+/// Longest site identifier or column name read, characters (a name is a label, not data;
+/// a limit we chose, so that no message echoes megabytes).
+pub const MAX_NAME_CHARS: usize = 256;
+
+/// A site identifier from field `index` of `row`: refused when empty or longer than
+/// [`MAX_NAME_CHARS`], at its line and column.
+pub(crate) fn site_name<'r>(
+    table: &Table<'_>,
+    row: &'r Row,
+    index: usize,
+) -> Result<&'r str, ImportError> {
+    let id = row.field(index);
+    if id.is_empty() {
+        return Err(ImportError::new(
+            table.place_column(Some(row.line), index),
+            ImportProblem::BadValue,
+            "expected a site identifier, found an empty field",
+        ));
+    }
+    if id.len() > MAX_NAME_CHARS && id.chars().count() > MAX_NAME_CHARS {
+        return Err(ImportError::new(
+            table.place_column(Some(row.line), index),
+            ImportProblem::BadValue,
+            format!(
+                "expected a site identifier of at most {MAX_NAME_CHARS} characters, found one of {} starting '{}'",
+                id.chars().count(),
+                shorten(id)
+            ),
+        ));
+    }
+    Ok(id)
 }
 
 fn shorten(text: &str) -> String {

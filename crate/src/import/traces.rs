@@ -19,6 +19,10 @@ pub struct TraceOptions {
     pub frame_rate_hz: Option<f64>,
     /// Size caps.
     pub limits: ImportLimits,
+    /// Whether the file was taken for ROI traces by its header alone (no kind given): a
+    /// text value in the first row then explains how the file was taken.
+    #[serde(skip)]
+    pub kind_was_guessed: bool,
 }
 
 /// Fluorescence of one ROI, one value per frame; missing values are NaN.
@@ -144,9 +148,21 @@ pub fn read_roi_traces_with(
             }
             time_s.push(t);
         }
+        let first_row = lines.is_empty();
         for (series, &col) in rois.iter_mut().zip(&roi_cols) {
             let value = table
-                .optional_number(&row, col, "a fluorescence value")?
+                .optional_number(&row, col, "a fluorescence value")
+                .map_err(|mut e| {
+                    // Text in the first row of a "trace" is most often a spike list whose
+                    // site column has a name we do not know: say how the file was taken.
+                    if first_row && options.kind_was_guessed {
+                        e.message.push_str(&format!(
+                            "; the file was read as ROI traces because no column is named as a site ({}): if it is a spike list, rename its site column to one of those",
+                            crate::import::spikes::SITE_COLUMN_NAMES.join(", ")
+                        ));
+                    }
+                    e
+                })?
                 .unwrap_or(f64::NAN);
             series.values.push(value);
         }

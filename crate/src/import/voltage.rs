@@ -208,20 +208,26 @@ pub fn looks_like_wav(head: &[u8]) -> bool {
     head.len() >= 12 && &head[0..4] == b"RIFF" && &head[8..12] == b"WAVE"
 }
 
-/// Reads a WAV header from the first bytes of the file (`head`; 64 KiB is plenty) of a file
-/// of `file_len` bytes. `scale_uv` is microvolts per stored unit (for float files, per 1.0).
+/// Most chunks walked before the data chunk of a WAV file (metadata chunks are a handful).
+pub const MAX_WAV_CHUNKS: usize = 10_000;
+
+/// Reads a WAV header from the file's first bytes (`head`) of a file of `file_len` bytes,
+/// walking its chunks; a chunk header beyond `head` (after a long metadata chunk) is read
+/// through `read(from_byte, to_byte)`. `scale_uv` is microvolts per stored unit (for float
+/// files, per 1.0).
 pub fn read_wav_header(
     name: &str,
     head: &[u8],
     file_len: u64,
     scale_uv: f64,
+    read: &mut FrameRead<'_>,
 ) -> Result<VoltageHeader, ImportError> {
     let place = || Place::file(name);
     let truncated = |what: &str| {
         bad(
             place(),
             ImportProblem::BadValue,
-            format!("expected {what}, found the end of the file's first {} bytes (a truncated or damaged WAV file)", head.len()),
+            format!("expected {what}, found the end of the file ({file_len} bytes): a truncated or damaged WAV file"),
         )
     };
     if !looks_like_wav(head) {
@@ -231,18 +237,27 @@ pub fn read_wav_header(
             "expected a WAV file (RIFF ... WAVE), found other bytes at its start",
         ));
     }
-    let mut at = 12usize;
+    // `n` bytes from `at`: from the head when it holds them, else read from the file.
+    let mut bytes_at = |at: u64, n: u64| -> Result<Option<Vec<u8>>, ImportError> {
+        let end = at.saturating_add(n);
+        if end > file_len {
+            return Ok(None);
+        }
+        match head.get(at as usize..end as usize) {
+            Some(b) if end <= head.len() as u64 => Ok(Some(b.to_vec())),
+            _ => read(at, end).map(|b| (b.len() as u64 == n).then_some(b)),
+        }
+    };
+    let mut at = 12u64;
     let mut format: Option<(u16, usize, u32, u16)> = None; // tag, channels, rate, bits
-    loop {
-        let id = head
-            .get(at..at + 4)
-            .ok_or_else(|| truncated("a data chunk"))?;
-        let size = u32_at(head, at + 4).ok_or_else(|| truncated("a chunk size"))? as usize;
+    for _ in 0..MAX_WAV_CHUNKS {
+        let chunk = bytes_at(at, 8)?.ok_or_else(|| truncated("a data chunk"))?;
+        let id = &chunk[..4];
+        let size = u64::from(u32_at(&chunk, 4).ok_or_else(|| truncated("a chunk size"))?);
         let body = at + 8;
         if id == b"fmt " {
-            let b = head
-                .get(body..body + size.min(40))
-                .ok_or_else(|| truncated("the format chunk"))?;
+            let b = bytes_at(body, size.min(40))?.ok_or_else(|| truncated("the format chunk"))?;
+            let b = &b[..];
             let mut tag = u16_at(b, 0).ok_or_else(|| truncated("the format tag"))?;
             let channels = u16_at(b, 2).ok_or_else(|| truncated("the channel count"))? as usize;
             let rate = u32_at(b, 4).ok_or_else(|| truncated("the sample rate"))?;
@@ -277,8 +292,8 @@ pub fn read_wav_header(
                 ));
             }
             let frame = (channels * sample_type.bytes()) as u64;
-            let declared = size as u64;
-            let present = file_len.saturating_sub(body as u64);
+            let declared = size;
+            let present = file_len.saturating_sub(body);
             // Writers that stream set the size to 0 or 0xFFFFFFFF; take what is there.
             let data_bytes = if declared == 0 || declared == u64::from(u32::MAX) {
                 present
@@ -305,7 +320,7 @@ pub fn read_wav_header(
                 sample_rate_hz: f64::from(rate),
                 channels,
                 sample_type,
-                data_offset_bytes: body as u64,
+                data_offset_bytes: body,
                 frames: data_bytes / frame,
                 scale_uv,
                 offset_uv: 0.0,
@@ -313,8 +328,13 @@ pub fn read_wav_header(
                 container: "wav".into(),
             });
         }
-        at = body + size + (size & 1); // chunks are padded to an even length
+        at = body.saturating_add(size + (size & 1)); // chunks are padded to an even length
     }
+    Err(bad(
+        place(),
+        ImportProblem::BadValue,
+        format!("expected a data chunk within the first {MAX_WAV_CHUNKS} chunks, found none: a damaged WAV file"),
+    ))
 }
 
 /// An int16 sample as a number of stored units, and whether it sits at the int16 limits
@@ -423,15 +443,17 @@ fn decode_lanes_as<const W: usize>(
     }
 }
 
-/// The header of a raw voltage file from its first bytes: a WAV file carries its own; raw
-/// interleaved samples need their sidecar `(name, bytes)`, which the shell looks for as
-/// [`super::sidecar_names`] says. `len` is the file's size in bytes.
+/// The header of a raw voltage file from its first bytes: a WAV file carries its own (chunk
+/// headers past `head` are read through `read(from_byte, to_byte)`); raw interleaved samples
+/// need their sidecar `(name, bytes)`, which the shell looks for as [`super::sidecar_names`]
+/// says. `len` is the file's size in bytes.
 pub fn read_voltage_header(
     name: &str,
     head: &[u8],
     len: u64,
     sidecar: Option<(&str, &[u8])>,
     wav_uv_per_unit: f64,
+    read: &mut FrameRead<'_>,
 ) -> Result<VoltageHeader, ImportError> {
     if looks_like_wav(head) {
         if !(wav_uv_per_unit.is_finite() && wav_uv_per_unit > 0.0) {
@@ -443,7 +465,7 @@ pub fn read_voltage_header(
                 ),
             ));
         }
-        return read_wav_header(name, head, len, wav_uv_per_unit);
+        return read_wav_header(name, head, len, wav_uv_per_unit, read);
     }
     match sidecar {
         Some((sidecar_name, bytes)) => read_sidecar(sidecar_name, bytes, name, len),

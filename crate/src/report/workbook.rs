@@ -461,6 +461,7 @@ impl Workbook {
                     file.len,
                     file.sidecar,
                     file.wav_uv_per_unit,
+                    file.read,
                 )?;
                 let mut frames = crate::import::frame_reader(&header, file.read);
                 Workbook::open_voltage(&header, &mut frames, layout, settings, &mut |d, t| {
