@@ -212,7 +212,10 @@ fn a_far_out_dead_time_is_refused() {
     );
     let message = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(2), "{message}");
-    assert!(message.contains("dead_time_s 0 to 1 s"), "{message}");
+    assert!(
+        message.contains("voltage.dead_time_s (--dead-time-ms) from 0 to 1 s"),
+        "{message}"
+    );
 }
 
 /// ROI traces at 1 ps a frame asked for an 80 TB baseline window; it is now capped at the

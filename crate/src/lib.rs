@@ -292,6 +292,25 @@ pub fn attach_stimuli(
         )
         .into());
     }
+    let known: std::collections::HashSet<&str> =
+        recording.sites.iter().map(|s| s.id.as_str()).collect();
+    if let Some((stimulus, site)) = protocol.stimuli.iter().find_map(|st| {
+        st.site
+            .as_deref()
+            .filter(|site| !known.contains(site))
+            .map(|site| (st, site))
+    }) {
+        return Err(import::ImportError::new(
+            place::Place::file(name)
+                .at_line(stimulus.line)
+                .at_site(site),
+            import::ImportProblem::UnplacedSites,
+            format!(
+                "the stimulating electrode '{site}' has no position in the layout: name a site of the layout, or leave the site empty for a field across the dish"
+            ),
+        )
+        .into());
+    }
     recording.notices.extend(protocol.notices.iter().cloned());
     recording.metadata.sources.push(recording::SourceFile {
         name: name.to_string(),

@@ -54,6 +54,10 @@ pub struct Metadata {
     pub sample_interval_s: Option<f64>,
     /// Smallest time step the files can express, in seconds, when known.
     pub time_quantum_s: Option<f64>,
+    /// Where the latest event was read (file, line, column, site), when known: messages
+    /// about a recording's span point to it.
+    #[serde(skip)]
+    pub latest_event: Option<crate::place::Place>,
 }
 
 /// Sites, their activity and metadata. Built from importer output by

@@ -222,8 +222,8 @@ pub fn detect_voltage_spikes(
     let sos = spike_filter(header, settings)?;
     if !(settings.threshold_sd > 0.0 && (0.0..=1.0).contains(&settings.dead_time_s)) {
         return Err(option_error(format!(
-            "spike threshold: expected threshold_sd above 0 and dead_time_s 0 to 1 s, found {} and {}",
-            settings.threshold_sd, settings.dead_time_s
+            "spike threshold: expected voltage.threshold_sd (--threshold-sd) above 0 and voltage.dead_time_s (--dead-time-ms) from 0 to 1 s, found {} and {} s",
+            crate::place::number(settings.threshold_sd), crate::place::number(settings.dead_time_s)
         )));
     }
     let margin = settling_samples(&sos, 1e-12).min(1 << 20) as u64;

@@ -137,6 +137,7 @@ pub fn voltage_recording(
                 times_s: times.clone(),
             })
             .collect(),
+        latest_place: None,
         time_unit: crate::import::TimeUnit::Seconds,
         time_quantum_s: Some(1.0 / header.sample_rate_hz),
         ignored_columns: Vec::new(),

@@ -369,6 +369,10 @@ fn check_span(
         .max_by(|a, b| a.1.total_cmp(&b.1))
         .and_then(|(i, _)| recording.sites.get(i))
         .map_or_else(String::new, |site| site.id.clone());
+    let latest_where = match &recording.metadata.latest_event {
+        Some(place) => format!("the latest read at {place}"),
+        None => format!("the latest at site {latest_site}"),
+    };
     let span = last - first;
     for (name, step) in [
         (
@@ -383,7 +387,7 @@ fn check_span(
         if bins.is_nan() || bins > MAX_TIME_BINS as f64 {
             return Err(AnalysisError {
                 message: format!(
-                    "the events span {} (from {} to {}, the latest at site {latest_site}); in bins of {name} = {step} s that is {bins:.3e} bins, more than the limit of {MAX_TIME_BINS}: look for a far-out time (a unit mistake or a stray row), or give a coarser {name}",
+                    "the events span {} (from {} to {}, {latest_where}); in bins of {name} = {step} s that is {bins:.3e} bins, more than the limit of {MAX_TIME_BINS}: look for a far-out time (a unit mistake or a stray row), or give a coarser {name}",
                     seconds(span),
                     seconds(first),
                     seconds(last)
@@ -422,7 +426,7 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     if !(s.fronts.confidence > 0.5 && s.fronts.confidence < 1.0) {
         return bad(format!(
             "fronts.confidence: expected a level between 0.5 and 1, found {}",
-            s.fronts.confidence
+            crate::place::number(s.fronts.confidence)
         ));
     }
     for (name, v) in [
@@ -443,7 +447,7 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     if !(s.spectrum.false_alarm > 0.0 && s.spectrum.false_alarm <= 0.5) {
         return bad(format!(
             "spectrum.false_alarm: expected a probability above 0 and at most 0.5, found {}",
-            s.spectrum.false_alarm
+            crate::place::number(s.spectrum.false_alarm)
         ));
     }
     if !(100..=MAX_RESAMPLES).contains(&s.fronts.resamples) {
@@ -464,7 +468,7 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     if !(0.0..1.0).contains(&s.bursts.population_rate.edge_fraction) {
         return bad(format!(
             "bursts.population_rate.edge_fraction: expected 0 or more and below 1 (the share of the way from the baseline to the threshold), found {}",
-            s.bursts.population_rate.edge_fraction
+            crate::place::number(s.bursts.population_rate.edge_fraction)
         ));
     }
     let a = &s.activation;
@@ -525,7 +529,7 @@ fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     if !(0.0..=1.0).contains(&s.bursts.min_site_fraction) {
         return bad(format!(
             "bursts.min_site_fraction: expected 0 to 1, found {}",
-            s.bursts.min_site_fraction
+            crate::place::number(s.bursts.min_site_fraction)
         ));
     }
     Ok(())

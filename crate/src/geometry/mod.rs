@@ -169,6 +169,65 @@ fn error(problem: GeometryProblem, message: impl Into<String>) -> GeometryError 
     }
 }
 
+/// Sites that share one position (sorted by position, so n log n): an error when all do, as
+/// no track runs through one point; otherwise a notice naming the first few groups, as no
+/// front can be timed between sites in one place.
+fn coincident_sites(sites: &[Site], notices: &mut Vec<Notice>) -> Result<(), GeometryError> {
+    let mut order: Vec<usize> = (0..sites.len()).collect();
+    let key = |i: &usize| (sites[*i].x_um, sites[*i].y_um);
+    order.sort_by(|a, b| {
+        let (ka, kb) = (key(a), key(b));
+        ka.0.total_cmp(&kb.0).then(ka.1.total_cmp(&kb.1))
+    });
+    let groups: Vec<&[usize]> = order
+        .chunk_by(|a, b| key(a) == key(b))
+        .filter(|g| g.len() > 1)
+        .collect();
+    if sites.len() >= 2 && groups.len() == 1 && groups[0].len() == sites.len() {
+        let s = &sites[0];
+        return Err(error(
+            GeometryProblem::TooFewSites,
+            format!(
+                "all {} sites lie at one position ({}, {}) µm, so no track runs through them: check the layout's position columns",
+                sites.len(),
+                crate::place::number(s.x_um),
+                crate::place::number(s.y_um)
+            ),
+        ));
+    }
+    const SHOWN: usize = 5;
+    for group in groups.iter().take(SHOWN) {
+        let s = &sites[group[0]];
+        let mut names: Vec<String> = group
+            .iter()
+            .take(10)
+            .map(|&i| sites[i].id.clone())
+            .collect();
+        if group.len() > 10 {
+            names.push(format!("and {} more", group.len() - 10));
+        }
+        notices.push(Notice::new(
+            Place::default().at_site(&sites[group[1]].id),
+            format!(
+                "sites {} share one position ({}, {}) µm: they are kept, but no front can be timed between them; check the layout",
+                names.join(", "),
+                crate::place::number(s.x_um),
+                crate::place::number(s.y_um)
+            ),
+        ));
+    }
+    if groups.len() > SHOWN {
+        notices.push(Notice::new(
+            Place::default(),
+            format!(
+                "{} more groups of sites share a position (the first {SHOWN} are named above)",
+                groups.len() - SHOWN
+            ),
+        ));
+    }
+    Ok(())
+}
+
 /// Below this median spacing the layout cannot be of electrodes or cells (the densest arrays
 /// have a pitch of about 10 µm; common practice, no source): a notice asks for the unit.
 pub const MIN_PLAUSIBLE_SPACING_UM: f64 = 1.0;
@@ -206,6 +265,7 @@ pub fn fit_track(sites: &[Site], settings: &TrackSettings) -> Result<TrackFit, G
             ),
         ));
     }
+    coincident_sites(sites, &mut notices)?;
     let line = fit_line_tls(&points);
     let ring = if points.len() >= 3 {
         fit_ring(&points)
@@ -388,7 +448,10 @@ fn check_settings(settings: &TrackSettings) -> Result<(), GeometryError> {
         if !(r.is_finite() && r > 0.0) {
             return Err(bad(
                 "track.ring_radius_um (--ring-radius)",
-                format!("expected a radius above 0 µm, found {r}"),
+                format!(
+                    "expected a radius above 0 µm, found {}",
+                    crate::place::number(r)
+                ),
             ));
         }
         if settings.ring_centre_um.is_none() {

@@ -95,7 +95,7 @@ pub fn read_layout(
                     table.place_column(Some(row.line), col).at_site(id),
                     ImportProblem::BadValue,
                     format!(
-                        "expected a position within {MAX_POSITION_UM:e} µm (a kilometre) of the origin, found {v} {unit_name}"
+                        "expected a position within {MAX_POSITION_UM:e} µm (a kilometre) of the origin, found {} {unit_name}", crate::place::number(v)
                     ),
                 ));
             }

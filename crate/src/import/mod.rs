@@ -281,6 +281,19 @@ impl InputKind {
 /// Extensions of raw sample files (compared without case).
 pub const SAMPLE_EXTENSIONS: [&str; 5] = ["raw", "bin", "dat", "i16", "f32"];
 
+/// Extensions of WAV files (compared without case).
+pub const WAV_EXTENSIONS: [&str; 2] = ["wav", "wave"];
+
+/// Extensions of text tables (compared without case): bytes that are not UTF-8 in such a
+/// file are a text-encoding problem, not raw samples.
+pub const TEXT_EXTENSIONS: [&str; 3] = ["csv", "tsv", "txt"];
+
+/// Whether the name ends in one of [`WAV_EXTENSIONS`].
+pub fn has_wav_extension(name: &str) -> bool {
+    name.rsplit_once('.')
+        .is_some_and(|(_, e)| WAV_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str()))
+}
+
 /// Whether the name ends in one of [`SAMPLE_EXTENSIONS`].
 fn looks_like_samples_by_name(name: &str) -> bool {
     name.rsplit_once('.')
@@ -290,13 +303,14 @@ fn looks_like_samples_by_name(name: &str) -> bool {
 /// Judges a file from its name and its first bytes (the first 64 KiB are plenty; a longer
 /// prefix is fine).
 pub fn classify_input(name: &str, head: &[u8]) -> InputKind {
-    if looks_like_wav(head) {
-        return InputKind::Wav;
-    }
     let extension = name
         .rsplit_once('.')
         .map(|(_, e)| e.to_ascii_lowercase())
         .unwrap_or_default();
+    // A file named as WAV is read as one, so that one that is not says so.
+    if looks_like_wav(head) || WAV_EXTENSIONS.contains(&extension.as_str()) {
+        return InputKind::Wav;
+    }
     if SAMPLE_EXTENSIONS.contains(&extension.as_str()) {
         return InputKind::VoltageSamples;
     }
@@ -307,7 +321,12 @@ pub fn classify_input(name: &str, head: &[u8]) -> InputKind {
         _ => text,
     };
     let Ok(text) = std::str::from_utf8(text) else {
-        return InputKind::VoltageSamples;
+        // A text file in another encoding is named so by the table reader, at its line.
+        return if TEXT_EXTENSIONS.contains(&extension.as_str()) {
+            InputKind::Unknown
+        } else {
+            InputKind::VoltageSamples
+        };
     };
     if extension == "json" || text.trim_start().starts_with('{') {
         return if text.contains("\"sample_rate_hz\"") {

@@ -49,6 +49,9 @@ pub struct SpikeList {
     pub file: String,
     /// One entry per site, in order of first appearance in the file.
     pub sites: Vec<SiteSpikes>,
+    /// Where the latest spike kept was read (file, line, column, site), for messages about
+    /// the recording's span; `None` when not read from a file.
+    pub latest_place: Option<Place>,
     /// Unit the times were written in.
     pub time_unit: TimeUnit,
     /// Smallest time step the file can express, from the number of decimals written (seconds);
@@ -184,7 +187,19 @@ pub fn read_spike_list_with(
     }
 
     let mut notices = Vec::new();
-    for far in extremes.far_out(row_count) {
+    let far_out = extremes.far_out(row_count);
+    let latest_place = extremes
+        .latest
+        .iter()
+        .map(|r| r.0)
+        .filter(|p| !far_out.iter().any(|f| f.line == p.line))
+        .max()
+        .map(|p| {
+            table
+                .place_column(Some(p.line), time_col)
+                .at_site(&sites[p.site].site)
+        });
+    for far in far_out {
         let train = &mut sites[far.site].times_s;
         if let Some(at) = train.iter().position(|&t| t == far.time_s) {
             train.remove(at);
@@ -237,6 +252,7 @@ pub fn read_spike_list_with(
     Ok(SpikeList {
         file: file.to_string(),
         sites,
+        latest_place,
         time_unit,
         time_quantum_s,
         ignored_columns,

@@ -135,7 +135,10 @@ pub(crate) fn stimulus_from_row(
         return Err(ImportError::new(
             table.place_column(Some(row.line), time_col),
             ImportProblem::BadValue,
-            format!("expected a stimulus time of 0 or later, found {time_s} s"),
+            format!(
+                "expected a stimulus time of 0 or later, found {} s",
+                crate::place::number(time_s)
+            ),
         ));
     }
     let amplitude = table.number(row, amp_col, "a stimulus amplitude")?;

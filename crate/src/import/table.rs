@@ -364,6 +364,13 @@ impl<'a> Table<'a> {
         // head is looked at once however many pieces it comes in.
         let mut passed = (0usize, 0u64);
         let header = loop {
+            if head.starts_with(&[0xFF, 0xFE]) || head.starts_with(&[0xFE, 0xFF]) {
+                return Err(ImportError::new(
+                    place.at_line(1),
+                    ImportProblem::NotText,
+                    "expected UTF-8 text, found UTF-16 (the file starts with a UTF-16 byte-order mark): save it again as UTF-8 text",
+                ));
+            }
             let text = head.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(&head);
             if let Some((line, header_text, complete)) = first_content_line(&text[passed.0..]) {
                 if complete || at_end {

@@ -142,7 +142,11 @@ pub fn read_roi_traces_with(
                     return Err(ImportError::new(
                         table.place_column(Some(row.line), col),
                         ImportProblem::BadValue,
-                        format!("expected frame times that increase, found {t} s after {prev} s"),
+                        format!(
+                            "expected frame times that increase, found {} s after {} s",
+                            crate::place::number(t),
+                            crate::place::number(prev)
+                        ),
                     ));
                 }
             }
@@ -204,6 +208,15 @@ pub fn read_roi_traces_with(
             }
         }
     }
+    if frame_interval_s < MIN_PLAUSIBLE_FRAME_INTERVAL_S {
+        notices.push(Notice::new(
+            Place::file(file),
+            format!(
+                "frames come every {frame_interval_s:.2e} s ({:.2e} frames/s), faster than imaging records: check the unit of the time column or of --frame-rate",
+                1.0 / frame_interval_s
+            ),
+        ));
+    }
     let gaps = find_gaps(&rois, &lines, &time_s);
     for gap in &gaps {
         notices.push(Notice::new(
@@ -232,6 +245,10 @@ pub fn read_roi_traces_with(
         notices,
     })
 }
+
+/// Below this frame interval a trace cannot come from imaging (the fastest voltage imaging
+/// runs at tens of kHz; common practice, no source): a notice asks for the unit.
+pub const MIN_PLAUSIBLE_FRAME_INTERVAL_S: f64 = 1e-5;
 
 fn median_interval(time_s: &[f64]) -> Option<f64> {
     let mut diffs: Vec<f64> = time_s.windows(2).map(|w| w[1] - w[0]).collect();

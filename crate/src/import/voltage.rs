@@ -112,7 +112,7 @@ pub fn read_sidecar(
             ImportProblem::BadValue,
             format!(
                 "sample_rate_hz: expected a rate above 0 Hz, found {}",
-                s.sample_rate_hz
+                crate::place::number(s.sample_rate_hz)
             ),
         ));
     }
@@ -129,7 +129,7 @@ pub fn read_sidecar(
             ImportProblem::BadValue,
             format!(
                 "scale_uv: expected a finite, non-zero number of microvolts per unit (and a finite offset_uv), found {} and {}",
-                s.scale_uv, s.offset_uv
+                crate::place::number(s.scale_uv), crate::place::number(s.offset_uv)
             ),
         ));
     }
@@ -249,7 +249,7 @@ pub fn read_wav_header(
         }
     };
     let mut at = 12u64;
-    let mut format: Option<(u16, usize, u32, u16)> = None; // tag, channels, rate, bits
+    let mut format: Option<(u16, usize, u32, u16, u16)> = None; // tag, channels, rate, align, bits
     for _ in 0..MAX_WAV_CHUNKS {
         let chunk = bytes_at(at, 8)?.ok_or_else(|| truncated("a data chunk"))?;
         let id = &chunk[..4];
@@ -261,15 +261,16 @@ pub fn read_wav_header(
             let mut tag = u16_at(b, 0).ok_or_else(|| truncated("the format tag"))?;
             let channels = u16_at(b, 2).ok_or_else(|| truncated("the channel count"))? as usize;
             let rate = u32_at(b, 4).ok_or_else(|| truncated("the sample rate"))?;
+            let align = u16_at(b, 12).ok_or_else(|| truncated("the block align"))?;
             let bits = u16_at(b, 14).ok_or_else(|| truncated("the bits per sample"))?;
             if tag == 0xFFFE {
                 // WAVE_FORMAT_EXTENSIBLE: the real format is the first two bytes of the
                 // sub-format GUID, 24 bytes into the extension.
                 tag = u16_at(b, 24).ok_or_else(|| truncated("the extensible sub-format"))?;
             }
-            format = Some((tag, channels, rate, bits));
+            format = Some((tag, channels, rate, align, bits));
         } else if id == b"data" {
-            let (tag, channels, rate, bits) =
+            let (tag, channels, rate, align, bits) =
                 format.ok_or_else(|| truncated("a format chunk before the data"))?;
             let sample_type = match (tag, bits) {
                 (1, 16) => SampleType::Int16,
@@ -292,6 +293,16 @@ pub fn read_wav_header(
                 ));
             }
             let frame = (channels * sample_type.bytes()) as u64;
+            if u64::from(align) != frame {
+                return Err(bad(
+                    place(),
+                    ImportProblem::BadValue,
+                    format!(
+                        "expected a block align of {frame} bytes per frame ({channels} channels x {} bytes), found {align}: a damaged WAV header",
+                        sample_type.bytes()
+                    ),
+                ));
+            }
             let declared = size;
             let present = file_len.saturating_sub(body);
             // Writers that stream set the size to 0 or 0xFFFFFFFF; take what is there.
@@ -455,7 +466,7 @@ pub fn read_voltage_header(
     wav_uv_per_unit: f64,
     read: &mut FrameRead<'_>,
 ) -> Result<VoltageHeader, ImportError> {
-    if looks_like_wav(head) {
+    if looks_like_wav(head) || super::has_wav_extension(name) {
         if !(wav_uv_per_unit.is_finite() && wav_uv_per_unit > 0.0) {
             return Err(ImportError::new(
                 Place::file(name),

@@ -138,7 +138,10 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
     ];
     for (name, v) in positive {
         if !(v.is_finite() && v > 0.0) {
-            return Err(format!("{name}: expected a number above 0, found {v}"));
+            return Err(format!(
+                "{name}: expected a number above 0, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     let non_negative = [
@@ -152,7 +155,10 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
     ];
     for (name, v) in non_negative {
         if !(v.is_finite() && v >= 0.0) {
-            return Err(format!("{name}: expected a number of 0 or more, found {v}"));
+            return Err(format!(
+                "{name}: expected a number of 0 or more, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     // Upper ends that keep every drawn time finite (a limit we chose, no source).
@@ -164,13 +170,16 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
         ("extra_interval_s", s.extra_interval_s, 1e6),
     ] {
         if v > most {
-            return Err(format!("{name}: expected at most {most}, found {v}"));
+            return Err(format!(
+                "{name}: expected at most {most}, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     if !(0.0..=1.0).contains(&s.failure_probability) {
         return Err(format!(
             "failure_probability: expected 0 to 1, found {}",
-            s.failure_probability
+            crate::place::number(s.failure_probability)
         ));
     }
     s.electrodes.check("electrodes")?;
@@ -184,7 +193,7 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
     if s.position_jitter_um > MAX_SIMULATED_EXTENT_UM {
         return Err(format!(
             "position_jitter_um: expected at most {MAX_SIMULATED_EXTENT_UM:.0} µm, found {}",
-            s.position_jitter_um
+            crate::place::number(s.position_jitter_um)
         ));
     }
     let bursts = s.duration_s / s.min_interval_s;
@@ -277,7 +286,8 @@ pub fn check_sampling_rate(field: &str, rate_hz: f64) -> Result<(), String> {
     let (lo, hi) = SIMULATED_SAMPLING_RANGE_HZ;
     if !(rate_hz >= lo && rate_hz <= hi) {
         return Err(format!(
-            "{field}: expected a sampling rate of {lo:.0} Hz to {hi:.0} Hz, found {rate_hz} Hz"
+            "{field}: expected a sampling rate of {lo:.0} Hz to {hi:.0} Hz, found {} Hz",
+            crate::place::number(rate_hz)
         ));
     }
     Ok(())

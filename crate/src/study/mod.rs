@@ -587,13 +587,24 @@ pub fn analysis_settings_over(
         ));
     }
     // A value of the wrong kind, located at its line (the layered value has no lines).
-    if let Err(e) = serde_json::from_str::<crate::fronts::AnalysisSettings>(text) {
+    let mut reader = serde_json::Deserializer::from_str(text);
+    if let Err(e) =
+        serde_path_to_error::deserialize::<_, crate::fronts::AnalysisSettings>(&mut reader)
+    {
+        let key = e.path().to_string();
+        let words = crate::json_error_words(e.inner());
+        // serde says "FOUND, expected WANTED"; a scientist reads the key, then what it takes.
+        let words = match words.split_once(", expected ") {
+            Some((found, wanted)) => format!("expected {wanted}, found {found}"),
+            None => words,
+        };
         return Err(StudyError::new(
-            place(e.line()),
-            format!(
-                "expected usable analysis settings: {}",
-                crate::json_error_words(&e)
-            ),
+            place(e.inner().line()),
+            if key.is_empty() || key == "." {
+                format!("expected usable analysis settings: {words}")
+            } else {
+                format!("{key}: {words}")
+            },
         ));
     }
     serde_json::from_value(merged).map_err(|e| {

@@ -61,12 +61,14 @@ impl Pattern {
         let positive = |name: &str, v: f64| -> Result<(), String> {
             if !(v.is_finite() && v > 0.0) {
                 return Err(format!(
-                    "pattern.{name}: expected a length above 0 µm, found {v}"
+                    "pattern.{name}: expected a length above 0 µm, found {}",
+                    crate::place::number(v)
                 ));
             }
             if v > MOST {
                 return Err(format!(
-                    "pattern.{name}: expected at most {MOST:.0} µm (1 m), found {v}"
+                    "pattern.{name}: expected at most {MOST:.0} µm (1 m), found {}",
+                    crate::place::number(v)
                 ));
             }
             Ok(())
@@ -135,7 +137,8 @@ impl Pattern {
                 positive("spacing_um", *spacing_um)?;
                 if !(length_um.is_finite() && *length_um >= 0.0 && *length_um <= MOST) {
                     return Err(format!(
-                        "pattern.length_um: expected 0 to {MOST:.0} µm, found {length_um}"
+                        "pattern.length_um: expected 0 to {MOST:.0} µm, found {}",
+                        crate::place::number(*length_um)
                     ));
                 }
                 Ok(())

@@ -233,7 +233,10 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         ("synapse.recovery_s", s.synapse.recovery_s),
     ] {
         if !(v.is_finite() && v > 0.0) {
-            return Err(format!("{name}: expected a number above 0, found {v}"));
+            return Err(format!(
+                "{name}: expected a number above 0, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     for (name, v) in [
@@ -245,7 +248,10 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         ("synapse.inhibitory_mv", s.synapse.inhibitory_mv),
     ] {
         if !(v.is_finite() && v >= 0.0) {
-            return Err(format!("{name}: expected a number of 0 or more, found {v}"));
+            return Err(format!(
+                "{name}: expected a number of 0 or more, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     for (name, v) in [
@@ -254,43 +260,46 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         ("noise.amplitude_mv", s.noise.amplitude_mv),
     ] {
         if !v.is_finite() {
-            return Err(format!("{name}: expected a finite number, found {v}"));
+            return Err(format!(
+                "{name}: expected a finite number, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     if s.duration_s > MAX_NETWORK_DURATION_S {
         return Err(format!(
             "duration_s: expected at most {MAX_NETWORK_DURATION_S:.0} s (one day of culture time), found {}",
-            s.duration_s
+            crate::place::number(s.duration_s)
         ));
     }
     if !(MIN_SYNAPTIC_DELAY_S..=1.0).contains(&s.synaptic_delay_s) {
         return Err(format!(
             "synaptic_delay_s: expected {MIN_SYNAPTIC_DELAY_S} s to 1 s, found {}",
-            s.synaptic_delay_s
+            crate::place::number(s.synaptic_delay_s)
         ));
     }
     if s.connectivity.sigma_um < MIN_SIGMA_UM {
         return Err(format!(
             "connectivity.sigma_um: expected at least {MIN_SIGMA_UM} µm (a footprint smaller than a cell body), found {}",
-            s.connectivity.sigma_um
+            crate::place::number(s.connectivity.sigma_um)
         ));
     }
     if s.neuron.refractory_s > 1.0 || s.neuron.tau_m_s > 10.0 {
         return Err(format!(
             "neuron: expected refractory_s of at most 1 s and tau_m_s of at most 10 s, found {} and {}",
-            s.neuron.refractory_s, s.neuron.tau_m_s
+            crate::place::number(s.neuron.refractory_s), crate::place::number(s.neuron.tau_m_s)
         ));
     }
     if !(0.0..=1.0).contains(&s.synapse.depression_u) {
         return Err(format!(
             "synapse.depression_u: expected a fraction of 0 to 1, found {}",
-            s.synapse.depression_u
+            crate::place::number(s.synapse.depression_u)
         ));
     }
     if !(0.0..=1.0).contains(&s.excitatory_fraction) {
         return Err(format!(
             "excitatory_fraction: expected 0 to 1, found {}",
-            s.excitatory_fraction
+            crate::place::number(s.excitatory_fraction)
         ));
     }
     if s.neuron.reset_mv >= s.neuron.threshold_mv {
@@ -313,7 +322,7 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         return Err(format!(
             "connectivity.mean_in_degree: a neuron can have at most one input from each of the other {:.0} neurons, found {}",
             (neurons - 1.0).max(0.0),
-            s.connectivity.mean_in_degree
+            crate::place::number(s.connectivity.mean_in_degree)
         ));
     }
     let cutoff = s.connectivity.footprint.cutoff(s.connectivity.sigma_um);
@@ -348,7 +357,8 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
     if kicks > MAX_NOISE_KICKS {
         return Err(format!(
             "noise.rate_hz: {} Hz on {neurons:.0} neurons for {} s is {kicks:.3e} kicks, more than the limit of {MAX_NOISE_KICKS:.0}",
-            s.noise.rate_hz, s.duration_s
+            crate::place::number(s.noise.rate_hz),
+            crate::place::number(s.duration_s)
         ));
     }
     if let Some(e) = &s.electrodes {
@@ -357,13 +367,13 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
     if !(s.excitatory_scale.is_finite() && (0.0..=1.0).contains(&s.excitatory_scale)) {
         return Err(format!(
             "excitatory_scale: expected 0 (all blocked) to 1 (none), found {}",
-            s.excitatory_scale
+            crate::place::number(s.excitatory_scale)
         ));
     }
     if !(s.calcium_scale.is_finite() && s.calcium_scale > 0.0 && s.calcium_scale <= 10.0) {
         return Err(format!(
             "calcium_scale: expected a level above 0 and at most 10 (1 is the culture's own), found {}",
-            s.calcium_scale
+            crate::place::number(s.calcium_scale)
         ));
     }
     if let Some([lo, hi]) = s.drive.isolated_rates_hz {
@@ -404,7 +414,7 @@ fn check_electrodes(e: &Electrodes, duration_s: f64) -> Result<(), String> {
     if !(0.0..=1.0).contains(&e.detection_probability) {
         return Err(format!(
             "electrodes.detection_probability: expected 0 to 1, found {}",
-            e.detection_probability
+            crate::place::number(e.detection_probability)
         ));
     }
     if !(e.pickup_radius_um.is_finite()
@@ -413,7 +423,7 @@ fn check_electrodes(e: &Electrodes, duration_s: f64) -> Result<(), String> {
     {
         return Err(format!(
             "electrodes.pickup_radius_um: expected a length above 0 µm and at most {MAX_SIMULATED_EXTENT_UM:.0} µm, found {}",
-            e.pickup_radius_um
+            crate::place::number(e.pickup_radius_um)
         ));
     }
     if !e
@@ -438,20 +448,23 @@ fn check_electrodes(e: &Electrodes, duration_s: f64) -> Result<(), String> {
             ("electrodes.voltage.spike_uv", v.spike_uv),
         ] {
             if !(x.is_finite() && x >= 0.0) {
-                return Err(format!("{name}: expected a number of 0 or more, found {x}"));
+                return Err(format!(
+                    "{name}: expected a number of 0 or more, found {}",
+                    crate::place::number(x)
+                ));
             }
         }
         if !(v.scale_uv.is_finite() && v.scale_uv > 0.0) {
             return Err(format!(
                 "electrodes.voltage.scale_uv: expected a number above 0, found {}",
-                v.scale_uv
+                crate::place::number(v.scale_uv)
             ));
         }
         let samples = count as f64 * e.sampling_rate_hz * duration_s;
         if samples > MAX_VOLTAGE_SAMPLES {
             return Err(format!(
                 "electrodes.voltage: {count} electrodes at {} Hz for {duration_s} s is {samples:.3e} samples, more than the limit of {MAX_VOLTAGE_SAMPLES:.0}; shorten the run or write spikes only",
-                e.sampling_rate_hz
+                crate::place::number(e.sampling_rate_hz)
             ));
         }
     }
@@ -465,13 +478,17 @@ fn check_imaging(i: &Imaging, duration_s: f64, neurons: f64) -> Result<(), Strin
         ("imaging.decay_s", i.decay_s),
     ] {
         if !(v.is_finite() && v > 0.0) {
-            return Err(format!("{name}: expected a number above 0, found {v}"));
+            return Err(format!(
+                "{name}: expected a number above 0, found {}",
+                crate::place::number(v)
+            ));
         }
     }
     if !(i.noise_sd.is_finite() && i.noise_sd >= 0.0 && i.amplitude.is_finite()) {
         return Err(format!(
             "imaging: expected a finite amplitude and a noise_sd of 0 or more, found {} and {}",
-            i.amplitude, i.noise_sd
+            crate::place::number(i.amplitude),
+            crate::place::number(i.noise_sd)
         ));
     }
     if i.rois == 0 || i.rois as f64 > neurons {
@@ -484,7 +501,7 @@ fn check_imaging(i: &Imaging, duration_s: f64, neurons: f64) -> Result<(), Strin
     if values > MAX_IMAGING_VALUES {
         return Err(format!(
             "imaging: {} ROIs at {} frames/s for {duration_s} s is {values:.3e} values, more than the limit of {MAX_IMAGING_VALUES:.0}; give fewer ROIs or frames",
-            i.rois, i.frame_rate_hz
+            i.rois, crate::place::number(i.frame_rate_hz)
         ));
     }
     Ok(())
@@ -1074,7 +1091,10 @@ pub fn scenario_from_options(o: &CultureOptions) -> Result<NetworkScenario, Stri
         if v.is_finite() && v > 0.0 {
             Ok(v)
         } else {
-            Err(format!("--{name}: expected a number above 0, found {v}"))
+            Err(format!(
+                "--{name}: expected a number above 0, found {}",
+                crate::place::number(v)
+            ))
         }
     };
     let length = positive(

@@ -64,7 +64,10 @@ impl Stimulation {
             ("stimulation.start_s", self.start_s),
         ] {
             if !(v.is_finite() && v >= 0.0) {
-                return Err(format!("{name}: expected a number of 0 or more, found {v}"));
+                return Err(format!(
+                    "{name}: expected a number of 0 or more, found {}",
+                    crate::place::number(v)
+                ));
             }
         }
         for (name, v) in [
@@ -73,7 +76,10 @@ impl Stimulation {
             ("stimulation.direct_latency_s", self.direct_latency_s),
         ] {
             if !(v.is_finite() && v > 0.0) {
-                return Err(format!("{name}: expected a number above 0, found {v}"));
+                return Err(format!(
+                    "{name}: expected a number above 0, found {}",
+                    crate::place::number(v)
+                ));
             }
         }
         if self.amplitudes.is_empty()
