@@ -102,7 +102,11 @@ fn one_far_out_spike_time_is_set_aside_by_line_and_many_are_refused() {
         text.push_str(&format!("e05,{}\n", 1e15 + k as f64));
     }
     std::fs::write(dir.path().join("spikes.csv"), text).unwrap();
-    refused(dir.path(), &[], &["far-out time", "site 'e05'", "line 5633", "33554432"]);
+    refused(
+        dir.path(),
+        &[],
+        &["far-out time", "site 'e05'", "line 5633", "33554432"],
+    );
 }
 
 /// Resamples of 1e12 crashed and 1e8 ran on for minutes; a smoothing SD of 1e9 s asked for a

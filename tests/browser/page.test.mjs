@@ -251,6 +251,41 @@ test('a malformed file shows its located message, and a good file still works af
   await context.close();
 });
 
+test('the bad-input corpus dropped on the page gives each file\'s located message, and good files still work after', async () => {
+  // tests/bad-inputs/cases.tsv: every `analyze FILE --layout LAYOUT` case refused at import,
+  // with the place the command line names (file, line, column, site).
+  const corpus = join(repo, 'tests/bad-inputs');
+  const cases = readFileSync(join(corpus, 'cases.tsv'), 'utf8').split('\n')
+    .filter((l) => l && !l.startsWith('#'))
+    .map((l) => l.split('\t'))
+    .map(([name, args, exit, place, words]) => ({ name, args: args.split(' '), exit, place, words }))
+    .filter((c) => c.exit === '2' && c.args.length === 5 && c.args[0] === 'analyze'
+      && (c.place.startsWith(c.args[1]) || c.place.startsWith(c.args[3]) || c.place.startsWith(c.args[1].replace(/\.raw$/, '.json')))
+      && !c.words.startsWith('the events span'));
+  assert.ok(cases.length >= 40, `${cases.length} import cases`);
+  const { page, context, errors } = await openPage(base);
+  const seen = [];
+  for (const c of cases) {
+    await page.reload();
+    await page.waitForFunction(() => window.ringlineCoreReadyAt !== undefined, null, { timeout: 20000 });
+    const files = [c.args[1], c.args[3]];
+    const sidecar = c.args[1].replace(/\.raw$/, '.json');
+    if (sidecar !== c.args[1]) {
+      try { readFileSync(join(corpus, sidecar)); files.push(sidecar); } catch { /* no sidecar: the case */ }
+    }
+    await page.setInputFiles('#file-input', files.map((f) => join(corpus, f)));
+    await page.locator('#input-error').waitFor({ state: 'visible', timeout: 20000 });
+    const message = await page.textContent('#input-error');
+    assert.ok(message.includes(c.place), `${c.name}: expected '${c.place}' in the page's '${message}'`);
+    seen.push(c.name);
+  }
+  await page.setInputFiles('#file-input', ['good-spikes.csv', 'good-layout.csv'].map((f) => join(corpus, f)));
+  await analyse(page);
+  assert.ok(await page.locator('#input-error').isHidden());
+  assert.equal(errors.length, 0, errors.join('\n'));
+  await context.close();
+});
+
 test('a saved notebook re-opens with the same settings and results', async () => {
   const { page, context } = await openPage(base);
   await page.click('#demo-button');

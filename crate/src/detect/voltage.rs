@@ -199,8 +199,15 @@ pub struct VoltageSpikes {
 /// in noise is followed.
 pub const BLOCK_S: f64 = 10.0;
 
+/// Memory a detection block may take, bytes: its frames as read (with the filter margins)
+/// and the filter's working lanes. At 60 int16 channels and 20 kHz a [`BLOCK_S`] block fits;
+/// more channels or a higher rate make the block shorter, so the memory of detection stays
+/// about this much whatever the file (a limit we chose). When the filter's settling margin
+/// alone would pass a quarter of it (rates of hundreds of MHz), the margin is cut there.
+pub const BLOCK_BUDGET_BYTES: u64 = 64 << 20;
+
 /// Detects spikes on every channel of a raw voltage file, block by block: each block of
-/// [`BLOCK_S`] is read with a margin on each side long enough for the filter's transients to
+/// [`BLOCK_S`] (shorter when [`BLOCK_BUDGET_BYTES`] requires) is read with a margin on each side long enough for the filter's transients to
 /// die out (1e-12), filtered zero-phase per channel, its noise SD taken by MAD, and spikes
 /// found at `threshold_sd` noise SDs. `read(first_frame, end_frame)` returns the raw bytes of
 /// those whole frames; `progress(frames_done, frames_total)` after each block. `sites` names
@@ -226,8 +233,12 @@ pub fn detect_voltage_spikes(
             crate::place::number(settings.threshold_sd), crate::place::number(settings.dead_time_s)
         )));
     }
-    let margin = settling_samples(&sos, 1e-12).min(1 << 20) as u64;
-    let block = ((BLOCK_S * fs) as u64).max(1);
+    // The block, with its margins, is sized so that the frames read and the filter's lanes
+    // stay within the memory budget whatever the channel count or the rate.
+    let frame_bytes = (header.channels * header.sample_type.bytes() + 2 * LANES * 8) as u64;
+    let budget_frames = (BLOCK_BUDGET_BYTES / frame_bytes).max(64);
+    let margin = (settling_samples(&sos, 1e-12).min(1 << 20) as u64).min(budget_frames / 4);
+    let block = ((BLOCK_S * fs) as u64).clamp(1, budget_frames - 2 * margin);
     let total = header.frames;
     let channels = header.channels;
     let mut trains: Vec<Vec<f64>> = vec![Vec::new(); channels];
