@@ -85,6 +85,26 @@ fn check(case: &Case, dir: &Path, scratch: &Path) {
     );
 }
 
+/// A refused case made in the test (too large to commit): `file` written into a fresh
+/// folder beside the corpus's good layout, then [`check`]ed.
+fn check_made(file: &str, bytes: &[u8], args: &str, place: &str, words: &str) {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join(file), bytes).unwrap();
+    std::fs::copy(
+        corpus().join("good-layout.csv"),
+        dir.path().join("good-layout.csv"),
+    )
+    .unwrap();
+    let case = Case {
+        name: file.into(),
+        args: args.split(' ').map(String::from).collect(),
+        exit: 2,
+        place: place.into(),
+        words: words.into(),
+    };
+    check(&case, dir.path(), dir.path());
+}
+
 #[test]
 fn the_corpus_has_every_case_the_hardening_asked_for() {
     let cases = cases();
@@ -116,53 +136,30 @@ fn every_corpus_input_exits_0_or_2_with_a_located_message() {
 /// piece of it (the field is echoed in 20 MB of stderr otherwise).
 #[test]
 fn a_ten_megabyte_line_is_refused_with_a_short_message() {
-    let dir = tempfile::tempdir().unwrap();
     let mut text = b"site,time_s\nA,0.5\nB,".to_vec();
     text.extend(std::iter::repeat_n(b'7', 10 << 20));
     text.extend_from_slice(b"x\n");
-    std::fs::write(dir.path().join("long.csv"), &text).unwrap();
-    std::fs::copy(
-        corpus().join("good-layout.csv"),
-        dir.path().join("good-layout.csv"),
-    )
-    .unwrap();
-    let case = Case {
-        name: "ten-megabyte-line".into(),
-        args: "analyze long.csv --layout good-layout.csv --out {out}"
-            .split(' ')
-            .map(String::from)
-            .collect(),
-        exit: 2,
-        place: "long.csv, line 3, column 2 ('time_s')".into(),
-        words: "expected a spike time in seconds".into(),
-    };
-    check(&case, dir.path(), dir.path());
+    check_made(
+        "long.csv",
+        &text,
+        "analyze long.csv --layout good-layout.csv --out {out}",
+        "long.csv, line 3, column 2 ('time_s')",
+        "expected a spike time in seconds",
+    );
 }
 
 /// 100,000 columns with one name twice: found by a hash of the names, not by comparing every
 /// pair (which took 44.5 s at this size), and named by both columns.
 #[test]
 fn a_header_of_a_hundred_thousand_columns_is_checked_in_linear_time() {
-    let dir = tempfile::tempdir().unwrap();
     let mut header: Vec<String> = vec!["site".into(), "time_s".into()];
     header.extend((0..100_000).map(|i| format!("extra_{i}")));
     header.push("extra_5".into());
-    let text = format!("{}\nA,0.5\n", header.join(","));
-    std::fs::write(dir.path().join("wide.csv"), text).unwrap();
-    std::fs::copy(
-        corpus().join("good-layout.csv"),
-        dir.path().join("good-layout.csv"),
-    )
-    .unwrap();
-    let case = Case {
-        name: "wide-header".into(),
-        args: "inspect wide.csv --layout good-layout.csv"
-            .split(' ')
-            .map(String::from)
-            .collect(),
-        exit: 2,
-        place: "wide.csv, column 100003 ('extra_5')".into(),
-        words: "appears twice (also column 8)".into(),
-    };
-    check(&case, dir.path(), dir.path());
+    check_made(
+        "wide.csv",
+        format!("{}\nA,0.5\n", header.join(",")).as_bytes(),
+        "inspect wide.csv --layout good-layout.csv",
+        "wide.csv, column 100003 ('extra_5')",
+        "appears twice (also column 8)",
+    );
 }

@@ -50,12 +50,7 @@ pub fn manifest(data: &[u8]) {
 /// Decodes every channel of the first 4,096 frames the header promises.
 fn decode_some(header: &VoltageHeader, file: &[u8]) {
     let frames = header.frames.min(4096);
-    let mut read = |a: u64, b: u64| -> Result<Vec<u8>, ImportError> {
-        Ok(file
-            .get(a as usize..(b as usize).min(file.len()))
-            .unwrap_or_default()
-            .to_vec())
-    };
+    let mut read = reader(file);
     let mut frames_of = ringline::import::frame_reader(header, &mut read);
     if let Ok(bytes) = frames_of(0, frames) {
         let mut out = Vec::new();

@@ -362,17 +362,6 @@ fn check_span(
     let Some((first, last)) = crate::recording::trains_span_s(trains_s) else {
         return Ok(());
     };
-    let latest_site = trains_s
-        .iter()
-        .enumerate()
-        .filter_map(|(i, t)| t.last().map(|&v| (i, v)))
-        .max_by(|a, b| a.1.total_cmp(&b.1))
-        .and_then(|(i, _)| recording.sites.get(i))
-        .map_or_else(String::new, |site| site.id.clone());
-    let latest_where = match &recording.metadata.latest_event {
-        Some(place) => format!("the latest read at {place}"),
-        None => format!("the latest at site {latest_site}"),
-    };
     let span = last - first;
     for (name, step) in [
         (
@@ -385,6 +374,19 @@ fn check_span(
     ] {
         let bins = span / step;
         if bins.is_nan() || bins > MAX_TIME_BINS as f64 {
+            let latest_where = match &recording.metadata.latest_event {
+                Some(place) => format!("the latest read at {place}"),
+                None => {
+                    let latest_site = trains_s
+                        .iter()
+                        .enumerate()
+                        .filter_map(|(i, t)| t.last().map(|&v| (i, v)))
+                        .max_by(|a, b| a.1.total_cmp(&b.1))
+                        .and_then(|(i, _)| recording.sites.get(i))
+                        .map_or_else(String::new, |site| site.id.clone());
+                    format!("the latest at site {latest_site}")
+                }
+            };
             return Err(AnalysisError {
                 message: format!(
                     "the events span {} (from {} to {}, {latest_where}); in bins of {name} = {step} s that is {bins:.3e} bins, more than the limit of {MAX_TIME_BINS}: look for a far-out time (a unit mistake or a stray row), or give a coarser {name}",

@@ -288,25 +288,27 @@ pub const WAV_EXTENSIONS: [&str; 2] = ["wav", "wave"];
 /// file are a text-encoding problem, not raw samples.
 pub const TEXT_EXTENSIONS: [&str; 3] = ["csv", "tsv", "txt"];
 
+/// The name's extension in lower case ("" when it has none).
+fn extension(name: &str) -> String {
+    name.rsplit_once('.')
+        .map(|(_, e)| e.to_ascii_lowercase())
+        .unwrap_or_default()
+}
+
 /// Whether the name ends in one of [`WAV_EXTENSIONS`].
 pub fn has_wav_extension(name: &str) -> bool {
-    name.rsplit_once('.')
-        .is_some_and(|(_, e)| WAV_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str()))
+    WAV_EXTENSIONS.contains(&extension(name).as_str())
 }
 
 /// Whether the name ends in one of [`SAMPLE_EXTENSIONS`].
 fn looks_like_samples_by_name(name: &str) -> bool {
-    name.rsplit_once('.')
-        .is_some_and(|(_, e)| SAMPLE_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str()))
+    SAMPLE_EXTENSIONS.contains(&extension(name).as_str())
 }
 
 /// Judges a file from its name and its first bytes (the first 64 KiB are plenty; a longer
 /// prefix is fine).
 pub fn classify_input(name: &str, head: &[u8]) -> InputKind {
-    let extension = name
-        .rsplit_once('.')
-        .map(|(_, e)| e.to_ascii_lowercase())
-        .unwrap_or_default();
+    let extension = extension(name);
     // A file named as WAV is read as one, so that one that is not says so.
     if looks_like_wav(head) || WAV_EXTENSIONS.contains(&extension.as_str()) {
         return InputKind::Wav;

@@ -130,21 +130,13 @@ pub struct SimulatedFronts {
 
 /// Checks a scenario; the message names the field.
 pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
-    let positive = [
+    crate::simulate::require_positive(&[
         ("duration_s", s.duration_s),
         ("speed_mm_s", s.speed_mm_s),
         ("sampling_rate_hz", s.sampling_rate_hz),
         ("min_interval_s", s.min_interval_s),
-    ];
-    for (name, v) in positive {
-        if !(v.is_finite() && v > 0.0) {
-            return Err(format!(
-                "{name}: expected a number above 0, found {}",
-                crate::place::number(v)
-            ));
-        }
-    }
-    let non_negative = [
+    ])?;
+    crate::simulate::require_non_negative(&[
         ("position_jitter_um", s.position_jitter_um),
         ("extra_interval_s", s.extra_interval_s),
         ("speed_cv", s.speed_cv),
@@ -152,15 +144,7 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
         ("spikes_per_burst", s.spikes_per_burst),
         ("burst_spread_s", s.burst_spread_s),
         ("background_rate_hz", s.background_rate_hz),
-    ];
-    for (name, v) in non_negative {
-        if !(v.is_finite() && v >= 0.0) {
-            return Err(format!(
-                "{name}: expected a number of 0 or more, found {}",
-                crate::place::number(v)
-            ));
-        }
-    }
+    ])?;
     // Upper ends that keep every drawn time finite (a limit we chose, no source).
     for (name, v, most) in [
         ("speed_mm_s", s.speed_mm_s, 1e6),

@@ -30,6 +30,28 @@ pub enum Scenario {
     Network(Box<network::NetworkScenario>),
 }
 
+/// Refuses the first named value that is not a finite number above 0, naming it.
+pub(crate) fn require_positive(values: &[(&str, f64)]) -> Result<(), String> {
+    match values.iter().find(|(_, v)| !(v.is_finite() && *v > 0.0)) {
+        Some((name, v)) => Err(format!(
+            "{name}: expected a number above 0, found {}",
+            crate::place::number(*v)
+        )),
+        None => Ok(()),
+    }
+}
+
+/// Refuses the first named value that is not a finite number of 0 or more, naming it.
+pub(crate) fn require_non_negative(values: &[(&str, f64)]) -> Result<(), String> {
+    match values.iter().find(|(_, v)| !(v.is_finite() && *v >= 0.0)) {
+        Some((name, v)) => Err(format!(
+            "{name}: expected a number of 0 or more, found {}",
+            crate::place::number(*v)
+        )),
+        None => Ok(()),
+    }
+}
+
 /// Reads a scenario from JSON text; the error says what is wrong in the scenario's words.
 pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
     serde_json::from_str(text).map_err(|e| {

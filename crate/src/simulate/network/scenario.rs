@@ -222,7 +222,7 @@ pub const MIN_SIGMA_UM: f64 = 1.0;
 /// and the work (neurons, candidate pairs, synapses, noise kicks, delays, samples) within
 /// the limits above. The message names the field, its value and the limit.
 pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
-    for (name, v) in [
+    crate::simulate::require_positive(&[
         ("duration_s", s.duration_s),
         ("density_per_mm2", s.density_per_mm2),
         ("connectivity.sigma_um", s.connectivity.sigma_um),
@@ -231,29 +231,15 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         ("neuron.tau_m_s", s.neuron.tau_m_s),
         ("neuron.threshold_mv", s.neuron.threshold_mv),
         ("synapse.recovery_s", s.synapse.recovery_s),
-    ] {
-        if !(v.is_finite() && v > 0.0) {
-            return Err(format!(
-                "{name}: expected a number above 0, found {}",
-                crate::place::number(v)
-            ));
-        }
-    }
-    for (name, v) in [
+    ])?;
+    crate::simulate::require_non_negative(&[
         ("neuron.refractory_s", s.neuron.refractory_s),
         ("connectivity.mean_in_degree", s.connectivity.mean_in_degree),
         ("drive.sd_mv", s.drive.sd_mv),
         ("noise.rate_hz", s.noise.rate_hz),
         ("synapse.excitatory_mv", s.synapse.excitatory_mv),
         ("synapse.inhibitory_mv", s.synapse.inhibitory_mv),
-    ] {
-        if !(v.is_finite() && v >= 0.0) {
-            return Err(format!(
-                "{name}: expected a number of 0 or more, found {}",
-                crate::place::number(v)
-            ));
-        }
-    }
+    ])?;
     for (name, v) in [
         ("neuron.reset_mv", s.neuron.reset_mv),
         ("drive.mean_mv", s.drive.mean_mv),
@@ -443,23 +429,11 @@ fn check_electrodes(e: &Electrodes, duration_s: f64) -> Result<(), String> {
         ));
     }
     if let Some(v) = &e.voltage {
-        for (name, x) in [
+        crate::simulate::require_non_negative(&[
             ("electrodes.voltage.noise_uv", v.noise_uv),
             ("electrodes.voltage.spike_uv", v.spike_uv),
-        ] {
-            if !(x.is_finite() && x >= 0.0) {
-                return Err(format!(
-                    "{name}: expected a number of 0 or more, found {}",
-                    crate::place::number(x)
-                ));
-            }
-        }
-        if !(v.scale_uv.is_finite() && v.scale_uv > 0.0) {
-            return Err(format!(
-                "electrodes.voltage.scale_uv: expected a number above 0, found {}",
-                crate::place::number(v.scale_uv)
-            ));
-        }
+        ])?;
+        crate::simulate::require_positive(&[("electrodes.voltage.scale_uv", v.scale_uv)])?;
         let samples = count as f64 * e.sampling_rate_hz * duration_s;
         if samples > MAX_VOLTAGE_SAMPLES {
             return Err(format!(
@@ -473,17 +447,10 @@ fn check_electrodes(e: &Electrodes, duration_s: f64) -> Result<(), String> {
 
 /// The imaging part of [`check_network_scenario`].
 fn check_imaging(i: &Imaging, duration_s: f64, neurons: f64) -> Result<(), String> {
-    for (name, v) in [
+    crate::simulate::require_positive(&[
         ("imaging.frame_rate_hz", i.frame_rate_hz),
         ("imaging.decay_s", i.decay_s),
-    ] {
-        if !(v.is_finite() && v > 0.0) {
-            return Err(format!(
-                "{name}: expected a number above 0, found {}",
-                crate::place::number(v)
-            ));
-        }
-    }
+    ])?;
     if !(i.noise_sd.is_finite() && i.noise_sd >= 0.0 && i.amplitude.is_finite()) {
         return Err(format!(
             "imaging: expected a finite amplitude and a noise_sd of 0 or more, found {} and {}",

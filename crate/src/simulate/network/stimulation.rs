@@ -59,29 +59,15 @@ pub const MAX_FORCED_SPIKES: f64 = 5e7;
 impl Stimulation {
     /// Checks the protocol against the run; the message names the field.
     pub fn check(&self, duration_s: f64, neurons: f64) -> Result<(), String> {
-        for (name, v) in [
+        crate::simulate::require_non_negative(&[
             ("stimulation.threshold_mean", self.threshold_mean),
             ("stimulation.start_s", self.start_s),
-        ] {
-            if !(v.is_finite() && v >= 0.0) {
-                return Err(format!(
-                    "{name}: expected a number of 0 or more, found {}",
-                    crate::place::number(v)
-                ));
-            }
-        }
-        for (name, v) in [
+        ])?;
+        crate::simulate::require_positive(&[
             ("stimulation.threshold_sd", self.threshold_sd),
             ("stimulation.interval_s", self.interval_s),
             ("stimulation.direct_latency_s", self.direct_latency_s),
-        ] {
-            if !(v.is_finite() && v > 0.0) {
-                return Err(format!(
-                    "{name}: expected a number above 0, found {}",
-                    crate::place::number(v)
-                ));
-            }
-        }
+        ])?;
         if self.amplitudes.is_empty()
             || self
                 .amplitudes
