@@ -464,19 +464,16 @@ impl<'a> Table<'a> {
             first_of.entry(name.to_ascii_lowercase()).or_insert(i);
         }
         for (i, name) in self.headers.iter().enumerate() {
-            if name.chars().count() > MAX_NAME_CHARS {
-                let mut place = Place::file(&self.file);
-                place.line = Some(self.header_line);
-                return Err(ImportError::new(
-                    place.at_column(i + 1, None),
-                    ImportProblem::BadHeader,
-                    format!(
-                        "expected a column name of at most {MAX_NAME_CHARS} characters, found one of {} starting '{}'",
-                        name.chars().count(),
-                        shorten(name)
-                    ),
-                ));
-            }
+            too_long(
+                || {
+                    let mut place = Place::file(&self.file);
+                    place.line = Some(self.header_line);
+                    place.at_column(i + 1, None)
+                },
+                ImportProblem::BadHeader,
+                "column name",
+                name,
+            )?;
             if name.is_empty() {
                 return Err(ImportError::new(
                     self.place_column(None, i),
@@ -706,18 +703,35 @@ pub(crate) fn site_name<'r>(
             "expected a site identifier, found an empty field",
         ));
     }
-    if id.len() > MAX_NAME_CHARS && id.chars().count() > MAX_NAME_CHARS {
+    too_long(
+        || table.place_column(Some(row.line), index),
+        ImportProblem::BadValue,
+        "site identifier",
+        id,
+    )?;
+    Ok(id)
+}
+
+/// Refuses a name (`what`: "column name", "site identifier") longer than
+/// [`MAX_NAME_CHARS`], quoting only its start.
+fn too_long(
+    place: impl FnOnce() -> Place,
+    problem: ImportProblem,
+    what: &str,
+    name: &str,
+) -> Result<(), ImportError> {
+    if name.len() > MAX_NAME_CHARS && name.chars().count() > MAX_NAME_CHARS {
         return Err(ImportError::new(
-            table.place_column(Some(row.line), index),
-            ImportProblem::BadValue,
+            place(),
+            problem,
             format!(
-                "expected a site identifier of at most {MAX_NAME_CHARS} characters, found one of {} starting '{}'",
-                id.chars().count(),
-                shorten(id)
+                "expected a {what} of at most {MAX_NAME_CHARS} characters, found one of {} starting '{}'",
+                name.chars().count(),
+                shorten(name)
             ),
         ));
     }
-    Ok(id)
+    Ok(())
 }
 
 fn shorten(text: &str) -> String {
