@@ -715,7 +715,10 @@ test('a notebook of schema 1 (the previous version) opens with its settings and 
   await dropFiles(page, [{ name: 'old.ringline.json', path: fixture }]);
   await page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
   assert.equal(await page.inputValue('#burst-form [name=resamples]'), String(old.settings.analysis.fronts.resamples));
-  assert.equal(await summaryValue(page, 'speed'), old.results.summary.median_speed_mm_s);
+  // Re-analysed by today's core: the origin search's refinement now stops relative to its
+  // bracket, which moved speeds by under 1e-7 relative (tests/page_core.rs compares to 1e-4).
+  const speed = await summaryValue(page, 'speed');
+  assert.ok(Math.abs(speed / old.results.summary.median_speed_mm_s - 1) < 1e-4, `${speed} against ${old.results.summary.median_speed_mm_s}`);
   assert.equal(await summaryValue(page, 'bursts'), old.results.summary.burst_count);
   assert.ok(await page.locator('#study').isHidden());
   assert.deepEqual(errors, []);
