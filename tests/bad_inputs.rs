@@ -163,3 +163,33 @@ fn a_header_of_a_hundred_thousand_columns_is_checked_in_linear_time() {
         "appears twice (also column 8)",
     );
 }
+
+/// The page's reason for a file of no known kind (`import::why_unrecognised`, shown where the
+/// command line prints its error) names the same place as the command line, for every file
+/// of the corpus the classifier cannot place.
+#[test]
+fn a_file_of_no_known_kind_is_explained_at_the_command_lines_place() {
+    let mut explained = 0;
+    for case in cases() {
+        if case.exit != 2 || case.args.first().map(String::as_str) != Some("analyze") {
+            continue;
+        }
+        for file in [&case.args[1], &case.args[3]] {
+            let bytes = std::fs::read(corpus().join(file)).unwrap();
+            let head = &bytes[..bytes.len().min(65_536)];
+            if ringline::import::classify_input(file, head) != ringline::import::InputKind::Unknown
+            {
+                continue;
+            }
+            let why = ringline::import::why_unrecognised(file, head).to_string();
+            assert!(
+                why.contains(&case.place),
+                "{}: expected '{}' in: {why}",
+                case.name,
+                case.place
+            );
+            explained += 1;
+        }
+    }
+    assert!(explained >= 6, "{explained} files of no known kind");
+}

@@ -174,7 +174,9 @@ async function classify(file) {
   const word = await call('classify', { name: file.name, head });
   const kind = KIND_OF_WORD[word] ?? null;
   const bytes = kind && !ACTIVITY_KINDS.includes(kind) ? await file.arrayBuffer() : null;
-  return { kind, word, bytes };
+  // A file of no known kind: the core says why, at its line, as the command line would.
+  const why = kind ? null : await call('whyUnrecognised', { name: file.name, head });
+  return { kind, word, bytes, why };
 }
 
 /** The bytes of a file entry (read from its `File` when not kept). */
@@ -188,10 +190,11 @@ async function addFiles(list, { asStudy = false } = {}) {
   clearError('input-error');
   const added = [];
   for (const file of list) {
-    const { kind, word, bytes } = await classify(file);
+    const { kind, word, bytes, why } = await classify(file);
     const entry = { name: file.name, size: file.size, bytes, file, kind, word, status: '' };
-    entry.status = entry.kind ? 'read' : 'the header names no site, time or position columns';
+    entry.status = entry.kind ? 'read' : 'not read (see the message above)';
     entry.problem = !entry.kind;
+    if (why) showError('input-error', why);
     state.files = state.files.filter((f) => f.name !== entry.name);
     state.files.push(entry);
     added.push(entry);

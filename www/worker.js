@@ -54,6 +54,7 @@ const ops = {
   defaults: () => core.defaultSettings(),
   demo: () => core.demoFiles(),
   classify: ({ name, head }) => core.classifyInput(name, new Uint8Array(head)),
+  whyUnrecognised: ({ name, head }) => core.whyUnrecognised(name, new Uint8Array(head)),
   readManifest: ({ name, bytes }) => core.readManifest(name, new Uint8Array(bytes)),
   manifestForFiles: ({ files }) => core.manifestForFiles(files),
   matchStudy: ({ manifest, names }) => core.matchStudyFiles(manifest, names),

@@ -888,6 +888,13 @@ pub fn classify_input(name: &str, head: &[u8]) -> String {
         .to_string()
 }
 
+/// Why a file `classifyInput` calls unknown cannot be read: the located message of the
+/// reader it comes closest to (see `import::why_unrecognised`).
+#[wasm_bindgen(js_name = whyUnrecognised)]
+pub fn why_unrecognised(name: &str, head: &[u8]) -> JsValue {
+    message(&crate::import::why_unrecognised(name, head))
+}
+
 /// Reads a study manifest; errors are located.
 #[wasm_bindgen(js_name = readManifest)]
 pub fn read_manifest(name: &str, bytes: &[u8]) -> Result<JsValue, JsValue> {

@@ -305,6 +305,41 @@ fn looks_like_samples_by_name(name: &str) -> bool {
     SAMPLE_EXTENSIONS.contains(&extension(name).as_str())
 }
 
+/// Why a file [`classify_input`] finds no kind for is not a table ringline reads: the located
+/// error of the reader it comes closest to, a layout's when its header names an x or y
+/// column, else a spike list's (as `ringline analyze` reads an activity file of unknown
+/// kind). `head` is the file's first bytes (64 KiB are plenty); only its complete lines are
+/// read.
+pub fn why_unrecognised(name: &str, head: &[u8]) -> ImportError {
+    let complete = match head.iter().rposition(|&b| b == b'\n') {
+        Some(end) if head.len() >= 65_536 => &head[..=end],
+        _ => head,
+    };
+    let table = match table::Table::open(complete, name, ImportLimits::default()) {
+        Ok(table) => table,
+        Err(e) => return e,
+    };
+    let positions = table
+        .headers()
+        .iter()
+        .any(|h| table::length_header(h, "x").is_some() || table::length_header(h, "y").is_some());
+    let read = if positions {
+        read_layout(complete, name, &Default::default()).map(|_| ())
+    } else {
+        read_spike_list(complete, name, &Default::default()).map(|_| ())
+    };
+    read.err().unwrap_or_else(|| {
+        ImportError::new(
+            table.place_header(),
+            ImportProblem::BadHeader,
+            format!(
+                "expected the columns of a spike list, layout, ROI traces, stimulus protocol or study manifest, found {}",
+                spikes::quoted_list(table.headers())
+            ),
+        )
+    })
+}
+
 /// Judges a file from its name and its first bytes (the first 64 KiB are plenty; a longer
 /// prefix is fine).
 pub fn classify_input(name: &str, head: &[u8]) -> InputKind {
