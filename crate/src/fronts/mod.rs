@@ -406,7 +406,9 @@ pub const MAX_LEAD_S: f64 = 3600.0;
 /// Most zones the initiation counts may divide a track into.
 pub const MAX_INITIATION_ZONES: usize = 10_000;
 
-fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
+/// Checks every analysis setting against its range; the message names the setting, its
+/// value and the range.
+pub fn check_settings(s: &AnalysisSettings) -> Result<(), AnalysisError> {
     let bad = |m: String| Err(AnalysisError { message: m });
     let p = &s.bursts.population_rate;
     for (name, v) in [

@@ -607,15 +607,24 @@ pub fn analysis_settings_over(
             },
         ));
     }
-    serde_json::from_value(merged).map_err(|e| {
-        StudyError::new(
-            place(1),
-            format!(
-                "expected usable analysis settings: {}",
-                crate::json_error_words(&e)
-            ),
-        )
-    })
+    let settings: crate::fronts::AnalysisSettings =
+        serde_json::from_value(merged).map_err(|e| {
+            StudyError::new(
+                place(1),
+                format!(
+                    "expected usable analysis settings: {}",
+                    crate::json_error_words(&e)
+                ),
+            )
+        })?;
+    // A value out of range that this file brought in is named with the file (one already in
+    // the base is left to the analysis, which names the setting).
+    if crate::fronts::check_settings(base).is_ok() {
+        if let Err(e) = crate::fronts::check_settings(&settings) {
+            return Err(StudyError::new(Place::file(file), e.message));
+        }
+    }
+    Ok(settings)
 }
 
 /// Lays `layer` over `base` key by key; keys of `layer` that `base` lacks are collected in
