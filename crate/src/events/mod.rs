@@ -164,6 +164,15 @@ pub fn voltage_recording(
             ),
         ));
     }
+    if header.sample_rate_hz > crate::import::MAX_PLAUSIBLE_SAMPLE_RATE_HZ {
+        recording.notices.push(crate::place::Notice::new(
+            crate::place::Place::file(&header.file),
+            format!(
+                "samples come at {} Hz, faster than extracellular recording systems sample: check sample_rate_hz (it is in samples per second)",
+                crate::place::number(header.sample_rate_hz)
+            ),
+        ));
+    }
     for e in found
         .electrodes
         .iter()

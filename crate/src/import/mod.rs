@@ -44,7 +44,7 @@ pub use traces::{
 };
 pub use voltage::{
     decode_channel, decode_lanes, frame_reader, looks_like_wav, read_sidecar, read_voltage_header,
-    read_wav_header, FrameRead, SampleType, VoltageHeader,
+    read_wav_header, FrameRead, SampleType, VoltageHeader, MAX_PLAUSIBLE_SAMPLE_RATE_HZ,
 };
 pub use write::{write_layout, write_roi_traces, write_spike_list, write_spike_list_as};
 

@@ -36,6 +36,11 @@ impl SampleType {
     }
 }
 
+/// Above this sample rate a file cannot come from an extracellular recording system
+/// (multi-electrode arrays sample at 10 to 50 kHz; common practice, no source): the file is
+/// still analysed, with a notice asking for the unit of `sample_rate_hz`.
+pub const MAX_PLAUSIBLE_SAMPLE_RATE_HZ: f64 = 1e6;
+
 /// Where the samples of a raw voltage file are and what they mean.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct VoltageHeader {
