@@ -619,6 +619,13 @@ fn a_streamed_activity_file_reads_as_the_whole_file_does() {
             wb.files_not_embedded(),
             vec![("spikes.csv".to_string(), spikes.len() as u64)]
         );
+        assert_eq!(
+            wb.notebook_note().unwrap(),
+            format!(
+                "The notebook names spikes.csv ({}) by its SHA-256 without holding it (too large, or not text). Keep that file with the notebook, and drop both together to re-open it.",
+                ringline::place::bytes(spikes.len() as u64)
+            )
+        );
     }
     // Multi-byte site names cut by the pieces, and a byte that is not UTF-8 on line 5 (after a
     // comment line): the same located error as reading the file whole.

@@ -1065,13 +1065,10 @@ function studyForNotebook() {
 async function saveNotebook() {
   const text = await call('notebook', { study: studyForNotebook() });
   download(`${state.fileStem}.ringline.json`, text, 'application/json');
-  const left = await call('filesNotEmbedded');
+  const said = await call('notebookNote');
   const note = $('notebook-note');
-  note.hidden = left.length === 0;
-  note.textContent = left.length
-    ? `The notebook names ${left.map(([n, size]) => `${n} (${formatBytes(size)})`).join(' and ')} by its SHA-256 without holding it `
-      + '(too large, or not text). Keep that file with the notebook, and drop both together to re-open it.'
-    : '';
+  note.hidden = !said;
+  note.textContent = said ?? '';
 }
 
 // ---------------------------------------------------------------- autosave

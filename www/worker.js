@@ -156,7 +156,7 @@ const ops = {
   },
   notebook: ({ study, embed = true }) => need().notebookJson(study ?? null, embed),
   inputFiles: () => need().inputFiles(),
-  filesNotEmbedded: () => need().filesNotEmbedded(),
+  notebookNote: () => need().notebookNote() ?? null,
   inputBytes: ({ role }) => need().inputBytes(role),
   notebookStudy: ({ name, bytes }) => core.notebookStudy(name, new Uint8Array(bytes)),
   compareTruth: ({ truth }) => need().compareTruth(truth),

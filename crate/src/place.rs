@@ -141,6 +141,36 @@ pub fn number(v: f64) -> String {
     }
 }
 
+/// A size in bytes as people read it, with the binary prefixes of IEC 80000-13:
+/// `512 B`, `1.5 KiB`, `13.7 MiB`, `2.0 GiB`.
+pub fn bytes(n: u64) -> String {
+    const KIB: f64 = 1024.0;
+    let x = n as f64;
+    if n < 1024 {
+        format!("{n} B")
+    } else if x < KIB * KIB {
+        format!("{:.1} KiB", x / KIB)
+    } else if x < KIB * KIB * KIB {
+        format!("{:.1} MiB", x / (KIB * KIB))
+    } else {
+        format!("{:.1} GiB", x / (KIB * KIB * KIB))
+    }
+}
+
+#[cfg(test)]
+mod bytes_tests {
+    /// The IEC 80000-13 prefixes: 1 KiB = 1024 B, 1 MiB = 1024 KiB, 1 GiB = 1024 MiB.
+    #[test]
+    fn sizes_use_binary_prefixes() {
+        assert_eq!(super::bytes(0), "0 B");
+        assert_eq!(super::bytes(1023), "1023 B");
+        assert_eq!(super::bytes(1024), "1.0 KiB");
+        assert_eq!(super::bytes(1536), "1.5 KiB");
+        assert_eq!(super::bytes(14_400_044), "13.7 MiB");
+        assert_eq!(super::bytes(3 << 30), "3.0 GiB");
+    }
+}
+
 #[cfg(test)]
 mod number_tests {
     use super::number;

@@ -636,10 +636,11 @@ impl WasmWorkbook {
         to_js(&files)
     }
 
-    /// The input files a shared notebook cannot hold: `[[name, size_bytes], ...]`.
-    #[wasm_bindgen(js_name = filesNotEmbedded)]
-    pub fn files_not_embedded(&self) -> Result<JsValue, JsValue> {
-        to_js(&self.inner.files_not_embedded())
+    /// What saving a notebook tells the user (files named but not held, voltage whose spikes
+    /// it holds), or null.
+    #[wasm_bindgen(js_name = notebookNote)]
+    pub fn notebook_note(&self) -> Option<String> {
+        self.inner.notebook_note()
     }
 
     /// The bytes of the input file with this role (`activity`, `layout`, `stimuli`); null

@@ -303,8 +303,10 @@ test('a saved notebook re-opens with the same settings and results', async () =>
   const median = await summaryValue(page, 'speed');
   const summaryText = await page.textContent('#summary-table');
   const notebook = await downloadText(page, '#save-notebook');
+  assert.ok(await page.isHidden('#notebook-note'), 'a notebook that holds its files has nothing to say');
   const parsed = JSON.parse(notebook);
   assert.equal(parsed.schema, 2);
+  assert.equal(parsed.detected_from, undefined);
   assert.equal(parsed.settings.analysis.fronts.resamples, 300);
   assert.equal(parsed.results.summary.median_speed_mm_s, median);
   // The SHA-256 of the embedded file is that of the demo file (FIPS 180-4 digest by node:crypto).
@@ -460,6 +462,29 @@ test('raw voltage dropped on the page gives the command line\'s electrodes and s
     const html = await page.evaluate(() => window.ringline.call('reportHtml'));
     const digest = createHash('sha256').update(readFileSync(join(dir, files[0]))).digest('hex');
     assert.ok(html.includes(`<td>${files[0]}</td>`) && html.includes(digest), 'the voltage file and its SHA-256');
+    if (files[0].endsWith('.wav')) {
+      // A notebook holds the detected spikes, not the voltage: saving says so, naming the file
+      // and its size, and the notebook names it by SHA-256. It re-opens on its own, with the
+      // same speed, and its report names the voltage file as the first one did.
+      const notebook = await downloadText(page, '#save-notebook');
+      const note = page.locator('#notebook-note');
+      await note.waitFor({ state: 'visible' });
+      const size = readFileSync(join(dir, 'culture.wav')).length;
+      assert.equal(await note.textContent(),
+        `The notebook holds the spikes detected in culture.wav (${(size / 1048576).toFixed(1)} MiB) and names that file by its SHA-256, not the voltage: `
+        + 'it re-opens on its own; to see the voltage around the spikes, open that file itself.');
+      const parsed = JSON.parse(notebook);
+      assert.deepEqual(parsed.detected_from, { role: 'voltage', name: 'culture.wav', size_bytes: size, sha256: digest });
+      writeFileSync(join(dir, 'culture.ringline.json'), notebook);
+      const again = await openPage(base);
+      await again.page.setInputFiles('#file-input', [join(dir, 'culture.ringline.json')]);
+      await again.page.locator('#step-summary').waitFor({ state: 'visible', timeout: 60000 });
+      assert.equal(await summaryValue(again.page, 'speed'), report.summary.median_speed_mm_s, 'the notebook re-opened');
+      const reopened = await again.page.evaluate(() => window.ringline.call('reportHtml'));
+      assert.ok(reopened.includes('<td>culture.wav</td>') && reopened.includes(digest), 'the re-opened report names the voltage file');
+      assert.deepEqual(again.errors, []);
+      await again.context.close();
+    }
     assert.deepEqual(errors, []);
     await context.close();
   }
@@ -1041,7 +1066,9 @@ test('a 150 MB spike list is read in the worker with progress, and the tab stays
   const percents = seen.map((t) => /reading the file: (\d+)% of the file/.exec(t)?.[1]).filter(Boolean).map(Number);
   assert.ok(percents.length >= 5 && percents.includes(100), `progress seen: ${seen.slice(0, 8)}`);
   // Never held whole: a notebook names it by its digest (and says so when saved).
-  assert.deepEqual(await page.evaluate(() => window.ringline.call('filesNotEmbedded')), [['large.csv', fileBytes]]);
+  assert.equal(await page.evaluate(() => window.ringline.call('notebookNote')),
+    `The notebook names large.csv (${(fileBytes / 1048576).toFixed(1)} MiB) by its SHA-256 without holding it (too large, or not text). `
+    + 'Keep that file with the notebook, and drop both together to re-open it.');
   const kept = await page.evaluate(() => window.ringline.call('inputFiles'));
   assert.equal(kept[0].sha256, createHash('sha256').update(readFileSync(join(dir, 'large.csv'))).digest('hex'));
   assert.match(await page.textContent('#track-text'), /16 sites/);

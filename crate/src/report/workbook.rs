@@ -123,6 +123,10 @@ pub struct Notebook<'a> {
     pub settings: &'a StepSettings,
     pub results: Option<&'a AnalysisReport>,
     pub study: Option<&'a StudyNotebook>,
+    /// The raw voltage file the activity's spikes were detected in (name, size, SHA-256): the
+    /// notebook holds the detected spikes, not the voltage.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub detected_from: Option<&'a InputFile>,
 }
 
 /// A notebook file as read back: the results are recomputed from the files and settings.
@@ -135,6 +139,9 @@ pub struct OpenedNotebook {
     /// Schema 2: the study, when the page held one.
     #[serde(default)]
     pub study: Option<StudyNotebook>,
+    /// The raw voltage file the spikes were detected in, when they were.
+    #[serde(default)]
+    pub detected_from: Option<InputFile>,
 }
 
 /// Why a notebook file cannot be opened.
@@ -1080,6 +1087,32 @@ impl Workbook {
             .collect()
     }
 
+    /// What saving a notebook should tell the user, or `None` when the notebook holds every
+    /// input: the files it names by SHA-256 without holding them (to be dropped with it to
+    /// re-open), and the raw voltage file whose detected spikes it holds instead.
+    pub fn notebook_note(&self) -> Option<String> {
+        let left = self.files_not_embedded();
+        let mut sentences = Vec::new();
+        if !left.is_empty() {
+            let names: Vec<String> = left
+                .iter()
+                .map(|(name, size)| format!("{name} ({})", crate::place::bytes(*size)))
+                .collect();
+            sentences.push(format!(
+                "The notebook names {} by its SHA-256 without holding it (too large, or not text). Keep that file with the notebook, and drop both together to re-open it.",
+                names.join(" and ")
+            ));
+        }
+        if let Some(v) = &self.voltage_input {
+            sentences.push(format!(
+                "The notebook holds the spikes detected in {} ({}) and names that file by its SHA-256, not the voltage: it re-opens on its own; to see the voltage around the spikes, open that file itself.",
+                v.name,
+                crate::place::bytes(v.size_bytes)
+            ));
+        }
+        (!sentences.is_empty()).then(|| sentences.join(" "))
+    }
+
     /// Records the SHA-256 of the raw voltage file (the shell reads it; the workbook keeps only
     /// the spikes detected in it).
     pub fn set_voltage_sha256(&mut self, sha256: String) {
@@ -1207,6 +1240,7 @@ impl Workbook {
             settings: &self.settings,
             results: self.report.as_ref(),
             study,
+            detected_from: self.voltage_input.as_ref(),
         };
         serde_json::to_string_pretty(&nb).unwrap_or_else(|e| {
             serde_json::json!({ "error": format!("the notebook could not be written: {e}") })
@@ -1247,6 +1281,7 @@ impl Workbook {
             let (name, bytes) = get("stimuli");
             wb.attach_stimuli(name, bytes)?;
         }
+        wb.voltage_input = nb.detected_from.clone();
         let view = nb.settings.view.clone();
         wb.analyze(nb.settings.analysis.clone(), progress)?;
         wb.settings.view = view;
