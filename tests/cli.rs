@@ -410,9 +410,7 @@ fn simulate_network_scenario_with_overrides() {
     assert_eq!(out.status.code(), Some(2));
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(
-        stderr.contains(
-            "bad.json: the scenario cannot be read: invalid type: integer `1`, expected a string"
-        ),
+        stderr.contains("bad.json: name: expected a string, found integer `1`"),
         "{stderr}"
     );
     write(

@@ -62,6 +62,20 @@ pub enum Error {
     Analysis(#[from] fronts::AnalysisError),
 }
 
+/// serde says "FOUND, expected WANTED"; a scientist reads what the key takes, then what it
+/// found.
+pub(crate) fn expected_then_found(words: String) -> String {
+    if let Some(rest) = words.strip_prefix("unknown field ") {
+        if let Some((field, wanted)) = rest.split_once(", expected ") {
+            return format!("unknown key {field}; expected {wanted}");
+        }
+    }
+    match words.split_once(", expected ") {
+        Some((found, wanted)) => format!("expected {wanted}, found {found}"),
+        None => words,
+    }
+}
+
 /// A JSON reading error in words: serde's type names become plain words, and the location is
 /// given once, by the caller.
 pub(crate) fn json_error_words(e: &serde_json::Error) -> String {

@@ -171,7 +171,8 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
     let count = electrode_count(&s.electrodes);
     if count < 2 {
         return Err(format!(
-            "electrodes: expected 2 to {MAX_SIMULATED_ELECTRODES} electrodes, found {count}"
+            "electrodes.{}: expected 2 to {MAX_SIMULATED_ELECTRODES} electrodes, found {count}",
+            s.electrodes.count_fields()
         ));
     }
     if s.position_jitter_um > MAX_SIMULATED_EXTENT_UM {
@@ -195,7 +196,10 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
         * count as f64
         * (s.background_rate_hz + s.spikes_per_burst / s.min_interval_s);
     if expected_spikes > 5e7 {
-        return Err(format!("the scenario would make about {expected_spikes:.0} spikes, more than the 50 million allowed"));
+        return Err(format!(
+            "duration_s x electrodes x (background_rate_hz + spikes_per_burst / min_interval_s): the scenario would make about {} spikes, more than the 50 million allowed",
+            crate::place::number(expected_spikes.round())
+        ));
     }
     Ok(())
 }
@@ -215,6 +219,14 @@ pub const MAX_SIMULATED_EXTENT_UM: f64 = 1e6;
 pub const SIMULATED_SAMPLING_RANGE_HZ: (f64, f64) = (100.0, 1e10);
 
 impl ElectrodeLayout {
+    /// The layout's fields that give its number of electrodes, for messages.
+    pub fn count_fields(&self) -> &'static str {
+        match self {
+            ElectrodeLayout::Grid { .. } => "rows x columns",
+            _ => "count",
+        }
+    }
+
     /// How many electrodes the layout holds (saturating).
     pub fn count(&self) -> usize {
         electrode_count(self)
@@ -226,7 +238,8 @@ impl ElectrodeLayout {
         let count = electrode_count(self);
         if !(1..=MAX_SIMULATED_ELECTRODES).contains(&count) {
             return Err(format!(
-                "{field}: expected 1 to {MAX_SIMULATED_ELECTRODES} electrodes, found {count}"
+                "{field}.{}: expected 1 to {MAX_SIMULATED_ELECTRODES} electrodes, found {count}",
+                self.count_fields()
             ));
         }
         let (name, length, reach) = match *self {
@@ -251,7 +264,8 @@ impl ElectrodeLayout {
         }
         if reach > MAX_SIMULATED_EXTENT_UM {
             return Err(format!(
-                "{field}: the electrodes would reach {reach:.3e} µm from the first, more than the limit of {MAX_SIMULATED_EXTENT_UM:.0} µm (1 m)"
+                "{field}.{name}: at {} µm the electrodes would reach {reach:.3e} µm from the first, more than the limit of {MAX_SIMULATED_EXTENT_UM:.0} µm (1 m)",
+                crate::place::number(length)
             ));
         }
         if let ElectrodeLayout::Row { angle_deg, .. } = self {

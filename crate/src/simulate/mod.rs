@@ -52,9 +52,13 @@ pub(crate) fn require_non_negative(values: &[(&str, f64)]) -> Result<(), String>
     }
 }
 
-/// Reads a scenario from JSON text; the error says what is wrong in the scenario's words.
+/// Reads a scenario from JSON text; the error says what is wrong in the scenario's words, at
+/// its line (a syntax error) or its key (a value of the wrong kind).
 pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
     serde_json::from_str(text).map_err(|e| {
+        if let Some(located) = scenario_error_by_key(text) {
+            return located;
+        }
         // serde reports no position for errors inside a tagged scenario; say none then.
         let words = e.to_string();
         let words = words
@@ -68,6 +72,55 @@ pub fn parse_scenario(text: &str) -> Result<Scenario, String> {
             format!("line {}, column {}: {words}", e.line(), e.column())
         }
     })
+}
+
+/// The key of a value a scenario cannot hold, and why: the tagged scenario is read again as
+/// the model's own settings, whose reader tracks the path. `None` when the text is not a
+/// scenario of a known model.
+fn scenario_error_by_key(text: &str) -> Option<String> {
+    let mut value: serde_json::Value = serde_json::from_str(text).ok()?;
+    let model = value.as_object_mut()?.remove("model")?;
+    let error = match model.as_str()? {
+        "fronts" => serde_path_to_error::deserialize::<_, FrontScenario>(value.clone()).err()?,
+        "network" => {
+            serde_path_to_error::deserialize::<_, network::NetworkScenario>(value.clone()).err()?
+        }
+        _ => return None,
+    };
+    let mut key = error.path().to_string();
+    if key.is_empty() || key == "." {
+        return None;
+    }
+    let words = crate::expected_then_found(crate::json_error_words(error.inner()));
+    // Inside a tagged object (an electrode layout by shape) the path stops at the object: name
+    // the one field that holds the value found.
+    if let Some(field) = field_holding(&value, &key, &words) {
+        key = format!("{key}.{field}");
+    }
+    Some(format!("{key}: {words}"))
+}
+
+/// The one field of the object at the dotted `key` of `value` whose number is the one `words`
+/// quotes (serde quotes it between backticks), of the kind it names; `None` when there is not
+/// exactly one.
+fn field_holding(value: &serde_json::Value, key: &str, words: &str) -> Option<String> {
+    if key.contains('[') {
+        return None;
+    }
+    let object = value
+        .pointer(&format!("/{}", key.replace('.', "/")))?
+        .as_object()?;
+    let quoted: f64 = words.split('`').nth(1)?.parse().ok()?;
+    // serde says which kind it found ("floating point `0.0`", "integer `-1`").
+    let float = words.contains("found floating point");
+    let mut holding = object
+        .iter()
+        .filter(|(_, v)| v.as_f64() == Some(quoted) && v.is_f64() == float)
+        .map(|(k, _)| k.clone());
+    match (holding.next(), holding.next()) {
+        (Some(field), None) => Some(field),
+        _ => None,
+    }
 }
 
 /// What a simulation gives: its files, as (file name, content), and the notices of what it

@@ -592,12 +592,7 @@ pub fn analysis_settings_over(
         serde_path_to_error::deserialize::<_, crate::fronts::AnalysisSettings>(&mut reader)
     {
         let key = e.path().to_string();
-        let words = crate::json_error_words(e.inner());
-        // serde says "FOUND, expected WANTED"; a scientist reads the key, then what it takes.
-        let words = match words.split_once(", expected ") {
-            Some((found, wanted)) => format!("expected {wanted}, found {found}"),
-            None => words,
-        };
+        let words = crate::expected_then_found(crate::json_error_words(e.inner()));
         return Err(StudyError::new(
             place(e.inner().line()),
             if key.is_empty() || key == "." {

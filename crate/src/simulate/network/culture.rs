@@ -28,6 +28,19 @@ pub enum Pattern {
 }
 
 impl Pattern {
+    /// The scenario fields that set the pattern's size, for messages (`pattern.length_um x
+    /// pattern.width_um`).
+    pub fn size_fields(&self) -> &'static str {
+        match self {
+            Pattern::Strip { .. } => "pattern.length_um x pattern.width_um",
+            Pattern::Annulus { .. } => "pattern.radius_um x pattern.width_um",
+            Pattern::PolylineStrip { .. } => "pattern.waypoints_um x pattern.width_um",
+            Pattern::Rectangle { .. } => "pattern.width_um x pattern.height_um",
+            Pattern::Disk { .. } => "pattern.radius_um",
+            Pattern::Chain { .. } => "pattern.length_um / pattern.spacing_um",
+        }
+    }
+
     /// Area in mm^2 (length in mm for a chain).
     pub fn area_mm2(&self) -> f64 {
         let um2 = match self {

@@ -264,6 +264,13 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
             crate::place::number(s.synaptic_delay_s)
         ));
     }
+    if s.connectivity.sigma_um > crate::simulate::fronts::MAX_SIMULATED_EXTENT_UM {
+        return Err(format!(
+            "connectivity.sigma_um: expected at most {:.0} µm (1 m, beyond any dish), found {}",
+            crate::simulate::fronts::MAX_SIMULATED_EXTENT_UM,
+            crate::place::number(s.connectivity.sigma_um)
+        ));
+    }
     if s.connectivity.sigma_um < MIN_SIGMA_UM {
         return Err(format!(
             "connectivity.sigma_um: expected at least {MIN_SIGMA_UM} µm (a footprint smaller than a cell body), found {}",
@@ -289,19 +296,36 @@ pub fn check_network_scenario(s: &NetworkScenario) -> Result<(), String> {
         ));
     }
     if s.neuron.reset_mv >= s.neuron.threshold_mv {
-        return Err("neuron.reset_mv: expected a reset below the threshold".into());
+        return Err(format!(
+            "neuron.reset_mv: expected a reset below neuron.threshold_mv, found {} and {} mV",
+            crate::place::number(s.neuron.reset_mv),
+            crate::place::number(s.neuron.threshold_mv)
+        ));
     }
     s.pattern.check()?;
     let neurons = s.pattern.neuron_count(s.density_per_mm2);
+    let sized_by = match s.pattern {
+        super::culture::Pattern::Chain { .. } => s.pattern.size_fields().to_string(),
+        _ => format!("density_per_mm2 x {}", s.pattern.size_fields()),
+    };
     if neurons > MAX_NEURONS {
         return Err(format!(
-            "the pattern would hold {neurons:.0} neurons, more than the 2 million allowed"
+            "{sized_by}: the pattern would hold {} neurons, more than the 2 million allowed",
+            crate::place::number(neurons.round())
+        ));
+    }
+    if neurons < 2.0 {
+        return Err(format!(
+            "{sized_by}: the pattern would hold {} neurons; a network needs at least 2",
+            crate::place::number(neurons)
         ));
     }
     let synapses = neurons * s.connectivity.mean_in_degree;
     if synapses > MAX_SYNAPSES {
         return Err(format!(
-            "the wiring would make {synapses:.0} synapses, more than the 120 million allowed"
+            "connectivity.mean_in_degree: {} inputs for each of {neurons:.0} neurons would make {} synapses, more than the 120 million allowed",
+            crate::place::number(s.connectivity.mean_in_degree),
+            crate::place::number(synapses.round())
         ));
     }
     if s.connectivity.mean_in_degree > (neurons - 1.0).max(0.0) {
@@ -467,7 +491,7 @@ fn check_imaging(i: &Imaging, duration_s: f64, neurons: f64) -> Result<(), Strin
     let values = i.rois as f64 * i.frame_rate_hz * duration_s;
     if values > MAX_IMAGING_VALUES {
         return Err(format!(
-            "imaging: {} ROIs at {} frames/s for {duration_s} s is {values:.3e} values, more than the limit of {MAX_IMAGING_VALUES:.0}; give fewer ROIs or frames",
+            "imaging.rois x imaging.frame_rate_hz x duration_s: {} ROIs at {} frames/s for {duration_s} s is {values:.3e} values, more than the limit of {MAX_IMAGING_VALUES:.0}; give fewer ROIs or frames",
             i.rois, crate::place::number(i.frame_rate_hz)
         ));
     }

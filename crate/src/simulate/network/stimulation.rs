@@ -81,18 +81,20 @@ impl Stimulation {
         let count = self.amplitudes.len().saturating_mul(self.repeats);
         if count == 0 || count > MAX_STIMULI {
             return Err(format!(
-                "stimulation: expected 1 to {MAX_STIMULI} stimuli (amplitudes x repeats), found {count}"
+                "stimulation.amplitudes x stimulation.repeats: expected 1 to {MAX_STIMULI} stimuli, found {count}"
             ));
         }
         let last = self.start_s + self.interval_s * (count - 1) as f64;
         if last + self.direct_latency_s >= duration_s {
             return Err(format!(
-                "stimulation: the last of {count} stimuli comes at {last} s, after the run ends ({duration_s} s); lengthen the run or shorten the interval"
+                "stimulation.start_s + interval_s x (stimuli - 1) + direct_latency_s: the last of {count} stimuli comes at {} s, after the run ends (duration_s {} s); lengthen the run or shorten the interval",
+                crate::place::number(last + self.direct_latency_s),
+                crate::place::number(duration_s)
             ));
         }
         if neurons * count as f64 > MAX_FORCED_SPIKES {
             return Err(format!(
-                "stimulation: {count} stimuli over {neurons:.0} neurons could evoke more than {MAX_FORCED_SPIKES:.0} spikes; give fewer stimuli"
+                "stimulation.amplitudes x stimulation.repeats: {count} stimuli over {neurons:.0} neurons could evoke more than {MAX_FORCED_SPIKES:.0} spikes; give fewer stimuli"
             ));
         }
         Ok(())
