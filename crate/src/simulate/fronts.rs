@@ -197,8 +197,7 @@ pub fn check_scenario(s: &FrontScenario) -> Result<(), String> {
         * (s.background_rate_hz + s.spikes_per_burst / s.min_interval_s);
     if expected_spikes > 5e7 {
         return Err(format!(
-            "duration_s x electrodes x (background_rate_hz + spikes_per_burst / min_interval_s): the scenario would make about {} spikes, more than the 50 million allowed",
-            crate::place::number(expected_spikes.round())
+            "duration_s x electrodes x (background_rate_hz + spikes_per_burst / min_interval_s): the scenario would make about {expected_spikes:.2e} spikes, more than the 50 million allowed"
         ));
     }
     Ok(())
