@@ -8,6 +8,8 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod extremes;
+
 use proptest::prelude::*;
 use serde_json::Value;
 use std::path::Path;
@@ -57,26 +59,9 @@ fn shorten(v: &mut Value) {
 }
 
 /// Every numeric leaf of a scenario, as a JSON pointer.
-fn numeric_leaves(v: &Value, at: &str, out: &mut Vec<String>) {
-    match v {
-        Value::Object(map) => {
-            for (k, child) in map {
-                numeric_leaves(child, &format!("{at}/{k}"), out);
-            }
-        }
-        Value::Array(items) => {
-            for (i, child) in items.iter().enumerate() {
-                numeric_leaves(child, &format!("{at}/{i}"), out);
-            }
-        }
-        Value::Number(_) => out.push(at.to_string()),
-        _ => {}
-    }
-}
-
 fn leaves_of(scenario: &Value) -> Vec<String> {
     let mut out = Vec::new();
-    numeric_leaves(scenario, "", &mut out);
+    extremes::numeric_leaves(scenario, "", false, &mut out);
     out
 }
 
@@ -114,13 +99,7 @@ fn run(scenario: &Value, leaf: &str, value: &Value) -> Outcome {
         }
         Ok(Err(message)) => Outcome::Refused(message),
         Err(cause) if cause.is::<Stop>() => Outcome::Stopped,
-        Err(cause) => Outcome::Panicked(
-            cause
-                .downcast_ref::<String>()
-                .cloned()
-                .or_else(|| cause.downcast_ref::<&str>().map(|s| s.to_string()))
-                .unwrap_or_default(),
-        ),
+        Err(cause) => Outcome::Panicked(extremes::panic_words(&*cause)),
     }
 }
 
@@ -134,10 +113,7 @@ fn fault(name: &str, leaf: &str, value: &Value, outcome: &Outcome) -> Option<Str
         Outcome::Files | Outcome::Stopped => None,
         Outcome::Panicked(message) => Some(format!("{name} {leaf} = {value}: PANIC {message}")),
         Outcome::Refused(message) => {
-            let key = leaf
-                .rsplit('/')
-                .find(|k| k.parse::<usize>().is_err())
-                .unwrap_or(leaf);
+            let key = extremes::key_of(leaf);
             let located = message.contains(key) || message.starts_with("line ");
             (!located).then(|| {
                 format!("{name} {leaf} = {value}: the refusal names neither '{key}' nor a line: {message}")
@@ -211,11 +187,7 @@ proptest! {
     fn any_number_in_any_scenario_field_gives_files_or_names_itself(
         which in any::<prop::sample::Index>(),
         pick in any::<prop::sample::Index>(),
-        value in prop_oneof![
-            any::<f64>().prop_filter("JSON holds finite numbers", |v| v.is_finite()).prop_map(Value::from),
-            any::<u64>().prop_map(Value::from),
-            any::<i64>().prop_map(Value::from),
-        ],
+        value in extremes::any_json_number(),
     ) {
         let (name, scenario) = &scenarios()[which.index(scenarios().len())];
         let all = leaves_of(scenario);

@@ -6,6 +6,8 @@
 
 #![allow(clippy::unwrap_used, clippy::expect_used)] // a failed unwrap is a failed test
 
+mod extremes;
+
 use proptest::prelude::*;
 use ringline::{analyze_file, ActivityFile, RecordingSettings};
 use serde_json::Value;
@@ -90,28 +92,12 @@ type Case<'a> = (
 );
 
 /// Every numeric (or absent, `null`) leaf of the default settings, as a JSON pointer.
-fn numeric_leaves(v: &Value, at: &str, out: &mut Vec<String>) {
-    match v {
-        Value::Object(map) => {
-            for (k, child) in map {
-                numeric_leaves(child, &format!("{at}/{k}"), out);
-            }
-        }
-        Value::Array(items) => {
-            for (i, child) in items.iter().enumerate() {
-                numeric_leaves(child, &format!("{at}/{i}"), out);
-            }
-        }
-        Value::Number(_) | Value::Null => out.push(at.to_string()),
-        _ => {}
-    }
-}
-
 fn leaves() -> Vec<String> {
     let mut out = Vec::new();
-    numeric_leaves(
+    extremes::numeric_leaves(
         &serde_json::to_value(RecordingSettings::default()).unwrap(),
         "",
+        true,
         &mut out,
     );
     out
@@ -154,14 +140,7 @@ fn run(leaf: &str, value: &Value) -> Option<Result<(), String>> {
         )
     }));
     match outcome {
-        Err(cause) => Some(Err(format!(
-            "PANIC {}",
-            cause
-                .downcast_ref::<String>()
-                .cloned()
-                .or_else(|| cause.downcast_ref::<&str>().map(|s| s.to_string()))
-                .unwrap_or_default()
-        ))),
+        Err(cause) => Some(Err(format!("PANIC {}", extremes::panic_words(&*cause)))),
         Ok(Ok(report)) => {
             // Whatever it found, every reported number must print (no NaN speeds in a
             // summary that says it measured them).
@@ -179,10 +158,7 @@ fn fault(leaf: &str, value: &Value, message: &str) -> Option<String> {
     if message.starts_with("PANIC") {
         return Some(format!("{leaf} = {value}: {message}"));
     }
-    let key = leaf
-        .rsplit('/')
-        .find(|k| k.parse::<usize>().is_err())
-        .unwrap_or(leaf);
+    let key = extremes::key_of(leaf);
     (!message.contains(key))
         .then(|| format!("{leaf} = {value}: the refusal does not name '{key}': {message}"))
 }
@@ -245,11 +221,7 @@ proptest! {
     #[test]
     fn any_number_in_any_setting_gives_a_result_or_names_itself(
         pick in any::<prop::sample::Index>(),
-        value in prop_oneof![
-            any::<f64>().prop_filter("JSON holds finite numbers", |v| v.is_finite()).prop_map(Value::from),
-            any::<u64>().prop_map(Value::from),
-            any::<i64>().prop_map(Value::from),
-        ],
+        value in extremes::any_json_number(),
     ) {
         let all = leaves();
         let leaf = &all[pick.index(all.len())];
