@@ -741,3 +741,66 @@ fn assert_json_close(a: &serde_json::Value, b: &serde_json::Value, at: &str) {
         _ => assert_eq!(a, b, "{at}"),
     }
 }
+
+/// The study step's table: a failed row says why, a row whose files are missing says it
+/// cannot run, the rest are not analysed yet; counts are whole numbers from the status, and
+/// the sentence counts what was tried (worked out by hand from the rows given).
+#[test]
+fn the_study_table_words_each_rows_state() {
+    use ringline::report::page_text::{study_view, StudyRowState};
+    let manifest = ringline::import::read_manifest(
+        b"recording,data,layout,dose\nr1,a.csv,l.csv,0\nr2,b.csv,l.csv,1\nr3,c.csv,l.csv,2\n",
+        "study.csv",
+        ringline::import::ImportLimits::default(),
+    )
+    .unwrap();
+    let failed = ringline::study::RecordingStatus::failed(
+        &manifest,
+        &manifest.rows[0],
+        "a.csv, line 3: expected a time".into(),
+    )
+    .to_json();
+    let rows = [
+        StudyRowState {
+            status_json: Some(failed),
+            ..Default::default()
+        },
+        StudyRowState {
+            problem: Some("b.csv was not dropped".into()),
+            ..Default::default()
+        },
+        StudyRowState::default(),
+    ];
+    let view = study_view(&manifest, &rows);
+    assert_eq!(
+        view.table.header,
+        [
+            "recording",
+            "dose",
+            "status",
+            "bursts",
+            "fronts",
+            "median speed (mm/s) [95% CI]"
+        ]
+    );
+    assert_eq!(
+        view.table.rows,
+        [
+            [
+                "r1",
+                "0",
+                "failed: a.csv, line 3: expected a time",
+                "",
+                "",
+                ""
+            ],
+            ["r2", "1", "cannot run: b.csv was not dropped", "", "", ""],
+            ["r3", "2", "not analysed yet", "", "", ""],
+        ]
+    );
+    assert_eq!(view.problem, [true, true, false]);
+    assert!(!view.complete);
+    assert!(view
+        .sentence
+        .starts_with("3 recordings from study.csv; 1 analysed or tried, 1 failed."));
+}

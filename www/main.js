@@ -384,7 +384,7 @@ async function openNotebook(entry, files = null) {
       entries: study.recordings.map((e) => e && { status: JSON.parse(e.status_json), status_json: e.status_json, files: e.files }),
       open: null,
     };
-    renderStudy();
+    await renderStudy();
     state.settings = result.settings;
     state.inspection = result.inspection;
     state.report = result.report;
@@ -794,59 +794,49 @@ async function openStudy(files) {
     const matches = await call('matchStudy', { manifest, names });
     state.study = { manifest, files, names, matches, entries: manifest.rows.map(() => null), open: null };
     renderFiles();
-    renderStudy();
+    await renderStudy();
     $('study-run').focus();
   } catch (e) {
     state.study = null;
-    renderStudy();
+    await renderStudy();
     showError('input-error', e);
   }
 }
 
 /** One number of a summary for the study table. */
-function summaryOf(entry) {
-  const text = entry?.files.find((f) => f[0] === 'summary.json')?.[1];
-  return text ? JSON.parse(text).summary : null;
-}
-
-function renderStudy() {
+/** The study step: the core words the sentence and the table; this places them and adds
+ * each row's Open button. */
+async function renderStudy() {
   const study = state.study;
   $('study').hidden = !study;
   if (!study) return;
   const { manifest } = study;
-  const done = study.entries.filter(Boolean).length;
-  const failed = study.entries.filter((e) => e?.status.outcome === 'failed').length;
-  $('study-text').textContent = `${manifest.rows.length} recordings from ${manifest.file}; `
-    + `${done} analysed or tried, ${failed} failed. Settings: those of the steps below (defaults until changed), `
-    + 'with each row\'s own track and settings file from the manifest.';
+  const rows = manifest.rows.map((_, i) => {
+    const e = study.entries[i];
+    return {
+      status_json: e?.status_json ?? null,
+      summary_json: e?.files.find((f) => f[0] === 'summary.json')?.[1] ?? null,
+      problem: study.matches[i].problem ?? null,
+    };
+  });
+  const view = await call('studyView', { manifest, rows });
+  $('study-text').textContent = view.sentence;
   const head = $('study-table').tHead;
   head.replaceChildren();
   const hr = head.insertRow();
-  for (const h of ['recording', ...manifest.columns, 'status', 'bursts', 'fronts', 'median speed (mm/s) [95% CI]', '']) {
+  for (const h of [...view.table.header, '']) {
     const th = document.createElement('th');
     th.scope = 'col';
     th.textContent = h;
     hr.append(th);
   }
-  const body = $('study-table').tBodies[0];
-  body.replaceChildren();
-  manifest.rows.forEach((row, i) => {
-    const entry = study.entries[i];
-    const status = entry?.status;
-    const s = summaryOf(entry);
-    const tr = body.insertRow();
-    const problem = study.matches[i].problem;
-    const ci = s?.median_speed_ci95_mm_s;
-    const speed = s?.median_speed_mm_s == null ? '' : `${s.median_speed_mm_s.toFixed(1)}${ci ? ` [${ci[0].toFixed(1)}, ${ci[1].toFixed(1)}]` : ''}`;
-    const words = status ? (status.outcome === 'failed' ? `failed: ${status.message}` : 'analysed')
-      : (problem ? `cannot run: ${problem}` : 'not analysed yet');
-    for (const text of [row.recording, ...row.columns, words, status?.burst_count ?? '', status?.front_count ?? '', speed]) {
-      tr.insertCell().textContent = String(text);
-    }
-    if (status?.outcome === 'failed' || problem) tr.classList.add('problem');
+  fillTable($('study-table'), view.table);
+  [...$('study-table').tBodies[0].rows].forEach((tr, i) => {
+    const row = manifest.rows[i];
+    if (view.problem[i]) tr.classList.add('problem');
     if (study.open === i) tr.classList.add('open');
     const cell = tr.insertCell();
-    if (!problem) {
+    if (!study.matches[i].problem) {
       const b = document.createElement('button');
       b.type = 'button';
       b.textContent = study.open === i ? 'open below' : 'Open';
@@ -855,10 +845,10 @@ function renderStudy() {
       cell.append(b);
     }
   });
-  $('study-save').disabled = done < manifest.rows.length;
+  $('study-save').disabled = !view.complete;
   // Comparing conditions needs every recording analysed or tried, and a column to compare by.
   const form = $('compare-form');
-  form.hidden = done < manifest.rows.length || manifest.columns.length === 0;
+  form.hidden = !view.complete || manifest.columns.length === 0;
   for (const [select, first] of [[form.elements.by, null], [form.elements.unit, 'each recording']]) {
     const keep = select.value;
     select.replaceChildren();
@@ -921,7 +911,7 @@ async function runStudy() {
         });
       }
       study.entries[i] = studyEntry(entry);
-      renderStudy();
+      await renderStudy();
     }
     setStatus(`Study analysed: ${n} recordings.`);
   } catch (e) {
@@ -952,7 +942,7 @@ async function openStudyRecording(i) {
     state.voltage = null;
   }
   study.open = i;
-  renderStudy();
+  await renderStudy();
   await openChosen();
 }
 
@@ -962,7 +952,7 @@ async function updateOpenStudyRecording() {
   if (!study || study.open === null) return;
   const entry = await call('studyEntry', { manifest: study.manifest, row: study.open });
   study.entries[study.open] = studyEntry(entry);
-  renderStudy();
+  await renderStudy();
 }
 
 /** The study's tables (status, recordings, bursts, fronts) from the core, as `ringline

@@ -73,6 +73,7 @@ const ops = {
   failedStudyEntry: ({ manifest, row, message }) => core.failedStudyEntry(manifest, row, message),
   studyEntry: ({ manifest, row }) => need().studyEntry(manifest, row),
   combineStudy: ({ outputs }) => core.combineStudy(outputs),
+  studyView: ({ manifest, rows }) => core.studyView(manifest, rows),
   compareStudy: ({ recordings, fronts, bursts, settings }) => core.compareStudy(recordings, fronts, bursts, settings),
   open: ({ activity, layout, settings }, id) => {
     workbook?.free();

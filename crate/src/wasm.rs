@@ -1044,6 +1044,16 @@ fn study_entry(
     to_js(&entry)
 }
 
+/// The study step's sentence and table: `manifest` as read, and per row `{ status_json,
+/// summary_json, problem }` (see [`crate::report::page_text::study_view`]).
+#[wasm_bindgen(js_name = studyView)]
+pub fn study_view(manifest: JsValue, rows: JsValue) -> Result<JsValue, JsValue> {
+    let manifest: crate::import::Manifest = serde_wasm_bindgen::from_value(manifest)
+        .map_err(|e| plain_error(format!("study: the manifest cannot be read: {e}")))?;
+    let rows: Vec<crate::report::page_text::StudyRowState> = settings(rows, "study rows")?;
+    to_js(&crate::report::page_text::study_view(&manifest, &rows))
+}
+
 /// The study's tables from every recording's `{ folder, status_json, summary_json,
 /// bursts_csv, fronts_csv }`: `{ files: [[name, text], ...], recordings, failed }`.
 #[wasm_bindgen(js_name = combineStudy)]

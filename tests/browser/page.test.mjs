@@ -73,6 +73,23 @@ async function dropFiles(page, files) {
   }, payload);
 }
 
+/** The records of a CSV text (RFC 4180: quoted fields may hold commas and doubled quotes). */
+function csvRecords(text) {
+  const records = [];
+  let record = [];
+  let field = '';
+  let quoted = false;
+  for (let k = 0; k < text.length; k += 1) {
+    const c = text[k];
+    if (quoted) {
+      if (c === '"' && text[k + 1] === '"') { field += '"'; k += 1; } else if (c === '"') quoted = false; else field += c;
+    } else if (c === '"') quoted = true;
+    else if (c === ',') { record.push(field); field = ''; } else if (c === '\n') { record.push(field); records.push(record); record = []; field = ''; } else if (c !== '\r') field += c;
+  }
+  if (field || record.length) { record.push(field); records.push(record); }
+  return records;
+}
+
 async function analyse(page) {
   await page.locator('#step-bursts').waitFor({ state: 'visible' });
   await page.click('#analyze-button');
@@ -521,6 +538,18 @@ test('a study of 6 recordings dropped with its manifest gives the command line\'
   await shoot(page, '9-study');
   const rows = await page.locator('#study-table tbody tr').allTextContents();
   assert.ok(rows.every((r) => r.includes('analysed')), rows.join('\n'));
+  // The study table's counts and speeds are those of `ringline batch`'s recordings.csv.
+  const [header, ...records] = csvRecords(readFileSync(join(dir, 'batch', 'recordings.csv'), 'utf8'));
+  const col = (name) => header.indexOf(name);
+  const cells = await page.$$eval('#study-table tbody tr', (trs) => trs.map((tr) => [...tr.cells].map((c) => c.textContent)));
+  assert.deepEqual(await page.$$eval('#study-table thead th', (ths) => ths.map((th) => th.textContent)),
+    ['recording', 'culture', 'condition', 'status', 'bursts', 'fronts', 'median speed (mm/s) [95% CI]', '']);
+  records.forEach((r, i) => {
+    assert.deepEqual(cells[i].slice(0, 6), [r[col('recording')], r[col('culture')], r[col('condition')], 'analysed', r[col('burst_count')], r[col('front_count')]]);
+    const [low, high] = [r[col('median_speed_ci95_low_mm_s')], r[col('median_speed_ci95_high_mm_s')]].map((v) => Number(v).toFixed(1));
+    assert.equal(cells[i][6], `${Number(r[col('median_speed_mm_s')]).toFixed(1)} [${low}, ${high}]`, r[col('recording')]);
+  });
+  assert.match(await page.textContent('#study-text'), /^6 recordings from study\.csv; 6 analysed or tried, 0 failed\./);
 
   const saved = {};
   page.on('download', async (d) => { saved[d.suggestedFilename()] = readFileSync(await d.path(), 'utf8'); });

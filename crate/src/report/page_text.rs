@@ -5,7 +5,7 @@
 use super::document::{FactKey, Table};
 use super::{AnalysisReport, Inspection};
 use crate::fronts::BurstResult;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// A value with `digits` decimals and its unit, or a dash when there is none.
 fn num(value: Option<f64>, digits: usize, unit: &str) -> String {
@@ -403,5 +403,111 @@ mod tests {
         assert_eq!(num(Some(0.5), 2, ""), "0.50");
         assert_eq!(num(None, 1, "s"), "—");
         assert_eq!(num(Some(f64::NAN), 1, "s"), "—");
+    }
+}
+
+/// One manifest row as the page holds it: its status (the text of its `status.json`) once
+/// analysed or tried, its `summary.json` text when analysed, or why it cannot run.
+#[derive(Debug, Clone, Default, PartialEq, Deserialize)]
+#[serde(default)]
+pub struct StudyRowState {
+    pub status_json: Option<String>,
+    pub summary_json: Option<String>,
+    pub problem: Option<String>,
+}
+
+/// The study step: what the study is and how far it got, and its table (one row per
+/// recording: the manifest's columns, the status, counts and the median speed).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StudyView {
+    pub sentence: String,
+    pub table: Table,
+    /// Per row: it failed or cannot run (the page marks it).
+    pub problem: Vec<bool>,
+    /// Every row was analysed or tried: the study tables can be saved and compared.
+    pub complete: bool,
+}
+
+/// The study step's sentence and table from the manifest and each row's state (`rows` in
+/// the manifest's order; a missing row counts as not analysed yet).
+pub fn study_view(manifest: &crate::import::Manifest, rows: &[StudyRowState]) -> StudyView {
+    let state = |i: usize| rows.get(i).cloned().unwrap_or_default();
+    let status = |i: usize| {
+        state(i)
+            .status_json
+            .and_then(|t| serde_json::from_str::<crate::study::RecordingStatus>(&t).ok())
+    };
+    let statuses: Vec<_> = (0..manifest.rows.len()).map(status).collect();
+    let done = statuses.iter().flatten().count();
+    let failed = statuses
+        .iter()
+        .flatten()
+        .filter(|s| s.outcome == crate::study::Outcome::Failed)
+        .count();
+    let sentence = format!(
+        "{} recordings from {}; {done} analysed or tried, {failed} failed. Settings: those of the steps below (defaults until changed), with each row's own track and settings file from the manifest.",
+        manifest.rows.len(),
+        manifest.file
+    );
+    let mut header = vec!["recording".to_string()];
+    header.extend(manifest.columns.iter().cloned());
+    header.extend(["status", "bursts", "fronts", "median speed (mm/s) [95% CI]"].map(String::from));
+    let mut problem = Vec::new();
+    let table_rows = manifest
+        .rows
+        .iter()
+        .zip(&statuses)
+        .enumerate()
+        .map(|(i, (row, status))| {
+            let cannot_run = state(i).problem;
+            let summary: Option<serde_json::Value> = state(i)
+                .summary_json
+                .and_then(|t| serde_json::from_str(&t).ok());
+            let number = |pointer: &str| {
+                summary
+                    .as_ref()
+                    .and_then(|s| s.pointer(pointer))
+                    .and_then(serde_json::Value::as_f64)
+            };
+            let median = number("/summary/median_speed_mm_s").map(super::speed_text);
+            let interval = number("/summary/median_speed_ci95_mm_s/0")
+                .zip(number("/summary/median_speed_ci95_mm_s/1"))
+                .map(|(a, b)| format!(" [{}, {}]", super::speed_text(a), super::speed_text(b)));
+            let words = match (status, &cannot_run) {
+                (Some(s), _) if s.outcome == crate::study::Outcome::Failed => {
+                    format!("failed: {}", s.message.as_deref().unwrap_or(""))
+                }
+                (Some(_), _) => "analysed".to_string(),
+                (None, Some(why)) => format!("cannot run: {why}"),
+                (None, None) => "not analysed yet".to_string(),
+            };
+            problem.push(
+                cannot_run.is_some()
+                    || status
+                        .as_ref()
+                        .is_some_and(|s| s.outcome == crate::study::Outcome::Failed),
+            );
+            let count = |c: Option<usize>| c.map_or(String::new(), |n| n.to_string());
+            let mut cells = vec![row.recording.clone()];
+            cells.extend(row.columns.iter().cloned());
+            cells.extend([
+                words,
+                count(status.as_ref().and_then(|s| s.burst_count)),
+                count(status.as_ref().and_then(|s| s.front_count)),
+                median.map_or(String::new(), |m| m + &interval.unwrap_or_default()),
+            ]);
+            cells
+        })
+        .collect();
+    StudyView {
+        sentence,
+        table: Table {
+            caption: "Recordings of the study".into(),
+            header,
+            rows: table_rows,
+            collapsed: false,
+        },
+        problem,
+        complete: done == manifest.rows.len(),
     }
 }
