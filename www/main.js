@@ -381,7 +381,7 @@ async function openNotebook(entry, files = null) {
       files: [],
       names: [],
       matches: study.manifest.rows.map(() => ({ problem: 'its files are not open: drop the study\'s files again to analyse or open it' })),
-      entries: study.recordings.map((e) => e && { status: JSON.parse(e.status_json), status_json: e.status_json, files: e.files }),
+      entries: study.recordings.map((e) => e && { status_json: e.status_json, files: e.files }),
       open: null,
     };
     await renderStudy();
@@ -803,7 +803,6 @@ async function openStudy(files) {
   }
 }
 
-/** One number of a summary for the study table. */
 /** The study step: the core words the sentence and the table; this places them and adds
  * each row's Open button. */
 async function renderStudy() {
@@ -878,7 +877,6 @@ async function studyFiles(i) {
 const STUDY_FILES = ['summary.json', 'bursts.csv', 'fronts.csv'];
 function studyEntry(entry) {
   return {
-    status: JSON.parse(entry.status_json),
     status_json: entry.status_json,
     files: entry.files.filter((f) => STUDY_FILES.includes(f[0])),
   };

@@ -381,31 +381,6 @@ pub fn compare_table(r: &crate::study::compare::CompareReport) -> Table {
     }
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn four_significant_digits_without_exponents() {
-        // Decimal places so that four significant digits show (more for 10,000 and up, never
-        // an exponent); Rust's formatting rounds the exact binary value.
-        assert_eq!(sig4(Some(7.25)), "7.250");
-        assert_eq!(sig4(Some(0.0123456)), "0.01235");
-        assert_eq!(sig4(Some(1234.4)), "1234");
-        assert_eq!(sig4(Some(123456.7)), "123457");
-        assert_eq!(sig4(Some(-2.71838)), "-2.718");
-        assert_eq!(sig4(None), "—");
-    }
-
-    #[test]
-    fn numbers_carry_their_units_and_a_dash_when_missing() {
-        assert_eq!(num(Some(12.345), 1, "mm/s"), "12.3 mm/s");
-        assert_eq!(num(Some(0.5), 2, ""), "0.50");
-        assert_eq!(num(None, 1, "s"), "—");
-        assert_eq!(num(Some(f64::NAN), 1, "s"), "—");
-    }
-}
-
 /// One manifest row as the page holds it: its status (the text of its `status.json`) once
 /// analysed or tried, its `summary.json` text when analysed, or why it cannot run.
 #[derive(Debug, Clone, Default, PartialEq, Deserialize)]
@@ -431,38 +406,39 @@ pub struct StudyView {
 /// The study step's sentence and table from the manifest and each row's state (`rows` in
 /// the manifest's order; a missing row counts as not analysed yet).
 pub fn study_view(manifest: &crate::import::Manifest, rows: &[StudyRowState]) -> StudyView {
-    let state = |i: usize| rows.get(i).cloned().unwrap_or_default();
-    let status = |i: usize| {
-        state(i)
-            .status_json
-            .and_then(|t| serde_json::from_str::<crate::study::RecordingStatus>(&t).ok())
-    };
-    let statuses: Vec<_> = (0..manifest.rows.len()).map(status).collect();
-    let done = statuses.iter().flatten().count();
-    let failed = statuses
-        .iter()
-        .flatten()
-        .filter(|s| s.outcome == crate::study::Outcome::Failed)
-        .count();
+    use crate::study::{Outcome, RecordingStatus};
+    let none = StudyRowState::default();
+    let states: Vec<(&StudyRowState, Option<RecordingStatus>)> = (0..manifest.rows.len())
+        .map(|i| {
+            let state = rows.get(i).unwrap_or(&none);
+            let status = state
+                .status_json
+                .as_deref()
+                .and_then(|t| serde_json::from_str(t).ok());
+            (state, status)
+        })
+        .collect();
+    let tried = states.iter().filter(|(_, s)| s.is_some()).count();
+    let is_failed =
+        |s: &Option<RecordingStatus>| s.as_ref().is_some_and(|s| s.outcome == Outcome::Failed);
+    let failed = states.iter().filter(|(_, s)| is_failed(s)).count();
     let sentence = format!(
-        "{} recordings from {}; {done} analysed or tried, {failed} failed. Settings: those of the steps below (defaults until changed), with each row's own track and settings file from the manifest.",
+        "{} recordings from {}; {tried} analysed or tried, {failed} failed. Settings: those of the steps below (defaults until changed), with each row's own track and settings file from the manifest.",
         manifest.rows.len(),
         manifest.file
     );
     let mut header = vec!["recording".to_string()];
     header.extend(manifest.columns.iter().cloned());
     header.extend(["status", "bursts", "fronts", "median speed (mm/s) [95% CI]"].map(String::from));
-    let mut problem = Vec::new();
     let table_rows = manifest
         .rows
         .iter()
-        .zip(&statuses)
-        .enumerate()
-        .map(|(i, (row, status))| {
-            let cannot_run = state(i).problem;
-            let summary: Option<serde_json::Value> = state(i)
+        .zip(&states)
+        .map(|(row, (state, status))| {
+            let summary: Option<serde_json::Value> = state
                 .summary_json
-                .and_then(|t| serde_json::from_str(&t).ok());
+                .as_deref()
+                .and_then(|t| serde_json::from_str(t).ok());
             let number = |pointer: &str| {
                 summary
                     .as_ref()
@@ -473,20 +449,14 @@ pub fn study_view(manifest: &crate::import::Manifest, rows: &[StudyRowState]) ->
             let interval = number("/summary/median_speed_ci95_mm_s/0")
                 .zip(number("/summary/median_speed_ci95_mm_s/1"))
                 .map(|(a, b)| format!(" [{}, {}]", super::speed_text(a), super::speed_text(b)));
-            let words = match (status, &cannot_run) {
-                (Some(s), _) if s.outcome == crate::study::Outcome::Failed => {
+            let words = match (status, &state.problem) {
+                (Some(s), _) if s.outcome == Outcome::Failed => {
                     format!("failed: {}", s.message.as_deref().unwrap_or(""))
                 }
                 (Some(_), _) => "analysed".to_string(),
                 (None, Some(why)) => format!("cannot run: {why}"),
                 (None, None) => "not analysed yet".to_string(),
             };
-            problem.push(
-                cannot_run.is_some()
-                    || status
-                        .as_ref()
-                        .is_some_and(|s| s.outcome == crate::study::Outcome::Failed),
-            );
             let count = |c: Option<usize>| c.map_or(String::new(), |n| n.to_string());
             let mut cells = vec![row.recording.clone()];
             cells.extend(row.columns.iter().cloned());
@@ -507,7 +477,35 @@ pub fn study_view(manifest: &crate::import::Manifest, rows: &[StudyRowState]) ->
             rows: table_rows,
             collapsed: false,
         },
-        problem,
-        complete: done == manifest.rows.len(),
+        problem: states
+            .iter()
+            .map(|(state, status)| state.problem.is_some() || is_failed(status))
+            .collect(),
+        complete: tried == manifest.rows.len(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn four_significant_digits_without_exponents() {
+        // Decimal places so that four significant digits show (more for 10,000 and up, never
+        // an exponent); Rust's formatting rounds the exact binary value.
+        assert_eq!(sig4(Some(7.25)), "7.250");
+        assert_eq!(sig4(Some(0.0123456)), "0.01235");
+        assert_eq!(sig4(Some(1234.4)), "1234");
+        assert_eq!(sig4(Some(123456.7)), "123457");
+        assert_eq!(sig4(Some(-2.71838)), "-2.718");
+        assert_eq!(sig4(None), "—");
+    }
+
+    #[test]
+    fn numbers_carry_their_units_and_a_dash_when_missing() {
+        assert_eq!(num(Some(12.345), 1, "mm/s"), "12.3 mm/s");
+        assert_eq!(num(Some(0.5), 2, ""), "0.50");
+        assert_eq!(num(None, 1, "s"), "—");
+        assert_eq!(num(Some(f64::NAN), 1, "s"), "—");
     }
 }
